@@ -1,0 +1,119 @@
+/**
+ * Errors a user can cause. Each carries fields, not just text, and an exit code for the CLI:
+ * 2 = bad input or usage, 1 = a failure while working. The CLI prints `message` as one line.
+ */
+
+export type ExitCode = 1 | 2;
+
+export abstract class TendonError extends Error {
+  abstract readonly exitCode: ExitCode;
+  override get name(): string {
+    return this.constructor.name;
+  }
+}
+
+/** One problem found in a model file or a model spec; `where` names the layer, tensor or field. */
+export interface Problem {
+  readonly where: string;
+  readonly message: string;
+}
+
+/** A model file (or spec) that cannot be used. Every problem found is listed, so a user fixes all in one pass. */
+export class ModelFileError extends TendonError {
+  readonly exitCode = 2;
+  constructor(
+    readonly path: string,
+    readonly problems: readonly Problem[],
+  ) {
+    super(
+      `${path}: ` +
+        problems.map((p) => (p.where ? `${p.where}: ${p.message}` : p.message)).join('; '),
+    );
+  }
+}
+
+/** A tensor whose shape does not fit where it is used. */
+export class ShapeError extends TendonError {
+  readonly exitCode = 2;
+  constructor(
+    readonly tensor: string,
+    readonly expected: readonly (number | string)[],
+    readonly actual: readonly number[],
+    context = '',
+  ) {
+    super(
+      `${context ? context + ': ' : ''}${tensor} has shape [${actual.join(', ')}], expected [${expected.join(', ')}]`,
+    );
+  }
+}
+
+/** A bad row, cell or header in a data file. line and column are 1-based; 0 means "not known". */
+export class DataError extends TendonError {
+  readonly exitCode = 2;
+  constructor(
+    readonly file: string,
+    readonly line: number,
+    readonly column: number,
+    readonly detail: string,
+  ) {
+    super(`${file}${line ? `:${line}` : ''}${column ? `:${column}` : ''}: ${detail}`);
+  }
+}
+
+/** A bad command-line flag, argument or option value. */
+export class UsageError extends TendonError {
+  readonly exitCode = 2;
+  constructor(
+    readonly flag: string,
+    readonly detail: string,
+  ) {
+    super(flag ? `${flag}: ${detail}` : detail);
+  }
+}
+
+/** Bad training configuration, refused before any epoch runs. */
+export class TuneConfigError extends TendonError {
+  readonly exitCode = 2;
+  constructor(
+    readonly option: string,
+    readonly detail: string,
+  ) {
+    super(`tune option ${option}: ${detail}`);
+  }
+}
+
+/** The engine and the float64 reference disagree beyond the stated tolerance. */
+export class ParityError extends TendonError {
+  readonly exitCode = 1;
+  constructor(
+    readonly where: string,
+    readonly maxAbsError: number,
+    readonly maxRelError: number,
+    readonly tolerance: { abs: number; rel: number },
+  ) {
+    super(
+      `parity broken at ${where}: max abs error ${maxAbsError.toExponential(3)}, max rel error ${maxRelError.toExponential(3)} (tolerance abs ${tolerance.abs}, rel ${tolerance.rel})`,
+    );
+  }
+}
+
+/** Training stopped because a loss or gradient became NaN or infinite. */
+export class DivergenceError extends TendonError {
+  readonly exitCode = 1;
+  constructor(
+    readonly epoch: number,
+    readonly batch: number,
+    readonly layer: string,
+    detail: string,
+  ) {
+    super(`training diverged at epoch ${epoch}, batch ${batch}: ${detail} (first non-finite gradient in ${layer}); last good weights kept`);
+  }
+}
+
+/** A failure while working that the user did not cause directly (worker died twice, queue full...). */
+export class RuntimeFailure extends TendonError {
+  readonly exitCode = 1;
+  constructor(message: string) {
+    super(message);
+  }
+}

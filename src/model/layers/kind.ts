@@ -1,0 +1,82 @@
+/**
+ * The contract every layer kind fulfils. One file per kind (dense.ts, batchnorm.ts, dropout.ts)
+ * holds its whole story: parameter shapes, validation, initialisation, the tfjs engine forward
+ * and backward, and the float64 reference forward and backward. `catalogue.ts` registers them.
+ *
+ * The reference halves use plain loops over Float64Array and never touch tfjs; the engine halves
+ * use tfjs ops only. They share no compute code, so parity between them means something.
+ */
+import type * as tf from '@tensorflow/tfjs-core';
+import type { Problem } from '../../errors.js';
+import type { Layer, ParamRef } from '../types.js';
+
+/** A rows x cols float64 matrix, row-major. */
+export interface Mat64 {
+  readonly rows: number;
+  readonly cols: number;
+  readonly data: Float64Array;
+}
+
+/** Seeded source of uniform numbers in [0, 1), shared so engine and reference draw the same masks. */
+export interface Rng {
+  next(): number;
+}
+
+export interface ForwardContext {
+  /** Training mode: dropout masks, batch statistics in batch normalisation. */
+  readonly training: boolean;
+  /**
+   * Dropout keep-mask for `layerIndex`: rows*cols values of 0 or 1/(1-rate). The same call
+   * gives the same mask to the engine and the reference within one step.
+   */
+  dropoutMask(layerIndex: number, rows: number, cols: number, rate: number): Float32Array;
+}
+
+/** Float64 reference forward result; `saved` is whatever backward needs (declared by the kind). */
+export interface RefForward {
+  readonly y: Mat64;
+  readonly saved: unknown;
+}
+
+export interface RefBackward {
+  /** dLoss/dInput. */
+  readonly dx: Mat64;
+  /** dLoss/dParam, one per trainable parameter, in the order of `trainable()`. */
+  readonly grads: Float64Array[];
+}
+
+export interface EngineForward {
+  readonly y: tf.Tensor2D;
+  /** Tensors backward needs; the caller disposes them after backward. */
+  readonly saved: tf.Tensor[];
+}
+
+export interface EngineBackward {
+  readonly dx: tf.Tensor2D;
+  /** One per trainable parameter, in the order of `trainable()`. */
+  readonly grads: tf.Tensor[];
+}
+
+export interface LayerKind<L extends Layer = Layer> {
+  readonly kind: L['kind'];
+  /** Width of the output for a given input width. */
+  outputWidth(layer: L, inputWidth: number): number;
+  /** Every stored tensor of the layer with its shape (for the file, `show`, validation). */
+  tensors(layer: L, inputWidth: number, index: number): ParamRef[];
+  /** Tensors updated by gradient descent, in a fixed order; gradients come back in this order. */
+  trainable(layer: L, inputWidth: number, index: number): ParamRef[];
+  /** Problems with attributes and tensor sizes; `where` is e.g. "layers[2] (dense)". */
+  validate(layer: L, inputWidth: number, where: string): Problem[];
+
+  readonly reference: {
+    forward(layer: L, x: Mat64, ctx: ForwardContext, index: number): RefForward;
+    backward(layer: L, saved: unknown, dy: Mat64): RefBackward;
+  };
+
+  readonly engine: {
+    /** Upload the layer's tensors once; the engine keeps them for the model's lifetime. */
+    upload(layer: L): tf.Tensor[];
+    forward(layer: L, weights: tf.Tensor[], x: tf.Tensor2D, ctx: ForwardContext, index: number): EngineForward;
+    backward(layer: L, weights: tf.Tensor[], saved: tf.Tensor[], dy: tf.Tensor2D): EngineBackward;
+  };
+}
