@@ -9,6 +9,8 @@ export interface ActivationKind {
   readonly name: ActivationName;
   /** Initialisation that keeps variance through the layer: He for the ReLU family, Glorot otherwise. */
   readonly init: 'he' | 'glorot';
+  /** The name tfjs's fused matMul uses for this activation, when it fuses it. */
+  readonly fused?: 'linear' | 'relu' | 'leakyrelu' | 'sigmoid';
   /** float64 reference: y = f(z), a new array. */
   refForward(z: Float64Array, rows: number, cols: number, alpha: number): Float64Array;
   /** float64 reference: dL/dz from z, y = f(z) and dL/dy. */

@@ -32,10 +32,33 @@ export interface ForwardContext {
   dropoutMask(layerIndex: number, rows: number, cols: number, rate: number): Float32Array;
 }
 
+/**
+ * Statistics of one training batch (batch normalisation): per-feature mean and biased variance.
+ * The train loop folds them into the running statistics with the layer's momentum.
+ */
+export interface BatchStats {
+  readonly mean: Float64Array;
+  readonly variance: Float64Array;
+}
+
+/** How backward reads its incoming gradient. */
+export interface BackwardOptions {
+  /**
+   * The incoming gradient is dLoss/dz on the pre-activation z of a dense layer, not dLoss/dy.
+   * Lets a caller hand softmax + cross-entropy's stable `p - t` straight to the last layer.
+   * Only dense layers accept it.
+   */
+  readonly dyIsPreActivation?: boolean;
+}
+
 /** Float64 reference forward result; `saved` is whatever backward needs (declared by the kind). */
 export interface RefForward {
   readonly y: Mat64;
   readonly saved: unknown;
+  /** Dense only: the pre-activation z = x·W + b (the logits of a final layer). */
+  readonly z?: Mat64;
+  /** Batch normalisation in training mode only: this batch's mean and biased variance. */
+  readonly stats?: BatchStats;
 }
 
 export interface RefBackward {
@@ -49,6 +72,13 @@ export interface EngineForward {
   readonly y: tf.Tensor2D;
   /** Tensors backward needs; the caller disposes them after backward. */
   readonly saved: tf.Tensor[];
+  /**
+   * Dense in training mode only: the pre-activation z. It is one of the `saved` tensors, so
+   * disposing `saved` disposes it.
+   */
+  readonly z?: tf.Tensor2D;
+  /** Batch normalisation in training mode only: this batch's mean and biased variance. */
+  readonly stats?: BatchStats;
 }
 
 export interface EngineBackward {
@@ -70,13 +100,13 @@ export interface LayerKind<L extends Layer = Layer> {
 
   readonly reference: {
     forward(layer: L, x: Mat64, ctx: ForwardContext, index: number): RefForward;
-    backward(layer: L, saved: unknown, dy: Mat64): RefBackward;
+    backward(layer: L, saved: unknown, dy: Mat64, opts?: BackwardOptions): RefBackward;
   };
 
   readonly engine: {
     /** Upload the layer's tensors once; the engine keeps them for the model's lifetime. */
     upload(layer: L): tf.Tensor[];
     forward(layer: L, weights: tf.Tensor[], x: tf.Tensor2D, ctx: ForwardContext, index: number): EngineForward;
-    backward(layer: L, weights: tf.Tensor[], saved: tf.Tensor[], dy: tf.Tensor2D): EngineBackward;
+    backward(layer: L, weights: tf.Tensor[], saved: tf.Tensor[], dy: tf.Tensor2D, opts?: BackwardOptions): EngineBackward;
   };
 }

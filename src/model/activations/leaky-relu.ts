@@ -1,0 +1,21 @@
+import * as tf from '@tensorflow/tfjs-core';
+import type { ActivationKind } from './kind.js';
+
+/** f(z) = z for z > 0, alpha·z otherwise; keeps a gradient for negative inputs. */
+export const leakyRelu: ActivationKind = {
+  name: 'leaky_relu',
+  init: 'he',
+  fused: 'leakyrelu',
+  refForward(z, _rows, _cols, alpha) {
+    const y = new Float64Array(z.length);
+    for (let i = 0; i < z.length; i++) y[i] = z[i] > 0 ? z[i] : alpha * z[i];
+    return y;
+  },
+  refBackward(z, _y, dy, _rows, _cols, alpha) {
+    const dz = new Float64Array(z.length);
+    for (let i = 0; i < z.length; i++) dz[i] = z[i] > 0 ? dy[i] : alpha * dy[i];
+    return dz;
+  },
+  engineForward: (z, alpha) => tf.leakyRelu(z, alpha),
+  engineBackward: (z, _y, dy, alpha) => tf.where(tf.greater(z, 0), dy, tf.mul<tf.Tensor2D>(dy, alpha)),
+};

@@ -1,0 +1,14 @@
+import * as tf from '@tensorflow/tfjs-core';
+import type { ActivationKind } from './kind.js';
+
+/** f(z) = z. */
+export const linear: ActivationKind = {
+  name: 'linear',
+  init: 'glorot',
+  fused: 'linear',
+  refForward: (z) => Float64Array.from(z),
+  refBackward: (_z, _y, dy) => Float64Array.from(dy),
+  // A clone, not z itself: callers dispose y and z independently.
+  engineForward: (z) => tf.clone(z),
+  engineBackward: (_z, _y, dy) => tf.clone(dy),
+};

@@ -1,0 +1,21 @@
+import * as tf from '@tensorflow/tfjs-core';
+import type { ActivationKind } from './kind.js';
+
+/** f(z) = max(z, 0). The derivative at exactly 0 is taken as 0 on both paths. */
+export const relu: ActivationKind = {
+  name: 'relu',
+  init: 'he',
+  fused: 'relu',
+  refForward(z) {
+    const y = new Float64Array(z.length);
+    for (let i = 0; i < z.length; i++) y[i] = z[i] > 0 ? z[i] : 0;
+    return y;
+  },
+  refBackward(z, _y, dy) {
+    const dz = new Float64Array(z.length);
+    for (let i = 0; i < z.length; i++) dz[i] = z[i] > 0 ? dy[i] : 0;
+    return dz;
+  },
+  engineForward: (z) => tf.relu(z),
+  engineBackward: (z, _y, dy) => tf.where(tf.greater(z, 0), dy, tf.zerosLike(dy)),
+};

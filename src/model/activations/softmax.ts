@@ -1,0 +1,38 @@
+import * as tf from '@tensorflow/tfjs-core';
+import type { ActivationKind } from './kind.js';
+
+/** Row-wise softmax: y_j = exp(z_j) / sum_k exp(z_k). */
+export const softmax: ActivationKind = {
+  name: 'softmax',
+  init: 'glorot',
+  refForward(z, rows, cols) {
+    const y = new Float64Array(z.length);
+    for (let r = 0; r < rows; r++) {
+      const o = r * cols;
+      // Subtracting the row maximum leaves the result unchanged and keeps every exp() <= 1.
+      let max = -Infinity;
+      for (let c = 0; c < cols; c++) max = Math.max(max, z[o + c]);
+      let sum = 0;
+      for (let c = 0; c < cols; c++) {
+        const e = Math.exp(z[o + c] - max);
+        y[o + c] = e;
+        sum += e;
+      }
+      for (let c = 0; c < cols; c++) y[o + c] /= sum;
+    }
+    return y;
+  },
+  refBackward(_z, y, dy, rows, cols) {
+    // The Jacobian diag(y) - y yᵀ applied to dy: dz_j = y_j (dy_j - sum_k dy_k y_k).
+    const dz = new Float64Array(y.length);
+    for (let r = 0; r < rows; r++) {
+      const o = r * cols;
+      let dot = 0;
+      for (let c = 0; c < cols; c++) dot += dy[o + c] * y[o + c];
+      for (let c = 0; c < cols; c++) dz[o + c] = y[o + c] * (dy[o + c] - dot);
+    }
+    return dz;
+  },
+  engineForward: (z) => tf.softmax(z, -1),
+  engineBackward: (_z, y, dy) => tf.mul(y, tf.sub(dy, tf.sum(tf.mul(dy, y), 1, true))),
+};

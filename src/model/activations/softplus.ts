@@ -1,0 +1,23 @@
+import * as tf from '@tensorflow/tfjs-core';
+import type { ActivationKind } from './kind.js';
+import { logistic } from './sigmoid.js';
+
+/** f(z) = log(1 + exp(z)), a smooth ReLU whose derivative is the logistic function. */
+export const softplus: ActivationKind = {
+  name: 'softplus',
+  // Close to ReLU for |z| > a few units, so it takes ReLU's initialisation.
+  init: 'he',
+  refForward(z) {
+    // max(z, 0) + log1p(exp(-|z|)): exp never overflows, and log1p keeps the small tail exact.
+    const y = new Float64Array(z.length);
+    for (let i = 0; i < z.length; i++) y[i] = Math.max(z[i], 0) + Math.log1p(Math.exp(-Math.abs(z[i])));
+    return y;
+  },
+  refBackward(z, _y, dy) {
+    const dz = new Float64Array(z.length);
+    for (let i = 0; i < z.length; i++) dz[i] = dy[i] * logistic(z[i]);
+    return dz;
+  },
+  engineForward: (z) => tf.softplus(z),
+  engineBackward: (z, _y, dy) => tf.mul(dy, tf.sigmoid(z)),
+};

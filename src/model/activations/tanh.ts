@@ -1,0 +1,21 @@
+import * as tf from '@tensorflow/tfjs-core';
+import type { ActivationKind } from './kind.js';
+
+/** Hyperbolic tangent. */
+export const tanh: ActivationKind = {
+  name: 'tanh',
+  init: 'glorot',
+  refForward(z) {
+    const y = new Float64Array(z.length);
+    for (let i = 0; i < z.length; i++) y[i] = Math.tanh(z[i]);
+    return y;
+  },
+  refBackward(_z, y, dy) {
+    // tanh' = 1 - tanh², computed from the saved output.
+    const dz = new Float64Array(y.length);
+    for (let i = 0; i < y.length; i++) dz[i] = dy[i] * (1 - y[i] * y[i]);
+    return dz;
+  },
+  engineForward: (z) => tf.tanh(z),
+  engineBackward: (_z, y, dy) => tf.mul(dy, tf.sub(1, tf.square(y))),
+};

@@ -1,0 +1,171 @@
+/**
+ * Batch normalisation (Ioffe and Szegedy, 2015), per feature c:
+ *   inference: y = gamma (x - runningMean) / sqrt(runningVariance + eps) + beta
+ *   training:  the same with this batch's mean and biased variance, returned as `stats` so the
+ *              train loop can fold them into the running statistics with `momentum`.
+ * Trainable: [gamma, beta]. Backward from a training forward runs through the batch
+ * statistics; from an inference forward it treats the running statistics as constants.
+ * Engine weights: [gamma, beta, runningMean, 1/sqrt(runningVariance + eps)].
+ * Engine saved: [xhat, batchInvStd] (training) or [xhat] (inference).
+ */
+import * as tf from '@tensorflow/tfjs-core';
+import type { Problem } from '../../errors.js';
+import type { BatchNormLayer, ParamRef } from '../types.js';
+import { finiteProblems } from './checks.js';
+import { as2D } from './engine-util.js';
+import type { EngineBackward, EngineForward, ForwardContext, LayerKind, Mat64, RefBackward, RefForward } from './kind.js';
+import { mat64 } from './mat64.js';
+
+interface BatchNormSaved {
+  readonly mode: 'training' | 'inference';
+  readonly xhat: Float64Array;
+  /** Per feature 1/sqrt(var + eps) of the statistics used. */
+  readonly invStd: Float64Array;
+  readonly rows: number;
+  readonly cols: number;
+}
+
+function params(layer: BatchNormLayer, inputWidth: number, index: number): ParamRef[] {
+  return [
+    { name: `layers[${index}].gamma`, shape: [inputWidth], data: layer.gamma },
+    { name: `layers[${index}].beta`, shape: [inputWidth], data: layer.beta },
+  ];
+}
+
+function tensors(layer: BatchNormLayer, inputWidth: number, index: number): ParamRef[] {
+  return [
+    ...params(layer, inputWidth, index),
+    { name: `layers[${index}].runningMean`, shape: [inputWidth], data: layer.runningMean },
+    { name: `layers[${index}].runningVariance`, shape: [inputWidth], data: layer.runningVariance },
+  ];
+}
+
+function refForward(layer: BatchNormLayer, x: Mat64, ctx: ForwardContext): RefForward {
+  const { rows, cols } = x;
+  const mean = new Float64Array(cols);
+  const variance = new Float64Array(cols);
+  if (ctx.training) {
+    // Two passes (mean, then squared deviations) rather than E[x²] - E[x]², which cancels badly
+    // when the mean is large next to the spread.
+    for (let r = 0; r < rows; r++) for (let c = 0; c < cols; c++) mean[c] += x.data[r * cols + c];
+    for (let c = 0; c < cols; c++) mean[c] /= rows;
+    for (let r = 0; r < rows; r++) {
+      for (let c = 0; c < cols; c++) {
+        const d = x.data[r * cols + c] - mean[c];
+        variance[c] += d * d;
+      }
+    }
+    for (let c = 0; c < cols; c++) variance[c] /= rows;
+  } else {
+    mean.set(layer.runningMean);
+    variance.set(layer.runningVariance);
+  }
+  const invStd = new Float64Array(cols);
+  for (let c = 0; c < cols; c++) invStd[c] = 1 / Math.sqrt(variance[c] + layer.epsilon);
+  const xhat = new Float64Array(rows * cols);
+  const y = new Float64Array(rows * cols);
+  for (let r = 0; r < rows; r++) {
+    for (let c = 0; c < cols; c++) {
+      const i = r * cols + c;
+      xhat[i] = (x.data[i] - mean[c]) * invStd[c];
+      y[i] = layer.gamma[c] * xhat[i] + layer.beta[c];
+    }
+  }
+  const saved: BatchNormSaved = { mode: ctx.training ? 'training' : 'inference', xhat, invStd, rows, cols };
+  return { y: mat64(rows, cols, y), saved, ...(ctx.training ? { stats: { mean, variance } } : {}) };
+}
+
+function isBatchNormSaved(s: unknown): s is BatchNormSaved {
+  return typeof s === 'object' && s !== null && 'xhat' in s && 'invStd' in s && 'mode' in s;
+}
+
+function refBackward(layer: BatchNormLayer, saved: unknown, dy: Mat64): RefBackward {
+  if (!isBatchNormSaved(saved)) throw new Error('batchnorm backward: saved is not from a batchnorm reference forward');
+  const { xhat, invStd, rows, cols, mode } = saved;
+  const dgamma = new Float64Array(cols);
+  const dbeta = new Float64Array(cols);
+  for (let r = 0; r < rows; r++) {
+    for (let c = 0; c < cols; c++) {
+      const i = r * cols + c;
+      dbeta[c] += dy.data[i];
+      dgamma[c] += dy.data[i] * xhat[i];
+    }
+  }
+  const dx = new Float64Array(rows * cols);
+  for (let r = 0; r < rows; r++) {
+    for (let c = 0; c < cols; c++) {
+      const i = r * cols + c;
+      const g = layer.gamma[c] * invStd[c];
+      // Training: mean and variance depend on every row, which adds the two correction terms
+      // dx = gamma·invStd/N · (N·dy - Σdy - xhat·Σ(dy·xhat)).
+      dx[i] = mode === 'training' ? (g / rows) * (rows * dy.data[i] - dbeta[c] - xhat[i] * dgamma[c]) : g * dy.data[i];
+    }
+  }
+  return { dx: mat64(rows, cols, dx), grads: [dgamma, dbeta] };
+}
+
+function engineUpload(layer: BatchNormLayer): tf.Tensor[] {
+  // 1/sqrt(var + eps) in float64 once, rounded to float32 once.
+  const invStd = new Float32Array(layer.runningVariance.length);
+  for (let c = 0; c < invStd.length; c++) invStd[c] = 1 / Math.sqrt(layer.runningVariance[c] + layer.epsilon);
+  return [tf.tensor1d(layer.gamma.slice()), tf.tensor1d(layer.beta.slice()), tf.tensor1d(layer.runningMean.slice()), tf.tensor1d(invStd)];
+}
+
+function engineForward(layer: BatchNormLayer, weights: tf.Tensor[], x: tf.Tensor2D, ctx: ForwardContext): EngineForward {
+  const [gamma, beta, runningMean, runningInvStd] = weights;
+  if (!ctx.training) {
+    const xhat = tf.mul(tf.sub(x, runningMean), runningInvStd);
+    return { y: as2D(tf.add(tf.mul(xhat, gamma), beta), 'batchnorm output'), saved: [xhat] };
+  }
+  const { mean, variance } = tf.moments(x, 0);
+  const invStd = tf.rsqrt(tf.add(variance, layer.epsilon));
+  const xhat = tf.mul(tf.sub(x, mean), invStd);
+  const y = as2D(tf.add(tf.mul(xhat, gamma), beta), 'batchnorm output');
+  const stats = { mean: Float64Array.from(mean.dataSync()), variance: Float64Array.from(variance.dataSync()) };
+  return { y, saved: [xhat, invStd], stats };
+}
+
+function engineBackward(_layer: BatchNormLayer, weights: tf.Tensor[], saved: tf.Tensor[], dy: tf.Tensor2D): EngineBackward {
+  const gamma = weights[0];
+  const xhat = saved[0];
+  if (!xhat) throw new Error('batchnorm backward needs the saved tensors of its forward');
+  const dbeta = tf.sum(dy, 0);
+  const dgamma = tf.sum(tf.mul(dy, xhat), 0);
+  if (saved.length === 1) {
+    return { dx: as2D(tf.mul(dy, tf.mul(gamma, weights[3])), 'batchnorm dx'), grads: [dgamma, dbeta] };
+  }
+  const n = dy.shape[0];
+  const g = tf.div(tf.mul(gamma, saved[1]), n);
+  const inner = tf.sub(tf.sub(tf.mul(dy, n), dbeta), tf.mul(xhat, dgamma));
+  return { dx: as2D(tf.mul(g, inner), 'batchnorm dx'), grads: [dgamma, dbeta] };
+}
+
+function validate(layer: BatchNormLayer, inputWidth: number, where: string): Problem[] {
+  const problems: Problem[] = [];
+  const named: [string, Float32Array][] = [
+    ['gamma', layer.gamma],
+    ['beta', layer.beta],
+    ['runningMean', layer.runningMean],
+    ['runningVariance', layer.runningVariance],
+  ];
+  for (const [name, data] of named) {
+    if (data.length !== inputWidth) problems.push({ where, message: `${name} has ${data.length} values, expected [${inputWidth}]` });
+    else problems.push(...finiteProblems(data, name, where));
+  }
+  const negative = layer.runningVariance.findIndex((v) => v < 0);
+  if (negative >= 0) problems.push({ where, message: `runningVariance[${negative}] is ${layer.runningVariance[negative]}; a variance cannot be negative` });
+  if (!(Number.isFinite(layer.epsilon) && layer.epsilon > 0)) problems.push({ where, message: `epsilon must be a finite number > 0, got ${layer.epsilon}` });
+  if (!(layer.momentum >= 0 && layer.momentum <= 1)) problems.push({ where, message: `momentum must be in [0, 1], got ${layer.momentum}` });
+  return problems;
+}
+
+/** The batch normalisation layer kind. */
+export const batchnorm: LayerKind<BatchNormLayer> = {
+  kind: 'batchnorm',
+  outputWidth: (_layer, inputWidth) => inputWidth,
+  tensors,
+  trainable: params,
+  validate,
+  reference: { forward: (layer, x, ctx) => refForward(layer, x, ctx), backward: (layer, saved, dy) => refBackward(layer, saved, dy) },
+  engine: { upload: engineUpload, forward: (layer, w, x, ctx) => engineForward(layer, w, x, ctx), backward: (layer, w, s, dy) => engineBackward(layer, w, s, dy) },
+};

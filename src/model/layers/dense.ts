@@ -1,0 +1,125 @@
+/**
+ * Dense layer: y = f(x·W + b), W [inputs, units] row-major, b [units].
+ * Trainable: [weight, bias]. Reference `saved` is { x, z, y }; engine `saved` is [x, z, y]
+ * (training mode only), so backward can start from dL/dy or, for a caller that already has it,
+ * from dL/dz (`dyIsPreActivation`).
+ */
+import * as tf from '@tensorflow/tfjs-core';
+import type { Problem } from '../../errors.js';
+import { activationKind } from '../activations/catalogue.js';
+import { ACTIVATIONS, type DenseLayer, type ParamRef } from '../types.js';
+import { as2D } from './engine-util.js';
+import type { BackwardOptions, EngineBackward, EngineForward, LayerKind, Mat64, RefBackward, RefForward } from './kind.js';
+import { columnSums64, mat64, matMul64, matMulTransA64, matMulTransB64 } from './mat64.js';
+import { finiteProblems, isPositiveInt } from './checks.js';
+
+interface DenseSaved {
+  readonly x: Mat64;
+  readonly z: Float64Array;
+  readonly y: Float64Array;
+}
+
+function params(layer: DenseLayer, inputWidth: number, index: number): ParamRef[] {
+  return [
+    { name: `layers[${index}].weight`, shape: [inputWidth, layer.units], data: layer.weight },
+    { name: `layers[${index}].bias`, shape: [layer.units], data: layer.bias },
+  ];
+}
+
+function refForward(layer: DenseLayer, x: Mat64): RefForward {
+  const units = layer.units;
+  const z = matMul64(x.data, x.rows, x.cols, layer.weight, units);
+  for (let r = 0; r < x.rows; r++) {
+    const o = r * units;
+    for (let j = 0; j < units; j++) z[o + j] += layer.bias[j];
+  }
+  const y = activationKind(layer.activation).refForward(z, x.rows, units, layer.alpha);
+  const saved: DenseSaved = { x, z, y };
+  return { y: mat64(x.rows, units, y), z: mat64(x.rows, units, z), saved };
+}
+
+function isDenseSaved(s: unknown): s is DenseSaved {
+  return typeof s === 'object' && s !== null && 'x' in s && 'z' in s && 'y' in s;
+}
+
+function refBackward(layer: DenseLayer, saved: unknown, dy: Mat64, opts?: BackwardOptions): RefBackward {
+  if (!isDenseSaved(saved)) throw new Error('dense backward: saved is not from a dense reference forward');
+  const { x, z, y } = saved;
+  const units = layer.units;
+  const dz = opts?.dyIsPreActivation
+    ? dy.data
+    : activationKind(layer.activation).refBackward(z, y, dy.data, x.rows, units, layer.alpha);
+  const dW = matMulTransA64(x.data, x.rows, x.cols, dz, units);
+  const db = columnSums64(dz, x.rows, units);
+  const dx = matMulTransB64(dz, x.rows, units, layer.weight, x.cols);
+  return { dx: mat64(x.rows, x.cols, dx), grads: [dW, db] };
+}
+
+function engineUpload(layer: DenseLayer): tf.Tensor[] {
+  const inputs = layer.weight.length / layer.units;
+  // slice(): the CPU backend keeps the array it is given, so without a copy later edits to
+  // the document's weights would leak into the engine without a refresh.
+  return [tf.tensor2d(layer.weight.slice(), [inputs, layer.units]), tf.tensor1d(layer.bias.slice())];
+}
+
+function engineForward(layer: DenseLayer, weights: tf.Tensor[], x: tf.Tensor2D, ctx: { training: boolean }): EngineForward {
+  const [w, b] = weights;
+  const act = activationKind(layer.activation);
+  if (!ctx.training && act.fused) {
+    const y = tf.fused.matMul({ a: x, b: as2D(w, 'dense weight'), bias: b, activation: act.fused, leakyreluAlpha: layer.alpha });
+    return { y: as2D(y, 'dense output'), saved: [] };
+  }
+  const z = as2D(tf.fused.matMul({ a: x, b: as2D(w, 'dense weight'), bias: b }), 'dense z');
+  const y = act.engineForward(z, layer.alpha);
+  if (!ctx.training) return { y, saved: [] };
+  // clone(): shares x's data but has its own handle, so disposing saved never frees the caller's x.
+  return { y, z, saved: [tf.clone(x), z, y] };
+}
+
+function engineBackward(layer: DenseLayer, weights: tf.Tensor[], saved: tf.Tensor[], dy: tf.Tensor2D, opts?: BackwardOptions): EngineBackward {
+  if (saved.length !== 3) throw new Error('dense backward needs the saved tensors of a training-mode forward');
+  const [x, z, y] = saved.map((t, i) => as2D(t, `dense saved[${i}]`));
+  const w = as2D(weights[0], 'dense weight');
+  const dz = opts?.dyIsPreActivation ? dy : activationKind(layer.activation).engineBackward(z, y, dy, layer.alpha);
+  const dW = tf.matMul(x, dz, true, false);
+  const db = tf.sum(dz, 0);
+  const dx = as2D(tf.matMul(dz, w, false, true), 'dense dx');
+  return { dx, grads: [dW, db] };
+}
+
+function validate(layer: DenseLayer, inputWidth: number, where: string): Problem[] {
+  const problems: Problem[] = [];
+  if (!isPositiveInt(layer.units)) {
+    problems.push({ where, message: `units must be a positive integer, got ${layer.units}` });
+    return problems;
+  }
+  if (!(ACTIVATIONS as readonly string[]).includes(layer.activation)) {
+    problems.push({ where, message: `unknown activation "${String(layer.activation)}" (expected one of ${ACTIVATIONS.join(', ')})` });
+  }
+  if (!Number.isFinite(layer.alpha) || (layer.activation === 'leaky_relu' && layer.alpha < 0)) {
+    problems.push({ where, message: `alpha must be a finite number${layer.activation === 'leaky_relu' ? ' >= 0' : ''}, got ${layer.alpha}` });
+  }
+  const wantW = inputWidth * layer.units;
+  if (layer.weight.length !== wantW) {
+    problems.push({ where, message: `weight has ${layer.weight.length} values, expected [${inputWidth}, ${layer.units}] = ${wantW}` });
+  } else {
+    problems.push(...finiteProblems(layer.weight, 'weight', where));
+  }
+  if (layer.bias.length !== layer.units) {
+    problems.push({ where, message: `bias has ${layer.bias.length} values, expected [${layer.units}]` });
+  } else {
+    problems.push(...finiteProblems(layer.bias, 'bias', where));
+  }
+  return problems;
+}
+
+/** The dense layer kind. */
+export const dense: LayerKind<DenseLayer> = {
+  kind: 'dense',
+  outputWidth: (layer) => layer.units,
+  tensors: params,
+  trainable: params,
+  validate,
+  reference: { forward: (layer, x) => refForward(layer, x), backward: refBackward },
+  engine: { upload: engineUpload, forward: (layer, w, x, ctx) => engineForward(layer, w, x, ctx), backward: engineBackward },
+};
