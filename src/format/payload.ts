@@ -1,0 +1,137 @@
+/**
+ * The protobuf payload as plain objects: the schema loaded at run time with protobufjs, the
+ * shapes of its messages in TypeScript, and the enum codes. Field names are the .proto's own
+ * (snake_case), so messages and FORMAT.md read the same.
+ */
+import protobuf from 'protobufjs';
+import type { ActivationName, StorageCodec } from '../model/types.js';
+import { PAYLOAD_MESSAGE, TENDON_SCHEMA } from './schema.js';
+
+/** Activation enum codes in the file. 0 means "not set" and is refused. */
+export const ACTIVATION_CODES: Readonly<Record<ActivationName, number>> = {
+  linear: 1,
+  relu: 2,
+  leaky_relu: 3,
+  sigmoid: 4,
+  tanh: 5,
+  softplus: 6,
+  softmax: 7,
+};
+
+/** Tensor dtype codes in the file. 0 means "not set" and is refused. */
+export const DTYPE_CODES: Readonly<Record<StorageCodec, number>> = { f32: 1, f16: 2, i8: 3 };
+
+/** Bytes per element for each dtype. */
+export const DTYPE_BYTES: Readonly<Record<StorageCodec, number>> = { f32: 4, f16: 2, i8: 1 };
+
+export interface RawTensor {
+  dtype: number;
+  shape: number[];
+  data: Uint8Array;
+  scales: number[];
+}
+
+export interface RawDense {
+  units: number;
+  activation: number;
+  alpha: number;
+  weight: RawTensor | null;
+  bias: RawTensor | null;
+}
+
+export interface RawBatchNorm {
+  gamma: RawTensor | null;
+  beta: RawTensor | null;
+  running_mean: RawTensor | null;
+  running_variance: RawTensor | null;
+  epsilon: number;
+  momentum: number;
+}
+
+export interface RawDropout {
+  rate: number;
+}
+
+export interface RawLayer {
+  /** Which member of the oneof is set; absent when none is. */
+  kind?: 'dense' | 'batchnorm' | 'dropout';
+  dense?: RawDense | null;
+  batchnorm?: RawBatchNorm | null;
+  dropout?: RawDropout | null;
+}
+
+export interface RawZScore {
+  mean: number[];
+  std: number[];
+  m2: number[];
+  count: number;
+}
+
+export interface RawMinMax {
+  min: number[];
+  max: number[];
+  count: number;
+}
+
+export interface RawInfo {
+  name: string;
+  description: string;
+  created: string;
+  extra: Record<string, string>;
+}
+
+export interface RawLineage {
+  checksum: string;
+  source: string;
+  action: string;
+  at: string;
+}
+
+export interface RawModel {
+  inputs: number;
+  feature_names: string[];
+  output_labels: string[];
+  input_scaling?: 'zscore' | 'minmax';
+  zscore?: RawZScore | null;
+  minmax?: RawMinMax | null;
+  layers: RawLayer[];
+  info: RawInfo | null;
+  lineage: RawLineage[];
+}
+
+let payloadType: protobuf.Type | null = null;
+
+/** The payload message type, parsed from the embedded schema once. */
+export function payloadSchema(): protobuf.Type {
+  if (payloadType === null) {
+    // keepCase: field names stay as written in the .proto (running_mean, not runningMean).
+    payloadType = protobuf.parse(TENDON_SCHEMA, { keepCase: true }).root.lookupType(PAYLOAD_MESSAGE);
+  }
+  return payloadType;
+}
+
+/** Serialise a payload object. */
+export function encodePayload(raw: RawModel): Uint8Array {
+  const bytes = payloadSchema().encode(raw).finish();
+  // protobufjs may hand back a Buffer over a shared pool; give callers a plain, owned array.
+  return new Uint8Array(bytes);
+}
+
+/**
+ * Parse payload bytes into plain objects; throws whatever protobufjs throws on malformed input.
+ * Defaults are filled in, so every field is present; unknown fields (a newer minor) are skipped.
+ */
+export function decodePayload(bytes: Uint8Array): RawModel {
+  const type = payloadSchema();
+  const message = type.decode(bytes);
+  // One typed adapter: protobufjs returns an untyped record shaped by the schema above.
+  const raw: RawModel = type.toObject(message, {
+    longs: Number,
+    enums: Number,
+    defaults: true,
+    arrays: true,
+    objects: true,
+    oneofs: true,
+  }) as RawModel;
+  return raw;
+}
