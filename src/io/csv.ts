@@ -1,0 +1,214 @@
+/**
+ * Streaming CSV tables (RFC 4180): the file is read in 64 KiB pieces and handed out in row
+ * chunks, so millions of rows never sit in memory at once.
+ */
+import { createReadStream } from 'node:fs';
+import { stat } from 'node:fs/promises';
+import { DataError } from '../errors.js';
+import { ChunkBuilder } from './chunk-builder.js';
+import { resolveColumns } from './columns.js';
+import { CsvTokenizer, type CsvRecord } from './csv-tokenizer.js';
+import { asDataError } from './file-errors.js';
+import { describeBadNumber, parseNumberCell } from './numbers.js';
+import { DEFAULT_CHUNK_ROWS, type TableChunk, type TableOptions, type TableReader } from './table-types.js';
+
+const READ_PIECE_BYTES = 64 * 1024;
+
+interface ByteCounter {
+  bytesRead: number;
+}
+
+/**
+ * The records of a CSV file, a batch per piece read (batches, not single records, keep the
+ * per-await cost off the per-row path). `counter.bytesRead` follows the read.
+ *
+ * @example for await (const batch of readCsvBatches('a.csv')) for (const r of batch) use(r.cells);
+ */
+export async function* readCsvBatches(path: string, counter: ByteCounter = { bytesRead: 0 }): AsyncGenerator<CsvRecord[]> {
+  const stream = createReadStream(path, { encoding: 'utf8', highWaterMark: READ_PIECE_BYTES });
+  const tokenizer = new CsvTokenizer(path);
+  try {
+    for await (const piece of stream as AsyncIterable<string>) {
+      counter.bytesRead = stream.bytesRead;
+      const batch = tokenizer.push(piece);
+      if (batch.length > 0) yield batch;
+    }
+    const last = tokenizer.end();
+    if (last.length > 0) yield last;
+  } catch (error) {
+    throw asDataError(path, error);
+  } finally {
+    stream.destroy();
+  }
+}
+
+/** Pulls single records out of the batches. */
+class RecordQueue {
+  private batch: CsvRecord[] = [];
+  private at = 0;
+  constructor(private readonly batches: AsyncGenerator<CsvRecord[]>) {}
+
+  async next(): Promise<CsvRecord | null> {
+    while (this.at >= this.batch.length) {
+      const step = await this.batches.next();
+      if (step.done) return null;
+      this.batch = step.value;
+      this.at = 0;
+    }
+    return this.batch[this.at++];
+  }
+
+  /** The next record if it is already read, without waiting (null when a read is needed). */
+  nextReady(): CsvRecord | null {
+    return this.at < this.batch.length ? this.batch[this.at++] : null;
+  }
+
+  async close(): Promise<void> {
+    this.batch = [];
+    await this.batches.return(undefined);
+  }
+}
+
+/**
+ * Opens a CSV file as a table: reads the header (if any) and the first row, so an empty or
+ * header-only file is refused here rather than mid-way. Line numbers in errors are 1-based and
+ * point at the row's first line; columns are 1-based cell positions.
+ *
+ * @example
+ * const t = await openCsvTable('data.csv', { chunkRows: 1024 });
+ * for await (const c of t.chunks()) use(c.rows, c.data);
+ * @throws DataError "file is empty", "no data rows", bad cells, ragged rows.
+ */
+export async function openCsvTable(path: string, opts: TableOptions = {}): Promise<TableReader> {
+  const bytesTotal = await stat(path).then(
+    (s) => s.size,
+    (e: unknown) => {
+      throw asDataError(path, e);
+    },
+  );
+  const counter = { bytesRead: 0 };
+  const records = new RecordQueue(readCsvBatches(path, counter));
+  let head: CsvHead;
+  try {
+    head = await readHead(path, records, opts);
+  } catch (error) {
+    await records.close();
+    throw error;
+  }
+  const { columns, width, textColumns } = head;
+  let pendingRow: CsvRecord | null = head.firstRow;
+  const chunkRows = opts.chunkRows ?? DEFAULT_CHUNK_ROWS;
+  let closed = false;
+  let started = false;
+
+  async function* chunks(): AsyncGenerator<TableChunk> {
+    if (started) throw new Error('CSV table chunks() can be iterated only once');
+    started = true;
+    const builder = new ChunkBuilder(width, chunkRows, textColumns);
+    const isText = new Uint8Array(width);
+    for (const c of textColumns) isText[c] = 1;
+    const addRow = (record: CsvRecord): void => {
+      const cells = record.cells;
+      if (cells.length !== width) throw raggedRow(path, record, width, columns !== null);
+      const offset = builder.startRow(record.line);
+      const values = builder.values;
+      for (let c = 0; c < width; c++) {
+        const cell = cells[c];
+        if (isText[c]) {
+          if (cell.trim() === '') throw badCell(path, record.line, c, cell, columns, 'is empty');
+          builder.setText(c, cell);
+          continue;
+        }
+        const value = parseNumberCell(cell);
+        if (value === undefined) throw badCell(path, record.line, c, cell, columns, describeBadNumber(cell));
+        values[offset + c] = value;
+      }
+    };
+    try {
+      if (pendingRow) addRow(pendingRow);
+      pendingRow = null;
+      while (!closed) {
+        if (builder.full) yield builder.take()!;
+        const next = records.nextReady() ?? (await records.next());
+        if (next === null) break;
+        addRow(next);
+      }
+      const last = builder.take();
+      if (last) yield last;
+    } finally {
+      await records.close();
+    }
+  }
+
+  return {
+    columns,
+    width,
+    textColumns,
+    get bytesRead() {
+      return counter.bytesRead;
+    },
+    bytesTotal,
+    chunks,
+    async close() {
+      closed = true;
+      await records.close();
+    },
+  };
+}
+
+interface CsvHead {
+  columns: string[] | null;
+  width: number;
+  textColumns: number[];
+  firstRow: CsvRecord;
+}
+
+async function readHead(path: string, records: RecordQueue, opts: TableOptions): Promise<CsvHead> {
+  const first = await records.next();
+  if (first === null) throw new DataError(path, 0, 0, 'file is empty');
+  // Text columns given by position are known before the header; by name only after it.
+  const positional = (opts.textColumns ?? []).filter((c): c is number => typeof c === 'number');
+  const isHeader =
+    opts.header ?? first.cells.some((cell, i) => !positional.includes(i) && parseNumberCell(cell) === undefined);
+  if (!isHeader) {
+    const width = first.cells.length;
+    return { columns: null, width, textColumns: resolveColumns(null, width, opts.textColumns ?? [], path), firstRow: first };
+  }
+  const columns = headerNames(path, first);
+  const firstRow = await records.next();
+  if (firstRow === null) throw new DataError(path, first.line, 0, 'no data rows (the file holds only a header)');
+  const textColumns = resolveColumns(columns, columns.length, opts.textColumns ?? [], path);
+  return { columns, width: columns.length, textColumns, firstRow };
+}
+
+function headerNames(path: string, record: CsvRecord): string[] {
+  // Names are trimmed so "a, b" matches a model feature called "b".
+  const names = record.cells.map((c) => c.trim());
+  names.forEach((name, i) => {
+    if (name === '') throw new DataError(path, record.line, i + 1, 'empty column name in the header row');
+    const earlier = names.indexOf(name);
+    if (earlier < i) {
+      throw new DataError(path, record.line, i + 1, `column name "${name}" repeats column ${earlier + 1}`);
+    }
+  });
+  return names;
+}
+
+function raggedRow(path: string, record: CsvRecord, width: number, hasHeader: boolean): DataError {
+  const actual = record.cells.length;
+  const source = hasHeader ? 'the header has' : 'the first row has';
+  // Point at the first missing cell, or at the first extra one.
+  return new DataError(path, record.line, Math.min(actual, width) + 1, `row has ${actual} cells, expected ${width} (${source} ${width})`);
+}
+
+function badCell(
+  path: string,
+  line: number,
+  column: number,
+  cell: string,
+  columns: readonly string[] | null,
+  why: string,
+): DataError {
+  const name = columns ? `"${columns[column]}"` : String(column + 1);
+  return new DataError(path, line, column + 1, `cell ${JSON.stringify(cell)} in column ${name} ${why}`);
+}

@@ -1,0 +1,177 @@
+/**
+ * JSONL tables: one JSON value per line, either an array of numbers or an object keyed by
+ * column names (every line the same kind; objects with the same keys, in any order).
+ * Blank lines are skipped. Errors name the 1-based line; a JSON syntax error names the
+ * 1-based character column from the parser when it gives one, else 1; a bad value names the
+ * 1-based column position in the table.
+ */
+import { stat } from 'node:fs/promises';
+import { DataError } from '../errors.js';
+import { ChunkBuilder } from './chunk-builder.js';
+import { resolveColumns } from './columns.js';
+import { asDataError } from './file-errors.js';
+import { readLineBatches, type TextLine } from './lines.js';
+import { DEFAULT_CHUNK_ROWS, type TableChunk, type TableOptions, type TableReader } from './table-types.js';
+
+type Row = unknown[] | Record<string, unknown>;
+
+/**
+ * Parses one JSONL line, turning a syntax error into a DataError at the line and column.
+ *
+ * @example parseJsonLine('a.jsonl', { text: '[1, 2]', line: 3 }) // [1, 2]
+ */
+export function parseJsonLine(path: string, line: TextLine): unknown {
+  try {
+    return JSON.parse(line.text);
+  } catch (error) {
+    const message = error instanceof Error ? error.message : String(error);
+    // V8 says "... in JSON at position 7" for most syntax errors (0-based).
+    const at = /at position (\d+)/.exec(message);
+    const column = at ? Number(at[1]) + 1 : 1;
+    throw new DataError(path, line.line, column, `not valid JSON (${message.replace(/ in JSON at position \d+.*$/, '')})`);
+  }
+}
+
+class LineQueue {
+  private batch: TextLine[] = [];
+  private at = 0;
+  constructor(private readonly batches: AsyncGenerator<TextLine[]>) {}
+
+  /** The next non-blank line, or null at the end of the file. */
+  async next(): Promise<TextLine | null> {
+    for (;;) {
+      while (this.at >= this.batch.length) {
+        const step = await this.batches.next();
+        if (step.done) return null;
+        this.batch = step.value;
+        this.at = 0;
+      }
+      const line = this.batch[this.at++];
+      if (line.text.trim() !== '') return line;
+    }
+  }
+
+  async close(): Promise<void> {
+    this.batch = [];
+    await this.batches.return(undefined);
+  }
+}
+
+/**
+ * Opens a JSONL file as a table; reads the first non-blank line to learn the columns.
+ *
+ * @example
+ * const t = await openJsonlTable('rows.jsonl');
+ * t.columns // ['temp', 'humidity'] for lines like {"temp": 21.5, "humidity": 0.4}
+ * @throws DataError "file is empty", bad JSON, lines of the wrong kind, missing or extra keys.
+ */
+export async function openJsonlTable(path: string, opts: TableOptions = {}): Promise<TableReader> {
+  const bytesTotal = await stat(path).then(
+    (s) => s.size,
+    (e: unknown) => {
+      throw asDataError(path, e);
+    },
+  );
+  const counter = { bytesRead: 0 };
+  const lines = new LineQueue(readLineBatches(path, counter));
+  let firstLine: TextLine;
+  let firstValue: Row;
+  let columns: string[] | null;
+  let width: number;
+  let textColumns: number[];
+  try {
+    const head = await lines.next();
+    if (head === null) throw new DataError(path, 0, 0, 'file is empty');
+    firstLine = head;
+    firstValue = rowShape(path, head, parseJsonLine(path, head));
+    columns = Array.isArray(firstValue) ? null : Object.keys(firstValue);
+    width = columns ? columns.length : (firstValue as unknown[]).length;
+    if (width === 0) throw new DataError(path, head.line, 1, 'the first row has no values');
+    textColumns = resolveColumns(columns, width, opts.textColumns ?? [], path);
+  } catch (error) {
+    await lines.close();
+    throw error;
+  }
+  const chunkRows = opts.chunkRows ?? DEFAULT_CHUNK_ROWS;
+  const isText = new Uint8Array(width);
+  for (const c of textColumns) isText[c] = 1;
+  let closed = false;
+  let started = false;
+
+  const addRow = (builder: ChunkBuilder, line: TextLine, value: Row): void => {
+    const offset = builder.startRow(line.line);
+    const values = builder.values;
+    let cells: unknown[];
+    if (columns === null) {
+      if (!Array.isArray(value)) throw new DataError(path, line.line, 1, 'expected an array like the first line, found an object');
+      if (value.length !== width) {
+        throw new DataError(path, line.line, Math.min(value.length, width) + 1, `row has ${value.length} values, expected ${width} (the first line has ${width})`);
+      }
+      cells = value;
+    } else {
+      if (Array.isArray(value)) throw new DataError(path, line.line, 1, 'expected an object like the first line, found an array');
+      cells = columns.map((name, c) => {
+        if (!Object.hasOwn(value, name)) throw new DataError(path, line.line, c + 1, `key "${name}" is missing`);
+        return value[name];
+      });
+      if (Object.keys(value).length !== width) {
+        const extra = Object.keys(value).find((k) => !columns!.includes(k));
+        throw new DataError(path, line.line, 0, `key "${extra}" is not among the first line's keys (${columns.join(', ')})`);
+      }
+    }
+    for (let c = 0; c < width; c++) {
+      const cell = cells[c];
+      const name = columns ? `"${columns[c]}"` : String(c + 1);
+      if (isText[c]) {
+        if (typeof cell !== 'string' || cell.trim() === '') {
+          throw new DataError(path, line.line, c + 1, `value ${JSON.stringify(cell)} in column ${name} is not a non-empty string`);
+        }
+        builder.setText(c, cell);
+      } else if (typeof cell === 'number' && Number.isFinite(cell)) {
+        values[offset + c] = cell;
+      } else {
+        throw new DataError(path, line.line, c + 1, `value ${JSON.stringify(cell) ?? String(cell)} in column ${name} is not a finite number`);
+      }
+    }
+  };
+
+  async function* chunks(): AsyncGenerator<TableChunk> {
+    if (started) throw new Error('JSONL table chunks() can be iterated only once');
+    started = true;
+    const builder = new ChunkBuilder(width, chunkRows, textColumns);
+    try {
+      addRow(builder, firstLine, firstValue);
+      while (!closed) {
+        if (builder.full) yield builder.take()!;
+        const line = await lines.next();
+        if (line === null) break;
+        addRow(builder, line, rowShape(path, line, parseJsonLine(path, line)));
+      }
+      const last = builder.take();
+      if (last) yield last;
+    } finally {
+      await lines.close();
+    }
+  }
+
+  return {
+    columns,
+    width,
+    textColumns,
+    get bytesRead() {
+      return counter.bytesRead;
+    },
+    bytesTotal,
+    chunks,
+    async close() {
+      closed = true;
+      await lines.close();
+    },
+  };
+}
+
+function rowShape(path: string, line: TextLine, value: unknown): Row {
+  if (Array.isArray(value)) return value;
+  if (typeof value === 'object' && value !== null) return value as Record<string, unknown>;
+  throw new DataError(path, line.line, 1, `each line must be an array of numbers or an object of numbers, found ${JSON.stringify(value)}`);
+}

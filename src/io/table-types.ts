@@ -1,0 +1,67 @@
+/**
+ * The shapes every table reader hands out, whatever the file format.
+ */
+
+/** Formats `openTable` reads. */
+export const TABLE_FORMATS = ['csv', 'jsonl', 'npy'] as const;
+export type TableFormat = (typeof TABLE_FORMATS)[number];
+
+/** A column given by header name or by 0-based position. */
+export type ColumnRef = string | number;
+
+export interface TableOptions {
+  /** File format; taken from the extension when left out. */
+  format?: TableFormat;
+  /** Rows per chunk handed out by `chunks()` (default 4096). */
+  chunkRows?: number;
+  /**
+   * Columns kept as text instead of parsed as numbers (class labels such as "good"). Their slots
+   * in `data` hold NaN so that column positions stay the same; their cells come in `text`.
+   */
+  textColumns?: readonly ColumnRef[];
+  /**
+   * CSV only: whether the first row is a header. Left out, it is a header when any of its
+   * cells (outside text columns given by position) is not a number.
+   */
+  header?: boolean;
+}
+
+/** Rows read from a table, `rows x width`, row-major. */
+export interface TableChunk {
+  rows: number;
+  data: Float64Array;
+  /** 1-based line of the first row in the file (for NPY: the 1-based row number). */
+  firstLine: number;
+  /** Cells of the text columns, by column position; present only when text columns were asked for. */
+  text?: Map<number, string[]>;
+}
+
+/** A table being read chunk by chunk, so memory stays bounded whatever the file size. */
+export interface TableReader {
+  /** Column names from the header or object keys; null when the file has none. */
+  readonly columns: string[] | null;
+  readonly width: number;
+  /** Positions of the text columns (see `TableOptions.textColumns`). */
+  readonly textColumns: readonly number[];
+  /** Bytes of the file read so far, and the file's size: for progress bars. */
+  readonly bytesRead: number;
+  readonly bytesTotal: number;
+  /** Yields the rows in order. Can be iterated once. */
+  chunks(): AsyncIterable<TableChunk>;
+  /** Releases the file; safe to call twice or mid-iteration. */
+  close(): Promise<void>;
+}
+
+/** A whole table in memory. */
+export interface LoadedTable {
+  columns: string[] | null;
+  rows: number;
+  width: number;
+  /** rows x width, row-major; NaN in text columns. */
+  data: Float64Array;
+  /** Cells of the text columns, by column position. Empty when none were asked for. */
+  text: Map<number, string[]>;
+}
+
+/** Default rows per chunk: 4096 rows of 64 float64 columns is 2 MiB. */
+export const DEFAULT_CHUNK_ROWS = 4096;
