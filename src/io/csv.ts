@@ -10,7 +10,7 @@ import { resolveColumns } from './columns.js';
 import { CsvTokenizer, type CsvRecord } from './csv-tokenizer.js';
 import { asDataError } from './file-errors.js';
 import { describeBadNumber, parseNumberCell } from './numbers.js';
-import { DEFAULT_CHUNK_ROWS, type TableChunk, type TableOptions, type TableReader } from './table-types.js';
+import { rowsPerChunk, type TableChunk, type TableOptions, type TableReader } from './table-types.js';
 
 const READ_PIECE_BYTES = 64 * 1024;
 
@@ -97,7 +97,7 @@ export async function openCsvTable(path: string, opts: TableOptions = {}): Promi
   }
   const { columns, width, textColumns } = head;
   let pendingRow: CsvRecord | null = head.firstRow;
-  const chunkRows = opts.chunkRows ?? DEFAULT_CHUNK_ROWS;
+  const chunkRows = rowsPerChunk(width, opts.chunkRows);
   let closed = false;
   let started = false;
 

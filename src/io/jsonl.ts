@@ -11,7 +11,7 @@ import { ChunkBuilder } from './chunk-builder.js';
 import { resolveColumns } from './columns.js';
 import { asDataError } from './file-errors.js';
 import { readLineBatches, type TextLine } from './lines.js';
-import { DEFAULT_CHUNK_ROWS, type TableChunk, type TableOptions, type TableReader } from './table-types.js';
+import { rowsPerChunk, type TableChunk, type TableOptions, type TableReader } from './table-types.js';
 
 type Row = unknown[] | Record<string, unknown>;
 
@@ -92,7 +92,7 @@ export async function openJsonlTable(path: string, opts: TableOptions = {}): Pro
     await lines.close();
     throw error;
   }
-  const chunkRows = opts.chunkRows ?? DEFAULT_CHUNK_ROWS;
+  const chunkRows = rowsPerChunk(width, opts.chunkRows);
   const isText = new Uint8Array(width);
   for (const c of textColumns) isText[c] = 1;
   let closed = false;

@@ -15,7 +15,7 @@ import {
   parseNpyDict,
   type NpyHeader,
 } from './npy-header.js';
-import { DEFAULT_CHUNK_ROWS, type TableChunk, type TableOptions, type TableReader } from './table-types.js';
+import { rowsPerChunk, type TableChunk, type TableOptions, type TableReader } from './table-types.js';
 
 export type NpyArray = Float32Array | Float64Array | Uint8Array | Int8Array | Int32Array;
 export type NpyWriteDtype = '<f4' | '<f8';
@@ -192,7 +192,7 @@ export async function openNpyTable(path: string, opts: TableOptions = {}): Promi
     throw new DataError(path, 0, 0, `no data rows (NPY shape ${shapeText(header.shape)})`);
   }
   const rowBytes = width * dtype.size;
-  const chunkRows = opts.chunkRows ?? DEFAULT_CHUNK_ROWS;
+  const chunkRows = rowsPerChunk(width, opts.chunkRows);
   let bytesRead = header.dataOffset;
   let closed = false;
   const close = async (): Promise<void> => {

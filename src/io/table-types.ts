@@ -12,7 +12,7 @@ export type ColumnRef = string | number;
 export interface TableOptions {
   /** File format; taken from the extension when left out. */
   format?: TableFormat;
-  /** Rows per chunk handed out by `chunks()` (default 4096). */
+  /** Rows per chunk handed out by `chunks()` (default 4096; fewer when rows are so wide that a chunk would pass MAX_CHUNK_VALUES). */
   chunkRows?: number;
   /**
    * Columns kept as text instead of parsed as numbers (class labels such as "good"). Their slots
@@ -65,3 +65,11 @@ export interface LoadedTable {
 
 /** Default rows per chunk: 4096 rows of 64 float64 columns is 2 MiB. */
 export const DEFAULT_CHUNK_ROWS = 4096;
+
+/** A chunk holds at most this many values (32 MiB of float64), however wide the rows. */
+export const MAX_CHUNK_VALUES = 1 << 22;
+
+/** Rows per chunk: as asked, but fewer for very wide rows so a chunk stays within MAX_CHUNK_VALUES. */
+export function rowsPerChunk(width: number, chunkRows = DEFAULT_CHUNK_ROWS): number {
+  return Math.max(1, Math.min(chunkRows, Math.floor(MAX_CHUNK_VALUES / Math.max(1, width))));
+}

@@ -1,0 +1,42 @@
+/** Shared helpers for the io tests: temporary files, seeded data, DataError capture. */
+import { mkdtempSync, rmSync, writeFileSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
+import { afterAll, expect } from 'vitest';
+import { DataError } from '../../src/errors.js';
+
+/** A temporary folder removed after the test file's suite. */
+export function tempFolder(): (name: string, content?: string | Uint8Array) => string {
+  const dir = mkdtempSync(join(tmpdir(), 'tendon-io-'));
+  afterAll(() => rmSync(dir, { recursive: true, force: true }));
+  return (name, content) => {
+    const path = join(dir, name);
+    if (content !== undefined) writeFileSync(path, content);
+    return path;
+  };
+}
+
+/** Runs `action`, expects a DataError, and returns it for field checks. */
+export async function captureDataError(action: () => Promise<unknown> | unknown): Promise<DataError> {
+  try {
+    await action();
+  } catch (error) {
+    expect(error).toBeInstanceOf(DataError);
+    return error as DataError;
+  }
+  throw new Error('expected a DataError, but nothing was thrown');
+}
+
+/** Mulberry32: a small seeded generator for invented data (uniform in [0, 1)). */
+export function seededRandom(seed: number): () => number {
+  let a = seed >>> 0;
+  return () => {
+    a = (a + 0x6d2b79f5) >>> 0;
+    let t = a;
+    t = Math.imul(t ^ (t >>> 15), t | 1);
+    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
+    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
+  };
+}
+
+export const FIXTURES = new URL('../fixtures/io/', import.meta.url).pathname;
