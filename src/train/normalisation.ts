@@ -131,36 +131,3 @@ export function copyNormalisation(norm: Normalisation): Normalisation {
   }
   return { method: 'minmax', min: norm.min && norm.min.slice(), max: norm.max && norm.max.slice(), count: norm.count };
 }
-
-/**
- * Apply a fitted block to raw rows, giving a new float64 matrix. A feature with zero spread
- * (std 0, or min = max) is only shifted: dividing by zero would turn a constant column into NaN.
- *
- * @example applyNormalisation(fittedZscore, x, rows, 4)
- */
-export function applyNormalisation(
-  norm: Normalisation,
-  x: Float32Array | Float64Array,
-  rows: number,
-  features: number,
-): Float64Array {
-  const out = new Float64Array(rows * features);
-  const shift = new Float64Array(features);
-  const scale = new Float64Array(features).fill(1);
-  if (norm.method === 'zscore') {
-    for (let c = 0; c < features; c++) {
-      shift[c] = norm.mean![c];
-      if (norm.std![c] > 0) scale[c] = 1 / norm.std![c];
-    }
-  } else {
-    for (let c = 0; c < features; c++) {
-      shift[c] = norm.min![c];
-      const range = norm.max![c] - norm.min![c];
-      if (range > 0) scale[c] = 1 / range;
-    }
-  }
-  for (let r = 0; r < rows; r++) {
-    for (let c = 0; c < features; c++) out[r * features + c] = (x[r * features + c] - shift[c]) * scale[c];
-  }
-  return out;
-}

@@ -1,11 +1,10 @@
 import { describe, it, expect } from 'vitest';
 import type { Normalisation } from '../../src/model/types.js';
-import {
-  WelfordAccumulator,
-  applyNormalisation,
-  combineMoments,
-  updateNormalisation,
-} from '../../src/train/normalisation.js';
+import { normalise64 } from '../../src/reference/index.js';
+import { mat64 } from '../../src/model/index.js';
+import { WelfordAccumulator, combineMoments, updateNormalisation } from '../../src/train/normalisation.js';
+
+const applyNormalisation = (n: Normalisation, data: Float64Array, rows: number, cols: number) => normalise64(n, mat64(rows, cols, data)).data;
 import { normals, seededRng } from './seeded.js';
 
 function twoPass(x: Float64Array, rows: number, f: number, c: number): { mean: number; variance: number } {
@@ -86,9 +85,10 @@ describe('normalisation state (src/train/normalisation.ts)', () => {
     }
   });
 
-  it('a constant feature is shifted, not divided by zero', () => {
+  it('a constant feature gets std 0 (the reference path then maps it to 0, not NaN)', () => {
     const flat = Float64Array.of(2, 2, 2);
     const z = updateNormalisation({ method: 'zscore', mean: null, std: null, m2: null, count: 0 }, flat, 3, 1, 'keep');
+    expect(z.method === 'zscore' && [...z.std!]).toEqual([0]);
     expect([...applyNormalisation(z, flat, 3, 1)]).toEqual([0, 0, 0]);
   });
 });
