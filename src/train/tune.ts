@@ -102,6 +102,23 @@ export interface TuneResult {
   readonly loss: LossSpec;
 }
 
+/**
+ * Divergence with the document as it was before the step that went bad, so a caller can keep it.
+ * Still a DivergenceError (exit code 1, the same message).
+ */
+export class TuneDivergence extends DivergenceError {
+  constructor(
+    epoch: number,
+    batch: number,
+    layer: string,
+    detail: string,
+    /** A copy of the last weights whose loss and gradients were finite. */
+    readonly lastGood: ModelDoc,
+  ) {
+    super(epoch, batch, layer, detail);
+  }
+}
+
 /** Hold-out loss must improve by more than this (relative) to count as better. */
 const IMPROVEMENT = 1e-9;
 /** Rows per piece when evaluating, so memory stays bounded on large data. */
@@ -452,13 +469,7 @@ export async function tune(doc: ModelDoc, data: TuneData, options: TuneRunOption
         for (let i = work.layers.length - 1; i >= 0 && bad < 0; i--) if (!grads[i].every(allFinite)) bad = i;
         if (!Number.isFinite(loss.value) || bad >= 0) {
           restore(arrays, lastGood);
-          backend.refresh();
-          throw new DivergenceError(
-            epoch + 1,
-            b + 1,
-            bad >= 0 ? layerLabel(work, bad) : 'the loss',
-            `loss is ${loss.value}`,
-          );
+          throw new TuneDivergence(epoch + 1, b + 1, bad >= 0 ? layerLabel(work, bad) : 'the loss', `loss is ${loss.value}`, cloneDoc(work));
         }
 
         // Per-layer gradient norms of the data loss, before anchor and clipping.
@@ -509,8 +520,7 @@ export async function tune(doc: ModelDoc, data: TuneData, options: TuneRunOption
         const brokenAt = slots.find((s) => !s.frozen && !allFinite(s.data));
         if (brokenAt) {
           restore(arrays, lastGood);
-          backend.refresh();
-          throw new DivergenceError(epoch + 1, b + 1, layerLabel(work, brokenAt.layer), `the update made ${brokenAt.ref.name} non-finite (learning rate ${lr})`);
+          throw new TuneDivergence(epoch + 1, b + 1, layerLabel(work, brokenAt.layer), `the update made ${brokenAt.ref.name} non-finite (learning rate ${lr})`, cloneDoc(work));
         }
         backend.refresh(changedLayers);
 
