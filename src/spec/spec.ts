@@ -16,8 +16,8 @@ import {
   type Normalisation,
   type StorageCodec,
 } from '../model/types.js';
-import { initDense } from '../model/init.js';
-import { createRng } from '../model/rng.js';
+import { DEFAULT_LEAKY_ALPHA, initDense } from '../model/init.js';
+import { SeededRng } from '../model/rng.js';
 
 /** A loaded tensor: its shape and values in row-major order. */
 export interface LoadedTensor {
@@ -41,7 +41,6 @@ export interface SpecOptions {
 const DEFAULT_SEED = 1;
 const DEFAULT_BN_EPSILON = 1e-5;
 const DEFAULT_BN_MOMENTUM = 0.9;
-const DEFAULT_LEAKY_ALPHA = 0.01;
 
 /**
  * @example const doc = await buildFromSpec(JSON.parse(text), 'spec.json', { loadTensorFile })
@@ -50,7 +49,7 @@ const DEFAULT_LEAKY_ALPHA = 0.01;
 export async function buildFromSpec(spec: unknown, specPath: string, options: SpecOptions): Promise<ModelDoc> {
   const problems: Problem[] = [];
   const here = dirname(resolve(specPath));
-  const rng = createRng(options.seed ?? DEFAULT_SEED);
+  const rng = new SeededRng(options.seed ?? DEFAULT_SEED);
   const fail = (where: string, message: string): undefined => {
     problems.push({ where, message });
     return undefined;
@@ -150,7 +149,7 @@ export async function buildFromSpec(spec: unknown, specPath: string, options: Sp
 type Fail = (where: string, message: string) => undefined;
 
 interface LayerContext {
-  readonly rng: ReturnType<typeof createRng>;
+  readonly rng: SeededRng;
   readonly here: string;
   readonly options: SpecOptions;
   readonly fail: Fail;
@@ -237,7 +236,7 @@ async function buildLayer(
     if (b) bias = Float32Array.from(b);
   }
   if (raw.weight === undefined) {
-    const init = initDense(width, units, act, ctx.rng);
+    const init = initDense(width, units, act, ctx.rng, alpha);
     weight = init.weight;
     if (raw.bias === undefined) bias = init.bias;
   } else if (raw.bias === undefined) {

@@ -1,0 +1,81 @@
+import { randomInputs, type ParityReport } from '../../check/index.js';
+import { UsageError } from '../../errors.js';
+import { openModel, type TendonModel } from '../../tendon.js';
+import { noExtraPositionals, parseArgs, requirePositional } from '../args.js';
+import type { Command } from '../command.js';
+import { percent, sci, textTable } from '../format.js';
+import { inputChunks } from '../model-input.js';
+import { parseEngine } from './engine-flag.js';
+
+const flags = {
+  input: { kind: 'string', short: 'i', help: 'rows to check on (.csv, .jsonl, .npy); default: seeded random rows' },
+  rows: { kind: 'integer', help: 'random rows when no --input is given', default: 256 },
+  seed: { kind: 'integer', help: 'seed for the random rows', default: 1 },
+  engine: { kind: 'string', help: 'js, wasm or auto', default: 'auto' },
+  json: { kind: 'boolean', help: 'print the report as JSON' },
+} as const;
+
+/** At most this many rows of an input file are checked: the float64 reference is slow by design. */
+const MAX_CHECK_ROWS = 100_000;
+
+export const check: Command = {
+  name: 'check',
+  summary: 'prove the engine against the float64 reference, per layer and at the output (exit 1 if a tolerance breaks)',
+  usage: 'tendon check MODEL [--input FILE] [--rows N] [--json] [--engine js|wasm|auto]',
+  flags,
+  async run(argv, io) {
+    const { flags: f, positionals } = parseArgs(argv, flags);
+    const path = requirePositional(positionals, 0, 'the model file');
+    noExtraPositionals(positionals, 1);
+    const rows = f.rows ?? 256;
+    if (rows < 1) throw new UsageError('--rows', `must be at least 1, got ${rows}`);
+    const model = await openModel(path, { engine: parseEngine(f.engine) });
+    try {
+      const input = f.input ? await readInput(model, f.input) : undefined;
+      const report = model.check(input ?? { x: randomInputs(model.doc, rows, f.seed ?? 1), rows });
+      if (f.json) io.out(JSON.stringify({ model: path, engine: model.engine, ...report }, null, 2) + '\n');
+      else io.out(describeParity(report, `${path} on the ${model.engine} engine, ${report.output.rows} rows${f.input ? ` from ${f.input}` : ' (seeded random)'}`));
+      return report.pass ? 0 : 1;
+    } finally {
+      model.dispose();
+    }
+  },
+};
+
+async function readInput(model: TendonModel, file: string): Promise<{ x: Float32Array; rows: number }> {
+  const parts: Float32Array[] = [];
+  let rows = 0;
+  for await (const chunk of inputChunks(model.doc, file, 4096)) {
+    const take = Math.min(chunk.rows, MAX_CHECK_ROWS - rows);
+    parts.push(chunk.x.subarray(0, take * model.inputs));
+    rows += take;
+    if (rows >= MAX_CHECK_ROWS) break;
+  }
+  const x = new Float32Array(rows * model.inputs);
+  let at = 0;
+  for (const p of parts) {
+    x.set(p, at);
+    at += p.length;
+  }
+  return { x, rows };
+}
+
+/** The parity report as a table people can read. */
+export function describeParity(report: ParityReport, title: string): string {
+  const rows = report.layers.map((l) => [
+    String(l.index),
+    l.kind,
+    sci(l.maxAbs),
+    sci(l.maxRel),
+    l.pass ? 'ok' : `BROKEN at row ${l.worstRow}, column ${l.worstCol}`,
+  ]);
+  rows.push(['out', 'output', sci(report.output.maxAbs), sci(report.output.maxRel), report.output.pass ? 'ok' : 'BROKEN']);
+  const agreement = report.output.topClassAgreement;
+  return (
+    `parity: ${title}\n` +
+    `float32 engine vs float64 reference; tolerance abs ${report.tolerance.abs}, rel ${report.tolerance.rel}\n\n` +
+    textTable(['#', 'layer', 'max abs err', 'max rel err', 'verdict'], rows) +
+    (agreement === null ? '' : `top class agrees on ${percent(agreement, 2)} of rows\n`) +
+    `${report.pass ? 'PASS' : 'FAIL'}: ${report.pass ? 'every layer within tolerance' : 'a tolerance is broken'}\n`
+  );
+}

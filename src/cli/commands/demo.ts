@@ -1,0 +1,29 @@
+import { runDemo } from '../../demo/story.js';
+import { noExtraPositionals, parseArgs } from '../args.js';
+import type { Command } from '../command.js';
+import { parseEngine } from './engine-flag.js';
+
+const flags = {
+  dir: { kind: 'string', help: 'folder for the demo\'s model files (default: a new temporary folder)' },
+  seed: { kind: 'integer', help: 'seed of the invented data and the initial weights', default: 7 },
+  engine: { kind: 'string', help: 'js, wasm or auto', default: 'auto' },
+} as const;
+
+export const demo: Command = {
+  name: 'demo',
+  summary: 'the whole job on an invented, seeded bakery: pack, train, score, prove parity, fine-tune for a second site',
+  usage: 'tendon demo [--dir DIR] [--seed N] [--engine js|wasm|auto]',
+  flags,
+  async run(argv, io) {
+    const { flags: f, positionals } = parseArgs(argv, flags);
+    noExtraPositionals(positionals, 0);
+    const outcome = await runDemo({
+      dir: f.dir,
+      seed: f.seed ?? 7,
+      engine: parseEngine(f.engine),
+      say: (line) => io.out(line + '\n'),
+      signal: io.signal,
+    });
+    return outcome.parityPass ? 0 : 1;
+  },
+};

@@ -1,0 +1,9 @@
+/** Every command, in the order `tendon help` lists them. */
+import type { Command } from '../command.js';
+import { check } from './check.js';
+import { demo } from './demo.js';
+import { pack } from './pack.js';
+import { run } from './run.js';
+import { show } from './show.js';
+
+export const commands: readonly Command[] = [demo, pack, show, run, check];

@@ -1,0 +1,52 @@
+import { UsageError } from '../../errors.js';
+import { openTableWriter } from '../../io/index.js';
+import { openModel } from '../../tendon.js';
+import { noExtraPositionals, parseArgs, requireFlag, requirePositional } from '../args.js';
+import type { Command } from '../command.js';
+import { grouped } from '../format.js';
+import { inputChunks, outputColumns } from '../model-input.js';
+import { parseEngine } from './engine-flag.js';
+
+const flags = {
+  input: { kind: 'string', short: 'i', help: 'rows to score: .csv, .jsonl or .npy (2-D)' },
+  output: { kind: 'string', short: 'o', help: 'where to write the scores: .csv, .jsonl or .npy' },
+  batch: { kind: 'integer', help: 'rows read and scored at a time (bounds memory)', default: 4096 },
+  engine: { kind: 'string', help: 'js, wasm or auto', default: 'auto' },
+} as const;
+
+export const run: Command = {
+  name: 'run',
+  summary: 'score a data file with a model, streaming, one output row per input row',
+  usage: 'tendon run MODEL --input FILE --output FILE [--batch N] [--engine js|wasm|auto]',
+  flags,
+  async run(argv, io) {
+    const { flags: f, positionals } = parseArgs(argv, flags);
+    const path = requirePositional(positionals, 0, 'the model file');
+    noExtraPositionals(positionals, 1);
+    const input = requireFlag(f.input, 'input');
+    const output = requireFlag(f.output, 'output');
+    const batch = f.batch ?? 4096;
+    if (batch < 1) throw new UsageError('--batch', `must be at least 1, got ${batch}`);
+    const model = await openModel(path, { engine: parseEngine(f.engine), chunkRows: Math.min(batch, 4096) });
+    try {
+      const writer = await openTableWriter(output, outputColumns(model.doc, model.outputs));
+      let rows = 0;
+      const started = performance.now();
+      try {
+        for await (const chunk of inputChunks(model.doc, input, batch)) {
+          await writer.write(chunk.rows, model.run(chunk.x, chunk.rows));
+          rows += chunk.rows;
+        }
+        await writer.close();
+      } catch (error) {
+        await writer.abort();
+        throw error;
+      }
+      const seconds = (performance.now() - started) / 1000;
+      io.err(`scored ${grouped(rows)} rows into ${output} in ${seconds.toFixed(2)} s on the ${model.engine} engine\n`);
+      return 0;
+    } finally {
+      model.dispose();
+    }
+  },
+};

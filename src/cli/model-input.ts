@@ -1,0 +1,45 @@
+/** Reading a data file as model input: columns matched by feature name when both sides have names. */
+import { DataError } from '../errors.js';
+import { openTable, resolveColumns, type TableReader } from '../io/index.js';
+import type { ModelDoc } from '../model/index.js';
+
+/**
+ * Which table columns feed the model's inputs, in the model's order. With feature names in the
+ * model and a header in the file, columns are matched by name (any order, extra columns
+ * ignored); otherwise the table must have exactly `inputs` columns.
+ */
+export function inputColumns(doc: ModelDoc, table: Pick<TableReader, 'columns' | 'width'>, file: string): number[] {
+  if (doc.features && table.columns) {
+    const missing = doc.features.filter((name) => !table.columns!.includes(name));
+    if (missing.length === 0) return resolveColumns(table.columns, table.width, doc.features, file);
+    if (table.width !== doc.inputs) {
+      throw new DataError(file, 1, 0, `missing feature column${missing.length > 1 ? 's' : ''} ${missing.map((m) => `"${m}"`).join(', ')} (the header has: ${table.columns.join(', ')})`);
+    }
+  }
+  if (table.width !== doc.inputs) {
+    throw new DataError(file, 1, 0, `has ${table.width} columns, but the model takes ${doc.inputs} inputs${doc.features ? ` (${doc.features.join(', ')})` : ''}`);
+  }
+  return Array.from({ length: doc.inputs }, (_, i) => i);
+}
+
+/** Stream a data file as float32 model inputs, chunk by chunk. */
+export async function* inputChunks(doc: ModelDoc, file: string, chunkRows: number): AsyncGenerator<{ rows: number; x: Float32Array; firstLine: number }> {
+  const table = await openTable(file, { chunkRows });
+  try {
+    const cols = inputColumns(doc, table, file);
+    for await (const chunk of table.chunks()) {
+      const x = new Float32Array(chunk.rows * cols.length);
+      for (let r = 0; r < chunk.rows; r++) {
+        for (let c = 0; c < cols.length; c++) x[r * cols.length + c] = chunk.data[r * table.width + cols[c]];
+      }
+      yield { rows: chunk.rows, x, firstLine: chunk.firstLine };
+    }
+  } finally {
+    await table.close();
+  }
+}
+
+/** Output column names: the model's labels, else output_0, output_1, ... */
+export function outputColumns(doc: ModelDoc, outputs: number): string[] {
+  return doc.labels ?? Array.from({ length: outputs }, (_, i) => `output_${i}`);
+}

@@ -1,0 +1,14 @@
+/**
+ * tendon's public API. Re-exports only: each piece lives in its own module.
+ */
+export { openModel, modelFromDocument, TendonModel, type OpenOptions } from './tendon.js';
+export * from './errors.js';
+export * from './model/types.js';
+export { validateModel, modelWidths, outputWidth, SeededRng } from './model/index.js';
+export { encodeModel, decodeModel, readModelFile, writeModelFile, crc32 } from './format/index.js';
+export { EngineSession, useEngine, engineFallbackReason, type EngineName } from './engine/index.js';
+export { referenceForward } from './reference/index.js';
+export { parityReport, randomInputs, FLOAT32_TOLERANCE, type ParityReport, type Tolerance } from './check/index.js';
+export { buildFromSpec, type SpecOptions } from './spec/spec.js';
+export { openTable, readTable, openTableWriter, readNpy, writeNpy, readIdx } from './io/index.js';
+export { tune, type TuneResult, type EpochRecord, type TuneRunOptions } from './train/tune.js';

@@ -1,0 +1,170 @@
+/**
+ * The façade a service uses: open a model file, run batches, prove parity, save. It ties the
+ * format, the engine and the parity check together; each of those can also be used alone.
+ */
+import * as tf from '@tensorflow/tfjs-core';
+import { parityReport, randomInputs, type ParityReport } from './check/index.js';
+import { EngineSession, ensureEngine, useEngine, type EngineName } from './engine/index.js';
+import { ShapeError } from './errors.js';
+import { readModelFile, writeModelFile } from './format/index.js';
+import { modelWidths, validateModel, type ModelDoc } from './model/index.js';
+
+export interface OpenOptions {
+  /**
+   * Which engine runs the model: 'js' (the tfjs CPU backend, always there), 'wasm' (SIMD
+   * kernels, several times faster) or 'auto' (wasm, falling back to js). tfjs has one engine
+   * per process, so this switches it for every model in the process. Left out, a process that
+   * has not chosen yet gets 'auto'.
+   */
+  readonly engine?: EngineName | 'auto';
+  /** Most rows sent through the engine at once; bounds peak memory. */
+  readonly chunkRows?: number;
+}
+
+let engineChosen = false;
+
+async function chooseEngine(engine: EngineName | 'auto' | undefined): Promise<EngineName> {
+  if (engine !== undefined || !engineChosen) {
+    engineChosen = true;
+    return useEngine(engine ?? 'auto');
+  }
+  return ensureEngine();
+}
+
+/**
+ * Open and fully check a model file, then make it resident on the engine.
+ * @example
+ * const model = await openModel('bakery.tendon');
+ * const scores = model.run([[214, 231, 219, 44, 1.6, 790, 56]]);
+ * model.dispose();
+ * @throws ModelFileError naming every problem of the file (missing, damaged, inconsistent).
+ */
+export async function openModel(path: string, options: OpenOptions = {}): Promise<TendonModel> {
+  const read = await readModelFile(path);
+  await chooseEngine(options.engine);
+  return new TendonModel(read.doc, { source: path, checksum: read.checksum, bytes: read.bytes, chunkRows: options.chunkRows });
+}
+
+/**
+ * Make a model resident from a document held in memory (built by `buildFromSpec`, decoded
+ * from bytes, or returned by a tune).
+ * @throws ModelFileError when the document is inconsistent.
+ */
+export async function modelFromDocument(doc: ModelDoc, options: OpenOptions = {}): Promise<TendonModel> {
+  validateModel(doc, '(document)');
+  await chooseEngine(options.engine);
+  return new TendonModel(doc, { source: null, checksum: null, bytes: null, chunkRows: options.chunkRows });
+}
+
+interface ModelOrigin {
+  readonly source: string | null;
+  readonly checksum: string | null;
+  readonly bytes: number | null;
+  readonly chunkRows?: number;
+}
+
+export class TendonModel {
+  readonly session: EngineSession;
+  /** Where the model was read from, or null for a document made in memory. */
+  readonly source: string | null;
+  /** CRC-32 of the file's payload (8 hex digits), or null for a document made in memory. */
+  readonly checksum: string | null;
+  /** Size of the file on disk, or null. */
+  readonly fileBytes: number | null;
+
+  constructor(
+    readonly doc: ModelDoc,
+    origin: ModelOrigin,
+  ) {
+    this.session = new EngineSession(doc, { chunkRows: origin.chunkRows, source: origin.source ?? '(document)' });
+    this.source = origin.source;
+    this.checksum = origin.checksum;
+    this.fileBytes = origin.bytes;
+  }
+
+  get engine(): EngineName {
+    return this.session.engine;
+  }
+  get inputs(): number {
+    return this.doc.inputs;
+  }
+  get outputs(): number {
+    const widths = modelWidths(this.doc);
+    return widths[widths.length - 1];
+  }
+  get features(): readonly string[] | null {
+    return this.doc.features;
+  }
+  get labels(): readonly string[] | null {
+    return this.doc.labels;
+  }
+
+  /**
+   * Inference on raw features (normalisation is applied inside the model).
+   * - rows as arrays of numbers -> rows as arrays of numbers
+   * - a Float32Array holding `rows` rows -> a Float32Array of rows x outputs
+   * - a 2-D tensor -> a 2-D tensor the caller disposes
+   * Large batches run in chunks; no tfjs tensor outlives the call.
+   * @example model.run([[0.05, 0.1]]) // [[0.7514, 0.7729]]
+   * @throws ShapeError when a row's width differs from the model's inputs.
+   */
+  run(batch: readonly (readonly number[])[]): number[][];
+  run(batch: Float32Array, rows: number): Float32Array;
+  run(batch: tf.Tensor2D): tf.Tensor2D;
+  run(batch: readonly (readonly number[])[] | Float32Array | tf.Tensor2D, rows?: number): number[][] | Float32Array | tf.Tensor2D {
+    if (batch instanceof tf.Tensor) {
+      if (batch.rank !== 2) throw new ShapeError('input tensor', ['rows', this.inputs], batch.shape, 'run');
+      return this.session.runTensor(batch);
+    }
+    if (batch instanceof Float32Array) {
+      const n = rows ?? batch.length / this.inputs;
+      if (!Number.isInteger(n) || n < 0 || batch.length !== n * this.inputs) {
+        throw new ShapeError('input', [n, this.inputs], [batch.length], 'run (Float32Array holds rows x inputs values)');
+      }
+      return this.session.run(batch, n);
+    }
+    const packed = packRows(batch, this.inputs);
+    const out = this.session.run(packed, batch.length);
+    const width = this.outputs;
+    return Array.from({ length: batch.length }, (_, r) => Array.from(out.subarray(r * width, (r + 1) * width)));
+  }
+
+  /**
+   * Parity of the engine against the float64 reference, per layer and at the output. Without
+   * inputs, uses 256 seeded random rows drawn around the model's normalisation statistics.
+   * @example const report = model.check(); if (!report.pass) throw ...
+   */
+  check(input?: { x: Float32Array; rows: number }, seed = 1): ParityReport {
+    const rows = input?.rows ?? 256;
+    const x = input?.x ?? randomInputs(this.doc, rows, seed);
+    return parityReport(this.doc, x, rows, { session: this.session });
+  }
+
+  /**
+   * Write the model atomically (temporary file, flush, rename): the target holds either the
+   * old complete file or the new one, never half of one.
+   */
+  async save(path: string): Promise<{ checksum: string; bytes: number }> {
+    return writeModelFile(path, this.doc);
+  }
+
+  /** Free the engine's tensors. */
+  dispose(): void {
+    this.session.dispose();
+  }
+}
+
+function packRows(batch: readonly (readonly number[])[], width: number): Float32Array {
+  const out = new Float32Array(batch.length * width);
+  batch.forEach((row, r) => {
+    if (!Array.isArray(row) || row.length !== width) {
+      throw new ShapeError(`input row ${r}`, [width], [Array.isArray(row) ? row.length : 0], 'run');
+    }
+    for (let c = 0; c < width; c++) {
+      const v = row[c];
+      if (typeof v !== 'number') throw new ShapeError(`input row ${r}, column ${c}`, ['number'], [], 'run');
+      out[r * width + c] = v;
+    }
+  });
+  return out;
+}
