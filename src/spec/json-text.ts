@@ -2,14 +2,17 @@
 import { DataError } from '../errors.js';
 
 export function parseJsonText(text: string, file: string): unknown {
+  const body = text.charCodeAt(0) === 0xfeff ? text.slice(1) : text;
   try {
-    return JSON.parse(text.charCodeAt(0) === 0xfeff ? text.slice(1) : text);
+    return JSON.parse(body);
   } catch (error) {
-    const message = error instanceof Error ? error.message : String(error);
-    const at = /position (\d+)/.exec(message);
-    const { line, column } = at ? lineAndColumn(text, Number(at[1])) : { line: 0, column: 0 };
-    const detail = message.replace(/^JSON\.parse: /, '').replace(/ in JSON at position \d+.*$/, '');
-    throw new DataError(file, line, column, `invalid JSON: ${detail}`);
+    // JSON.parse does not always say where (V8 omits the position for some errors), so find
+    // the first offending character with a small scanner of our own.
+    const offset = firstSyntaxError(body);
+    const { line, column } = lineAndColumn(body, offset);
+    const found = offset < body.length ? `unexpected ${JSON.stringify(body[offset])}` : 'unexpected end of text';
+    void error;
+    throw new DataError(file, line, column, `invalid JSON: ${found}`);
   }
 }
 
@@ -24,4 +27,73 @@ export function lineAndColumn(text: string, offset: number): { line: number; col
     }
   }
   return { line, column: offset - lineStart + 1 };
+}
+
+/** Offset of the first character where `text` stops being valid JSON (text.length if it ends early). */
+export function firstSyntaxError(text: string): number {
+  let i = 0;
+  const ws = () => {
+    while (i < text.length && ' \t\n\r'.includes(text[i])) i++;
+  };
+  class Stop {
+    constructor(readonly at: number) {}
+  }
+  const fail = (): never => {
+    throw new Stop(i);
+  };
+  const expect = (ch: string) => (text[i] === ch ? i++ : fail());
+  const value = (): void => {
+    ws();
+    const c = text[i];
+    if (c === '{') {
+      i++;
+      ws();
+      if (text[i] === '}') return void i++;
+      for (;;) {
+        ws();
+        if (text[i] !== '"') fail();
+        string();
+        ws();
+        expect(':');
+        value();
+        ws();
+        if (text[i] === ',') i++;
+        else return void expect('}');
+      }
+    }
+    if (c === '[') {
+      i++;
+      ws();
+      if (text[i] === ']') return void i++;
+      for (;;) {
+        value();
+        ws();
+        if (text[i] === ',') i++;
+        else return void expect(']');
+      }
+    }
+    if (c === '"') return string();
+    for (const word of ['true', 'false', 'null']) {
+      if (text.startsWith(word, i)) return void (i += word.length);
+    }
+    const m = /^-?(0|[1-9]\d*)(\.\d+)?([eE][-+]?\d+)?/.exec(text.slice(i, i + 400));
+    if (m) return void (i += m[0].length);
+    fail();
+  };
+  const string = () => {
+    i++;
+    while (i < text.length && text[i] !== '"') {
+      if (text.charCodeAt(i) < 0x20) fail();
+      i += text[i] === '\\' ? 2 : 1;
+    }
+    expect('"');
+  };
+  try {
+    value();
+    ws();
+    return i < text.length ? i : text.length;
+  } catch (stop) {
+    if (stop instanceof Stop) return stop.at;
+    throw stop;
+  }
 }

@@ -1,0 +1,148 @@
+/**
+ * The CLI contract, end to end in-process: pack / show / run / check on a model built from
+ * .npy files that NumPy wrote (test/fixtures/cli/make-mazur-npy.py), one-line errors and exit codes.
+ */
+import { mkdtemp, readFile, writeFile, copyFile } from 'node:fs/promises';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
+import { beforeAll, describe, expect, it } from 'vitest';
+import { runCli } from './run-cli.js';
+
+const fixtures = join(import.meta.dirname, '..', 'fixtures', 'cli');
+let dir: string;
+let model: string;
+
+beforeAll(async () => {
+  dir = await mkdtemp(join(tmpdir(), 'tendon-cli-'));
+  for (const f of ['mazur-spec.json', 'mazur-w1.npy', 'mazur-b1.npy', 'mazur-w2.npy', 'mazur-b2.npy', 'mazur-w2-fortran.npy']) {
+    await copyFile(join(fixtures, f), join(dir, f));
+  }
+  model = join(dir, 'mazur.tendon');
+  const packed = await runCli('pack', join(dir, 'mazur-spec.json'), '-o', model);
+  expect(packed.err).toBe('');
+  expect(packed.code).toBe(0);
+});
+
+describe('tendon pack / show / run / check on NumPy-written tensors', () => {
+  it('run reproduces the forward pass of Mazur 2015 (out_o1 = 0.75136507, out_o2 = 0.772928465)', async () => {
+    const input = join(dir, 'in.csv');
+    const output = join(dir, 'out.csv');
+    await writeFile(input, 'i2,i1\n0.10,0.05\n0.10,0.05\n');
+    const r = await runCli('run', model, '--input', input, '--output', output, '--engine', 'js');
+    expect(r.code).toBe(0);
+    const lines = (await readFile(output, 'utf8')).trim().split('\n');
+    expect(lines[0]).toBe('o1,o2');
+    expect(lines).toHaveLength(3);
+    const [o1, o2] = lines[1].split(',').map(Number);
+    // Worked example values, to float32 precision (columns were matched by name: i2 came first).
+    expect(o1).toBeCloseTo(0.75136507, 6);
+    expect(o2).toBeCloseTo(0.772928465, 6);
+  });
+
+  it('run writes .jsonl and .npy outputs with one row per input row', async () => {
+    const input = join(dir, 'in.jsonl');
+    await writeFile(input, '{"i1": 0.05, "i2": 0.10}\n[0.05, 0.10]\n'.split('\n')[0] + '\n{"i1": 0.05, "i2": 0.10}\n');
+    const out = join(dir, 'out.jsonl');
+    expect((await runCli('run', model, '-i', input, '-o', out, '--engine', 'js')).code).toBe(0);
+    const rows = (await readFile(out, 'utf8')).trim().split('\n').map((l) => JSON.parse(l));
+    expect(rows).toHaveLength(2);
+    expect(rows[0].o1).toBeCloseTo(0.75136507, 6);
+  });
+
+  it('show names layers, shapes, parameter count and checksum; --json is machine-readable', async () => {
+    const text = await runCli('show', model);
+    expect(text.code).toBe(0);
+    expect(text.out).toContain('sigmoid');
+    expect(text.out).toMatch(/checksum [0-9a-f]{8}/);
+    const json = JSON.parse((await runCli('show', model, '--json')).out);
+    // 2x2 weights + 2 biases, twice.
+    expect(json.parameters).toBe(12);
+    expect(json.layers.map((l: { tensors: { shape: number[] }[] }) => l.tensors[0].shape)).toEqual([[2, 2], [2, 2]]);
+    expect(json.features).toEqual(['i1', 'i2']);
+  });
+
+  it('check passes and reports per-layer errors within the float32 tolerance', async () => {
+    const r = await runCli('check', model, '--json', '--engine', 'js');
+    expect(r.code).toBe(0);
+    const report = JSON.parse(r.out);
+    expect(report.pass).toBe(true);
+    expect(report.layers).toHaveLength(2);
+    expect(report.output.maxAbs).toBeLessThan(report.tolerance.abs);
+  });
+});
+
+describe('one-line errors and exit codes', () => {
+  const cases: [string, () => string[], RegExp, number][] = [
+    ['unknown command', () => ['frobnicate'], /unknown command "frobnicate"/, 2],
+    ['unknown flag', () => ['show', model, '--colour'], /--colour: unknown option/, 2],
+    ['missing -o', () => ['pack', join(dir, 'mazur-spec.json')], /--out: is required/, 2],
+    ['model file missing', () => ['show', join(dir, 'nope.tendon')], /nope\.tendon/, 2],
+    ['bad number flag', () => ['run', model, '-i', 'x.csv', '-o', 'y.csv', '--batch', 'ten'], /--batch: expected a number/, 2],
+  ];
+  it.each(cases)('%s', async (_name, argv, pattern, code) => {
+    const r = await runCli(...argv());
+    expect(r.code).toBe(code);
+    expect(r.err).toMatch(pattern);
+    expect(r.err.trim().split('\n')).toHaveLength(1);
+    expect(r.err).not.toMatch(/\n\s+at /);
+  });
+
+  it('a corrupt model file names the problem (CRC mismatch) with exit 2', async () => {
+    const bytes = await readFile(model);
+    bytes[bytes.length - 3] ^= 0xff;
+    const bad = join(dir, 'corrupt.tendon');
+    await writeFile(bad, bytes);
+    const r = await runCli('show', bad);
+    expect(r.code).toBe(2);
+    expect(r.err).toMatch(/corrupt\.tendon/);
+    expect(r.err.toLowerCase()).toMatch(/crc|checksum/);
+  });
+
+  it('a truncated model file is refused with exit 2', async () => {
+    const bytes = await readFile(model);
+    const bad = join(dir, 'short.tendon');
+    await writeFile(bad, bytes.subarray(0, 40));
+    const r = await runCli('run', bad, '-i', 'x.csv', '-o', join(dir, 'y.csv'));
+    expect(r.code).toBe(2);
+    expect(r.err.trim().split('\n')).toHaveLength(1);
+  });
+
+  it('a malformed CSV row is reported with file, line and column, exit 2, and no output file', async () => {
+    const input = join(dir, 'bad.csv');
+    await writeFile(input, 'i1,i2\n0.05,0.10\n0.05,abc\n');
+    const output = join(dir, 'bad-out.csv');
+    const r = await runCli('run', model, '-i', input, '-o', output, '--engine', 'js');
+    expect(r.code).toBe(2);
+    expect(r.err).toMatch(/bad\.csv:3:2/);
+    await expect(readFile(output)).rejects.toThrow();
+  });
+
+  it('a spec with several problems reports them all at once', async () => {
+    const spec = join(dir, 'bad-spec.json');
+    await writeFile(spec, JSON.stringify({ inputs: 2, layers: [{ kind: 'dense', size: 0, activation: 'swish' }, { kind: 'dropout', rate: 2 }] }));
+    const r = await runCli('pack', spec, '-o', join(dir, 'x.tendon'));
+    expect(r.code).toBe(2);
+    expect(r.err).toMatch(/layers\[0\]\.size/);
+    expect(r.err).toMatch(/layers\[0\]\.activation/);
+    expect(r.err).toMatch(/layers\[1\]\.rate/);
+  });
+
+  it('a spec whose JSON is broken points at the line and column', async () => {
+    const spec = join(dir, 'broken.json');
+    await writeFile(spec, '{\n  "inputs": 2,\n  "layers": [,]\n}\n');
+    const r = await runCli('pack', spec, '-o', join(dir, 'x.tendon'));
+    expect(r.code).toBe(2);
+    expect(r.err).toMatch(/broken\.json:3:\d+: invalid JSON/);
+  });
+
+  it('a Fortran-order .npy tensor is refused naming the tensor (NEP 1)', async () => {
+    const spec = join(dir, 'fortran-spec.json');
+    const s = JSON.parse(await readFile(join(dir, 'mazur-spec.json'), 'utf8'));
+    s.layers[1].weight = 'mazur-w2-fortran.npy';
+    await writeFile(spec, JSON.stringify(s));
+    const r = await runCli('pack', spec, '-o', join(dir, 'x.tendon'));
+    expect(r.code).toBe(2);
+    expect(r.err).toMatch(/layers\[1\]\.weight/);
+    expect(r.err.toLowerCase()).toMatch(/fortran/);
+  });
+});
