@@ -83,17 +83,26 @@ export class CsvTokenizer {
           this.state = State.Unquoted;
           fieldStart = i;
         // falls through: the character starts an unquoted cell
-        case State.Unquoted:
-          if (c === COMMA) {
+        case State.Unquoted: {
+          // Tight scan to the next special character: most cells are short unquoted numbers.
+          let j = i;
+          let d = c;
+          while (d !== COMMA && d !== LF && d !== CR && d !== QUOTE && ++j < n) d = text.charCodeAt(j);
+          if (j >= n) {
+            i = n;
+            break;
+          }
+          i = j;
+          if (d === COMMA) {
             this.cells.push(this.pending + text.slice(fieldStart, i));
             this.pending = '';
             this.state = State.FieldStart;
-          } else if (c === LF || c === CR) {
+          } else if (d === LF || d === CR) {
             this.cells.push(this.pending + text.slice(fieldStart, i));
             this.pending = '';
             this.endRecord(out);
-            this.endLine(c);
-          } else if (c === QUOTE) {
+            this.endLine(d);
+          } else {
             throw new DataError(
               this.file,
               this.line,
@@ -102,6 +111,7 @@ export class CsvTokenizer {
             );
           }
           break;
+        }
         case State.Quoted:
           if (c === QUOTE) {
             this.pending += text.slice(fieldStart, i);

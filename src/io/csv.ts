@@ -134,7 +134,7 @@ export async function openCsvTable(path: string, opts: TableOptions = {}): Promi
         addRow(next);
       }
       const last = builder.take();
-      if (last) yield last;
+      if (last && !closed) yield last;
     } finally {
       await records.close();
     }

@@ -148,7 +148,7 @@ export async function openJsonlTable(path: string, opts: TableOptions = {}): Pro
         addRow(builder, line, rowShape(path, line, parseJsonLine(path, line)));
       }
       const last = builder.take();
-      if (last) yield last;
+      if (last && !closed) yield last;
     } finally {
       await lines.close();
     }

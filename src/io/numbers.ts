@@ -39,23 +39,32 @@ export function describeBadNumber(cell: string): string {
 export function formatFloat32(value: number): string {
   const v = Math.fround(value);
   if (!Number.isFinite(v)) return String(v);
-  // 6 digits first: "nice" values (0.5, 12.25) stop there and shrink further; others need 7-9.
-  if (roundTrips(v, 6)) {
-    for (let p = 1; p < 6; p++) if (roundTrips(v, p)) return shortText(v, p);
-    return shortText(v, 6);
+  // If p digits read back as v, so do p + 1 (the nearest (p+1)-digit decimal is at least as
+  // close), so the shortest p can be searched for from either side. Most computed values need
+  // 7 or 8 digits: start at 7, walk down only while it still reads back.
+  let text = v.toPrecision(7);
+  if (Math.fround(Number(text)) === v) {
+    for (let p = 6; p >= 1; p--) {
+      const shorter = v.toPrecision(p);
+      if (Math.fround(Number(shorter)) !== v) break;
+      text = shorter;
+    }
+    return trimDecimal(text);
   }
-  for (let p = 7; p < 9; p++) if (roundTrips(v, p)) return shortText(v, p);
+  text = v.toPrecision(8);
   // 9 significant digits always identify a binary32 value.
-  return shortText(v, 9);
+  if (Math.fround(Number(text)) !== v) text = v.toPrecision(9);
+  return trimDecimal(text);
 }
 
-function roundTrips(v: number, digits: number): boolean {
-  return Math.fround(Number(v.toPrecision(digits))) === v;
-}
-
-function shortText(v: number, digits: number): string {
-  // Number(...) then String(...) drops trailing zeros and picks plain or exponent form.
-  return String(Number(v.toPrecision(digits)));
+/** "0.5000000" -> "0.5", "12.00" -> "12"; exponent forms go through Number for a tidy spelling. */
+function trimDecimal(text: string): string {
+  if (text.includes('e')) return String(Number(text));
+  if (!text.includes('.')) return text;
+  let end = text.length;
+  while (text.charCodeAt(end - 1) === 48) end--; // '0'
+  if (text.charCodeAt(end - 1) === 46) end--; // '.'
+  return text.slice(0, end);
 }
 
 /** Shortest round-trip text of a float64 (ECMAScript Number::toString already is). */
