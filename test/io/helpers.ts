@@ -2,6 +2,7 @@
 import { mkdtempSync, rmSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
+import { fileURLToPath } from 'node:url';
 import { afterAll, expect } from 'vitest';
 import { DataError } from '../../src/errors.js';
 
@@ -39,4 +40,4 @@ export function seededRandom(seed: number): () => number {
   };
 }
 
-export const FIXTURES = new URL('../fixtures/io/', import.meta.url).pathname;
+export const FIXTURES = fileURLToPath(new URL('../fixtures/io/', import.meta.url));
