@@ -3,7 +3,7 @@
  * bakery, save and reopen it, score loaves, prove parity, then fine-tune it for a second bakery
  * whose sensors read differently, and show what each way of fine-tuning does to both sites.
  */
-import { mkdtemp } from 'node:fs/promises';
+import { mkdir, mkdtemp, writeFile } from 'node:fs/promises';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { writeModelFile } from '../format/index.js';
@@ -47,6 +47,7 @@ export function bakerySpecDocument(): Omit<ModelDoc, 'layers'> & { layers: [] } 
 export async function runDemo(opts: DemoOptions): Promise<DemoOutcome> {
   const { say } = opts;
   const dir = opts.dir ?? (await mkdtemp(join(tmpdir(), 'tendon-demo-')));
+  await mkdir(dir, { recursive: true });
   const rng = new SeededRng(opts.seed);
   const firstTrain = bakeLoaves(FIRST_SITE, 3000, rng);
   const firstTest = bakeLoaves(FIRST_SITE, 1500, rng);
@@ -54,6 +55,8 @@ export async function runDemo(opts: DemoOptions): Promise<DemoOutcome> {
   const secondTest = bakeLoaves(SECOND_SITE, 1500, rng);
 
   say(`tendon demo — an invented bakery (seed ${opts.seed}); files go to ${dir}`);
+  await writeLoaves(join(dir, 'northgate-loaves.csv'), firstTrain);
+  await writeLoaves(join(dir, 'riverside-loaves.csv'), secondTrain);
   say(`sensors: ${BAKERY_FEATURES.join(', ')}  ->  quality: ${BAKERY_LABELS.join(' / ')}`);
   say('');
 
@@ -152,7 +155,10 @@ export async function runDemo(opts: DemoOptions): Promise<DemoOutcome> {
     }
     say('');
     say('Invented data: these numbers show the runtime at work, not anything about real ovens.');
-    say(`Try: npx tendon show ${firstPath}   |   npx tendon check ${firstPath}`);
+    say('Try it yourself:');
+    say(`  npx tendon show ${firstPath}`);
+    say(`  npx tendon check ${firstPath}`);
+    say(`  npx tendon tune ${firstPath} --data ${join(dir, 'riverside-loaves.csv')} --target quality --anchor 0.05 --replay ${join(dir, 'northgate-loaves.csv')} --holdout 0.2 --epochs 20 -o ${join(dir, 'mine.tendon')}`);
     return { dir, firstSiteAccuracy: firstAcc, parityPass: parity.pass, table };
   } finally {
     model.dispose();
@@ -161,6 +167,16 @@ export async function runDemo(opts: DemoOptions): Promise<DemoOutcome> {
 
 function common(seed: number): TuneRunOptions {
   return { batch: 32, optimizer: 'adam', lr: 0.01, seed };
+}
+
+/** The site's loaves as CSV: the seven sensor columns and the quality label. */
+async function writeLoaves(path: string, b: BakeryBatch): Promise<void> {
+  const lines = [[...BAKERY_FEATURES, 'quality'].join(',')];
+  for (let r = 0; r < b.rows; r++) {
+    const row = Array.from(b.x.subarray(r * 7, r * 7 + 7), (v) => String(Number(v.toFixed(3))));
+    lines.push([...row, BAKERY_LABELS[b.y[r]]].join(','));
+  }
+  await writeFile(path, lines.join('\n') + '\n');
 }
 
 function asData(b: BakeryBatch) {

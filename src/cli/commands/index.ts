@@ -5,5 +5,6 @@ import { demo } from './demo.js';
 import { pack } from './pack.js';
 import { run } from './run.js';
 import { show } from './show.js';
+import { tune } from './tune.js';
 
-export const commands: readonly Command[] = [demo, pack, show, run, check];
+export const commands: readonly Command[] = [demo, pack, show, run, check, tune];
