@@ -43,6 +43,20 @@ describe('WorkerPool', () => {
     }
   });
 
+  it('on the wasm engine, pooled rows agree with the float64 reference (float32 tolerance, common practice)', async () => {
+    const pool = await WorkerPool.open(doc, { size: 2, engine: 'wasm', workerScript: script, minShareRows: 8 });
+    try {
+      expect(pool.engine).toBe('wasm');
+      const rows = 50;
+      const x = seededRows(rows, doc.inputs, 21);
+      const pooled = await pool.run(x, rows);
+      const ref = referenceForward(doc, toMat64(x, rows, doc.inputs)).y.data;
+      for (let i = 0; i < ref.length; i++) expect(Math.abs(ref[i]! - pooled[i]!)).toBeLessThan(1e-5);
+    } finally {
+      await pool.close();
+    }
+  });
+
   it('answers concurrent calls each with its own rows', async () => {
     const pool = await WorkerPool.open(encodeModel(doc), { size: 2, engine: 'js', workerScript: script, minShareRows: 4 });
     try {

@@ -1,0 +1,97 @@
+/**
+ * The plain paths tendon is compared with, measured in the same run:
+ * - per-layer tfjs-core ops on the JS CPU backend, written the way a user would (matMul, add,
+ *   activation, one tensor per step, weights kept as tensors between calls);
+ * - the float64 reference forward;
+ * - numpy + OpenBLAS on the same shapes, through bench/numpy_baseline.py, when python3 has numpy.
+ */
+import { spawnSync } from 'node:child_process';
+import * as tf from '@tensorflow/tfjs-core';
+import type { DenseLayer, ModelDoc } from '../model/index.js';
+import { referenceForward, toMat64 } from '../reference/index.js';
+import type { Timing } from './measure.js';
+
+/** Forward a user would write with tfjs-core ops; dense layers with relu / linear / softmax only. */
+export function plainTfjsForward(doc: ModelDoc): { run(x: Float32Array, rows: number): Float32Array; dispose(): void } {
+  const dense = doc.layers.filter((l): l is DenseLayer => l.kind === 'dense');
+  if (dense.length !== doc.layers.length) throw new RangeError('plainTfjsForward: dense layers only');
+  let width = doc.inputs;
+  const weights = dense.map((layer) => {
+    const w = tf.tensor2d(layer.weight, [width, layer.units]);
+    width = layer.units;
+    return { w, b: tf.tensor1d(layer.bias), activation: layer.activation };
+  });
+  return {
+    run(x, rows) {
+      return tf.tidy(() => {
+        let h: tf.Tensor2D = tf.tensor2d(x, [rows, doc.inputs]);
+        for (const { w, b, activation } of weights) {
+          h = tf.add(tf.matMul(h, w), b);
+          if (activation === 'relu') h = tf.relu(h);
+          else if (activation === 'softmax') h = tf.softmax(h);
+        }
+        return h.dataSync() as Float32Array;
+      });
+    },
+    dispose() {
+      for (const { w, b } of weights) tf.dispose([w, b]);
+    },
+  };
+}
+
+/** The float64 reference forward as a float32-in, float64-out call. */
+export function referenceRunner(doc: ModelDoc): (x: Float32Array, rows: number) => Float64Array {
+  return (x, rows) => referenceForward(doc, toMat64(x, rows, doc.inputs)).y.data;
+}
+
+export interface NumpyCase {
+  readonly widths: readonly number[];
+  readonly batches: readonly number[];
+}
+
+export type NumpyResult = { readonly available: true; readonly version: string; readonly blas: string; readonly timings: Map<string, Timing> } | { readonly available: false; readonly note: string };
+
+/** Key of a numpy timing: widths and batch. */
+export function numpyKey(widths: readonly number[], batch: number): string {
+  return `${widths.join('-')}@${batch}`;
+}
+
+/**
+ * Time the cases with numpy in child python3 processes, once with one OpenBLAS thread and once
+ * with its default (every core), keeping the faster per case: on a busy machine OpenBLAS's
+ * spinning threads can lose to one thread, and the comparison should be with numpy at its best.
+ * `available: false` with a note when python3 or numpy is missing or the script fails.
+ */
+export function runNumpyBaseline(script: string, cases: readonly NumpyCase[], minMs: number): NumpyResult {
+  const probe = spawnSync('python3', ['-c', 'import numpy'], { encoding: 'utf8' });
+  if (probe.error || probe.status !== 0) {
+    return { available: false, note: `numpy column skipped: python3 -c "import numpy" failed (${probe.error?.message ?? probe.stderr.trim().split('\n').pop()})` };
+  }
+  const timings = new Map<string, Timing>();
+  let version = '';
+  let blas = '';
+  for (const threads of ['1', '']) {
+    const env = { ...process.env };
+    if (threads) env.OPENBLAS_NUM_THREADS = threads;
+    else delete env.OPENBLAS_NUM_THREADS;
+    const child = spawnSync('python3', [script], { input: JSON.stringify({ minMs, cases }), encoding: 'utf8', maxBuffer: 16 * 2 ** 20, env });
+    if (child.status !== 0) return { available: false, note: `numpy column skipped: ${script} failed (${child.stderr.trim().split('\n').pop()})` };
+    const parsed: unknown = JSON.parse(child.stdout);
+    const doc = parsed as NumpyOutput;
+    version = doc.numpy;
+    blas = doc.blas;
+    for (const r of doc.results) {
+      const key = numpyKey(r.widths, r.batch);
+      const seen = timings.get(key);
+      if (seen && seen.rowsPerSec >= r.rowsPerSec) continue;
+      timings.set(key, { calls: r.calls, totalMs: (r.calls * r.batch * 1000) / r.rowsPerSec, rowsPerSec: r.rowsPerSec, p50Ms: r.p50Ms, p99Ms: r.p99Ms });
+    }
+  }
+  return { available: true, version, blas: `${blas}, best of 1 thread and all threads`, timings };
+}
+
+interface NumpyOutput {
+  numpy: string;
+  blas: string;
+  results: { widths: number[]; batch: number; rowsPerSec: number; p50Ms: number; p99Ms: number; calls: number }[];
+}

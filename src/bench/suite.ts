@@ -1,0 +1,351 @@
+/**
+ * The fixed benchmark suite behind `npm run bench`: three network sizes, batch sizes from 1 to
+ * 4096, both engines, 1 and 2 workers, the micro-batcher under concurrent callers, a training
+ * step, and a leak check; side by side with plain tfjs ops, the float64 reference and numpy.
+ *
+ * Calls that would take longer than a per-call budget (the plain JS paths on big batches) are
+ * skipped with a note, predicted from the throughput measured at the previous batch size.
+ */
+import { cpus, availableParallelism } from 'node:os';
+import * as tf from '@tensorflow/tfjs-core';
+import { EngineSession, engineFallbackReason, useEngine, type EngineName } from '../engine/index.js';
+import type { ModelDoc } from '../model/index.js';
+import { MicroBatcher } from '../serve/batcher.js';
+import { WorkerPool } from '../serve/pool.js';
+import { tune } from '../train/tune.js';
+import { numpyKey, plainTfjsForward, referenceRunner, runNumpyBaseline, type NumpyResult } from './baselines.js';
+import { fmt, gflops, percentile, table, timeCalls, type Timing } from './measure.js';
+import { denseStackDoc, seededRows } from './models.js';
+
+export interface SuiteOptions {
+  /** Fewer batch sizes, shorter timings, a 10 000-call leak check. */
+  readonly quick: boolean;
+  /** bench/numpy_baseline.py. */
+  readonly numpyScript: string;
+  /** The built worker (dist/worker.js). */
+  readonly workerScript: string | URL;
+  /** Progress lines. */
+  readonly log: (line: string) => void;
+}
+
+export interface SuiteRow {
+  readonly section: 'engine' | 'pool' | 'batcher' | 'train' | 'leak';
+  readonly network: string;
+  /** 'js' | 'wasm', or a baseline's name for reference rows. */
+  readonly engine: string;
+  readonly workers: number;
+  readonly batch: number;
+  readonly rowsPerSec: number;
+  readonly gflops: number;
+  readonly p50Ms: number;
+  readonly p99Ms: number;
+  readonly rssMiB: number;
+  readonly tensors: number;
+  /** Our rows/s over the baseline's, measured in this run; NaN when the baseline was not run. */
+  readonly vsPlainTfjs: number;
+  readonly vsReference: number;
+  readonly vsNumpy: number;
+  readonly note: string;
+}
+
+export interface TargetCheck {
+  readonly target: string;
+  readonly reached: string;
+  readonly met: boolean | null;
+}
+
+export interface Machine {
+  readonly cpu: string;
+  readonly cores: number;
+  readonly node: string;
+  readonly numpy: string;
+}
+
+export interface SuiteResult {
+  readonly rows: SuiteRow[];
+  readonly baselines: { network: string; batch: number; plainTfjs: Timing | null; reference: Timing | null; numpy: Timing | null }[];
+  readonly targets: TargetCheck[];
+  readonly notes: string[];
+  readonly machine: Machine;
+}
+
+const NETWORKS: { name: string; widths: number[]; last: 'softmax' | 'linear' }[] = [
+  { name: 'tabular 7-32-3', widths: [7, 32, 3], last: 'softmax' },
+  { name: 'mnist 784-512-256-10', widths: [784, 512, 256, 10], last: 'linear' },
+  { name: 'wide 256-2048-2048-10', widths: [256, 2048, 2048, 10], last: 'linear' },
+];
+const MID = NETWORKS[1];
+
+function rss(): number {
+  return process.memoryUsage().rss / 2 ** 20;
+}
+
+/** Run the whole suite; returns every row, the baselines, the target checks and notes. */
+export async function runBenchSuite(opts: SuiteOptions): Promise<SuiteResult> {
+  const quick = opts.quick;
+  const batches = quick ? [1, 256, 4096] : [1, 16, 256, 1024, 4096];
+  const minMs = quick ? 300 : 800;
+  const callBudgetMs = quick ? 1500 : 4000;
+  const notes: string[] = [];
+  const rows: SuiteRow[] = [];
+  const log = opts.log;
+
+  // numpy first, alone, so its threads do not compete with ours.
+  log('numpy + OpenBLAS baseline...');
+  const numpy: NumpyResult = runNumpyBaseline(
+    opts.numpyScript,
+    NETWORKS.map((n) => ({ widths: n.widths, batches })),
+    minMs,
+  );
+  if (!numpy.available) notes.push(numpy.note);
+
+  const docs = new Map(NETWORKS.map((n) => [n.name, denseStackDoc(n.widths, 7, 'relu', n.last)]));
+  const baselines: SuiteResult['baselines'] = [];
+  const baselineOf = (network: string, batch: number) => baselines.find((b) => b.network === network && b.batch === batch);
+
+  /** Time fn unless one call is predicted to exceed the budget; null when skipped. */
+  const budgeted = async (label: string, predictedRowsPerSec: number | null, batch: number, fn: () => unknown): Promise<Timing | null> => {
+    if (predictedRowsPerSec !== null && (batch / predictedRowsPerSec) * 1000 > callBudgetMs) {
+      notes.push(`${label} at batch ${batch} skipped: one call predicted at ${fmt((batch / predictedRowsPerSec) * 1000, 0)} ms, over the ${callBudgetMs} ms budget`);
+      return null;
+    }
+    return timeCalls(fn, batch, { minMs, minCalls: 2, warmupCalls: 1 });
+  };
+
+  // Baselines on the JS backend (plain tfjs ops, float64 reference), then our engines.
+  await useEngine('js');
+  for (const net of NETWORKS) {
+    const doc = docs.get(net.name)!;
+    const plain = plainTfjsForward(doc);
+    const ref = referenceRunner(doc);
+    let plainRate: number | null = null;
+    let refRate: number | null = null;
+    for (const batch of batches) {
+      log(`baselines ${net.name} batch ${batch}`);
+      const x = seededRows(batch, net.widths[0], batch);
+      const p = await budgeted(`plain tfjs ops (${net.name})`, plainRate, batch, () => plain.run(x, batch));
+      const r = await budgeted(`float64 reference (${net.name})`, refRate, batch, () => ref(x, batch));
+      plainRate = p?.rowsPerSec ?? plainRate;
+      refRate = r?.rowsPerSec ?? refRate;
+      const np = numpy.available ? numpy.timings.get(numpyKey(net.widths, batch)) ?? null : null;
+      baselines.push({ network: net.name, batch, plainTfjs: p, reference: r, numpy: np });
+    }
+    plain.dispose();
+  }
+
+  const engines: EngineName[] = ['js'];
+  try {
+    await useEngine('wasm');
+    engines.push('wasm');
+  } catch (error) {
+    notes.push(`wasm engine unavailable: ${error instanceof Error ? error.message.split('\n')[0] : String(error)}`);
+  }
+
+  const row = (r: Omit<SuiteRow, 'rssMiB' | 'tensors' | 'vsPlainTfjs' | 'vsReference' | 'vsNumpy'>, network: string, batch: number): SuiteRow => {
+    const b = baselineOf(network, batch);
+    return {
+      ...r,
+      rssMiB: rss(),
+      tensors: tf.memory().numTensors,
+      vsPlainTfjs: b?.plainTfjs ? r.rowsPerSec / b.plainTfjs.rowsPerSec : Number.NaN,
+      vsReference: b?.reference ? r.rowsPerSec / b.reference.rowsPerSec : Number.NaN,
+      vsNumpy: b?.numpy ? r.rowsPerSec / b.numpy.rowsPerSec : Number.NaN,
+    };
+  };
+
+  for (const engine of engines) {
+    await useEngine(engine);
+    for (const net of NETWORKS) {
+      const session = new EngineSession(docs.get(net.name)!);
+      let rate: number | null = null;
+      for (const batch of batches) {
+        log(`engine ${engine} ${net.name} batch ${batch}`);
+        const x = seededRows(batch, net.widths[0], batch);
+        const t = await budgeted(`engine ${engine} (${net.name})`, rate, batch, () => session.run(x, batch));
+        if (!t) continue;
+        rate = t.rowsPerSec;
+        rows.push(row({ section: 'engine', network: net.name, engine, workers: 0, batch, rowsPerSec: t.rowsPerSec, gflops: gflops(net.widths, t.rowsPerSec), p50Ms: t.p50Ms, p99Ms: t.p99Ms, note: 'in-process session' }, net.name, batch));
+      }
+      session.dispose();
+    }
+  }
+  const best: EngineName = engines.includes('wasm') ? 'wasm' : 'js';
+
+  // Worker pool on the middle network.
+  const poolBatches = quick ? [256] : [256, 4096];
+  const poolEngines: EngineName[] = quick ? [best] : engines;
+  for (const engine of poolEngines) {
+    for (const workers of [1, 2]) {
+      log(`pool ${engine} x${workers}`);
+      const pool = await WorkerPool.open(docs.get(MID.name)!, { size: workers, engine, workerScript: opts.workerScript, minShareRows: 16 });
+      let rate: number | null = null;
+      for (const batch of poolBatches) {
+        const x = seededRows(batch, MID.widths[0], batch);
+        const t = await budgeted(`pool ${engine} x${workers}`, rate, batch, () => pool.run(x, batch));
+        if (!t) continue;
+        rate = t.rowsPerSec;
+        rows.push(row({ section: 'pool', network: MID.name, engine, workers, batch, rowsPerSec: t.rowsPerSec, gflops: gflops(MID.widths, t.rowsPerSec), p50Ms: t.p50Ms, p99Ms: t.p99Ms, note: 'worker threads' }, MID.name, batch));
+      }
+      await pool.close();
+    }
+  }
+
+  // The micro-batcher: concurrent single-row callers, in-process session on the best engine.
+  await useEngine(best);
+  for (const net of [NETWORKS[0], MID]) {
+    const session = new EngineSession(docs.get(net.name)!);
+    const callers = 64;
+    log(`micro-batcher ${net.name}, ${callers} callers`);
+    const batcher = new MicroBatcher((x, n) => session.run(x, n), { width: net.widths[0], maxBatchRows: 64, maxWaitMs: 1, maxQueueRows: 4096 });
+    const one = seededRows(1, net.widths[0], 3);
+    const latencies: number[] = [];
+    const until = performance.now() + minMs * 2;
+    const started = performance.now();
+    await Promise.all(
+      Array.from({ length: callers }, async () => {
+        while (performance.now() < until) {
+          const t0 = performance.now();
+          await batcher.submit(one);
+          latencies.push(performance.now() - t0);
+        }
+      }),
+    );
+    const seconds = (performance.now() - started) / 1000;
+    await batcher.close();
+    session.dispose();
+    latencies.sort((a, b) => a - b);
+    const rps = latencies.length / seconds;
+    rows.push(row({ section: 'batcher', network: net.name, engine: best, workers: 0, batch: 1, rowsPerSec: rps, gflops: gflops(net.widths, rps), p50Ms: percentile(latencies, 0.5), p99Ms: percentile(latencies, 0.99), note: `${callers} concurrent single-row callers, max batch 64, max wait 1 ms` }, net.name, 1));
+  }
+
+  // Training: 784-256-10 at batch 64, one epoch, on each engine.
+  const trainWidths = [784, 256, 10];
+  for (const engine of engines) {
+    await useEngine(engine);
+    const n = engine === 'js' ? (quick ? 256 : 1024) : quick ? 1024 : 4096;
+    log(`training ${engine} ${n} rows`);
+    const doc: ModelDoc = denseStackDoc(trainWidths, 3, 'relu', 'softmax');
+    const x = seededRows(n, 784, 4);
+    const y = Int32Array.from({ length: n }, (_, i) => i % 10);
+    const result = await tune(doc, { x, rows: n, y }, { epochs: 1, batch: 64, lr: 0.01, optimizer: 'sgd', seed: 1 });
+    const rps = result.history[0]?.rowsPerSecond ?? Number.NaN;
+    // A training step is about 3x the forward multiply-adds (forward, input gradient, weight gradient).
+    rows.push(row({ section: 'train', network: 'train 784-256-10', engine, workers: 0, batch: 64, rowsPerSec: rps, gflops: 3 * gflops(trainWidths, rps), p50Ms: Number.NaN, p99Ms: Number.NaN, note: `one epoch of ${n} rows, sgd, steps only` }, 'train 784-256-10', 64));
+  }
+
+  // Leak check: many small calls must leave the tensor count unchanged and rss flat.
+  {
+    await useEngine(best);
+    const calls = quick ? 10_000 : 100_000;
+    const net = NETWORKS[0];
+    const session = new EngineSession(docs.get(net.name)!);
+    const x = seededRows(1, net.widths[0], 8);
+    for (let i = 0; i < 1000; i++) session.run(x, 1);
+    const tensorsBefore = tf.memory().numTensors;
+    const rssBefore = rss();
+    log(`leak check: ${calls} calls`);
+    const t0 = performance.now();
+    for (let i = 0; i < calls; i++) session.run(x, 1);
+    const seconds = (performance.now() - t0) / 1000;
+    const tensorsAfter = tf.memory().numTensors;
+    const rssAfter = rss();
+    session.dispose();
+    notes.push(`leak check (${best}, ${net.name}, ${calls} calls of run): tensors ${tensorsBefore} -> ${tensorsAfter}, rss ${fmt(rssBefore, 1)} -> ${fmt(rssAfter, 1)} MiB`);
+    rows.push(row({ section: 'leak', network: net.name, engine: best, workers: 0, batch: 1, rowsPerSec: calls / seconds, gflops: gflops(net.widths, calls / seconds), p50Ms: Number.NaN, p99Ms: Number.NaN, note: `tensors ${tensorsBefore}->${tensorsAfter}, rss ${fmt(rssBefore, 0)}->${fmt(rssAfter, 0)} MiB` }, net.name, 1));
+  }
+
+  const fallback = engineFallbackReason();
+  if (fallback) notes.push(fallback);
+  const machine: Machine = {
+    cpu: cpus()[0]?.model.trim() ?? 'unknown',
+    cores: availableParallelism(),
+    node: process.version,
+    numpy: numpy.available ? `numpy ${numpy.version} (${numpy.blas})` : 'numpy not available',
+  };
+  return { rows, baselines, targets: checkTargets(rows, baselines, best), notes, machine };
+}
+
+function checkTargets(rows: readonly SuiteRow[], baselines: SuiteResult['baselines'], best: EngineName): TargetCheck[] {
+  const find = (p: (r: SuiteRow) => boolean) => rows.find(p);
+  const mid256 = find((r) => r.section === 'engine' && r.network === MID.name && r.engine === best && r.batch === 256);
+  const mid1 = find((r) => r.section === 'engine' && r.network === MID.name && r.engine === best && r.batch === 1);
+  const base1 = baselines.find((b) => b.network === MID.name && b.batch === 1);
+  const pool1 = find((r) => r.section === 'pool' && r.engine === best && r.workers === 1 && r.batch === 256);
+  const pool2 = find((r) => r.section === 'pool' && r.engine === best && r.workers === 2 && r.batch === 256);
+  const pooled2 = pool2 ? Math.max(pool2.rowsPerSec, 0) : Number.NaN;
+  const trainBest = rows.filter((r) => r.section === 'train').reduce((m, r) => Math.max(m, r.rowsPerSec), 0);
+  const leak = find((r) => r.section === 'leak');
+  const out: TargetCheck[] = [];
+  const ratio = (v: number | undefined, goal: number, label: string, reached: string): TargetCheck => ({
+    target: label,
+    reached,
+    met: v === undefined || Number.isNaN(v) ? null : v >= goal,
+  });
+  out.push(ratio(mid256?.vsNumpy, 0.5, `${MID.name} batch 256 (${best}, one thread) >= 50% of numpy rows/s`, mid256 ? `${fmt(mid256.rowsPerSec, 0)} rows/s = ${fmt(100 * mid256.vsNumpy, 1)}% of numpy` : 'not measured'));
+  const bestOf256 = Math.max(mid256?.rowsPerSec ?? 0, pooled2 || 0);
+  const numpy256 = baselines.find((b) => b.network === MID.name && b.batch === 256)?.numpy;
+  if (numpy256) out.push(ratio(bestOf256 / numpy256.rowsPerSec, 0.5, `${MID.name} batch 256, best of in-process and 2 workers >= 50% of numpy`, `${fmt(bestOf256, 0)} rows/s = ${fmt((100 * bestOf256) / numpy256.rowsPerSec, 1)}%`));
+  out.push(ratio(mid256?.vsPlainTfjs, 60, `${MID.name} batch 256 >= 60x plain tfjs ops on the JS backend`, mid256 ? `${fmt(mid256.vsPlainTfjs, 1)}x` : 'not measured'));
+  const np1 = base1?.numpy?.p50Ms;
+  out.push({
+    target: `${MID.name} single-row p50 within 2x of numpy`,
+    reached: mid1 && np1 ? `${fmt(mid1.p50Ms, 3)} ms vs numpy ${fmt(np1, 3)} ms (${fmt(mid1.p50Ms / np1, 1)}x)` : 'not measured',
+    met: mid1 && np1 ? mid1.p50Ms <= 2 * np1 : null,
+  });
+  out.push(ratio(pool1 && pool2 ? pool2.rowsPerSec / pool1.rowsPerSec : undefined, 1.8, 'two workers >= 1.8x one worker at batch 256', pool1 && pool2 ? `${fmt(pool2.rowsPerSec / pool1.rowsPerSec, 2)}x` : 'not measured'));
+  out.push(ratio(trainBest || undefined, 10_000, 'training 784-256-10 at batch 64 >= 10 000 rows/s', `${fmt(trainBest, 0)} rows/s`));
+  out.push({ target: 'no tensor growth over the leak check', reached: leak?.note ?? 'not run', met: leak ? /tensors (\d+)->\1,/.test(leak.note) : null });
+  return out;
+}
+
+/** The suite's rows as a text table. */
+export function formatSuite(result: SuiteResult): string {
+  const head = ['section', 'network', 'engine', 'workers', 'batch', 'rows/s', 'GFLOP/s', 'p50 ms', 'p99 ms', 'rss MiB', 'tensors', 'x tfjs ops', 'x ref f64', 'x numpy'];
+  const body = result.rows.map((r) => [
+    r.section,
+    r.network,
+    r.engine,
+    r.workers ? String(r.workers) : '-',
+    String(r.batch),
+    fmt(r.rowsPerSec, 0),
+    fmt(r.gflops, 2),
+    fmt(r.p50Ms, 3),
+    fmt(r.p99Ms, 3),
+    fmt(r.rssMiB, 0),
+    String(r.tensors),
+    fmt(r.vsPlainTfjs, 1),
+    fmt(r.vsReference, 1),
+    fmt(r.vsNumpy, 2),
+  ]);
+  const baseHead = ['network', 'batch', 'tfjs ops rows/s', 'ref f64 rows/s', 'numpy rows/s', 'numpy p50 ms'];
+  const baseBody = result.baselines.map((b) => [b.network, String(b.batch), fmt(b.plainTfjs?.rowsPerSec ?? Number.NaN, 0), fmt(b.reference?.rowsPerSec ?? Number.NaN, 0), fmt(b.numpy?.rowsPerSec ?? Number.NaN, 0), fmt(b.numpy?.p50Ms ?? Number.NaN, 3)]);
+  const targets = result.targets.map((t) => `${t.met === null ? '[ ? ]' : t.met ? '[met]' : '[not met]'} ${t.target}: ${t.reached}`);
+  return [
+    `machine: ${result.machine.cpu}, ${result.machine.cores} cores, Node ${result.machine.node}, ${result.machine.numpy}`,
+    '',
+    table(head, body),
+    '',
+    'baselines (same run):',
+    table(baseHead, baseBody),
+    '',
+    'targets:',
+    ...targets,
+    '',
+    'notes:',
+    ...result.notes.map((n) => `- ${n}`),
+  ].join('\n');
+}
+
+/** Markdown rows for bench/RESULTS.md, one per configuration, dated. */
+export function resultsMarkdownRows(result: SuiteResult, date: Date): string[] {
+  const day = date.toISOString().slice(0, 16).replace('T', ' ');
+  const m = result.machine;
+  return result.rows.map((r) =>
+    `| ${day} | ${m.cpu}, ${m.cores} cores | ${m.node} | ${r.section} | ${r.network} | ${r.engine} | ${r.workers || '-'} | ${r.batch} | ${fmt(r.rowsPerSec, 0)} | ${fmt(r.gflops, 2)} | ${fmt(r.p50Ms, 3)} | ${fmt(r.p99Ms, 3)} | ${fmt(r.rssMiB, 0)} | ${r.tensors} | ${fmt(r.vsPlainTfjs, 1)} | ${fmt(r.vsReference, 1)} | ${fmt(r.vsNumpy, 2)} |`,
+  );
+}
+
+export const RESULTS_HEADER = [
+  '| date (UTC) | machine | node | section | network | engine | workers | batch | rows/s | GFLOP/s | p50 ms | p99 ms | rss MiB | tensors | x tfjs ops | x ref f64 | x numpy |',
+  '|---|---|---|---|---|---|---|---|---|---|---|---|---|---|---|---|---|',
+];
