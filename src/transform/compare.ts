@@ -1,0 +1,58 @@
+/**
+ * Two models on the same rows, both on the float64 reference path: how far apart their outputs
+ * are. Used to judge a shrunken or folded model against its parent.
+ */
+import { compareMatrices, FLOAT32_TOLERANCE, type Tolerance } from '../check/index.js';
+import { ShapeError } from '../errors.js';
+import { modelWidths, type ModelDoc } from '../model/index.js';
+import { referenceForward, toMat64 } from '../reference/index.js';
+
+export interface OutputComparison {
+  readonly rows: number;
+  readonly maxAbs: number;
+  readonly maxRel: number;
+  /** Where the worst element is (0-based), -1 with no rows. */
+  readonly worstRow: number;
+  readonly worstCol: number;
+  /** Share of rows whose largest output is in the same column; null for one output or no rows. */
+  readonly topClassAgreement: number | null;
+  readonly tolerance: Tolerance;
+  readonly pass: boolean;
+}
+
+/**
+ * Compare `candidate` with `parent` on `rows` raw rows `x` (rows x inputs, row-major).
+ * @example compareOutputs(parent, shrinkModel(parent, 'f16'), randomInputs(parent, 256, 1), 256, SHRINK_TOLERANCE.f16)
+ * @throws ShapeError when the two models take or give different widths.
+ */
+export function compareOutputs(parent: ModelDoc, candidate: ModelDoc, x: Float32Array, rows: number, tolerance: Tolerance = FLOAT32_TOLERANCE): OutputComparison {
+  const outParent = modelWidths(parent).at(-1)!;
+  const outCandidate = modelWidths(candidate).at(-1)!;
+  if (parent.inputs !== candidate.inputs) throw new ShapeError('candidate inputs', [parent.inputs], [candidate.inputs], 'compare with parent');
+  if (outParent !== outCandidate) throw new ShapeError('candidate outputs', [outParent], [outCandidate], 'compare with parent');
+  const a = referenceForward(candidate, toMat64(x, rows, candidate.inputs)).y.data;
+  const b = referenceForward(parent, toMat64(x, rows, parent.inputs)).y.data;
+  const d = compareMatrices(a, b, outParent, tolerance);
+  return {
+    rows,
+    maxAbs: d.maxAbs,
+    maxRel: d.maxRel,
+    worstRow: d.worstRow,
+    worstCol: d.worstCol,
+    topClassAgreement: outParent > 1 && rows > 0 ? topAgreement(a, b, rows, outParent) : null,
+    tolerance,
+    pass: d.pass,
+  };
+}
+
+function topAgreement(a: ArrayLike<number>, b: ArrayLike<number>, rows: number, cols: number): number {
+  let agree = 0;
+  for (let r = 0; r < rows; r++) if (argmax(a, r * cols, cols) === argmax(b, r * cols, cols)) agree++;
+  return agree / rows;
+}
+
+function argmax(v: ArrayLike<number>, offset: number, n: number): number {
+  let best = 0;
+  for (let j = 1; j < n; j++) if (v[offset + j] > v[offset + best]) best = j;
+  return best;
+}
