@@ -1,5 +1,6 @@
 /** Every command, in the order `tendon help` lists them. */
 import type { Command } from '../command.js';
+import { bench } from './bench.js';
 import { check } from './check.js';
 import { demo } from './demo.js';
 import { pack } from './pack.js';
@@ -7,4 +8,4 @@ import { run } from './run.js';
 import { show } from './show.js';
 import { tune } from './tune.js';
 
-export const commands: readonly Command[] = [demo, pack, show, run, check, tune];
+export const commands: readonly Command[] = [demo, pack, show, run, check, tune, bench];

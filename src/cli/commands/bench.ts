@@ -1,0 +1,36 @@
+import { benchModel, formatBenchRows } from '../../bench/index.js';
+import { UsageError } from '../../errors.js';
+import { readModelFile } from '../../format/index.js';
+import { noExtraPositionals, parseArgs, requirePositional } from '../args.js';
+import type { Command } from '../command.js';
+import { parseEngine } from './engine-flag.js';
+
+const flags = {
+  batch: { kind: 'string', help: 'comma-separated rows per call to measure', default: '1,32,256,1024' },
+  engine: { kind: 'string', help: 'js, wasm or auto', default: 'auto' },
+  ms: { kind: 'integer', help: 'measuring time per batch size, in milliseconds', default: 1000 },
+  json: { kind: 'boolean', help: 'print the rows as JSON' },
+} as const;
+
+export const bench: Command = {
+  name: 'bench',
+  summary: "measure a model's throughput and latency on this machine: rows/s, GFLOP/s, p50/p99, memory, tensors",
+  usage: 'tendon bench MODEL [--batch LIST] [--engine js|wasm|auto] [--ms N] [--json]',
+  flags,
+  async run(argv, io) {
+    const { flags: f, positionals } = parseArgs(argv, flags);
+    const path = requirePositional(positionals, 0, 'the model file');
+    noExtraPositionals(positionals, 1);
+    const batches = (f.batch ?? '').split(',').map((part) => {
+      const n = Number(part.trim());
+      if (!Number.isInteger(n) || n < 1) throw new UsageError('--batch', `expected whole numbers >= 1 like 1,32,256; got "${part}"`);
+      return n;
+    });
+    const minMs = f.ms ?? 1000;
+    if (minMs < 1) throw new UsageError('--ms', `must be at least 1, got ${minMs}`);
+    const { doc } = await readModelFile(path);
+    const rows = await benchModel(doc, { batches, engine: parseEngine(f.engine), minMs });
+    io.out(f.json ? JSON.stringify(rows, null, 2) + '\n' : formatBenchRows(rows));
+    return 0;
+  },
+};
