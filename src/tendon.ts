@@ -5,7 +5,7 @@
 import * as tf from '@tensorflow/tfjs-core';
 import { parityReport, randomInputs, type ParityReport } from './check/index.js';
 import { EngineSession, ensureEngine, useEngine, type EngineName } from './engine/index.js';
-import { ShapeError } from './errors.js';
+import { DataError, ShapeError } from './errors.js';
 import { readModelFile, writeModelFile } from './format/index.js';
 import { modelWidths, validateModel, type ModelDoc } from './model/index.js';
 
@@ -162,7 +162,9 @@ function packRows(batch: readonly (readonly number[])[], width: number): Float32
     }
     for (let c = 0; c < width; c++) {
       const v = row[c];
-      if (typeof v !== 'number') throw new ShapeError(`input row ${r}, column ${c}`, ['number'], [], 'run');
+      if (typeof v !== 'number' || Number.isNaN(v)) {
+        throw new DataError('(rows passed to run)', r + 1, c + 1, `${JSON.stringify(v) ?? String(v)} is not a number`);
+      }
       out[r * width + c] = v;
     }
   });
