@@ -2,10 +2,13 @@
 import type { Command } from '../command.js';
 import { bench } from './bench.js';
 import { check } from './check.js';
+import { fold } from './fold.js';
+import { serve } from './serve.js';
+import { shrink } from './shrink.js';
 import { demo } from './demo.js';
 import { pack } from './pack.js';
 import { run } from './run.js';
 import { show } from './show.js';
 import { tune } from './tune.js';
 
-export const commands: readonly Command[] = [demo, pack, show, run, check, tune, bench];
+export const commands: readonly Command[] = [demo, pack, show, run, check, tune, bench, shrink, fold, serve];

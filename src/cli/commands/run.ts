@@ -1,5 +1,6 @@
 import { UsageError } from '../../errors.js';
 import { openTableWriter } from '../../io/index.js';
+import { DriftMonitor, describeDrift } from '../../drift/index.js';
 import { openModel } from '../../tendon.js';
 import { noExtraPositionals, parseArgs, requireFlag, requirePositional } from '../args.js';
 import type { Command } from '../command.js';
@@ -12,12 +13,13 @@ const flags = {
   output: { kind: 'string', short: 'o', help: 'where to write the scores: .csv, .jsonl or .npy' },
   batch: { kind: 'integer', help: 'rows read and scored at a time (bounds memory)', default: 4096 },
   engine: { kind: 'string', help: 'js, wasm or auto', default: 'auto' },
+  drift: { kind: 'boolean', help: 'after scoring, print per-feature drift against the model\'s normalisation statistics to stderr' },
 } as const;
 
 export const run: Command = {
   name: 'run',
   summary: 'score a data file with a model, streaming, one output row per input row',
-  usage: 'tendon run MODEL --input FILE --output FILE [--batch N] [--engine js|wasm|auto]',
+  usage: 'tendon run MODEL --input FILE --output FILE [--batch N] [--engine js|wasm|auto] [--drift]',
   flags,
   async run(argv, io) {
     const { flags: f, positionals } = parseArgs(argv, flags);
@@ -29,12 +31,15 @@ export const run: Command = {
     if (batch < 1) throw new UsageError('--batch', `must be at least 1, got ${batch}`);
     const model = await openModel(path, { engine: parseEngine(f.engine), chunkRows: Math.min(batch, 4096) });
     try {
+      const drift = f.drift ? DriftMonitor.forModel(model.doc) : null;
+      if (f.drift && !drift) io.err('tendon run: --drift: the model has no fitted normalisation statistics to compare with\n');
       const writer = await openTableWriter(output, outputColumns(model.doc, model.outputs));
       let rows = 0;
       const started = performance.now();
       try {
         for await (const chunk of inputChunks(model.doc, input, batch)) {
           await writer.write(chunk.rows, model.run(chunk.x, chunk.rows));
+          drift?.add(chunk.x, chunk.rows);
           rows += chunk.rows;
         }
         await writer.close();
@@ -44,6 +49,7 @@ export const run: Command = {
       }
       const seconds = (performance.now() - started) / 1000;
       io.err(`scored ${grouped(rows)} rows into ${output} in ${seconds.toFixed(2)} s on the ${model.engine} engine\n`);
+      if (drift) io.err(describeDrift(drift.report()));
       return 0;
     } finally {
       model.dispose();

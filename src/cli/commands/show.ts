@@ -1,17 +1,19 @@
 import { readModelFile } from '../../format/index.js';
 import { layerKind, modelWidths, type ModelDoc } from '../../model/index.js';
 import { noExtraPositionals, parseArgs, requirePositional } from '../args.js';
+import { describeStorageCosts, storageCost } from '../../transform/index.js';
 import type { Command } from '../command.js';
 import { bytesText, grouped, textTable } from '../format.js';
 
 const flags = {
   json: { kind: 'boolean', help: 'print the facts as one JSON object' },
+  costs: { kind: 'boolean', help: 'also measure the size and parity cost of each storage choice (f32, f16, i8)' },
 } as const;
 
 export const show: Command = {
   name: 'show',
   summary: 'describe a model file: layers, shapes, parameters, normalisation, metadata, checksum, provenance',
-  usage: 'tendon show MODEL [--json]',
+  usage: 'tendon show MODEL [--json] [--costs]',
   flags,
   async run(argv, io) {
     const { flags: f, positionals } = parseArgs(argv, flags);
@@ -19,7 +21,8 @@ export const show: Command = {
     noExtraPositionals(positionals, 1);
     const read = await readModelFile(path);
     const facts = modelFacts(read.doc, { path, checksum: read.checksum, bytes: read.bytes, version: `${read.version.major}.${read.version.minor}` });
-    io.out(f.json ? JSON.stringify(facts, null, 2) + '\n' : describe(facts));
+    const costs = f.costs ? storageCost(read.doc) : null;
+    io.out(f.json ? JSON.stringify(costs ? { ...facts, storageCosts: costs } : facts, null, 2) + '\n' : describe(facts) + (costs ? '\n' + describeStorageCosts(costs) : ''));
     return 0;
   },
 };
