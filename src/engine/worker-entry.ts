@@ -10,6 +10,7 @@ import { TendonError } from '../errors.js';
 import { decodeModel } from '../format/index.js';
 import { useEngine } from './backend.js';
 import { EngineSession } from './session.js';
+import { FastSession } from './fast/fast-session.js';
 import { isWorkerSetup, type FromWorker, type ToWorker } from './worker-protocol.js';
 
 /** Exit code a worker uses when a test asks it to die; distinct from crashes and normal ends. */
@@ -28,11 +29,15 @@ async function main(): Promise<void> {
   const send = (message: FromWorker, transfer: ArrayBuffer[] = []): void => port.postMessage(message, transfer);
 
   let crashNextRun = setup.crashEveryRun;
-  let session: EngineSession;
+  let session: EngineSession | FastSession;
   try {
-    await useEngine(setup.engine);
     const { doc } = decodeModel(setup.model, setup.source);
-    session = new EngineSession(doc, { source: setup.source });
+    if (setup.engine === 'fast') {
+      session = new FastSession(doc, { source: setup.source });
+    } else {
+      await useEngine(setup.engine);
+      session = new EngineSession(doc, { source: setup.source });
+    }
   } catch (error) {
     send({ kind: 'open-failed', ...describe(error) });
     return;

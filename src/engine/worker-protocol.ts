@@ -3,7 +3,8 @@
  * (worker-entry.ts). Arrays travel as whole ArrayBuffers so they can be transferred, not copied.
  */
 
-export type WorkerEngine = 'js' | 'wasm' | 'auto';
+/** A tfjs engine ('auto' = wasm, else js), or 'fast': our own WebAssembly SIMD kernel (src/engine/fast). */
+export type WorkerEngine = 'js' | 'wasm' | 'auto' | 'fast';
 
 /** What a worker is started with (its workerData). */
 export interface WorkerSetup {
@@ -22,7 +23,7 @@ export type ToWorker =
   | { readonly kind: 'crash-next-run' };
 
 export type FromWorker =
-  | { readonly kind: 'ready'; readonly engine: 'js' | 'wasm'; readonly inputs: number; readonly outputs: number }
+  | { readonly kind: 'ready'; readonly engine: 'js' | 'wasm' | 'fast'; readonly inputs: number; readonly outputs: number }
   | { readonly kind: 'open-failed'; readonly message: string; readonly typed: boolean }
   | { readonly kind: 'done'; readonly id: number; readonly data: ArrayBuffer }
   | { readonly kind: 'failed'; readonly id: number; readonly message: string; readonly typed: boolean };
@@ -30,5 +31,5 @@ export type FromWorker =
 export function isWorkerSetup(value: unknown): value is WorkerSetup {
   if (typeof value !== 'object' || value === null) return false;
   const v = value as Partial<Record<keyof WorkerSetup, unknown>>;
-  return v.model instanceof Uint8Array && typeof v.source === 'string' && (v.engine === 'js' || v.engine === 'wasm' || v.engine === 'auto') && typeof v.crashEveryRun === 'boolean';
+  return v.model instanceof Uint8Array && typeof v.source === 'string' && (v.engine === 'js' || v.engine === 'wasm' || v.engine === 'auto' || v.engine === 'fast') && typeof v.crashEveryRun === 'boolean';
 }

@@ -57,6 +57,20 @@ describe('WorkerPool', () => {
     }
   });
 
+  it('with the fast engine (own SIMD kernel), pooled rows agree with the float64 reference (float32 tolerance, common practice)', async () => {
+    const pool = await WorkerPool.open(doc, { size: 2, engine: 'fast', workerScript: script, minShareRows: 8 });
+    try {
+      expect(pool.engine).toBe('fast');
+      const rows = 37;
+      const x = seededRows(rows, doc.inputs, 22);
+      const pooled = await pool.run(x, rows);
+      const ref = referenceForward(doc, toMat64(x, rows, doc.inputs)).y.data;
+      for (let i = 0; i < ref.length; i++) expect(Math.abs(ref[i]! - pooled[i]!)).toBeLessThan(1e-5);
+    } finally {
+      await pool.close();
+    }
+  });
+
   it('answers concurrent calls each with its own rows', async () => {
     const pool = await WorkerPool.open(encodeModel(doc), { size: 2, engine: 'js', workerScript: script, minShareRows: 4 });
     try {

@@ -1,0 +1,91 @@
+import { describe, expect, it } from 'vitest';
+import { FastSession } from '../../src/engine/fast/fast-session.js';
+import { instantiateDenseKernel } from '../../src/engine/fast/dense-kernel.js';
+import { referenceForward, toMat64 } from '../../src/reference/index.js';
+import { SeededRng, type ActivationName, type BatchNormLayer, type ModelDoc } from '../../src/model/index.js';
+import { denseStackDoc, seededRows } from '../../src/bench/models.js';
+import { ShapeError } from '../../src/errors.js';
+
+/** Worst absolute error against the float64 reference path. */
+function worstAgainstReference(doc: ModelDoc, rows: number, seed: number, chunkRows?: number): number {
+  const x = seededRows(rows, doc.inputs, seed);
+  const y = new FastSession(doc, { chunkRows }).run(x, rows);
+  const ref = referenceForward(doc, toMat64(x, rows, doc.inputs)).y.data;
+  expect(y.length).toBe(ref.length);
+  let worst = 0;
+  for (let i = 0; i < ref.length; i++) worst = Math.max(worst, Math.abs(y[i]! - ref[i]!));
+  return worst;
+}
+
+// float32 against float64: a few ulps of float32 per accumulated product (common practice).
+const TOL = 2e-5;
+
+describe('FastSession (own WebAssembly SIMD dense kernel)', () => {
+  it('computes 4-row and single-row tiles like a plain product loop written in the test, with and without ReLU', () => {
+    const nIn = 5;
+    const outP = 16;
+    const rows = 6; // one block of 4 rows and two single rows
+    const k = instantiateDenseKernel(1 << 16);
+    const f = new Float32Array(k.memory.buffer);
+    const rng = new SeededRng(4);
+    const xo = 0, wo = 64, bo = 256, yo = 512;
+    for (let i = 0; i < rows * nIn; i++) f[xo + i] = rng.normal();
+    for (let i = 0; i < nIn * outP; i++) f[wo + i] = rng.normal();
+    for (let i = 0; i < outP; i++) f[bo + i] = rng.normal();
+    for (const relu of [0, 1]) {
+      k.dense(xo * 4, wo * 4, bo * 4, yo * 4, rows, nIn, outP, relu);
+      for (let r = 0; r < rows; r++) {
+        for (let j = 0; j < outP; j++) {
+          let s = f[bo + j]!;
+          for (let q = 0; q < nIn; q++) s += f[xo + r * nIn + q]! * f[wo + q * outP + j]!;
+          if (relu) s = Math.max(s, 0);
+          expect(Math.abs(f[yo + r * outP + j]! - s)).toBeLessThan(1e-5);
+        }
+      }
+    }
+  });
+
+  it.each([
+    ['relu', 'linear'],
+    ['relu', 'softmax'],
+    ['tanh', 'sigmoid'],
+    ['leaky_relu', 'softplus'],
+    ['sigmoid', 'tanh'],
+  ] satisfies [ActivationName, ActivationName][])('matches the float64 reference: hidden %s, output %s', (hidden, last) => {
+    const doc = denseStackDoc([13, 37, 21, 5], 3, hidden, last);
+    for (const rows of [1, 3, 4, 5, 64]) expect(worstAgainstReference(doc, rows, rows)).toBeLessThan(TOL);
+  });
+
+  it('matches the reference across chunk boundaries and for 784-512-256-10', () => {
+    expect(worstAgainstReference(denseStackDoc([30, 17, 3], 5), 103, 2, 16)).toBeLessThan(TOL);
+    expect(worstAgainstReference(denseStackDoc([784, 512, 256, 10], 1), 9, 6)).toBeLessThan(1e-4);
+  });
+
+  it('applies input normalisation, batch normalisation and dropout (identity) like the reference', () => {
+    const base = denseStackDoc([6, 20, 4], 8, 'relu', 'softmax');
+    const rng = new SeededRng(12);
+    const bn: BatchNormLayer = {
+      kind: 'batchnorm',
+      gamma: Float32Array.from({ length: 20 }, () => 0.5 + rng.next()),
+      beta: Float32Array.from({ length: 20 }, () => 0.2 * rng.normal()),
+      runningMean: Float32Array.from({ length: 20 }, () => 0.3 * rng.normal()),
+      runningVariance: Float32Array.from({ length: 20 }, () => 0.5 + rng.next()),
+      epsilon: 1e-3,
+      momentum: 0.9,
+    };
+    const layers = [base.layers[0]!, bn, { kind: 'dropout' as const, rate: 0.3 }, base.layers[1]!];
+    const zscore: ModelDoc = {
+      ...base,
+      layers,
+      normalise: { method: 'zscore', mean: Float64Array.from([1, -2, 0.5, 3, 0, 10]), std: Float64Array.from([2, 0.5, 1, 4, 0, 3]), m2: null, count: 100 },
+    };
+    const minmax: ModelDoc = { ...base, layers, normalise: { method: 'minmax', min: Float64Array.from([-1, -2, -3, 0, 5, 1]), max: Float64Array.from([1, 2, 3, 4, 5, 9]), count: 100 } };
+    expect(worstAgainstReference(zscore, 17, 1)).toBeLessThan(TOL);
+    expect(worstAgainstReference(minmax, 17, 2)).toBeLessThan(TOL);
+  });
+
+  it('refuses input that is not rows x inputs with a ShapeError', () => {
+    const fast = new FastSession(denseStackDoc([4, 8, 2], 1));
+    expect(() => fast.run(new Float32Array(7), 2)).toThrow(ShapeError);
+  });
+});
