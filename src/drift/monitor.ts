@@ -95,8 +95,10 @@ export class DriftMonitor {
     for (let r = 0; r < rows; r++) {
       for (let c = 0; c < w; c++) {
         const v = x[r * w + c];
+        // Incoming rows are float32: compare with the float32 rounding of the stored range, so a
+        // value that was at the edge when the statistics were fitted does not count as outside.
         const outside =
-          b.method === 'zscore' ? Math.abs(v - b.mean[c]) > ZSCORE_RANGE_SD * b.std[c] : v < b.min[c] || v > b.max[c];
+          b.method === 'zscore' ? Math.abs(v - b.mean[c]) > ZSCORE_RANGE_SD * b.std[c] : v < Math.fround(b.min[c]) || v > Math.fround(b.max[c]);
         if (outside) this.outside[c]++;
       }
     }
