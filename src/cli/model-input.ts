@@ -1,6 +1,6 @@
 /** Reading a data file as model input: columns matched by feature name when both sides have names. */
 import { DataError } from '../errors.js';
-import { openTable, resolveColumns, type TableReader } from '../io/index.js';
+import { openTable, resolveColumns, shownNames, type TableReader } from '../io/index.js';
 import type { ModelDoc } from '../model/index.js';
 
 /**
@@ -12,8 +12,12 @@ export function inputColumns(doc: ModelDoc, table: Pick<TableReader, 'columns' |
   if (doc.features && table.columns) {
     const missing = doc.features.filter((name) => !table.columns!.includes(name));
     if (missing.length === 0) return resolveColumns(table.columns, table.width, doc.features, file);
-    if (table.width !== doc.inputs) {
-      throw new DataError(file, 1, 0, `missing feature column${missing.length > 1 ? 's' : ''} ${missing.map((m) => `"${m}"`).join(', ')} (the header has: ${table.columns.join(', ')})`);
+    // A header that names some features but not all would be read by position, feeding one
+    // feature's values into another's input: refuse it. Position is used only when the header
+    // shares no name with the model (it names the columns some other way).
+    const named = doc.features.length - missing.length;
+    if (named > 0 || table.width !== doc.inputs) {
+      throw new DataError(file, 1, 0, `missing feature column${missing.length > 1 ? 's' : ''} ${shownNames(missing)} (the header has: ${shownNames(table.columns)})`);
     }
   }
   if (table.width !== doc.inputs) {

@@ -3,7 +3,7 @@
  * turned into class indices (from an index or a label name) or regression values.
  */
 import { DataError } from '../errors.js';
-import { readTable, resolveColumns, type LoadedTable } from '../io/index.js';
+import { openTable, readTable, resolveColumns, shownCell, shownNames, type LoadedTable } from '../io/index.js';
 import { modelWidths, type ModelDoc } from '../model/index.js';
 import type { TuneData } from '../train/config.js';
 
@@ -37,8 +37,13 @@ export async function loadTrainingData(doc: ModelDoc, file: string, targets: rea
     const cells = table.text.get(targetCols[0]) ?? [];
     const y = new Int32Array(table.rows);
     const classCount = outputs === 1 ? 2 : outputs;
-    const header = table.columns ? 1 : 0;
-    for (let r = 0; r < table.rows; r++) y[r] = classIndex(cells[r] ?? '', doc.labels, classCount, file, r + 1 + header, targetCols[0] + 1);
+    for (let r = 0; r < table.rows; r++) {
+      const index = classIndex(cells[r] ?? '', doc.labels, classCount);
+      if (index === null) {
+        throw unknownClass(cells[r] ?? '', doc.labels, classCount, file, await lineOfRow(file, r, refs), targetCols[0] + 1);
+      }
+      y[r] = index;
+    }
     return { x, rows: table.rows, y };
   }
   if (targetCols.length !== outputs) {
@@ -55,7 +60,7 @@ function featureColumns(doc: ModelDoc, table: LoadedTable, targetCols: readonly 
   if (doc.features && table.columns) {
     const missing = doc.features.filter((f) => !table.columns!.includes(f));
     if (missing.length === 0) return resolveColumns(table.columns, table.width, doc.features, file);
-    throw new DataError(file, 1, 0, `missing feature column${missing.length > 1 ? 's' : ''} ${missing.map((m) => `"${m}"`).join(', ')} (the header has: ${table.columns.join(', ')})`);
+    throw new DataError(file, 1, 0, `missing feature column${missing.length > 1 ? 's' : ''} ${shownNames(missing)} (the header has: ${shownNames(table.columns)})`);
   }
   const rest = Array.from({ length: table.width }, (_, i) => i).filter((i) => !targetCols.includes(i));
   if (rest.length !== doc.inputs) {
@@ -64,14 +69,35 @@ function featureColumns(doc: ModelDoc, table: LoadedTable, targetCols: readonly 
   return rest;
 }
 
-/** A class cell: a label name the model knows, or a whole-number index. */
-function classIndex(cell: string, labels: readonly string[] | null, classes: number, file: string, line: number, column: number): number {
+/** A class cell: a label name the model knows, or a whole-number index; null when it is neither. */
+function classIndex(cell: string, labels: readonly string[] | null, classes: number): number | null {
   const text = cell.trim();
   if (labels) {
     const i = labels.indexOf(text);
     if (i >= 0) return i;
   }
   if (/^\d+$/.test(text) && Number(text) < classes) return Number(text);
-  const known = labels ? `labels ${labels.map((l) => `"${l}"`).join(', ')} or indices 0..${classes - 1}` : `indices 0..${classes - 1}`;
-  throw new DataError(file, line, column, `class "${text}" is not one the model knows (${known})`);
+  return null;
+}
+
+function unknownClass(cell: string, labels: readonly string[] | null, classes: number, file: string, line: number, column: number): DataError {
+  const known = labels ? `labels ${shownNames(labels)} or indices 0..${classes - 1}` : `indices 0..${classes - 1}`;
+  return new DataError(file, line, column, `class ${shownCell(cell.trim())} is not one the model knows (${known})`);
+}
+
+/**
+ * The 1-based file line of data row `row` (0-based). Blank lines and quoted cells that span
+ * lines make it differ from row + header, so the file is read again, one row per chunk (each
+ * chunk names its first line). Only on the error path, so the second read costs nothing
+ * that matters.
+ */
+async function lineOfRow(file: string, row: number, textColumns: readonly (string | number)[]): Promise<number> {
+  const table = await openTable(file, { chunkRows: 1, textColumns });
+  try {
+    let r = 0;
+    for await (const chunk of table.chunks()) if (r++ === row) return chunk.firstLine;
+  } finally {
+    await table.close();
+  }
+  return 0;
 }

@@ -2,6 +2,7 @@
  * Column lookup by header name or position, and picking columns out of a loaded table.
  */
 import { DataError } from '../errors.js';
+import { shownNames } from './file-errors.js';
 import type { ColumnRef, LoadedTable } from './table-types.js';
 
 /**
@@ -29,7 +30,7 @@ export function resolveColumns(
     }
     const index = columns.indexOf(ref);
     if (index < 0) {
-      throw new DataError(file, 1, 0, `no column named "${ref}"; available: ${columns.map((c) => `"${c}"`).join(', ')}`);
+      throw new DataError(file, 1, 0, `no column named "${ref}"; available: ${shownNames(columns)}`);
     }
     return index;
   });

@@ -8,7 +8,7 @@ import { DataError } from '../errors.js';
 import { ChunkBuilder } from './chunk-builder.js';
 import { resolveColumns } from './columns.js';
 import { CsvTokenizer, type CsvRecord } from './csv-tokenizer.js';
-import { asDataError } from './file-errors.js';
+import { asDataError, shownCell } from './file-errors.js';
 import { describeBadNumber, parseNumberCell } from './numbers.js';
 import { rowsPerChunk, type TableChunk, type TableOptions, type TableReader } from './table-types.js';
 
@@ -188,7 +188,7 @@ function headerNames(path: string, record: CsvRecord): string[] {
     if (name === '') throw new DataError(path, record.line, i + 1, 'empty column name in the header row');
     const earlier = names.indexOf(name);
     if (earlier < i) {
-      throw new DataError(path, record.line, i + 1, `column name "${name}" repeats column ${earlier + 1}`);
+      throw new DataError(path, record.line, i + 1, `column name ${shownCell(name)} repeats column ${earlier + 1}`);
     }
   });
   return names;
@@ -210,5 +210,5 @@ function badCell(
   why: string,
 ): DataError {
   const name = columns ? `"${columns[column]}"` : String(column + 1);
-  return new DataError(path, line, column + 1, `cell ${JSON.stringify(cell)} in column ${name} ${why}`);
+  return new DataError(path, line, column + 1, `cell ${shownCell(cell)} in column ${name} ${why}`);
 }

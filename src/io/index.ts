@@ -30,3 +30,4 @@ export { formatNpyHeader, parseNpyDict, type NpyHeader } from './npy-header.js';
 export { readIdx, decodeIdx, type IdxArray, type IdxData } from './idx.js';
 export { openTableWriter, type TableWriter, type TableWriterOptions } from './writers.js';
 export { parseNumberCell, formatFloat32, formatFloat64 } from './numbers.js';
+export { shownCell, shownNames } from './file-errors.js';

@@ -9,7 +9,7 @@ import { stat } from 'node:fs/promises';
 import { DataError } from '../errors.js';
 import { ChunkBuilder } from './chunk-builder.js';
 import { resolveColumns } from './columns.js';
-import { asDataError } from './file-errors.js';
+import { asDataError, shownCell } from './file-errors.js';
 import { readLineBatches, type TextLine } from './lines.js';
 import { rowsPerChunk, type TableChunk, type TableOptions, type TableReader } from './table-types.js';
 
@@ -124,13 +124,13 @@ export async function openJsonlTable(path: string, opts: TableOptions = {}): Pro
       const name = columns ? `"${columns[c]}"` : String(c + 1);
       if (isText[c]) {
         if (typeof cell !== 'string' || cell.trim() === '') {
-          throw new DataError(path, line.line, c + 1, `value ${JSON.stringify(cell)} in column ${name} is not a non-empty string`);
+          throw new DataError(path, line.line, c + 1, `value ${shownValue(cell)} in column ${name} is not a non-empty string`);
         }
         builder.setText(c, cell);
       } else if (typeof cell === 'number' && Number.isFinite(cell)) {
         values[offset + c] = cell;
       } else {
-        throw new DataError(path, line.line, c + 1, `value ${JSON.stringify(cell) ?? String(cell)} in column ${name} is not a finite number`);
+        throw new DataError(path, line.line, c + 1, `value ${shownValue(cell)} in column ${name} is not a finite number`);
       }
     }
   };
@@ -173,5 +173,12 @@ export async function openJsonlTable(path: string, opts: TableOptions = {}): Pro
 function rowShape(path: string, line: TextLine, value: unknown): Row {
   if (Array.isArray(value)) return value;
   if (typeof value === 'object' && value !== null) return value as Record<string, unknown>;
-  throw new DataError(path, line.line, 1, `each line must be an array of numbers or an object of numbers, found ${JSON.stringify(value)}`);
+  throw new DataError(path, line.line, 1, `each line must be an array of numbers or an object of numbers, found ${shownValue(value)}`);
+}
+
+/** A JSON value for an error message, cut when long (a 10 MB string stays a readable line). */
+function shownValue(value: unknown): string {
+  if (typeof value === 'string') return shownCell(value);
+  const text = JSON.stringify(value) ?? String(value);
+  return text.length <= 64 ? text : `${text.slice(0, 64)}… (${text.length} characters of JSON)`;
 }
