@@ -158,7 +158,7 @@ export function createRequestHandler(options: RequestHandlerOptions): TendonRequ
     try {
       y = await batcher.submit(x);
     } catch (error) {
-      if (error instanceof BusyError) throw new HttpProblem(503, `busy: ${error.message}`, { 'retry-after': retryAfter });
+      if (error instanceof BusyError) throw new HttpProblem(503, error.message, { 'retry-after': retryAfter });
       throw error;
     }
     const width = y.length / rows - 1;
