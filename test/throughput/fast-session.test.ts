@@ -59,6 +59,8 @@ describe('FastSession (own WebAssembly SIMD dense kernel)', () => {
   it('matches the reference across chunk boundaries and for 784-512-256-10', () => {
     expect(worstAgainstReference(denseStackDoc([30, 17, 3], 5), 103, 2, 16)).toBeLessThan(TOL);
     expect(worstAgainstReference(denseStackDoc([784, 512, 256, 10], 1), 9, 6)).toBeLessThan(1e-4);
+    // 513 inputs: two whole k blocks of 256 and a block of 1; ReLU only after the last block.
+    expect(worstAgainstReference(denseStackDoc([513, 40, 3], 9, 'relu', 'linear'), 6, 4)).toBeLessThan(1e-4);
   });
 
   it('applies input normalisation, batch normalisation and dropout (identity) like the reference', () => {

@@ -17,6 +17,14 @@ const X = 0, W = 1, B = 2, Y = 3, ROWS = 4, NIN = 5, OUTP = 6, RELU = 7;
 const R = 8, J = 9, K = 10, WP = 11, XP0 = 12, XP1 = 13, XP2 = 14, XP3 = 15, YP = 16, XSTRIDE = 17, WSTRIDE = 18;
 const ACC = 19; // 8 v128 accumulators: ACC + 0..7
 const W0 = 27, W1 = 28, S = 29, ZERO = 30;
+// i32 locals after the v128 ones: start and length of the current k block, and whether it is the last.
+const K0 = 31, KLEN = 32, LAST = 33;
+/**
+ * Inputs per k block. A block's W panel (KB x 8 floats for 4-row tiles, KB x 16 for single rows)
+ * stays in L1 while the rows stream past; partial sums wait in y between blocks, which changes
+ * nothing numerically (the accumulators are float32 either way) and keeps the order of k.
+ */
+const KB = 256;
 
 function denseFunction(): FunctionDef {
   const c = new Code();
@@ -27,20 +35,34 @@ function denseFunction(): FunctionDef {
 
   /** One tile of `tileRows` rows (1 or 4) x 8 columns at row R, column J. */
   const tile = (tileRows: number): void => {
-    // Accumulators start at the bias.
-    c.get(B).get(J).i32(4).mul().add().set(WP); // WP reused briefly as the bias pointer
-    c.get(WP).v128Load(0).set(ACC);
-    c.get(WP).v128Load(16).set(ACC + 1);
-    for (let t = 1; t < tileRows; t++) {
-      c.get(ACC).set(ACC + 2 * t);
-      c.get(ACC + 1).set(ACC + 2 * t + 1);
+    // Accumulators start at the bias in the first k block, else at the partial sums in y.
+    c.get(Y).get(R).get(WSTRIDE).mul().add().get(J).i32(4).mul().add().set(YP);
+    c.get(K0).eqz().if();
+    {
+      c.get(B).get(J).i32(4).mul().add().set(WP); // WP reused briefly as the bias pointer
+      c.get(WP).v128Load(0).set(ACC);
+      c.get(WP).v128Load(16).set(ACC + 1);
+      for (let t = 1; t < tileRows; t++) {
+        c.get(ACC).set(ACC + 2 * t);
+        c.get(ACC + 1).set(ACC + 2 * t + 1);
+      }
     }
-    // Row pointers into x.
-    c.get(X).get(R).get(XSTRIDE).mul().add().set(XP0);
+    c.else();
+    {
+      c.get(YP).set(WP);
+      for (let t = 0; t < tileRows; t++) {
+        c.get(WP).v128Load(0).set(ACC + 2 * t);
+        c.get(WP).v128Load(16).set(ACC + 2 * t + 1);
+        c.get(WP).get(WSTRIDE).add().set(WP);
+      }
+    }
+    c.end();
+    // Row pointers into x, at column K0.
+    c.get(X).get(R).get(XSTRIDE).mul().add().get(K0).i32(4).mul().add().set(XP0);
     const xps = [XP0, XP1, XP2, XP3];
     for (let t = 1; t < tileRows; t++) c.get(xps[t - 1]).get(XSTRIDE).add().set(xps[t]);
-    c.get(W).get(J).i32(4).mul().add().set(WP);
-    c.get(NIN).set(K);
+    c.get(W).get(K0).get(WSTRIDE).mul().add().get(J).i32(4).mul().add().set(WP);
+    c.get(KLEN).set(K);
     c.block().loop();
     {
       c.get(WP).v128Load(0).set(W0);
@@ -55,11 +77,10 @@ function denseFunction(): FunctionDef {
       c.get(K).i32(1).sub().tee(K).i32(0).ne().brIf(0);
     }
     c.end().end();
-    c.get(RELU).if();
+    c.get(RELU).get(LAST).and().if();
     for (let a = 0; a < 2 * tileRows; a++) c.get(ACC + a).get(ZERO).f32x4Max().set(ACC + a);
     c.end();
     // Store: y[(R + t) * outP + J ...].
-    c.get(Y).get(R).get(WSTRIDE).mul().add().get(J).i32(4).mul().add().set(YP);
     for (let t = 0; t < tileRows; t++) {
       c.get(YP).get(ACC + 2 * t).v128Store(0);
       c.get(YP).get(ACC + 2 * t + 1).v128Store(16);
@@ -74,17 +95,21 @@ function denseFunction(): FunctionDef {
    * the end (bias + even k terms, plus odd k terms).
    */
   const rowTile = (): void => {
+    c.get(K0).eqz().if();
     c.get(B).get(J).i32(4).mul().add().set(WP);
+    c.else();
+    c.get(Y).get(R).get(WSTRIDE).mul().add().get(J).i32(4).mul().add().set(WP);
+    c.end();
     for (let q = 0; q < 4; q++) c.get(WP).v128Load(16 * q).set(ACC + q);
     for (let q = 4; q < 8; q++) c.get(ZERO).set(ACC + q);
-    c.get(W).get(J).i32(4).mul().add().set(WP);
-    c.get(NIN).set(K);
+    c.get(W).get(K0).get(WSTRIDE).mul().add().get(J).i32(4).mul().add().set(WP);
+    c.get(KLEN).set(K);
     const step = (set: number, xOffset: number): void => {
       c.get(XP0).load32Splat(xOffset).set(S);
       for (let q = 0; q < 4; q++) c.get(ACC + 4 * set + q).get(S).get(WP).v128Load(16 * q).f32x4Mul().f32x4Add().set(ACC + 4 * set + q);
       c.get(WP).get(WSTRIDE).add().set(WP);
     };
-    c.get(X).get(R).get(XSTRIDE).mul().add().set(XP0);
+    c.get(X).get(R).get(XSTRIDE).mul().add().get(K0).i32(4).mul().add().set(XP0);
     c.block().loop();
     {
       c.get(K).i32(2).ltU().brIf(1);
@@ -100,12 +125,22 @@ function denseFunction(): FunctionDef {
     c.end();
     for (let q = 0; q < 4; q++) {
       c.get(ACC + q).get(ACC + 4 + q).f32x4Add().set(S);
-      c.get(RELU).if();
+      c.get(RELU).get(LAST).and().if();
       c.get(S).get(ZERO).f32x4Max().set(S);
       c.end();
       c.get(Y).get(R).get(WSTRIDE).mul().add().get(J).i32(4).mul().add().get(S).v128Store(16 * q);
     }
   };
+
+  // for (K0 = 0; K0 < nIn; K0 += KB), KLEN = min(KB, nIn - K0)
+  c.i32(0).set(K0);
+  c.block().loop();
+  c.get(K0).get(NIN).geU().brIf(1);
+  c.get(NIN).get(K0).sub().set(KLEN);
+  c.get(KLEN).i32(KB).gtU().if();
+  c.i32(KB).set(KLEN);
+  c.end();
+  c.get(K0).get(KLEN).add().get(NIN).geU().set(LAST);
 
   // Blocks of 4 rows: for (J = 0; J < outP; J += 8) for (R = 0; R + 4 <= rows; R += 4) tile(4)
   c.i32(0).set(J);
@@ -144,7 +179,11 @@ function denseFunction(): FunctionDef {
   }
   c.end().end();
 
-  const locals = [...new Array<number>(WSTRIDE - R + 1).fill(I32), ...new Array<number>(8 + 4).fill(V128)];
+  c.get(K0).i32(KB).add().set(K0);
+  c.br(0);
+  c.end().end();
+
+  const locals = [...new Array<number>(WSTRIDE - R + 1).fill(I32), ...new Array<number>(8 + 4).fill(V128), I32, I32, I32];
   return { name: 'dense', params: [I32, I32, I32, I32, I32, I32, I32, I32], locals, code: c };
 }
 

@@ -92,6 +92,9 @@ export class Code {
   and(): this {
     return this.op(0x71);
   }
+  else(): this {
+    return this.op(0x05);
+  }
   block(): this {
     return this.op(0x02, 0x40);
   }
