@@ -242,12 +242,11 @@ export function createRequestHandler(options: RequestHandlerOptions): TendonRequ
     }
   };
 
-  return Object.assign(handler, {
+  // defineProperty, not Object.assign: assign would copy the getter's value once (null while loading).
+  Object.defineProperty(handler, 'model', { get: (): TendonModel | null => slot?.current ?? null, enumerable: true });
+  return Object.assign(handler as typeof handler & { readonly model: TendonModel | null }, {
     ready,
     counters,
-    get model(): TendonModel | null {
-      return slot?.current ?? null;
-    },
     reload(path?: string): Promise<SwapOutcome> {
       if (!slot) return Promise.resolve({ swapped: false as const, reason: 'the model is still loading' });
       return slot.reload(path);

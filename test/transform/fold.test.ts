@@ -86,7 +86,8 @@ describe('foldModel', () => {
   it('leaves what it cannot fold exactly, and says why: a final batch norm after ReLU, a widening linear pair, a zero-range feature', () => {
     const rng = new SeededRng(9);
     const norm = zscore(rng, 10);
-    norm.std![4] = 0;
+    if (norm.method !== 'zscore' || !norm.std) throw new Error('zscore statistics expected');
+    norm.std[4] = 0;
     const doc = docOf(10, [dense(rng, 10, 2, 'linear'), dense(rng, 2, 10, 'relu'), batchNorm(rng, 10)], norm);
     const { doc: folded, steps } = foldModel(doc);
     expect(folded.layers).toHaveLength(3);
