@@ -100,6 +100,23 @@ describe('tendon serve', () => {
   });
 });
 
+describe('examples/bakery-spec.json', () => {
+  it('packs into the model the README describes: 7 features, 32 relu, dropout 0.1, 3 softmax labelled under/good/over', async () => {
+    const out = join(dir, 'from-spec.tendon');
+    let text = '';
+    const io = { out: (t: string) => void (text += t), err: (t: string) => void (text += t), interactive: false, signal: new AbortController().signal };
+    expect(await main(['pack', join(root, 'examples/bakery-spec.json'), '-o', out, '--seed', '7'], io)).toBe(0);
+    text = '';
+    expect(await main(['show', out, '--json'], io)).toBe(0);
+    const facts = JSON.parse(text);
+    expect(facts.inputs).toBe(7);
+    expect(facts.labels).toEqual(['under', 'good', 'over']);
+    expect(facts.normalise.method).toBe('zscore');
+    expect(facts.layers.map((l: { detail: string }) => l.detail)).toEqual(['relu', 'rate 0.1', 'softmax']);
+    expect(facts.layers.map((l: { outputs: number }) => l.outputs)).toEqual([32, 32, 3]);
+  });
+});
+
 describe('examples/service.mjs (the embedded handler next to the service\'s own routes)', () => {
   it('answers its own routes and the model under /ml; a background fine-tune is swapped in only when it beats the current model on held-out rows', async () => {
     const logs: string[] = [];

@@ -5,6 +5,7 @@ import { afterAll, describe, expect, it } from 'vitest';
 import { writeModelFile } from '../../src/format/index.js';
 import { SeededRng } from '../../src/model/index.js';
 import { createRequestHandler, startServer, type ModelBatchRunner } from '../../src/serve/http.js';
+import { ModelSlot } from '../../src/serve/swap.js';
 import { openModel, type TendonModel } from '../../src/tendon.js';
 import { bakeryDoc, dense, docOf } from '../transform/models.js';
 import { call, postJson, sleep } from './helpers.js';
@@ -111,6 +112,21 @@ describe('hot swap', () => {
     expect(counters).toMatch(/^tendon_model_swaps_total\{outcome="refused"\} 2$/m);
     await running.close();
     a.dispose();
+  });
+
+  it('the old model is disposed only after the last batch holding it ends', async () => {
+    const { path, bPath } = await twoModels('dispose');
+    const first = await openModel(path);
+    const slot = new ModelSlot(first, path, { log: () => undefined });
+    const lease = slot.acquire();
+    expect((await slot.reload(bPath)).swapped).toBe(true);
+    // Still leased: the batch that started on it can finish.
+    expect(lease.model.run([LOAF])[0]).toHaveLength(3);
+    expect(slot.current).not.toBe(first);
+    slot.release(lease);
+    expect(() => first.run([LOAF])).toThrow();
+    await slot.close();
+    expect(() => slot.current.run([LOAF])).toThrow();
   });
 
   it('replacing the watched file swaps the model in without a call', async () => {
