@@ -42,7 +42,13 @@ async function chooseEngine(engine: EngineName | 'auto' | undefined): Promise<En
 export async function openModel(path: string, options: OpenOptions = {}): Promise<TendonModel> {
   const read = await readModelFile(path);
   await chooseEngine(options.engine);
-  return new TendonModel(read.doc, { source: path, checksum: read.checksum, bytes: read.bytes, chunkRows: options.chunkRows });
+  return new TendonModel(read.doc, {
+    source: path,
+    checksum: read.checksum,
+    bytes: read.bytes,
+    formatVersion: `${read.version.major}.${read.version.minor}`,
+    chunkRows: options.chunkRows,
+  });
 }
 
 /**
@@ -53,13 +59,14 @@ export async function openModel(path: string, options: OpenOptions = {}): Promis
 export async function modelFromDocument(doc: ModelDoc, options: OpenOptions = {}): Promise<TendonModel> {
   validateModel(doc, '(document)');
   await chooseEngine(options.engine);
-  return new TendonModel(doc, { source: null, checksum: null, bytes: null, chunkRows: options.chunkRows });
+  return new TendonModel(doc, { source: null, checksum: null, bytes: null, formatVersion: null, chunkRows: options.chunkRows });
 }
 
 interface ModelOrigin {
   readonly source: string | null;
   readonly checksum: string | null;
   readonly bytes: number | null;
+  readonly formatVersion: string | null;
   readonly chunkRows?: number;
 }
 
@@ -71,6 +78,8 @@ export class TendonModel {
   readonly checksum: string | null;
   /** Size of the file on disk, or null. */
   readonly fileBytes: number | null;
+  /** The file's format version ("major.minor"), or null for a document made in memory. */
+  readonly formatVersion: string | null;
 
   constructor(
     readonly doc: ModelDoc,
@@ -80,6 +89,7 @@ export class TendonModel {
     this.source = origin.source;
     this.checksum = origin.checksum;
     this.fileBytes = origin.bytes;
+    this.formatVersion = origin.formatVersion;
   }
 
   get engine(): EngineName {

@@ -18,3 +18,4 @@ export { mat64, matMul64 } from './layers/mat64.js';
 export { SeededRng, fisherYates } from './rng.js';
 export { DEFAULT_LEAKY_ALPHA, initDense } from './init.js';
 export { modelProblems, modelWidths, outputWidth, validateModel } from './validate.js';
+export { modelFacts, type ModelFacts } from './facts.js';

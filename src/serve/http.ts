@@ -14,7 +14,7 @@
  */
 import { createServer, type IncomingMessage, type Server, type ServerResponse } from 'node:http';
 import type { AddressInfo } from 'node:net';
-import { modelFacts } from '../cli/commands/show.js';
+import { modelFacts } from '../model/facts.js';
 import { DriftMonitor } from '../drift/index.js';
 import { openModel, type TendonModel } from '../tendon.js';
 import { BusyError, MicroBatcher, type BatcherOptions } from './batcher.js';
@@ -183,8 +183,10 @@ export function createRequestHandler(options: RequestHandlerOptions): TendonRequ
   function about(): unknown {
     const model = slot?.current;
     if (!model) throw notLoaded();
-    // The façade does not keep the file's format version after loading, so it is left blank here.
-    const file = model.source && model.checksum && model.fileBytes !== null ? { path: model.source, checksum: model.checksum, bytes: model.fileBytes, version: '' } : null;
+    const file =
+      model.source && model.checksum && model.fileBytes !== null
+        ? { path: model.source, checksum: model.checksum, bytes: model.fileBytes, version: model.formatVersion ?? '' }
+        : null;
     return modelFacts(model.doc, file);
   }
 

@@ -1,5 +1,5 @@
 import { readModelFile } from '../../format/index.js';
-import { layerKind, modelWidths, type ModelDoc } from '../../model/index.js';
+import { modelFacts, type ModelFacts } from '../../model/facts.js';
 import { noExtraPositionals, parseArgs, requirePositional } from '../args.js';
 import { describeStorageCosts, storageCost } from '../../transform/index.js';
 import type { Command } from '../command.js';
@@ -26,70 +26,6 @@ export const show: Command = {
     return 0;
   },
 };
-
-export interface ModelFacts {
-  file: { path: string; bytes: number; checksum: string; formatVersion: string } | null;
-  name: string;
-  description: string;
-  created: string;
-  inputs: number;
-  outputs: number;
-  features: string[] | null;
-  labels: string[] | null;
-  normalise: { method: string; fitted: boolean; rowsSeen: number } | null;
-  storage: string;
-  parameters: number;
-  layers: { index: number; kind: string; activation?: string; inputs: number; outputs: number; tensors: { name: string; shape: number[] }[]; parameters: number; detail: string }[];
-  provenance: ModelDoc['provenance'];
-  extra: Record<string, string>;
-}
-
-/** The facts `show` prints; also served by the HTTP endpoint's description route. */
-export function modelFacts(doc: ModelDoc, file: { path: string; checksum: string; bytes: number; version: string } | null): ModelFacts {
-  const widths = modelWidths(doc);
-  const layers = doc.layers.map((layer, i) => {
-    const kind = layerKind(layer.kind);
-    const tensors = kind.tensors(layer, widths[i], i).map((t) => ({ name: t.name, shape: [...t.shape] }));
-    const trainable = kind.trainable(layer, widths[i], i).reduce((n, t) => n + t.data.length, 0);
-    const detail =
-      layer.kind === 'dense'
-        ? layer.activation === 'leaky_relu'
-          ? `leaky_relu (alpha ${layer.alpha})`
-          : layer.activation
-        : layer.kind === 'batchnorm'
-          ? `epsilon ${layer.epsilon}, momentum ${layer.momentum}`
-          : `rate ${layer.rate}`;
-    return {
-      index: i,
-      kind: layer.kind,
-      ...(layer.kind === 'dense' ? { activation: layer.activation } : {}),
-      inputs: widths[i],
-      outputs: widths[i + 1],
-      tensors,
-      parameters: trainable,
-      detail,
-    };
-  });
-  const norm = doc.normalise;
-  return {
-    file: file ? { path: file.path, bytes: file.bytes, checksum: file.checksum, formatVersion: file.version } : null,
-    name: doc.meta.name,
-    description: doc.meta.description,
-    created: doc.meta.created,
-    inputs: doc.inputs,
-    outputs: widths[widths.length - 1],
-    features: doc.features,
-    labels: doc.labels,
-    normalise: norm
-      ? { method: norm.method, fitted: norm.method === 'zscore' ? norm.mean !== null : norm.min !== null, rowsSeen: norm.count }
-      : null,
-    storage: doc.storage,
-    parameters: layers.reduce((n, l) => n + l.parameters, 0),
-    layers,
-    provenance: doc.provenance,
-    extra: doc.meta.extra,
-  };
-}
 
 function describe(f: ModelFacts): string {
   const lines: string[] = [];

@@ -1,0 +1,72 @@
+/**
+ * The facts about a model that `tendon show` prints and the HTTP endpoint's description route
+ * serves: layers, shapes, parameter counts, normalisation, metadata, provenance.
+ */
+import { layerKind } from './layers/catalogue.js';
+import type { ModelDoc } from './types.js';
+import { modelWidths } from './validate.js';
+
+export interface ModelFacts {
+  file: { path: string; bytes: number; checksum: string; formatVersion: string } | null;
+  name: string;
+  description: string;
+  created: string;
+  inputs: number;
+  outputs: number;
+  features: string[] | null;
+  labels: string[] | null;
+  normalise: { method: string; fitted: boolean; rowsSeen: number } | null;
+  storage: string;
+  parameters: number;
+  layers: { index: number; kind: string; activation?: string; inputs: number; outputs: number; tensors: { name: string; shape: number[] }[]; parameters: number; detail: string }[];
+  provenance: ModelDoc['provenance'];
+  extra: Record<string, string>;
+}
+
+/** The facts `show` prints; also served by the HTTP endpoint's description route. */
+export function modelFacts(doc: ModelDoc, file: { path: string; checksum: string; bytes: number; version: string } | null): ModelFacts {
+  const widths = modelWidths(doc);
+  const layers = doc.layers.map((layer, i) => {
+    const kind = layerKind(layer.kind);
+    const tensors = kind.tensors(layer, widths[i], i).map((t) => ({ name: t.name, shape: [...t.shape] }));
+    const trainable = kind.trainable(layer, widths[i], i).reduce((n, t) => n + t.data.length, 0);
+    const detail =
+      layer.kind === 'dense'
+        ? layer.activation === 'leaky_relu'
+          ? `leaky_relu (alpha ${layer.alpha})`
+          : layer.activation
+        : layer.kind === 'batchnorm'
+          ? `epsilon ${layer.epsilon}, momentum ${layer.momentum}`
+          : `rate ${layer.rate}`;
+    return {
+      index: i,
+      kind: layer.kind,
+      ...(layer.kind === 'dense' ? { activation: layer.activation } : {}),
+      inputs: widths[i],
+      outputs: widths[i + 1],
+      tensors,
+      parameters: trainable,
+      detail,
+    };
+  });
+  const norm = doc.normalise;
+  return {
+    file: file ? { path: file.path, bytes: file.bytes, checksum: file.checksum, formatVersion: file.version } : null,
+    name: doc.meta.name,
+    description: doc.meta.description,
+    created: doc.meta.created,
+    inputs: doc.inputs,
+    outputs: widths[widths.length - 1],
+    features: doc.features,
+    labels: doc.labels,
+    normalise: norm
+      ? { method: norm.method, fitted: norm.method === 'zscore' ? norm.mean !== null : norm.min !== null, rowsSeen: norm.count }
+      : null,
+    storage: doc.storage,
+    parameters: layers.reduce((n, l) => n + l.parameters, 0),
+    layers,
+    provenance: doc.provenance,
+    extra: doc.meta.extra,
+  };
+}
+
