@@ -124,6 +124,46 @@ export async function writeBytesAtomic(path: string, bytes: Uint8Array, steps: A
     throw fileSystemError(path, 'write the model file', error);
   }
   await syncDirectory(dir);
+  await removeStaleTemps(dir, basename(path));
+}
+
+/** Temporary files of earlier saves of `base`: `.BASE.PID-HEX.tmp`, the name writeBytesAtomic gives. */
+function staleTempPattern(base: string): RegExp {
+  const escaped = base.replace(/[.*+?^${}()|[\]\\]/g, '\\$&');
+  return new RegExp(`^\\.${escaped}\\.(\\d+)-[0-9a-f]{12}\\.tmp$`);
+}
+
+/** True when a process with this id exists (signal 0 only checks; EPERM means it exists but is not ours). */
+function processAlive(pid: number): boolean {
+  try {
+    process.kill(pid, 0);
+    return true;
+  } catch (error) {
+    return errorCode(error) === 'EPERM';
+  }
+}
+
+/**
+ * After a successful save, remove temporary files that earlier saves of the same target left
+ * behind when their process was killed mid-write (SIGKILL, power loss). Only temps of
+ * processes that no longer exist are touched: a live process may be writing its own right now.
+ * Best effort: a failure here never fails the save.
+ */
+async function removeStaleTemps(dir: string, base: string): Promise<void> {
+  const pattern = staleTempPattern(base);
+  let names: string[];
+  try {
+    names = await fsp.readdir(dir);
+  } catch {
+    return;
+  }
+  for (const name of names) {
+    const match = pattern.exec(name);
+    if (!match) continue;
+    const pid = Number(match[1]);
+    if (pid === process.pid || processAlive(pid)) continue;
+    await fsp.unlink(join(dir, name)).catch(() => undefined);
+  }
 }
 
 /** Make the rename durable. Some platforms cannot open or fsync a directory; that is not an error. */
