@@ -56,8 +56,11 @@ interface Slot {
   exited: boolean;
 }
 
+/** worker.js beside this module in the ESM build; the CJS build has no import.meta.url, so say so. */
 function defaultWorkerScript(): URL {
-  return new URL('./worker.js', import.meta.url);
+  const here: string | undefined = import.meta.url;
+  if (!here) throw new RuntimeFailure('worker pool: this build cannot locate worker.js by itself; pass the workerScript option (the path of dist/worker.js)');
+  return new URL('./worker.js', here);
 }
 
 /**
