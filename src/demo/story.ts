@@ -146,6 +146,14 @@ export async function runDemo(opts: DemoOptions): Promise<DemoOutcome> {
     say('');
     say(`   ${'model'.padEnd(22)} ${FIRST_SITE.name.padStart(10)} ${SECOND_SITE.name.padStart(10)}`);
     for (const row of table) say(`   ${row.model.padEnd(22)} ${pct(row.first).padStart(10)} ${pct(row.second).padStart(10)}`);
+    const plain = table[1];
+    const guarded = table[table.length - 1];
+    say('');
+    say(
+      `   Plain fine-tuning lifts ${SECOND_SITE.name} by ${points(plain.second - secondBefore)} but forgets ${FIRST_SITE.name} (${points(plain.first - firstAcc)}); ` +
+        `with the anchor and replay, ${SECOND_SITE.name} gains ${points(guarded.second - secondBefore)} while ${FIRST_SITE.name} moves ${points(guarded.first - firstAcc)}.`,
+    );
+    say('   (The same reading means a different bake at each site, so one model cannot be perfect at both.)');
     if (kept) {
       const finalPath = join(dir, 'bakery-riverside.tendon');
       const written = await writeModelFile(finalPath, kept.doc);
@@ -199,6 +207,11 @@ function confusionText(model: TendonModel, b: BakeryBatch): string {
   const head = `   ${'true \\ predicted'.padEnd(18)}${BAKERY_LABELS.map((l) => l.padStart(7)).join('')}`;
   const rows = m.map((row, i) => `   ${BAKERY_LABELS[i].padEnd(18)}${row.map((n) => String(n).padStart(7)).join('')}`);
   return [head, ...rows].join('\n');
+}
+
+/** A change in accuracy, in percentage points with a sign. */
+function points(delta: number): string {
+  return `${delta >= 0 ? '+' : ''}${(delta * 100).toFixed(1)} points`;
 }
 
 function pct(x: number): string {
