@@ -320,7 +320,17 @@ export interface ServerOptions extends Omit<RequestHandlerOptions, 'model'> {
   readonly host?: string;
   /** Longest a graceful close waits for open connections after the queue has drained. Default 5000 ms. */
   readonly closeTimeoutMs?: number;
+  /** Longest wait for a request's headers (a client that connects and sends nothing). Default 10 000 ms. */
+  readonly headersTimeoutMs?: number;
+  /** Longest wait for a whole request, body included (a client that sends a byte at a time). Default 30 000 ms. */
+  readonly requestTimeoutMs?: number;
 }
+
+/** Node answers with these statuses on its own when no 'clientError' listener is set; keep them. */
+const CLIENT_ERROR_STATUS: Record<string, string> = {
+  ERR_HTTP_REQUEST_TIMEOUT: '408 Request Timeout',
+  HPE_HEADER_OVERFLOW: '431 Request Header Fields Too Large',
+};
 
 export interface RunningServer {
   readonly server: Server;
@@ -344,10 +354,13 @@ export interface RunningServer {
 export async function startServer(options: ServerOptions): Promise<RunningServer> {
   const handler = createRequestHandler({ ...options, model: options.modelPath });
   await handler.ready;
-  const server = createServer(handler);
+  const headersTimeout = options.headersTimeoutMs ?? 10_000;
+  // Node enforces both timeouts only when it sweeps its connections (every 30 s by default), so
+  // a silent client would hold a socket up to 40 s: sweep every second, or faster for short limits.
+  const server = createServer({ connectionsCheckingInterval: Math.max(50, Math.min(1000, Math.floor(headersTimeout / 4))) }, handler);
   // A client that opens a connection and never sends must not hold the process.
-  server.requestTimeout = 30_000;
-  server.headersTimeout = 10_000;
+  server.requestTimeout = options.requestTimeoutMs ?? 30_000;
+  server.headersTimeout = headersTimeout;
   const host = options.host ?? '127.0.0.1';
   try {
     await new Promise<void>((resolve, reject) => {
@@ -361,8 +374,9 @@ export async function startServer(options: ServerOptions): Promise<RunningServer
     await handler.close();
     throw error;
   }
-  server.on('clientError', (_error, socket) => {
-    if (socket.writable) socket.end('HTTP/1.1 400 Bad Request\r\nconnection: close\r\ncontent-length: 0\r\n\r\n');
+  server.on('clientError', (error: Error & { code?: string }, socket) => {
+    const status = CLIENT_ERROR_STATUS[error.code ?? ''] ?? '400 Bad Request';
+    if (socket.writable) socket.end(`HTTP/1.1 ${status}\r\nconnection: close\r\ncontent-length: 0\r\n\r\n`);
     else socket.destroy();
   });
   const port = (server.address() as AddressInfo).port;
