@@ -1,0 +1,93 @@
+import { describe, expect, it } from 'vitest';
+import { FastTrainSession } from '../../src/engine/fast/fast-train.js';
+import { referenceBackwardTape, referenceForwardTrain, toMat64 } from '../../src/reference/index.js';
+import { SeededRng, mat64, type ActivationName, type ForwardContext, type ModelDoc } from '../../src/model/index.js';
+import { denseStackDoc, seededRows } from '../../src/bench/models.js';
+
+/** A training context whose dropout masks are drawn once per layer and replayed, so both paths see the same mask. */
+function fixedMasks(seed: number): ForwardContext {
+  const masks = new Map<number, Float32Array>();
+  const rng = new SeededRng(seed);
+  return {
+    training: true,
+    dropoutMask(layer, rows, cols, rate) {
+      let m = masks.get(layer);
+      if (!m) {
+        m = Float32Array.from({ length: rows * cols }, () => (rng.next() < rate ? 0 : 1 / (1 - rate)));
+        masks.set(layer, m);
+      }
+      return m;
+    },
+  };
+}
+
+/** Largest |a - b| relative to the largest |b| (float32 against float64). */
+function relativeGap(a: Float32Array, b: Float64Array): number {
+  let worst = 0;
+  let scale = 0;
+  for (let i = 0; i < b.length; i++) {
+    worst = Math.max(worst, Math.abs(a[i]! - b[i]!));
+    scale = Math.max(scale, Math.abs(b[i]!));
+  }
+  return worst / Math.max(scale, 1e-30);
+}
+
+function compare(doc: ModelDoc, rows: number, preActivation: boolean, seed: number): void {
+  const x = seededRows(rows, doc.inputs, seed);
+  const fast = new FastTrainSession(doc, { preActivation });
+  const f = fast.forwardTrain(x, rows, fixedMasks(seed));
+  const ref = referenceForwardTrain(doc, toMat64(x, rows, doc.inputs), fixedMasks(seed));
+  const refOut = preActivation ? ref.z!.data : ref.y.data;
+  expect(relativeGap(f.out, refOut)).toBeLessThan(1e-5);
+  const dOut = seededRows(rows, f.out.length / rows, seed + 1);
+  const grads = fast.backward(f, dOut);
+  const refGrads = referenceBackwardTape(doc, ref.tape, mat64(rows, f.out.length / rows, Float64Array.from(dOut)), { dyIsPreActivation: preActivation }).grads;
+  doc.layers.forEach((_, i) => {
+    expect(grads[i]!.length).toBe(refGrads[i]!.length);
+    grads[i]!.forEach((g, t) => expect(relativeGap(g, refGrads[i]![t]!)).toBeLessThan(1e-5));
+  });
+}
+
+describe('FastTrainSession (own kernel) gradients against the float64 reference backward', () => {
+  it.each([
+    ['relu', 'softmax', true],
+    ['tanh', 'linear', false],
+    ['sigmoid', 'sigmoid', false],
+    ['leaky_relu', 'softplus', false],
+  ] satisfies [ActivationName, ActivationName, boolean][])('hidden %s, output %s (loss reads logits: %s)', (hidden, last, pre) => {
+    compare(denseStackDoc([19, 37, 21, 5], 4, hidden, last), 13, pre, 3);
+    compare(denseStackDoc([19, 37, 21, 5], 4, hidden, last), 64, pre, 5);
+  });
+
+  it('784-256-10 at batch 64 with dropout and z-score input normalisation', () => {
+    const base = denseStackDoc([784, 256, 10], 6, 'relu', 'softmax');
+    const rng = new SeededRng(2);
+    const doc: ModelDoc = {
+      ...base,
+      layers: [base.layers[0]!, { kind: 'dropout', rate: 0.25 }, base.layers[1]!],
+      normalise: { method: 'zscore', mean: Float64Array.from({ length: 784 }, () => rng.normal()), std: Float64Array.from({ length: 784 }, () => 0.5 + rng.next()), m2: null, count: 10 },
+    };
+    compare(doc, 64, true, 8);
+  });
+
+  it('refresh() makes a change to the document weights visible', () => {
+    const doc = denseStackDoc([5, 16, 3], 1);
+    const fast = new FastTrainSession(doc, { preActivation: true });
+    const x = seededRows(2, 5, 1);
+    const noMasks = fixedMasks(1);
+    const before = fast.forwardTrain(x, 2, noMasks).out.slice();
+    const last = doc.layers[1]!;
+    if (last.kind !== 'dense') throw new Error('dense expected');
+    last.bias[0] += 1;
+    fast.refresh();
+    const after = fast.forwardTrain(x, 2, noMasks).out;
+    expect(after[0]! - before[0]!).toBeCloseTo(1, 5);
+    expect(after[1]).toBeCloseTo(before[1]!, 6);
+  });
+
+  it('refuses batch normalisation with a RangeError naming the layer', () => {
+    const doc = denseStackDoc([4, 8, 2], 1);
+    const bn = { kind: 'batchnorm' as const, gamma: new Float32Array(8).fill(1), beta: new Float32Array(8), runningMean: new Float32Array(8), runningVariance: new Float32Array(8).fill(1), epsilon: 1e-3, momentum: 0.9 };
+    expect(() => new FastTrainSession({ ...doc, layers: [doc.layers[0]!, bn, doc.layers[1]!] }, { preActivation: true })).toThrow(/layers\[1\] is batchnorm/);
+  });
+});
