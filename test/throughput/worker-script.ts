@@ -1,7 +1,9 @@
 /**
- * Where the pool tests find the built worker: dist/worker.js, as `npm test` builds it first.
- * When the tests run straight from sources (npx vitest run test/throughput) and dist has no
- * worker yet, the worker entry is bundled once into node_modules/.cache with esbuild.
+ * The worker script the pool tests start: the worker entry bundled from the current sources with
+ * esbuild (external packages), once per test process, into node_modules/.cache. Bundling here
+ * rather than using dist/worker.js keeps the tests on today's sources and safe from another
+ * build rewriting dist/ while they run. TENDON_TEST_WORKER=dist uses dist/worker.js instead
+ * (after `npm run build`), to test the shipped file.
  */
 import { execFileSync } from 'node:child_process';
 import { existsSync, mkdirSync } from 'node:fs';
@@ -9,16 +11,22 @@ import { dirname, join, resolve } from 'node:path';
 import { fileURLToPath } from 'node:url';
 
 const root = resolve(dirname(fileURLToPath(import.meta.url)), '../..');
+let bundled: string | null = null;
 
 export function workerScript(): string {
-  const built = join(root, 'dist', 'worker.js');
-  if (existsSync(built) && !process.env.TENDON_TEST_REBUNDLE_WORKER) return built;
-  const cached = join(root, 'node_modules', '.cache', 'tendon-test', 'worker.js');
-  mkdirSync(dirname(cached), { recursive: true });
+  if (process.env.TENDON_TEST_WORKER === 'dist') {
+    const built = join(root, 'dist', 'worker.js');
+    if (!existsSync(built)) throw new Error('TENDON_TEST_WORKER=dist but dist/worker.js is missing: run `npm run build` first');
+    return built;
+  }
+  if (bundled) return bundled;
+  const out = join(root, 'node_modules', '.cache', 'tendon-test', `worker-${process.pid}.js`);
+  mkdirSync(dirname(out), { recursive: true });
   execFileSync(
     join(root, 'node_modules', '.bin', 'esbuild'),
-    ['src/engine/worker-entry.ts', '--bundle', '--platform=node', '--format=esm', '--target=node20', '--packages=external', `--outfile=${cached}`, '--log-level=warning'],
+    ['src/engine/worker-entry.ts', '--bundle', '--platform=node', '--format=esm', '--target=node20', '--packages=external', `--outfile=${out}`, '--log-level=warning'],
     { cwd: root },
   );
-  return cached;
+  bundled = out;
+  return out;
 }
