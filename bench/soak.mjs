@@ -130,6 +130,8 @@ async function main() {
   let rows = 0;
   const samples = [];
   const startMemory = await memoryOf(server.pid);
+  const tensorsOf = async () => Number(/^tendon_engine_tensors (\d+)$/m.exec(await (await fetch(`${url}/v1/counters`)).text())?.[1] ?? NaN);
+  const tensorsStart = await tensorsOf();
   const sampler = setInterval(async () => samples.push((await memoryOf(server.pid)).rss), 1000);
 
   async function client(seed) {
@@ -186,6 +188,9 @@ async function main() {
   const swaps = Number(/tendon_model_swaps_total\{outcome="swapped"\} (\d+)/.exec(counters)?.[1] ?? NaN);
   const refused = Number(/tendon_model_swaps_total\{outcome="refused"\} (\d+)/.exec(counters)?.[1] ?? NaN);
   const events = await Promise.all([swap, tuning]);
+  // The old model is freed when its last batch ends; give the swap a moment to settle.
+  await new Promise((resolve) => setTimeout(resolve, 500));
+  const tensorsEnd = await tensorsOf();
 
   server.kill('SIGTERM');
   await new Promise((resolve) => server.once('exit', resolve));
@@ -220,13 +225,13 @@ async function main() {
       `latency           p50 ${figures.p50.toFixed(2)} ms, p99 ${figures.p99.toFixed(2)} ms`,
       `server memory     rss ${mib(figures.rssStart)} MiB at start, ${mib(figures.rssWarm)} MiB after warm-up, ${mib(figures.rssEnd)} MiB at end, peak ${mib(figures.rssPeak)} MiB`,
       `model swaps       ${swaps} swapped, ${refused} refused; answers came from ${checksums.size} models`,
-      `tensor count      not reported: the endpoint's counters route does not expose tfjs's tensor count`,
+      `tensor count      ${tensorsStart} at start, ${tensorsEnd} at end (one model resident each time)`,
     ].join('\n'),
   );
 
-  await recordRow(`| ${date} | ${machine} | ${process.version} | ${elapsed.toFixed(0)} | ${CLIENTS} | ${requests} | ${rows} | ${errors.length} | ${figures.p50.toFixed(2)} | ${figures.p99.toFixed(2)} | ${mib(figures.rssStart)} | ${mib(figures.rssWarm)} | ${mib(figures.rssEnd)} | ${mib(figures.rssPeak)} | ${swaps} | ${checksums.size} |`);
+  await recordRow(`| ${date} | ${machine} | ${process.version} | ${elapsed.toFixed(0)} | ${CLIENTS} | ${requests} | ${rows} | ${errors.length} | ${figures.p50.toFixed(2)} | ${figures.p99.toFixed(2)} | ${mib(figures.rssStart)} | ${mib(figures.rssWarm)} | ${mib(figures.rssEnd)} | ${mib(figures.rssPeak)} | ${swaps} | ${checksums.size} | ${tensorsStart} | ${tensorsEnd} |`);
   console.log(`added a row to the soak table in ${RESULTS}`);
-  process.exitCode = errors.length === 0 ? 0 : 1;
+  process.exitCode = errors.length === 0 && tensorsEnd === tensorsStart ? 0 : 1;
 }
 
 /**
@@ -241,8 +246,8 @@ async function recordRow(row) {
       '',
       'One row per `npm run soak`: concurrent clients against `tendon serve` on loopback, with a hot swap and a background fine-tune swapped in. Errors must be 0; rss should not grow after warm-up.',
       '',
-      '| date (UTC) | machine | node | seconds | clients | requests | rows | errors | p50 ms | p99 ms | rss start MiB | rss warm MiB | rss end MiB | rss peak MiB | swaps | models |',
-      '|---|---|---|---|---|---|---|---|---|---|---|---|---|---|---|---|',
+      '| date (UTC) | machine | node | seconds | clients | requests | rows | errors | p50 ms | p99 ms | rss start MiB | rss warm MiB | rss end MiB | rss peak MiB | swaps | models | tensors start | tensors end |',
+      '|---|---|---|---|---|---|---|---|---|---|---|---|---|---|---|---|---|---|',
       '',
     ];
     const suite = lines.findIndex((l) => l.startsWith('| date (UTC) | machine | node | section'));

@@ -90,3 +90,8 @@ function firstLine(err: unknown): string {
   const text = err instanceof Error ? err.message : String(err);
   return text.split('\n')[0];
 }
+
+/** tfjs tensors alive in this process: flat over time when nothing leaks. */
+export function liveTensorCount(): number {
+  return tf.memory().numTensors;
+}

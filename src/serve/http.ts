@@ -16,6 +16,7 @@ import { createServer, type IncomingMessage, type Server, type ServerResponse } 
 import type { AddressInfo } from 'node:net';
 import { modelFacts } from '../model/facts.js';
 import { DriftMonitor } from '../drift/index.js';
+import { liveTensorCount } from '../engine/index.js';
 import { openModel, type TendonModel } from '../tendon.js';
 import { BusyError, MicroBatcher, type BatcherOptions } from './batcher.js';
 import { readBody } from './http-body.js';
@@ -213,7 +214,7 @@ export function createRequestHandler(options: RequestHandlerOptions): TendonRequ
         return { status, rows: 0 };
       }
       default:
-        send(res, 200, counters.render(), METRICS_CONTENT_TYPE);
+        send(res, 200, counters.render({ tensors: liveTensorCount(), residentBytes: process.memoryUsage().rss }), METRICS_CONTENT_TYPE);
         return { status: 200, rows: 0 };
     }
   }

@@ -61,7 +61,8 @@ export class ServiceCounters {
     return sorted[Math.min(n - 1, Math.max(0, Math.ceil(q * n) - 1))];
   }
 
-  render(): string {
+  /** The exposition text; `runtime` adds the process's live tfjs tensors and resident memory. */
+  render(runtime?: { readonly tensors: number; readonly residentBytes: number }): string {
     const out: string[] = [];
     const family = (name: string, type: 'counter' | 'gauge' | 'summary', help: string) => out.push(`# HELP ${name} ${escapeHelp(help)}`, `# TYPE ${name} ${type}`);
 
@@ -88,6 +89,13 @@ export class ServiceCounters {
       family('tendon_model_info', 'gauge', 'The model being served; always 1, the facts are labels.');
       const m = this.model;
       out.push(sample('tendon_model_info', { checksum: m.checksum, inputs: String(m.inputs), outputs: String(m.outputs), source: m.source }, 1));
+    }
+
+    if (runtime) {
+      family('tendon_engine_tensors', 'gauge', 'tfjs tensors alive in this process (flat over time when nothing leaks).');
+      out.push(sample('tendon_engine_tensors', {}, runtime.tensors));
+      family('tendon_resident_bytes', 'gauge', 'Resident memory of this process.');
+      out.push(sample('tendon_resident_bytes', {}, runtime.residentBytes));
     }
 
     const d = this.drift;

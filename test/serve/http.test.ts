@@ -2,6 +2,7 @@ import { mkdtempSync, rmSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { liveTensorCount } from '../../src/engine/index.js';
 import { writeModelFile } from '../../src/format/index.js';
 import { startServer, type RunningServer } from '../../src/serve/http.js';
 import { openModel, type TendonModel } from '../../src/tendon.js';
@@ -107,6 +108,12 @@ describe('the endpoint on loopback (a real HTTP client: fetch)', () => {
     expect(find('tendon_model_info', { checksum: model.checksum! })!.value).toBe(1);
     expect(find('tendon_drift_rows_total')!.value).toBeGreaterThanOrEqual(56);
     expect(samples.filter((s) => s.name === 'tendon_drift_flagged').map((s) => s.labels.feature)).toEqual(BAKERY_FEATURES);
+    // The live tensor gauge is tfjs's own count for this process, and stays put across requests.
+    expect(find('tendon_engine_tensors')!.value).toBe(liveTensorCount());
+    await postJson(url('/v1/score'), { rows: LOAVES });
+    const again = parseExposition((await call(url('/v1/counters'))).text).samples.find((s) => s.name === 'tendon_engine_tensors');
+    expect(again!.value).toBe(find('tendon_engine_tensors')!.value);
+    expect(find('tendon_resident_bytes')!.value).toBeGreaterThan(1 << 20);
   });
 });
 
