@@ -6,6 +6,7 @@
  * 1-based column position in the table.
  */
 import { stat } from 'node:fs/promises';
+import { firstSyntaxError } from './json-text.js';
 import { DataError } from '../errors.js';
 import { ChunkBuilder } from './chunk-builder.js';
 import { resolveColumns } from './columns.js';
@@ -23,12 +24,11 @@ type Row = unknown[] | Record<string, unknown>;
 export function parseJsonLine(path: string, line: TextLine): unknown {
   try {
     return JSON.parse(line.text);
-  } catch (error) {
-    const message = error instanceof Error ? error.message : String(error);
-    // V8 says "... in JSON at position 7" for most syntax errors (0-based).
-    const at = /at position (\d+)/.exec(message);
-    const column = at ? Number(at[1]) + 1 : 1;
-    throw new DataError(path, line.line, column, `not valid JSON (${message.replace(/ in JSON at position \d+.*$/, '')})`);
+  } catch {
+    // V8 does not always say where a syntax error is; the scanner finds the first bad character.
+    const column = firstSyntaxError(line.text) + 1;
+    const found = column <= line.text.length ? `unexpected ${JSON.stringify(line.text[column - 1])}` : 'unexpected end of line';
+    throw new DataError(path, line.line, column, `not valid JSON (${found})`);
   }
 }
 

@@ -126,7 +126,7 @@ const JSONL_CASES: [string, () => string, Outcome][] = [
   ['empty file', () => '', { where: '', error: /file is empty/ }],
   ['objects with keys in a different order on each line', () => '{"a":1,"b":2,"c":3}\n{"c":0,"b":1,"a":0.5}\n', { rows: [[1, 2, 3], [0.5, 1, 0]] }],
   ['UTF-8 byte-order mark and CRLF line ends', () => '\uFEFF{"a":1,"b":2,"c":3}\r\n[4,5,6]\r\n'.replace('[4,5,6]', '{"a":4,"b":5,"c":6}'), { rows: [[1, 2, 3], [4, 5, 6]] }],
-  ['NaN is not JSON', () => '{"a":1,"b":2,"c":3}\n{"a":1,"b":NaN,"c":3}\n', { where: ':2:1', error: /not valid JSON/ }],
+  ['NaN is not JSON (the column points at the N)', () => '{"a":1,"b":2,"c":3}\n{"a":1,"b":NaN,"c":3}\n', { where: ':2:12', error: /not valid JSON/ }],
   ['a number beyond float64 parses to Infinity and is refused', () => '{"a":1e999,"b":2,"c":3}\n', { where: ':1:1', error: /not a finite number/ }],
   ['a number given as a string', () => '{"a":1,"b":"2","c":3}\n', { where: ':1:2', error: /value "2" in column "b" is not a finite number/ }],
   ['null', () => '{"a":1,"b":2,"c":null}\n', { where: ':1:3', error: /value null in column "c" is not a finite number/ }],

@@ -4,7 +4,7 @@ import { writeModelFile } from '../../format/index.js';
 import { readNpy } from '../../io/index.js';
 import { STORAGE_CODECS, type StorageCodec } from '../../model/index.js';
 import { buildFromSpec } from '../../spec/spec.js';
-import { parseJsonText } from '../../spec/json-text.js';
+import { parseJsonText } from '../../io/json-text.js';
 import { noExtraPositionals, parseArgs, requireFlag, requirePositional } from '../args.js';
 import type { Command } from '../command.js';
 import { bytesText } from '../format.js';
