@@ -4,6 +4,7 @@
  */
 import * as tf from '@tensorflow/tfjs-core';
 import { EngineSession, useEngine, type EngineName } from '../engine/index.js';
+import { FastSession } from '../engine/fast/fast-session.js';
 import { modelWidths, type ModelDoc } from '../model/index.js';
 import { multiplyAddsPerRow, seededRows } from './models.js';
 
@@ -73,7 +74,7 @@ export function gflops(widths: readonly number[], rowsPerSec: number): number {
 }
 
 export interface BenchRow {
-  readonly engine: EngineName;
+  readonly engine: EngineName | 'fast';
   readonly batch: number;
   readonly rowsPerSec: number;
   readonly gflops: number;
@@ -89,8 +90,8 @@ export interface BenchRow {
 export interface BenchModelOptions {
   /** Rows per call to measure. Default [1, 32, 256, 1024]. */
   readonly batches?: readonly number[];
-  /** Engine to measure; 'auto' is what a service would get. Default 'auto'. */
-  readonly engine?: EngineName | 'auto';
+  /** Engine to measure: a tfjs engine ('auto' = wasm, else js) or 'fast' (own SIMD kernel). Default 'auto'. */
+  readonly engine?: EngineName | 'auto' | 'fast';
   /** Measuring time per batch size. Default 1000 ms. */
   readonly minMs?: number;
   /** Seed of the invented input rows. Default 1. */
@@ -108,9 +109,10 @@ export interface BenchModelOptions {
 export async function benchModel(doc: ModelDoc, options: BenchModelOptions = {}): Promise<BenchRow[]> {
   const batches = options.batches ?? [1, 32, 256, 1024];
   for (const b of batches) if (!Number.isInteger(b) || b < 1) throw new RangeError(`benchModel: batch sizes must be positive integers, got ${b}`);
-  const engine = await useEngine(options.engine ?? 'auto');
+  const wanted = options.engine ?? 'auto';
+  const engine = wanted === 'fast' ? 'fast' : await useEngine(wanted);
   const widths = modelWidths(doc);
-  const session = new EngineSession(doc);
+  const session = engine === 'fast' ? new FastSession(doc) : new EngineSession(doc);
   const out: BenchRow[] = [];
   try {
     for (const batch of batches) {
@@ -129,7 +131,7 @@ export async function benchModel(doc: ModelDoc, options: BenchModelOptions = {})
       });
     }
   } finally {
-    session.dispose();
+    if (session instanceof EngineSession) session.dispose();
   }
   return out;
 }

@@ -55,5 +55,7 @@ describe('bench measuring', () => {
     }
     expect(tf.memory().numTensors).toBe(before);
     await expect(benchModel(denseStackDoc([7, 3], 1), { batches: [0] })).rejects.toThrow(/positive integers/);
+    const fast = await benchModel(denseStackDoc([7, 32, 3], 1), { batches: [4], engine: 'fast', minMs: 5 });
+    expect(fast.map((r) => [r.engine, r.batch])).toEqual([['fast', 4]]);
   });
 });
