@@ -1,3 +1,3 @@
 /** Drift of incoming features against the model's stored normalisation statistics. */
-export { FeatureMoments } from './welford.js';
+export { FeatureMoments } from '../model/moments.js';
 export { DriftMonitor, describeDrift, DEFAULT_DRIFT_K, ZSCORE_RANGE_SD, type DriftReport, type FeatureDrift } from './monitor.js';

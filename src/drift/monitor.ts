@@ -11,7 +11,7 @@
  */
 import type { ModelDoc, Normalisation } from '../model/index.js';
 import { baselineNormalisation } from '../transform/index.js';
-import { FeatureMoments } from './welford.js';
+import { FeatureMoments } from '../model/moments.js';
 
 /** Default number of stored standard deviations the incoming mean may move. */
 export const DEFAULT_DRIFT_K = 3;

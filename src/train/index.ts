@@ -6,7 +6,7 @@ export { computeLoss, lossFor, softmaxRows, targetMatrix, LOSS_NAMES, PROBABILIT
 export { makeOptimiser, ADAM_DEFAULTS, OPTIMISER_NAMES, type Optimiser, type OptimiserSpec, type OptimiserName, type WeightDecay, type ParamSlot } from './optimisers.js';
 export { rateAt, type Schedule, type ScheduleShape } from './schedule.js';
 export { clipGlobalNorm, globalNorm } from './clip.js';
-export { WelfordAccumulator, combineMoments, updateNormalisation, isUnfitted, copyNormalisation, type NormalisationPolicy } from './normalisation.js';
+export { combineMoments, updateNormalisation, isUnfitted, copyNormalisation, type NormalisationPolicy } from './normalisation.js';
 export { accuracy, argmaxRows, confusionMatrix, meanAbsoluteError, predictedClasses, rootMeanSquaredError } from './metrics.js';
 export { ReluActivity, linearStacks, rawInputs, vanishingGradient, type Diagnostic, type DiagnosticCode } from './diagnostics.js';
 export { renderReport, type ReportEpoch } from './report.js';

@@ -10,43 +10,11 @@
  *
  * min-max: running per-feature minimum and maximum.
  */
+import { FeatureMoments } from '../model/moments.js';
 import type { Normalisation } from '../model/types.js';
 
 /** On fine-tuning: keep the stored statistics frozen, or continue them over the new rows. */
 export type NormalisationPolicy = 'keep' | 'continue';
-
-/** Streaming per-feature accumulator for mean and M2. */
-export class WelfordAccumulator {
-  count = 0;
-  readonly mean: Float64Array;
-  readonly m2: Float64Array;
-  constructor(readonly features: number) {
-    this.mean = new Float64Array(features);
-    this.m2 = new Float64Array(features);
-  }
-
-  /** Add `rows` rows of a row-major matrix. */
-  addRows(x: Float32Array | Float64Array, rows: number): void {
-    const f = this.features;
-    for (let r = 0; r < rows; r++) {
-      this.count++;
-      const n = this.count;
-      for (let c = 0; c < f; c++) {
-        const v = x[r * f + c];
-        const delta = v - this.mean[c];
-        this.mean[c] += delta / n;
-        this.m2[c] += delta * (v - this.mean[c]);
-      }
-    }
-  }
-
-  /** Population variance per feature (M2 / n). */
-  variance(): Float64Array {
-    const v = new Float64Array(this.features);
-    for (let c = 0; c < this.features; c++) v[c] = this.count > 0 ? this.m2[c] / this.count : 0;
-    return v;
-  }
-}
 
 /**
  * Merge two (count, mean, M2) summaries (Chan et al. 1979). Returns new arrays.
@@ -92,8 +60,8 @@ export function updateNormalisation(
   const unfitted = isUnfitted(norm);
   if (!unfitted && policy === 'keep') return copyNormalisation(norm);
   if (norm.method === 'zscore') {
-    const acc = new WelfordAccumulator(features);
-    acc.addRows(x, rows);
+    const acc = new FeatureMoments(features);
+    acc.add(x, rows);
     const merged =
       unfitted || norm.count === 0
         ? { count: acc.count, mean: acc.mean, m2: acc.m2 }

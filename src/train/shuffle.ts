@@ -5,6 +5,7 @@
  * descent (n updates per epoch), k = n is full-batch descent (one update).
  */
 import type { Rng } from '../model/layers/kind.js';
+import { fisherYates } from '../model/rng.js';
 
 /**
  * Number of parameter updates in one pass over `rows` rows with batches of `batchSize`.
@@ -21,16 +22,8 @@ export function batchesPerEpoch(rows: number, batchSize: number): number {
  * @example shuffledOrder(5, rng) // e.g. Int32Array [3, 0, 4, 1, 2]
  */
 export function shuffledOrder(n: number, rng: Rng): Int32Array {
-  const order = new Int32Array(n);
-  for (let i = 0; i < n; i++) order[i] = i;
-  // Walk from the end; position i swaps with a uniform pick among 0..i (inclusive).
-  for (let i = n - 1; i > 0; i--) {
-    const j = Math.floor(rng.next() * (i + 1));
-    const t = order[i];
-    order[i] = order[j];
-    order[j] = t;
-  }
-  return order;
+  // The same permutation as the model's Fisher–Yates, viewed as signed indices (n < 2^31).
+  return new Int32Array(fisherYates(n, rng).buffer);
 }
 
 /**

@@ -2,7 +2,8 @@ import { describe, it, expect } from 'vitest';
 import type { Normalisation } from '../../src/model/types.js';
 import { normalise64 } from '../../src/reference/index.js';
 import { mat64 } from '../../src/model/index.js';
-import { WelfordAccumulator, combineMoments, updateNormalisation } from '../../src/train/normalisation.js';
+import { FeatureMoments } from '../../src/model/moments.js';
+import { combineMoments, updateNormalisation } from '../../src/train/normalisation.js';
 
 const applyNormalisation = (n: Normalisation, data: Float64Array, rows: number, cols: number) => normalise64(n, mat64(rows, cols, data)).data;
 import { normals, seededRng } from './seeded.js';
@@ -23,9 +24,9 @@ const x = normals(seededRng(5), rows * f, 1e6, 2);
 
 describe('normalisation state (src/train/normalisation.ts)', () => {
   it("Welford's streamed mean and variance agree with the two-pass formula (Welford 1962; Knuth TAOCP 4.2.2)", () => {
-    const acc = new WelfordAccumulator(f);
-    acc.addRows(x.subarray(0, 100 * f), 100);
-    acc.addRows(x.subarray(100 * f), rows - 100);
+    const acc = new FeatureMoments(f);
+    acc.add(x.subarray(0, 100 * f), 100);
+    acc.add(x.subarray(100 * f), rows - 100);
     const v = acc.variance();
     for (let c = 0; c < f; c++) {
       const ref = twoPass(x, rows, f, c);
@@ -35,10 +36,10 @@ describe('normalisation state (src/train/normalisation.ts)', () => {
   });
 
   it('merging two summaries equals one pass over all rows (Chan, Golub & LeVeque 1979)', () => {
-    const a = new WelfordAccumulator(f);
-    a.addRows(x.subarray(0, 200 * f), 200);
-    const b = new WelfordAccumulator(f);
-    b.addRows(x.subarray(200 * f), rows - 200);
+    const a = new FeatureMoments(f);
+    a.add(x.subarray(0, 200 * f), 200);
+    const b = new FeatureMoments(f);
+    b.add(x.subarray(200 * f), rows - 200);
     const merged = combineMoments(a, b);
     for (let c = 0; c < f; c++) {
       const ref = twoPass(x, rows, f, c);

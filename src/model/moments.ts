@@ -38,6 +38,13 @@ export class FeatureMoments {
     }
   }
 
+  /** Population variance per feature (M2 / n; 0 before any row). */
+  variance(): Float64Array {
+    const v = new Float64Array(this.width);
+    for (let c = 0; c < this.width; c++) v[c] = this.count > 0 ? this.m2[c] / this.count : 0;
+    return v;
+  }
+
   /** Population standard deviation of feature c (0 before two rows). */
   std(c: number): number {
     return this.count > 1 ? Math.sqrt(this.m2[c] / this.count) : 0;
