@@ -37,3 +37,16 @@ export function compareMatrices(a: ArrayLike<number>, b: ArrayLike<number>, cols
     pass: worstRatio <= 1,
   };
 }
+
+/** Share of rows (rows x cols, row-major) whose largest value sits in the same column in a and b. */
+export function topClassAgreement(a: ArrayLike<number>, b: ArrayLike<number>, rows: number, cols: number): number {
+  let agree = 0;
+  for (let r = 0; r < rows; r++) if (argmaxAt(a, r * cols, cols) === argmaxAt(b, r * cols, cols)) agree++;
+  return agree / rows;
+}
+
+function argmaxAt(v: ArrayLike<number>, offset: number, n: number): number {
+  let best = 0;
+  for (let j = 1; j < n; j++) if (v[offset + j] > v[offset + best]) best = j;
+  return best;
+}

@@ -6,7 +6,7 @@ import { EngineSession } from '../engine/index.js';
 import { ParityError } from '../errors.js';
 import { modelWidths, SeededRng, type ModelDoc } from '../model/index.js';
 import { referenceForward, toMat64 } from '../reference/index.js';
-import { compareMatrices, type Discrepancy } from './compare.js';
+import { compareMatrices, topClassAgreement, type Discrepancy } from './compare.js';
 import { FLOAT32_TOLERANCE, type Tolerance } from './tolerance.js';
 
 export interface LayerParity extends Discrepancy {
@@ -54,7 +54,7 @@ export function parityReport(doc: ModelDoc, x: Float32Array, rows: number, opts:
     const engineOut = engineLayers[engineLayers.length - 1];
     const output: OutputParity = {
       ...compareMatrices(engineOut, ref.y.data, outCols, tolerance),
-      topClassAgreement: outCols > 1 && rows > 0 ? argmaxAgreement(engineOut, ref.y.data, rows, outCols) : null,
+      topClassAgreement: outCols > 1 && rows > 0 ? topClassAgreement(engineOut, ref.y.data, rows, outCols) : null,
       rows,
     };
     return { layers, output, tolerance, pass: output.pass && layers.every((l) => l.pass) };
@@ -75,18 +75,6 @@ export function assertParity(report: ParityReport): void {
     : `output row ${report.output.worstRow}, column ${report.output.worstCol}`;
   const d = bad ?? report.output;
   throw new ParityError(where, d.maxAbs, d.maxRel, report.tolerance);
-}
-
-function argmaxAgreement(a: ArrayLike<number>, b: ArrayLike<number>, rows: number, cols: number): number {
-  let agree = 0;
-  for (let r = 0; r < rows; r++) if (argmax(a, r * cols, cols) === argmax(b, r * cols, cols)) agree++;
-  return agree / rows;
-}
-
-function argmax(v: ArrayLike<number>, offset: number, n: number): number {
-  let best = 0;
-  for (let j = 1; j < n; j++) if (v[offset + j] > v[offset + best]) best = j;
-  return best;
 }
 
 /**

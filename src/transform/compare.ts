@@ -2,7 +2,7 @@
  * Two models on the same rows, both on the float64 reference path: how far apart their outputs
  * are. Used to judge a shrunken or folded model against its parent.
  */
-import { compareMatrices, FLOAT32_TOLERANCE, type Tolerance } from '../check/index.js';
+import { compareMatrices, FLOAT32_TOLERANCE, topClassAgreement, type Tolerance } from '../check/index.js';
 import { ShapeError } from '../errors.js';
 import { modelWidths, type ModelDoc } from '../model/index.js';
 import { referenceForward, toMat64 } from '../reference/index.js';
@@ -39,20 +39,8 @@ export function compareOutputs(parent: ModelDoc, candidate: ModelDoc, x: Float32
     maxRel: d.maxRel,
     worstRow: d.worstRow,
     worstCol: d.worstCol,
-    topClassAgreement: outParent > 1 && rows > 0 ? topAgreement(a, b, rows, outParent) : null,
+    topClassAgreement: outParent > 1 && rows > 0 ? topClassAgreement(a, b, rows, outParent) : null,
     tolerance,
     pass: d.pass,
   };
-}
-
-function topAgreement(a: ArrayLike<number>, b: ArrayLike<number>, rows: number, cols: number): number {
-  let agree = 0;
-  for (let r = 0; r < rows; r++) if (argmax(a, r * cols, cols) === argmax(b, r * cols, cols)) agree++;
-  return agree / rows;
-}
-
-function argmax(v: ArrayLike<number>, offset: number, n: number): number {
-  let best = 0;
-  for (let j = 1; j < n; j++) if (v[offset + j] > v[offset + best]) best = j;
-  return best;
 }
