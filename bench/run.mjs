@@ -1,7 +1,7 @@
 // The fixed benchmark suite: `npm run bench` (builds first) or `node bench/run.mjs [--quick]`.
-// Runs against the built package in dist/; prints a table and appends one dated row per
-// configuration to bench/RESULTS.md.
-import { appendFileSync, existsSync, readFileSync, writeFileSync, mkdirSync } from 'node:fs';
+// Runs against the built package in dist/; prints a table and adds one dated row per
+// configuration to the suite table in bench/RESULTS.md.
+import { existsSync, readFileSync, writeFileSync, mkdirSync } from 'node:fs';
 import { execFileSync } from 'node:child_process';
 import { dirname, join } from 'node:path';
 import { fileURLToPath, pathToFileURL } from 'node:url';
@@ -40,9 +40,18 @@ else {
 }
 
 const results = join(here, 'RESULTS.md');
-if (!existsSync(results)) {
-  writeFileSync(results, ['# Benchmark results', '', 'One row per configuration per run of `npm run bench` (appended, newest last).', 'Ratios ("x ...") are our rows/s over the baseline\'s, measured in the same run.', '', ...api.RESULTS_HEADER, ''].join('\n'));
+// Insert the rows at the end of the suite's table wherever it sits (other scripts keep their own
+// sections in the same file, before or after it); create the file or the section when missing.
+const text = existsSync(results) ? readFileSync(results, 'utf8') : '# Benchmark results\n';
+const lines = text.split('\n');
+const isSuiteHeader = (l) => l.startsWith('| date (UTC) | machine | node | section');
+let at = lines.findIndex(isSuiteHeader);
+if (at < 0) {
+  while (lines.length && lines.at(-1) === '') lines.pop();
+  lines.push('', '## suite (`npm run bench`)', '', 'One row per configuration per run, newest last. Ratios ("x ...") are our rows/s over the baseline\'s, measured in the same run.', '', ...api.RESULTS_HEADER);
+  at = lines.length - 2;
 }
-const text = readFileSync(results, 'utf8');
-appendFileSync(results, (text.endsWith('\n') ? '' : '\n') + api.resultsMarkdownRows(result, new Date()).join('\n') + '\n');
-console.log(`appended ${result.rows.length} rows to bench/RESULTS.md`);
+while (at < lines.length && lines[at].startsWith('|')) at++;
+lines.splice(at, 0, ...api.resultsMarkdownRows(result, new Date()));
+writeFileSync(results, lines.join('\n').replace(/\n*$/, '\n'));
+console.log(`added ${result.rows.length} rows to the suite table in bench/RESULTS.md`);
