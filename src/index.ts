@@ -1,12 +1,25 @@
 /**
  * tendon's public API. Re-exports only: each piece lives in its own module.
  */
-export { openModel, modelFromDocument, TendonModel, type OpenOptions } from './tendon.js';
+export { openModel, modelFromDocument, engineFallback, TendonModel, type OpenOptions } from './tendon.js';
 export * from './errors.js';
 export * from './model/types.js';
 export { validateModel, modelWidths, outputWidth, SeededRng } from './model/index.js';
 export { encodeModel, decodeModel, readModelFile, writeModelFile, crc32 } from './format/index.js';
-export { EngineSession, useEngine, engineFallbackReason, type EngineName } from './engine/index.js';
+export {
+  EngineSession,
+  FastSession,
+  FastTrainSession,
+  useEngine,
+  resolveEngine,
+  engineFallbackReason,
+  wasmSimdAvailable,
+  liveTensorCount,
+  ENGINE_CHOICES,
+  type EngineName,
+  type EngineChoice,
+  type RuntimeEngine,
+} from './engine/index.js';
 export { referenceForward } from './reference/index.js';
 export { parityReport, randomInputs, FLOAT32_TOLERANCE, type ParityReport, type Tolerance } from './check/index.js';
 export { buildFromSpec, type SpecOptions } from './spec/spec.js';
@@ -17,3 +30,6 @@ export { DriftMonitor, FeatureMoments, describeDrift, type DriftReport, type Fea
 export { createRequestHandler, startServer, ROUTES, type RequestHandlerOptions, type TendonRequestHandler, type RunningServer, type ServerOptions, type ModelBatchRunner } from './serve/http.js';
 export { ModelSlot, type SwapOutcome } from './serve/swap.js';
 export { ServiceCounters } from './serve/metrics.js';
+export { MicroBatcher, BusyError, type BatcherOptions } from './serve/batcher.js';
+export { WorkerPool, type PoolOptions } from './serve/pool.js';
+export * from './bench/index.js';

@@ -4,31 +4,35 @@
  */
 import * as tf from '@tensorflow/tfjs-core';
 import { parityReport, randomInputs, type ParityReport } from './check/index.js';
-import { EngineSession, ensureEngine, useEngine, type EngineName } from './engine/index.js';
+import { EngineSession, FastSession, ensureEngine, resolveEngine, type EngineChoice, type RuntimeEngine } from './engine/index.js';
 import { DataError, ShapeError } from './errors.js';
 import { readModelFile, writeModelFile } from './format/index.js';
 import { modelWidths, validateModel, type ModelDoc } from './model/index.js';
 
 export interface OpenOptions {
   /**
-   * Which engine runs the model: 'js' (the tfjs CPU backend, always there), 'wasm' (SIMD
-   * kernels, several times faster) or 'auto' (wasm, falling back to js). tfjs has one engine
-   * per process, so this switches it for every model in the process. Left out, a process that
-   * has not chosen yet gets 'auto'.
+   * Which engine runs the model: 'fast' (tendon's own WebAssembly SIMD kernel), 'wasm' (the
+   * tfjs WebAssembly backend), 'js' (the tfjs CPU backend, always there) or 'auto' (fast, else
+   * wasm, else js). 'js' and 'wasm' switch tfjs's one backend for the whole process.
+   * Default 'auto'.
    */
-  readonly engine?: EngineName | 'auto';
+  readonly engine?: EngineChoice;
   /** Most rows sent through the engine at once; bounds peak memory. */
   readonly chunkRows?: number;
 }
 
-let engineChosen = false;
+/** Why the last 'auto' choice fell back from the fast engine, as one line; null when it did not. */
+let lastFallback: string | null = null;
 
-async function chooseEngine(engine: EngineName | 'auto' | undefined): Promise<EngineName> {
-  if (engine !== undefined || !engineChosen) {
-    engineChosen = true;
-    return useEngine(engine ?? 'auto');
-  }
-  return ensureEngine();
+export function engineFallback(): string | null {
+  return lastFallback;
+}
+
+async function chooseEngine(choice: EngineChoice | undefined): Promise<RuntimeEngine> {
+  const resolved = await resolveEngine(choice ?? 'auto');
+  lastFallback = resolved.fallback;
+  if (resolved.engine === 'fast') ensureEngine(); // tfjs still serves tensor input and training
+  return resolved.engine;
 }
 
 /**
@@ -41,8 +45,8 @@ async function chooseEngine(engine: EngineName | 'auto' | undefined): Promise<En
  */
 export async function openModel(path: string, options: OpenOptions = {}): Promise<TendonModel> {
   const read = await readModelFile(path);
-  await chooseEngine(options.engine);
-  return new TendonModel(read.doc, {
+  const engine = await chooseEngine(options.engine);
+  return new TendonModel(read.doc, engine, {
     source: path,
     checksum: read.checksum,
     bytes: read.bytes,
@@ -58,8 +62,8 @@ export async function openModel(path: string, options: OpenOptions = {}): Promis
  */
 export async function modelFromDocument(doc: ModelDoc, options: OpenOptions = {}): Promise<TendonModel> {
   validateModel(doc, '(document)');
-  await chooseEngine(options.engine);
-  return new TendonModel(doc, { source: null, checksum: null, bytes: null, formatVersion: null, chunkRows: options.chunkRows });
+  const engine = await chooseEngine(options.engine);
+  return new TendonModel(doc, engine, { source: null, checksum: null, bytes: null, formatVersion: null, chunkRows: options.chunkRows });
 }
 
 interface ModelOrigin {
@@ -71,7 +75,8 @@ interface ModelOrigin {
 }
 
 export class TendonModel {
-  readonly session: EngineSession;
+  /** What runs the model: a tfjs session (js or wasm) or tendon's own kernel (fast). */
+  readonly session: EngineSession | FastSession;
   /** Where the model was read from, or null for a document made in memory. */
   readonly source: string | null;
   /** CRC-32 of the file's payload (8 hex digits), or null for a document made in memory. */
@@ -83,16 +88,18 @@ export class TendonModel {
 
   constructor(
     readonly doc: ModelDoc,
+    engine: RuntimeEngine,
     origin: ModelOrigin,
   ) {
-    this.session = new EngineSession(doc, { chunkRows: origin.chunkRows, source: origin.source ?? '(document)' });
+    const options = { chunkRows: origin.chunkRows, source: origin.source ?? '(document)' };
+    this.session = engine === 'fast' ? new FastSession(doc, options) : new EngineSession(doc, options);
     this.source = origin.source;
     this.checksum = origin.checksum;
     this.fileBytes = origin.bytes;
     this.formatVersion = origin.formatVersion;
   }
 
-  get engine(): EngineName {
+  get engine(): RuntimeEngine {
     return this.session.engine;
   }
   get inputs(): number {
@@ -124,7 +131,10 @@ export class TendonModel {
   run(batch: readonly (readonly number[])[] | Float32Array | tf.Tensor2D, rows?: number): number[][] | Float32Array | tf.Tensor2D {
     if (batch instanceof tf.Tensor) {
       if (batch.rank !== 2) throw new ShapeError('input tensor', ['rows', this.inputs], batch.shape, 'run');
-      return this.session.runTensor(batch);
+      if (this.session instanceof EngineSession) return this.session.runTensor(batch);
+      if (batch.shape[1] !== this.inputs) throw new ShapeError('input tensor', ['rows', this.inputs], batch.shape, 'run');
+      const rowsIn = batch.shape[0];
+      return tf.tensor2d(this.session.run(Float32Array.from(batch.dataSync()), rowsIn), [rowsIn, this.outputs]);
     }
     if (batch instanceof Float32Array) {
       const n = rows ?? batch.length / this.inputs;

@@ -27,9 +27,15 @@ export interface ParityReport {
   readonly pass: boolean;
 }
 
+/** Anything that can run a model layer by layer: an EngineSession (js or wasm) or a FastSession. */
+export interface LayerRunner {
+  runLayers(x: Float32Array, rows: number): Float32Array[];
+  dispose(): void;
+}
+
 export interface ParityOptions {
-  /** Compare this session (e.g. one on the wasm engine) instead of a fresh one. */
-  readonly session?: EngineSession;
+  /** Compare this runner (e.g. a session on the wasm or fast engine) instead of a fresh js/wasm session. */
+  readonly session?: LayerRunner;
   readonly tolerance?: Tolerance;
 }
 
@@ -39,7 +45,7 @@ export interface ParityOptions {
  */
 export function parityReport(doc: ModelDoc, x: Float32Array, rows: number, opts: ParityOptions = {}): ParityReport {
   const tolerance = opts.tolerance ?? FLOAT32_TOLERANCE;
-  const session = opts.session ?? new EngineSession(doc);
+  const session: LayerRunner = opts.session ?? new EngineSession(doc);
   try {
     const engineLayers = session.runLayers(x, rows);
     const ref = referenceForward(doc, toMat64(x, rows, doc.inputs), { keepLayers: true });

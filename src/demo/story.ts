@@ -6,6 +6,7 @@
 import { mkdir, mkdtemp, writeFile } from 'node:fs/promises';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
+import type { EngineChoice } from '../engine/index.js';
 import { writeModelFile } from '../format/index.js';
 import { SeededRng, type ModelDoc } from '../model/index.js';
 import { openModel, type TendonModel } from '../tendon.js';
@@ -17,7 +18,7 @@ import { BAKERY_FEATURES, BAKERY_LABELS, bakeLoaves, FIRST_SITE, SECOND_SITE, ty
 export interface DemoOptions {
   readonly dir?: string;
   readonly seed: number;
-  readonly engine: 'js' | 'wasm' | 'auto';
+  readonly engine: EngineChoice;
   readonly say: (line: string) => void;
   readonly signal?: AbortSignal;
 }

@@ -1,17 +1,20 @@
 /**
- * The two places a training step can run: the tfjs engine (float32, the default) and the
- * float64 reference path (exact, slower; used by tests and by `gradientsOf`). Both read the
- * working document's arrays: after an optimiser step the engine re-uploads the layers that
- * changed, the reference path reads them directly.
+ * The places a training step can run: our own WebAssembly SIMD kernel ('fast', float32; dense
+ * and dropout layers only), the tfjs engine ('engine', float32, every layer kind) and the
+ * float64 reference path (exact, slower; used by tests and by `gradientsOf`). All read the
+ * working document's arrays: after an optimiser step the fast and engine paths copy in the
+ * layers that changed, the reference path reads them directly.
  *
- * Both hand back the last layer's pre-activation (the logits) when the loss wants it, so
+ * All hand back the last layer's pre-activation (the logits) when the loss wants it, so
  * softmax + cross-entropy gets the stable `p - t` gradient straight into the last dense layer.
  */
 import { EngineSession, type EngineTape } from '../engine/index.js';
+import { FastTrainSession, type FastTape } from '../engine/fast/fast-train.js';
 import { mat64, type BatchStats, type ForwardContext, type ModelDoc } from '../model/index.js';
 import { referenceBackwardTape, referenceForward, referenceForwardTrain, toMat64, type ReferenceTapeEntry } from '../reference/index.js';
 
-export type TrainPath = 'engine' | 'reference';
+export const TRAIN_PATHS = ['fast', 'engine', 'reference'] as const;
+export type TrainPath = (typeof TRAIN_PATHS)[number];
 
 export interface TrainForward {
   readonly rows: number;
@@ -19,7 +22,7 @@ export interface TrainForward {
   readonly out: Float32Array | Float64Array;
   /** Per layer: batchnorm batch statistics, null elsewhere. */
   readonly stats: readonly (BatchStats | null)[];
-  readonly tape: EngineTape | readonly ReferenceTapeEntry[];
+  readonly tape: EngineTape | FastTape | readonly ReferenceTapeEntry[];
 }
 
 export interface TrainBackend {
@@ -53,7 +56,8 @@ const REFERENCE_EVAL_ROWS = 1024;
  * A backend over `doc` (which the caller updates in place). `preActivation`: the loss reads
  * the last dense layer's logits.
  *
- * @example const b = makeBackend('engine', work, true); const f = b.forwardTrain(x, rows, ctx);
+ * @example const b = makeBackend('fast', work, true); const f = b.forwardTrain(x, rows, ctx);
+ * @throws RangeError for 'fast' when the model has a layer it cannot train (see fastTrainBlocker).
  */
 export function makeBackend(path: TrainPath, doc: ModelDoc, preActivation: boolean): TrainBackend {
   const view = logitsView(doc, preActivation);
@@ -94,6 +98,29 @@ export function makeBackend(path: TrainPath, doc: ModelDoc, preActivation: boole
           }
           return joined;
         });
+      },
+      dispose() {},
+    };
+  }
+
+  if (path === 'fast') {
+    const fast = new FastTrainSession(doc, { preActivation });
+    return {
+      path,
+      forwardTrain(x, rows, ctx) {
+        return fast.forwardTrain(x, rows, ctx);
+      },
+      backward(f, dOut) {
+        return fast.backward({ rows: f.rows, out: f.out as Float32Array, stats: [], tape: f.tape as FastTape }, dOut);
+      },
+      discard(f) {
+        (f.tape as FastTape).disposed = true;
+      },
+      refresh(layers) {
+        fast.refresh(layers);
+      },
+      evaluate(x, rows) {
+        return fast.evaluate(x, rows);
       },
       dispose() {},
     };

@@ -4,7 +4,7 @@
  */
 import type { Layer } from '../model/types.js';
 
-export type DiagnosticCode = 'vanishing_gradient' | 'dead_relu' | 'linear_stack' | 'raw_inputs';
+export type DiagnosticCode = 'vanishing_gradient' | 'dead_relu' | 'linear_stack' | 'raw_inputs' | 'engine_fallback';
 
 export interface Diagnostic {
   readonly code: DiagnosticCode;

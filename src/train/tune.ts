@@ -4,7 +4,7 @@
  * Per epoch: a fresh seeded shuffle cut into ceil(n / k) batches; per batch: training forward
  * (seeded dropout masks, batch statistics in batch normalisation), loss, backward, anchor
  * penalty, clipping, optimiser step (weight decay inside it), running-statistics update,
- * engine refresh. After each epoch: evaluation of the training and hold-out rows in inference
+ * kernel refresh. After each epoch: evaluation of the training and hold-out rows in inference
  * mode, diagnostics, early stopping. Everything random draws from generators seeded by
  * `seed`, so a run repeats bit for bit.
  */
@@ -22,7 +22,9 @@ import {
   type ModelDoc,
   type ParamRef,
 } from '../model/index.js';
-import { makeBackend, type TrainBackend, type TrainPath } from './backends.js';
+import { wasmSimdAvailable } from '../engine/fast/dense-kernel.js';
+import { fastTrainBlocker } from '../engine/fast/fast-train.js';
+import { TRAIN_PATHS, makeBackend, type TrainBackend, type TrainPath } from './backends.js';
 import { clipGlobalNorm } from './clip.js';
 import { resolveTuneOptions, type ResolvedTuneOptions, type TuneData, type TuneOptions } from './config.js';
 import { ReluActivity, linearStacks, rawInputs, vanishingGradient, type Diagnostic, type LayerNorm } from './diagnostics.js';
@@ -82,7 +84,12 @@ export interface TuneHooks {
 }
 
 export interface TuneRunOptions extends TuneOptions {
-  /** Where the steps run: the tfjs engine (default) or the float64 reference path. */
+  /**
+   * Where the steps run: 'fast' (own WebAssembly SIMD kernel), 'engine' (tfjs) or 'reference'
+   * (float64). Default: 'fast' when the runtime has WebAssembly SIMD and the model has only
+   * dense and dropout layers, else 'engine'. An explicit 'fast' that cannot run falls back to
+   * 'engine' with an 'engine_fallback' diagnostic.
+   */
   path?: TrainPath;
   /** The parent file, for provenance; computed from the document when not given. */
   parent?: { checksum: string; source: string };
@@ -100,6 +107,8 @@ export interface TuneResult {
   /** The signal stopped the run; `doc` holds the weights after the last complete batch. */
   readonly aborted: boolean;
   readonly loss: LossSpec;
+  /** Where the steps actually ran (after any fallback). */
+  readonly path: TrainPath;
 }
 
 /**
@@ -117,6 +126,28 @@ export class TuneDivergence extends DivergenceError {
   ) {
     super(epoch, batch, layer, detail);
   }
+}
+
+/**
+ * The path a run takes: what was asked for, or the fastest one that can train `doc`. An explicit
+ * 'fast' that cannot run here becomes 'engine' with a diagnostic saying why; never an error.
+ */
+function choosePath(asked: TrainPath | undefined, doc: ModelDoc): { path: TrainPath; fallback: Diagnostic | null } {
+  if (asked === 'engine' || asked === 'reference') return { path: asked, fallback: null };
+  const simd = wasmSimdAvailable();
+  const blocker = simd ? fastTrainBlocker(doc) : 'this runtime lacks WebAssembly SIMD';
+  if (blocker === null) return { path: 'fast', fallback: null };
+  if (asked === undefined) return { path: 'engine', fallback: null };
+  return {
+    path: 'engine',
+    fallback: {
+      code: 'engine_fallback',
+      message: `the fast training path cannot run (${blocker}); training on the tfjs engine instead`,
+      hint: simd
+        ? 'results agree within float32 tolerance; a model of dense and dropout layers only trains on the fast path'
+        : 'results agree within float32 tolerance; a Node.js build with WebAssembly SIMD trains on the fast path',
+    },
+  };
 }
 
 /** Hold-out loss must improve by more than this (relative) to count as better. */
@@ -272,9 +303,30 @@ function restore(arrays: Float32Array[], from: Float32Array[]): void {
   arrays.forEach((a, i) => a.set(from[i]));
 }
 
+/** Σ v², in float64, in index order. */
+function sumSquares(a: Float32Array | Float64Array): number {
+  let sq = 0;
+  for (let j = 0; j < a.length; j++) sq += a[j] * a[j];
+  return sq;
+}
+
+/** True when no value is NaN or infinite: v * 0 is 0 for finite v and NaN otherwise. */
 function allFinite(a: ArrayLike<number>): boolean {
-  for (let i = 0; i < a.length; i++) if (!Number.isFinite(a[i])) return false;
-  return true;
+  // Four sums so the adds do not wait on one another (this runs over every weight each step).
+  let s0 = 0;
+  let s1 = 0;
+  let s2 = 0;
+  let s3 = 0;
+  const n = a.length;
+  let i = 0;
+  for (; i + 4 <= n; i += 4) {
+    s0 += a[i] * 0;
+    s1 += a[i + 1] * 0;
+    s2 += a[i + 2] * 0;
+    s3 += a[i + 3] * 0;
+  }
+  for (; i < n; i++) s0 += a[i] * 0;
+  return s0 + s1 + s2 + s3 === 0;
 }
 
 function layerLabel(doc: ModelDoc, i: number): string {
@@ -342,8 +394,10 @@ function parentProvenance(doc: ModelDoc, given: TuneRunOptions['parent']): { che
  */
 export async function tune(doc: ModelDoc, data: TuneData, options: TuneRunOptions = {}, hooks: TuneHooks = {}): Promise<TuneResult> {
   const opts = resolveTuneOptions(options, doc);
-  const path = options.path ?? 'engine';
-  if (path !== 'engine' && path !== 'reference') throw new TuneConfigError('path', `must be engine or reference, got "${String(path)}"`);
+  const asked = options.path;
+  if (asked !== undefined && !(TRAIN_PATHS as readonly string[]).includes(asked)) {
+    throw new TuneConfigError('path', `must be one of ${TRAIN_PATHS.join(', ')}, got "${String(asked)}"`);
+  }
   const rng = streams(opts.seed);
 
   const work = cloneDoc(doc);
@@ -378,7 +432,9 @@ export async function tune(doc: ModelDoc, data: TuneData, options: TuneRunOption
   }
 
   // Normalisation: fit an empty block from the training rows; keep or continue a fitted one.
-  const runDiagnostics: Diagnostic[] = [...linearStacks(work.layers)];
+  const { path, fallback } = choosePath(asked, work);
+  const runDiagnostics: Diagnostic[] = fallback ? [fallback] : [];
+  runDiagnostics.push(...linearStacks(work.layers));
   if (work.normalise) {
     const policy = isUnfitted(work.normalise) ? 'continue' : opts.normalisation;
     work.normalise = updateNormalisation(work.normalise, train.x, train.rows, work.inputs, policy);
@@ -390,6 +446,7 @@ export async function tune(doc: ModelDoc, data: TuneData, options: TuneRunOption
   const slots = slotsOf(work, opts);
   const anchorStart = opts.anchor > 0 ? slots.map((s) => (s.frozen ? null : Float64Array.from(s.data))) : null;
   const optimiser = makeOptimiser(opts.optimiser, opts.decay);
+  const gradientsChange = anchorStart !== null || opts.clipNorm !== null;
   const arrays = mutableArrays(work);
   const lastGood = snapshot(arrays);
   let best: Float32Array[] | null = null;
@@ -464,28 +521,31 @@ export async function tune(doc: ModelDoc, data: TuneData, options: TuneRunOption
         const loss = computeLoss(spec, Float64Array.from(f.out), n, outputs, targets);
         const grads = backend.backward(f, loss.grad);
 
+        // Per-layer squared gradient norms of the data loss (before anchor and clipping). One
+        // pass serves both the norms and the divergence check: a sum of squares is finite
+        // unless some value is not (or squares overflow, which allFinite then tells apart).
+        const layerSq = new Map<number, number>();
+        for (const s of slots) {
+          layerSq.set(s.layer, (layerSq.get(s.layer) ?? 0) + sumSquares(grads[s.layer][s.position]));
+        }
         // Divergence: name the first layer (in backward order) whose gradient is not finite.
         let bad = -1;
-        for (let i = work.layers.length - 1; i >= 0 && bad < 0; i--) if (!grads[i].every(allFinite)) bad = i;
+        for (let i = work.layers.length - 1; i >= 0 && bad < 0; i--) {
+          if (!Number.isFinite(layerSq.get(i) ?? 0) && !grads[i].every(allFinite)) bad = i;
+        }
         if (!Number.isFinite(loss.value) || bad >= 0) {
           restore(arrays, lastGood);
           throw new TuneDivergence(epoch + 1, b + 1, bad >= 0 ? layerLabel(work, bad) : 'the loss', `loss is ${loss.value}`, cloneDoc(work));
         }
-
-        // Per-layer gradient norms of the data loss, before anchor and clipping.
-        const layerSq = new Map<number, number>();
-        for (const s of slots) {
-          const g = grads[s.layer][s.position];
-          let sq = 0;
-          for (let j = 0; j < g.length; j++) sq += g[j] * g[j];
-          layerSq.set(s.layer, (layerSq.get(s.layer) ?? 0) + sq);
-        }
         for (const [l, sq] of layerSq) normSums.set(l, (normSums.get(l) ?? 0) + Math.sqrt(sq));
 
-        // Gradient list aligned with slots; frozen tensors get none. Anchor: d/dw strength·||w - w0||² = 2·strength·(w - w0).
+        // Gradient list aligned with slots; frozen tensors get none. The backend's arrays go to
+        // the optimiser as they are (it reads them into float64) unless the anchor or clipping
+        // must change them. Anchor: d/dw strength·||w - w0||² = 2·strength·(w - w0).
         let anchorPenalty = 0;
         const flat = slots.map((s, k) => {
           if (s.frozen) return null;
+          if (!gradientsChange) return grads[s.layer][s.position];
           const g = Float64Array.from(grads[s.layer][s.position]);
           const start = anchorStart?.[k];
           if (start) {
@@ -600,7 +660,7 @@ export async function tune(doc: ModelDoc, data: TuneData, options: TuneRunOption
 
   const parent = parentProvenance(doc, options.parent);
   if (parent) work.provenance.push({ checksum: parent.checksum, source: parent.source, action: 'tune', at: new Date().toISOString() });
-  return { doc: work, history, diagnostics, stoppedEarly, bestEpoch, aborted, loss: spec };
+  return { doc: work, history, diagnostics, stoppedEarly, bestEpoch, aborted, loss: spec, path };
 }
 
 /**

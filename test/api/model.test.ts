@@ -80,4 +80,18 @@ describe('TendonModel.run', () => {
     expect(report.output.maxAbs).toBeLessThan(1e-6);
     expect(report.output.topClassAgreement).toBe(1);
   });
+
+  it.each(['js', 'wasm', 'fast'] as const)('the %s engine gives the worked example and passes its own parity check', async (engine) => {
+    const model = await modelFromDocument(mazurDoc(), { engine });
+    opened.push(model);
+    expect(model.engine).toBe(engine);
+    const [o] = model.run([[0.05, 0.1]]);
+    expect(o[0]).toBeCloseTo(0.75136507, 6);
+    expect(o[1]).toBeCloseTo(0.772928465, 6);
+    const input = tf.tensor2d([[0.05, 0.1]]);
+    const out = model.run(input);
+    expect(Array.from(out.dataSync())).toEqual(o);
+    tf.dispose([input, out]);
+    expect(model.check().pass).toBe(true);
+  });
 });

@@ -90,4 +90,36 @@ describe('FastSession (own WebAssembly SIMD dense kernel)', () => {
     const fast = new FastSession(denseStackDoc([4, 8, 2], 1));
     expect(() => fast.run(new Float32Array(7), 2)).toThrow(ShapeError);
   });
+
+  it('gives a row the same bits whatever else shares its batch (4-row tiles and single rows sum alike)', () => {
+    for (const widths of [[7, 32, 16, 3], [513, 40, 3], [784, 64, 10]]) {
+      const doc = denseStackDoc(widths, 3);
+      const fast = new FastSession(doc);
+      const rows = 11; // two 4-row tiles and three single rows
+      const x = seededRows(rows, doc.inputs, 5);
+      const together = fast.run(x, rows);
+      const out = widths[widths.length - 1];
+      for (let r = 0; r < rows; r++) {
+        const alone = fast.run(x.subarray(r * doc.inputs, (r + 1) * doc.inputs), 1);
+        expect(Array.from(alone), `widths ${widths.join('-')}, row ${r}`).toEqual(Array.from(together.subarray(r * out, (r + 1) * out)));
+      }
+    }
+  });
+
+  it('refuses to run after dispose, like the tfjs sessions', () => {
+    const fast = new FastSession(denseStackDoc([4, 8, 2], 1));
+    fast.dispose();
+    expect(() => fast.run(new Float32Array(4), 1)).toThrow(/disposed/);
+  });
+
+  it('reports each layer\'s output for the parity check, the last equal to run', () => {
+    const doc = denseStackDoc([6, 12, 5, 3], 2);
+    const fast = new FastSession(doc);
+    const x = seededRows(9, 6, 3);
+    const layers = fast.runLayers(x, 9);
+    expect(layers.map((l) => l.length)).toEqual([9 * 12, 9 * 5, 9 * 3]);
+    expect(Array.from(layers[2])).toEqual(Array.from(fast.run(x, 9)));
+    const ref = referenceForward(doc, toMat64(x, 9, 6), { keepLayers: true }).layers!;
+    layers.forEach((l, i) => l.forEach((v, k) => expect(Math.abs(v - ref[i].data[k])).toBeLessThan(TOL)));
+  });
 });

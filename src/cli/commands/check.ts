@@ -13,7 +13,7 @@ const flags = {
   input: { kind: 'string', short: 'i', help: 'rows to check on (.csv, .jsonl, .npy); default: seeded random rows' },
   rows: { kind: 'integer', help: 'random rows when no --input is given', default: 256 },
   seed: { kind: 'integer', help: 'seed for the random rows', default: 1 },
-  engine: { kind: 'string', help: 'js, wasm or auto', default: 'auto' },
+  engine: { kind: 'string', help: 'auto, fast, wasm or js', default: 'auto' },
   json: { kind: 'boolean', help: 'print the report as JSON' },
   against: { kind: 'string', help: 'judge MODEL against its parent file instead (both on the float64 reference path; tolerance by MODEL\'s storage)' },
 } as const;

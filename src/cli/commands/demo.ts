@@ -6,7 +6,7 @@ import { parseEngine } from './engine-flag.js';
 const flags = {
   dir: { kind: 'string', help: 'folder for the demo\'s model files (default: a new temporary folder)' },
   seed: { kind: 'integer', help: 'seed of the invented data and the initial weights', default: 7 },
-  engine: { kind: 'string', help: 'js, wasm or auto', default: 'auto' },
+  engine: { kind: 'string', help: 'auto, fast, wasm or js', default: 'auto' },
 } as const;
 
 export const demo: Command = {

@@ -1,11 +1,11 @@
+import { ENGINE_CHOICES, type EngineChoice } from '../../engine/index.js';
 import { UsageError } from '../../errors.js';
-import type { EngineName } from '../../engine/index.js';
 
-const CHOICES = ['auto', 'js', 'wasm'] as const;
-
-/** The --engine flag: js (tfjs CPU backend), wasm (SIMD kernels) or auto (wasm, else js). */
-export function parseEngine(value: string | undefined): EngineName | 'auto' {
+/** The --engine flag: auto (fast, else wasm, else js), fast (own SIMD kernel), wasm (tfjs SIMD) or js (tfjs CPU). */
+export function parseEngine(value: string | undefined): EngineChoice {
   const v = value ?? 'auto';
-  if (!(CHOICES as readonly string[]).includes(v)) throw new UsageError('--engine', `must be one of ${CHOICES.join(', ')}, got "${v}"`);
-  return v as EngineName | 'auto';
+  if (!(ENGINE_CHOICES as readonly string[]).includes(v)) throw new UsageError('--engine', `must be one of ${ENGINE_CHOICES.join(', ')}, got "${v}"`);
+  return v as EngineChoice;
 }
+
+export const ENGINE_HELP = 'auto, fast, wasm or js';

@@ -12,7 +12,7 @@ const flags = {
   input: { kind: 'string', short: 'i', help: 'rows to score: .csv, .jsonl or .npy (2-D)' },
   output: { kind: 'string', short: 'o', help: 'where to write the scores: .csv, .jsonl or .npy' },
   batch: { kind: 'integer', help: 'rows read and scored at a time (bounds memory)', default: 4096 },
-  engine: { kind: 'string', help: 'js, wasm or auto', default: 'auto' },
+  engine: { kind: 'string', help: 'auto, fast, wasm or js', default: 'auto' },
   drift: { kind: 'boolean', help: 'after scoring, print per-feature drift against the model\'s normalisation statistics to stderr' },
 } as const;
 

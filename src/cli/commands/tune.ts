@@ -38,7 +38,7 @@ const flags = {
   report: { kind: 'string', help: 'write an SVG report: loss and accuracy curves, per-layer gradient norms' },
   log: { kind: 'string', help: 'per-epoch log: text or jsonl (default: text on a terminal, jsonl otherwise)' },
   'keep-interrupted': { kind: 'boolean', help: 'on Ctrl-C, save what is complete as OUT.interrupted' },
-  engine: { kind: 'string', help: 'js, wasm or auto', default: 'auto' },
+  engine: { kind: 'string', help: 'auto, fast, wasm or js', default: 'auto' },
 } as const;
 
 export const tune: Command = {
@@ -64,7 +64,9 @@ export const tune: Command = {
     const data = await loadTrainingData(doc, dataPath, targets);
     const holdoutData = f['holdout-file'] ? await loadTrainingData(doc, f['holdout-file'], targets) : undefined;
     const replay = f.replay ? await loadTrainingData(doc, f.replay, targets) : undefined;
-    const engine = await useEngine(parseEngine(f.engine));
+    const choice = parseEngine(f.engine);
+    // Training runs on tfjs here; 'auto' and 'fast' take the fastest tfjs backend.
+    const engine = await useEngine(choice === 'js' || choice === 'wasm' ? choice : 'auto');
 
     const options: TuneRunOptions = {
       epochs: f.epochs,

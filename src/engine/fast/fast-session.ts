@@ -44,8 +44,12 @@ export class FastSession {
   /** Byte addresses of the input buffer and the two activation buffers. */
   private readonly xAddr: number;
   private readonly bufAddr: [number, number];
+  private disposed = false;
 
-  constructor(doc: ModelDoc, opts: FastSessionOptions = {}) {
+  constructor(
+    readonly doc: ModelDoc,
+    opts: FastSessionOptions = {},
+  ) {
     validateModel(doc, opts.source ?? '(model)');
     const widths = modelWidths(doc);
     this.inputs = widths[0];
@@ -109,6 +113,7 @@ export class FastSession {
    * @throws ShapeError when data does not hold rows x inputs values.
    */
   run(data: Float32Array, rows: number): Float32Array {
+    if (this.disposed) throw new Error('FastSession.run: this session was disposed');
     if (!(Number.isInteger(rows) && rows >= 0) || data.length !== rows * this.inputs) {
       throw new ShapeError('input', [`${rows} x ${this.inputs} = ${rows * this.inputs} values`], [data.length], 'FastSession.run');
     }
@@ -148,6 +153,26 @@ export class FastSession {
       for (let r = 0; r < n; r++) out.set(mem.subarray(base + r * width, base + r * width + this.outputs), (start + r) * this.outputs);
     }
     return out;
+  }
+
+  /**
+   * Each layer's output for raw features, for the parity report: layer i's output is the
+   * output of the model cut after layer i, run on this same kernel.
+   */
+  runLayers(data: Float32Array, rows: number): Float32Array[] {
+    return this.doc.layers.map((_, i) => {
+      if (i === this.doc.layers.length - 1) return this.run(data, rows);
+      const prefix: ModelDoc = { ...this.doc, layers: this.doc.layers.slice(0, i + 1), labels: null };
+      return new FastSession(prefix, { chunkRows: this.chunkRows }).run(data, rows);
+    });
+  }
+
+  /**
+   * Mark the session finished. The kernel's memory goes with the session object; refusing later
+   * calls keeps the contract the same as EngineSession's (use after dispose is a bug to surface).
+   */
+  dispose(): void {
+    this.disposed = true;
   }
 }
 

@@ -18,6 +18,8 @@ import { modelWidths, validateModel, type ActivationName, type DenseLayer, type 
 import { instantiateDenseKernel, type DenseKernel } from './dense-kernel.js';
 
 const PAD = 16;
+/** Rows per piece in `evaluate`: bounds kernel memory on large hold-out sets. */
+const EVAL_ROWS = 256;
 const padded = (n: number): number => Math.ceil(n / PAD) * PAD;
 
 interface DensePlan {
@@ -65,6 +67,18 @@ export interface FastTrainForward {
 }
 
 /**
+ * Why this path cannot train `doc`, as one line naming the layer; null when it can.
+ * @example fastTrainBlocker(docWithBatchnorm) // "layers[1] is batchnorm: fast training runs dense and dropout layers only"
+ */
+export function fastTrainBlocker(doc: ModelDoc): string | null {
+  const i = doc.layers.findIndex((l) => l.kind !== 'dense' && l.kind !== 'dropout');
+  if (i >= 0) return `layers[${i}] is ${doc.layers[i].kind}: fast training runs dense and dropout layers only`;
+  const last = doc.layers.length - 1;
+  if (last < 0 || doc.layers[last].kind !== 'dense') return `fast training needs a dense last layer; layers[${last}] is ${doc.layers[last]?.kind ?? 'missing'}`;
+  return null;
+}
+
+/**
  * @example
  * const t = new FastTrainSession(doc, { preActivation: true });
  * const f = t.forwardTrain(x, 64, ctx);
@@ -82,7 +96,7 @@ export class FastTrainSession {
   private capacityRows = 0;
   /** Scratch regions (byte addresses) sized for capacityRows. */
   private scratch = { a: 0, b: 0, out: 0, zeros: 0 };
-  private readonly norm: { shift: Float32Array; scale: Float32Array } | null;
+  private norm: { shift: Float32Array; scale: Float32Array } | null;
 
   constructor(
     private readonly doc: ModelDoc,
@@ -91,6 +105,8 @@ export class FastTrainSession {
     validateModel(doc, '(model)');
     this.preActivation = opts.preActivation;
     this.widths = modelWidths(doc);
+    const blocker = fastTrainBlocker(doc);
+    if (blocker) throw new RangeError(blocker);
     const plan: Plan[] = [];
     let inP = doc.inputs;
     doc.layers.forEach((layer, index) => {
@@ -100,15 +116,6 @@ export class FastTrainSession {
         inP = outP;
       } else if (layer.kind === 'dropout') {
         plan.push({ kind: 'dropout', index, rate: layer.rate, width: this.widths[index] });
-      } else {
-        throw new RangeError(`fast training supports dense and dropout layers; layers[${index}] is ${layer.kind}`);
-      }
-    });
-    const last = doc.layers[doc.layers.length - 1];
-    if (last.kind !== 'dense') throw new RangeError('fast training needs a dense last layer');
-    doc.layers.forEach((layer, i) => {
-      if (layer.kind === 'dense' && layer.activation === 'softmax' && !(i === doc.layers.length - 1 && opts.preActivation)) {
-        throw new RangeError(`fast training supports softmax only on the last layer with the loss reading logits (layers[${i}])`);
       }
     });
     this.plan = plan;
@@ -128,22 +135,59 @@ export class FastTrainSession {
     if (!(Number.isInteger(rows) && rows > 0) || x.length < rows * this.inputs) {
       throw new ShapeError('input', [`${rows} x ${this.inputs}`], [x.length], 'FastTrainSession.forwardTrain');
     }
+    const { tape, out } = this.pass(x, rows, ctx);
+    return { rows, out, stats: this.doc.layers.map(() => null), tape };
+  }
+
+  /**
+   * Inference outputs of every layer (dropout passes rows through), in pieces of at most
+   * EVAL_ROWS rows so kernel memory stays bounded. The last entry is the logits when
+   * `preActivation`, else the model's outputs.
+   * @example const layers = t.evaluate(x, 1000); // layers[i]: 1000 x width of layer i
+   */
+  evaluate(x: Float32Array | Float64Array, rows: number): Float32Array[] {
+    if (!(Number.isInteger(rows) && rows >= 0) || x.length < rows * this.inputs) {
+      throw new ShapeError('input', [`${rows} x ${this.inputs}`], [x.length], 'FastTrainSession.evaluate');
+    }
+    const outs = this.doc.layers.map((_, i) => new Float32Array(rows * this.widths[i + 1]));
+    for (let start = 0; start < rows; start += EVAL_ROWS) {
+      const n = Math.min(EVAL_ROWS, rows - start);
+      const { tape } = this.pass(x.subarray(start * this.inputs, (start + n) * this.inputs), n, null);
+      this.plan.forEach((p, pi) => {
+        const width = this.widths[p.index + 1];
+        const isLast = pi === this.plan.length - 1;
+        const layerOut = p.kind === 'dropout' ? tape.inputs[pi] : isLast && this.preActivation ? tape.z[pi]! : tape.y[pi]!;
+        outs[p.index].set(layerOut.subarray(0, n * width), start * width);
+      });
+    }
+    return outs;
+  }
+
+  /** One forward; `ctx` null is inference (no dropout). */
+  private pass(x: Float32Array | Float64Array, rows: number, ctx: ForwardContext | null): { tape: FastTape; out: Float32Array } {
     const k = this.ensureCapacity(rows);
     const mem = new Float32Array(k.memory.buffer);
     const tape: FastTape = { rows, inputs: [], z: [], y: [], masks: [], disposed: false };
-    let h: Float32Array = new Float32Array(rows * this.inputs);
-    for (let i = 0; i < h.length; i++) h[i] = x[i];
+    const f = this.inputs;
+    let h: Float32Array = x instanceof Float32Array ? x.slice(0, rows * f) : Float32Array.from(x.subarray(0, rows * f));
     if (this.norm) {
       const { shift, scale } = this.norm;
-      const f = this.inputs;
-      for (let i = 0; i < h.length; i++) h[i] = (h[i] - shift[i % f]) * scale[i % f];
+      for (let r = 0; r < rows; r++) {
+        const o = r * f;
+        for (let c = 0; c < f; c++) h[o + c] = (h[o + c] - shift[c]) * scale[c];
+      }
     }
     let out: Float32Array = h;
-    for (const p of this.plan) {
+    for (let pi = 0; pi < this.plan.length; pi++) {
+      const p = this.plan[pi];
       tape.inputs.push(h);
       if (p.kind === 'dropout') {
-        const mask = ctx.training ? ctx.dropoutMask(p.index, rows, p.width, p.rate) : null;
-        const next = mask ? h.map((v, i) => v * mask[i]) : h;
+        const mask = ctx?.training ? ctx.dropoutMask(p.index, rows, p.width, p.rate) : null;
+        let next = h;
+        if (mask) {
+          next = new Float32Array(h.length);
+          for (let i = 0; i < h.length; i++) next[i] = h[i] * mask[i];
+        }
         tape.masks.push(mask);
         tape.z.push(null);
         tape.y.push(null);
@@ -159,10 +203,10 @@ export class FastTrainSession {
       const y = activate(z, rows, units, p.layer.activation, p.layer.alpha);
       tape.z.push(z);
       tape.y.push(y);
-      out = this.preActivation && p === this.plan[this.plan.length - 1] ? z : y;
+      out = this.preActivation && pi === this.plan.length - 1 ? z : y;
       h = y;
     }
-    return { rows, out, stats: this.doc.layers.map(() => null), tape };
+    return { tape, out };
   }
 
   /**
@@ -219,14 +263,20 @@ export class FastTrainSession {
     f.tape.disposed = true;
   }
 
-  /** Copy the document's weights into the kernel again after the caller changed them. */
-  refresh(): void {
+  /**
+   * Copy the document's weights into the kernel again after the caller changed them: those of
+   * `layers`, or (when omitted) every layer and the input normalisation.
+   */
+  refresh(layers?: Iterable<number>): void {
+    if (layers === undefined) this.norm = foldNormalisation(this.doc.normalise, this.inputs);
     if (!this.kernel) return;
+    const wanted = layers === undefined ? null : new Set(layers);
     const mem = new Float32Array(this.kernel.memory.buffer);
     for (const p of this.plan) {
-      if (p.kind !== 'dense') continue;
+      if (p.kind !== 'dense' || (wanted && !wanted.has(p.index))) continue;
       const units = p.layer.units;
-      for (let r = 0; r < p.inReal; r++) mem.set(p.layer.weight.subarray(r * units, (r + 1) * units), p.w / 4 + r * p.outP);
+      if (units === p.outP) mem.set(p.layer.weight, p.w / 4);
+      else for (let r = 0; r < p.inReal; r++) mem.set(p.layer.weight.subarray(r * units, (r + 1) * units), p.w / 4 + r * p.outP);
       mem.set(p.layer.bias, p.b / 4);
     }
   }
