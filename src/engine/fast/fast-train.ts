@@ -197,13 +197,18 @@ export class FastTrainSession {
       tape.masks.push(null);
       // h (compact, width inReal) into the kernel's input region with row stride inP.
       putRows(mem, this.scratch.a, h, rows, p.inReal, p.inP);
-      k.dense(this.scratch.a, p.w, p.b, this.scratch.out, rows, p.inP, p.outP, 0);
+      // ReLU is fused into the kernel's store. Its backward only asks whether z > 0, which is
+      // whether y > 0, so the tape keeps y in z's place.
+      const relu = p.layer.activation === 'relu';
+      k.dense(this.scratch.a, p.w, p.b, this.scratch.out, rows, p.inP, p.outP, relu ? 1 : 0);
       const units = p.layer.units;
       const z = takeRows(mem, this.scratch.out, rows, p.outP, units);
-      const y = activate(z, rows, units, p.layer.activation, p.layer.alpha);
+      const logits = this.preActivation && pi === this.plan.length - 1;
+      // The loss reads the logits directly, so the last activation is never needed.
+      const y = relu || logits ? z : activate(z, rows, units, p.layer.activation, p.layer.alpha);
       tape.z.push(z);
       tape.y.push(y);
-      out = this.preActivation && pi === this.plan.length - 1 ? z : y;
+      out = logits ? z : y;
       h = y;
     }
     return { tape, out };
