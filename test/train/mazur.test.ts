@@ -24,9 +24,10 @@ describe('one SGD step on the 2-2-2 network (src/train/tune.ts; Mazur 2015 worke
   it.each([
     ['reference', 7],
     ['engine', 6],
+    ['fast', 6],
   ] as const)('tune on the %s path stores all eight weights to float32 precision (%i digits)', async (path, digits) => {
     const start = mazurDoc();
-    const { doc, history } = await tune(
+    const { doc, history, path: used } = await tune(
       start,
       { x: Float64Array.of(0.05, 0.1), rows: 1, y: Float64Array.of(0.01, 0.99) },
       { path, optimizer: 'sgd', lr: 0.5, epochs: 1, batch: 1, loss: 'half_sse', freezeTensors: ['layers[0].bias', 'layers[1].bias'] },
@@ -42,5 +43,6 @@ describe('one SGD step on the 2-2-2 network (src/train/tune.ts; Mazur 2015 worke
     // Mazur 2015: E_total = 0.298371109 before the step (the batch loss of the only batch).
     expect(history[0].batchLoss).toBeCloseTo(0.298371109, path === 'reference' ? 8 : 6);
     expect(history[0].updates).toBe(1);
+    expect(used).toBe(path);
   });
 });
