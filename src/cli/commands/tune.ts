@@ -3,7 +3,7 @@ import { UsageError } from '../../errors.js';
 import { readModelFile, writeModelFile } from '../../format/index.js';
 import { renderReport } from '../../train/report.js';
 import { tune as tuneModel, type EpochRecord, type TuneRunOptions } from '../../train/tune.js';
-import { useEngine } from '../../engine/index.js';
+import { ensureEngine, useEngine } from '../../engine/index.js';
 import { buildModelFromSpecFile } from './pack.js';
 import { noExtraPositionals, parseArgs, requireFlag, requirePositional } from '../args.js';
 import type { Command } from '../command.js';
@@ -65,8 +65,10 @@ export const tune: Command = {
     const holdoutData = f['holdout-file'] ? await loadTrainingData(doc, f['holdout-file'], targets) : undefined;
     const replay = f.replay ? await loadTrainingData(doc, f.replay, targets) : undefined;
     const choice = parseEngine(f.engine);
-    // Training runs on tfjs here; 'auto' and 'fast' take the fastest tfjs backend.
-    const engine = await useEngine(choice === 'js' || choice === 'wasm' ? choice : 'auto');
+    // auto: tune picks the fast kernel when the model allows it; js / wasm: the tfjs engine path.
+    if (choice === 'js' || choice === 'wasm') await useEngine(choice);
+    else await useEngine('auto');
+    const path = choice === 'js' || choice === 'wasm' ? 'engine' : choice === 'fast' ? 'fast' : undefined;
 
     const options: TuneRunOptions = {
       epochs: f.epochs,
@@ -89,6 +91,7 @@ export const tune: Command = {
       normalisation: f.normalisation,
       loss: f.loss,
       parent: parent ? { checksum: parent.checksum, source: modelPath } : undefined,
+      path,
     };
 
     const bar = progressLine((t) => io.err(t), io.interactive && log === 'text');
@@ -97,7 +100,7 @@ export const tune: Command = {
       bar.clear();
       io.out(line + '\n');
     };
-    if (log === 'text') say(`tuning ${modelPath} on ${grouped(data.rows)} rows of ${dataPath} (${engine} engine)`);
+    if (log === 'text') say(`tuning ${modelPath} on ${grouped(data.rows)} rows of ${dataPath}`);
     const result = await tuneModel(doc, data, options, {
       signal: io.signal,
       onBatch: (p) => {
@@ -142,8 +145,9 @@ export const tune: Command = {
     }
     const written = await writeModelFile(out, result.doc);
     const seconds = (performance.now() - started) / 1000;
-    const summary = `saved ${out} (checksum ${written.checksum}) after ${result.history.length} epochs in ${seconds.toFixed(1)} s; weights from epoch ${result.bestEpoch + 1}${result.stoppedEarly ? ' (stopped early)' : ''}`;
-    if (log === 'jsonl') io.out(JSON.stringify({ saved: out, checksum: written.checksum, epochs: result.history.length, bestEpoch: result.bestEpoch, stoppedEarly: result.stoppedEarly }) + '\n');
+    const ran = result.path === 'fast' ? 'the fast kernel' : result.path === 'engine' ? `the tfjs ${ensureEngine()} engine` : 'the float64 reference';
+    const summary = `saved ${out} (checksum ${written.checksum}) after ${result.history.length} epochs in ${seconds.toFixed(1)} s on ${ran}; weights from epoch ${result.bestEpoch + 1}${result.stoppedEarly ? ' (stopped early)' : ''}`;
+    if (log === 'jsonl') io.out(JSON.stringify({ saved: out, checksum: written.checksum, epochs: result.history.length, bestEpoch: result.bestEpoch, stoppedEarly: result.stoppedEarly, path: result.path }) + '\n');
     else io.out(summary + '\n');
     return 0;
   },
