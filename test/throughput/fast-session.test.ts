@@ -1,6 +1,6 @@
 import { describe, expect, it } from 'vitest';
 import { FastSession } from '../../src/engine/fast/fast-session.js';
-import { instantiateDenseKernel } from '../../src/engine/fast/dense-kernel.js';
+import { instantiateDenseKernel, relaxedMaddAvailable } from '../../src/engine/fast/dense-kernel.js';
 import { referenceForward, toMat64 } from '../../src/reference/index.js';
 import { SeededRng, type ActivationName, type BatchNormLayer, type ModelDoc } from '../../src/model/index.js';
 import { denseStackDoc, seededRows } from '../../src/bench/models.js';
@@ -21,29 +21,40 @@ function worstAgainstReference(doc: ModelDoc, rows: number, seed: number, chunkR
 const TOL = 2e-5;
 
 describe('FastSession (own WebAssembly SIMD dense kernel)', () => {
-  it('computes 4-row and single-row tiles like a plain product loop written in the test, with and without ReLU', () => {
-    const nIn = 5;
-    const outP = 16;
-    const rows = 6; // one block of 4 rows and two single rows
-    const k = instantiateDenseKernel(1 << 16);
-    const f = new Float32Array(k.memory.buffer);
-    const rng = new SeededRng(4);
-    const xo = 0, wo = 64, bo = 256, yo = 512;
-    for (let i = 0; i < rows * nIn; i++) f[xo + i] = rng.normal();
-    for (let i = 0; i < nIn * outP; i++) f[wo + i] = rng.normal();
-    for (let i = 0; i < outP; i++) f[bo + i] = rng.normal();
-    for (const relu of [0, 1]) {
-      k.dense(xo * 4, wo * 4, bo * 4, yo * 4, rows, nIn, outP, relu);
-      for (let r = 0; r < rows; r++) {
-        for (let j = 0; j < outP; j++) {
-          let s = f[bo + j]!;
-          for (let q = 0; q < nIn; q++) s += f[xo + r * nIn + q]! * f[wo + q * outP + j]!;
-          if (relu) s = Math.max(s, 0);
-          expect(Math.abs(f[yo + r * outP + j]! - s)).toBeLessThan(1e-5);
+  // Both accumulation forms: plain multiply then add, and f32x4.relaxed_madd where it validates.
+  const forms = [false, ...(relaxedMaddAvailable() ? [true] : [])];
+  it.each(forms.flatMap((fused) => [5, 300].map((nIn) => [fused, nIn] as const)))(
+    'computes 4-row tiles and single rows like a plain product loop written in the test (fused %s, %i inputs), with and without ReLU',
+    (fused, nIn) => {
+      const outP = 48; // odd multiple of 16: whole 8-column tiles and a 16-column remainder
+      const rows = 6; // one block of 4 rows and two single rows
+      const k = instantiateDenseKernel(1 << 20, { fused });
+      const f = new Float32Array(k.memory.buffer);
+      const rng = new SeededRng(4);
+      const xo = 0, wo = 4096, bo = 32768, yo = 40960;
+      for (let i = 0; i < rows * nIn; i++) f[xo + i] = rng.normal();
+      for (let i = 0; i < nIn * outP; i++) f[wo + i] = rng.normal();
+      for (let i = 0; i < outP; i++) f[bo + i] = rng.normal();
+      for (const relu of [0, 1]) {
+        k.dense(xo * 4, wo * 4, bo * 4, yo * 4, rows, nIn, outP, relu);
+        for (let r = 0; r < rows; r++) {
+          for (let j = 0; j < outP; j++) {
+            let s = f[bo + j]!;
+            let magnitude = Math.abs(s);
+            for (let q = 0; q < nIn; q++) {
+              const term = f[xo + r * nIn + q]! * f[wo + q * outP + j]!;
+              s += term;
+              magnitude += Math.abs(term);
+            }
+            if (relu) s = Math.max(s, 0);
+            // Recursive summation in float32: |error| <= n·u·Σ|terms|, u = 2^-24 (Higham 2002, Accuracy and Stability of Numerical Algorithms, 4.2).
+            const bound = (nIn + 1) * 2 ** -24 * magnitude;
+            expect(Math.abs(f[yo + r * outP + j]! - s), `row ${r} column ${j}`).toBeLessThanOrEqual(bound);
+          }
         }
       }
-    }
-  });
+    },
+  );
 
   it.each([
     ['relu', 'linear'],
@@ -91,10 +102,10 @@ describe('FastSession (own WebAssembly SIMD dense kernel)', () => {
     expect(() => fast.run(new Float32Array(7), 2)).toThrow(ShapeError);
   });
 
-  it('gives a row the same bits whatever else shares its batch (4-row tiles and single rows sum alike)', () => {
+  it.each(forms)('gives a row the same bits whatever else shares its batch (4-row tiles and single rows sum alike; fused %s)', (fused) => {
     for (const widths of [[7, 32, 16, 3], [513, 40, 3], [784, 64, 10]]) {
       const doc = denseStackDoc(widths, 3);
-      const fast = new FastSession(doc);
+      const fast = new FastSession(doc, { kernel: { fused } });
       const rows = 11; // two 4-row tiles and three single rows
       const x = seededRows(rows, doc.inputs, 5);
       const together = fast.run(x, rows);

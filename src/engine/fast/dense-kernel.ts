@@ -5,62 +5,98 @@
  *
  * Loop order (why): column blocks of 8 outer, rows inner. An 8-wide column panel of W is
  * nIn x 32 bytes (25 KiB for 784 inputs) and stays in L1 while every row block of the batch
- * streams past it; x (rows x nIn) stays in L2. Rows go 4 at a time: 4 x 8 outputs are 8 v128
- * accumulators, plus 2 weight vectors and a splat, which fits the 16 SIMD registers of x86-64.
- * Each output sums its products in ascending k after starting from the bias.
+ * streams past it; x (rows x nIn) stays in L2. Rows go TILE_ROWS at a time: TILE_ROWS x 8
+ * outputs are 2·TILE_ROWS v128 accumulators, plus 2 weight vectors and a splat; V8 on x86-64
+ * allocates 15 of the 16 SIMD registers (one is its scratch), which bounds the tile.
+ * Each output sums its products in ascending k after starting from the bias, with the same
+ * multiply-add instruction in every tile shape, so a row's bits never depend on its batch.
  */
+import { setFlagsFromString } from 'node:v8';
 import { Code, I32, V128, moduleBytes, type FunctionDef } from './wasm-emit.js';
 
 // Parameters of dense(x, w, b, y, rows, nIn, outP, relu): byte addresses and counts.
 const X = 0, W = 1, B = 2, Y = 3, ROWS = 4, NIN = 5, OUTP = 6, RELU = 7;
-// Locals.
-const R = 8, J = 9, K = 10, WP = 11, XP0 = 12, XP1 = 13, XP2 = 14, XP3 = 15, YP = 16, XSTRIDE = 17, WSTRIDE = 18;
-const ACC = 19; // 8 v128 accumulators: ACC + 0..7
-const W0 = 27, W1 = 28, S = 29, ZERO = 30;
-// i32 locals after the v128 ones: start and length of the current k block, and whether it is the last.
-const K0 = 31, KLEN = 32, LAST = 33;
+
 /**
- * Inputs per k block. A block's W panel (KB x 8 floats for 4-row tiles, KB x 16 for single rows)
+ * Inputs per k block. A block's W panel (KB x 8 floats for row tiles, KB x 16 for single rows)
  * stays in L1 while the rows stream past; partial sums wait in y between blocks, which changes
  * nothing numerically (the accumulators are float32 either way) and keeps the order of k.
  */
 const KB = 256;
 
-function denseFunction(): FunctionDef {
+/**
+ * Rows per register tile. 4 x 8 keeps 8 accumulators, 2 weight vectors and 4 splats in
+ * registers, and the inner loop is 8 fused multiply-adds to 6 loads, which is what two FMA pipes
+ * take per 4 cycles. Tiles of 5 and 6 rows measured 30-40% slower (784-512-256-10, batch 256):
+ * the extra accumulators and row pointers spill.
+ */
+const TILE_ROWS = 4;
+
+export interface KernelOptions {
+  /** Accumulate with f32x4.relaxed_madd (default: when the runtime validates it; true where it does not throws). */
+  readonly fused?: boolean;
+}
+
+function denseFunction(fused: boolean): FunctionDef {
+  // Locals after the 8 parameters, i32 first, then v128.
+  let next = 8;
+  const i32Local = (): number => next++;
+  const R = i32Local(), J = i32Local(), K = i32Local(), WP = i32Local(), YP = i32Local();
+  const XSTRIDE = i32Local(), WSTRIDE = i32Local();
+  // Start and length of the current k block, whether it is the last, first row of the single-row tail.
+  const K0 = i32Local(), KLEN = i32Local(), LAST = i32Local(), TAIL = i32Local();
+  const XP = Array.from({ length: TILE_ROWS }, i32Local);
+  const i32Count = next - 8;
+  const v128Local = (): number => next++;
+  const ACC = Array.from({ length: 2 * TILE_ROWS }, v128Local);
+  const W0 = v128Local(), W1 = v128Local(), S = v128Local(), ZERO = v128Local();
+  const v128Count = next - 8 - i32Count;
+
   const c = new Code();
+  /** acc += a·b, where `push` leaves a and b on the stack. One instruction sequence for every tile. */
+  const accumulate = (acc: number, push: () => void): void => {
+    if (fused) {
+      push();
+      c.get(acc).f32x4RelaxedMadd().set(acc);
+    } else {
+      c.get(acc);
+      push();
+      c.f32x4Mul().f32x4Add().set(acc);
+    }
+  };
+
   // Strides in bytes.
   c.get(NIN).i32(4).mul().set(XSTRIDE);
   c.get(OUTP).i32(4).mul().set(WSTRIDE);
   c.v128Zero().set(ZERO);
 
-  /** One tile of `tileRows` rows (1 or 4) x 8 columns at row R, column J. */
+  /** One tile of `tileRows` rows x 8 columns at row R, column J. */
   const tile = (tileRows: number): void => {
     // Accumulators start at the bias in the first k block, else at the partial sums in y.
     c.get(Y).get(R).get(WSTRIDE).mul().add().get(J).i32(4).mul().add().set(YP);
     c.get(K0).eqz().if();
     {
       c.get(B).get(J).i32(4).mul().add().set(WP); // WP reused briefly as the bias pointer
-      c.get(WP).v128Load(0).set(ACC);
-      c.get(WP).v128Load(16).set(ACC + 1);
+      c.get(WP).v128Load(0).set(ACC[0]);
+      c.get(WP).v128Load(16).set(ACC[1]);
       for (let t = 1; t < tileRows; t++) {
-        c.get(ACC).set(ACC + 2 * t);
-        c.get(ACC + 1).set(ACC + 2 * t + 1);
+        c.get(ACC[0]).set(ACC[2 * t]);
+        c.get(ACC[1]).set(ACC[2 * t + 1]);
       }
     }
     c.else();
     {
       c.get(YP).set(WP);
       for (let t = 0; t < tileRows; t++) {
-        c.get(WP).v128Load(0).set(ACC + 2 * t);
-        c.get(WP).v128Load(16).set(ACC + 2 * t + 1);
+        c.get(WP).v128Load(0).set(ACC[2 * t]);
+        c.get(WP).v128Load(16).set(ACC[2 * t + 1]);
         c.get(WP).get(WSTRIDE).add().set(WP);
       }
     }
     c.end();
     // Row pointers into x, at column K0.
-    c.get(X).get(R).get(XSTRIDE).mul().add().get(K0).i32(4).mul().add().set(XP0);
-    const xps = [XP0, XP1, XP2, XP3];
-    for (let t = 1; t < tileRows; t++) c.get(xps[t - 1]).get(XSTRIDE).add().set(xps[t]);
+    c.get(X).get(R).get(XSTRIDE).mul().add().get(K0).i32(4).mul().add().set(XP[0]);
+    for (let t = 1; t < tileRows; t++) c.get(XP[t - 1]).get(XSTRIDE).add().set(XP[t]);
     c.get(W).get(K0).get(WSTRIDE).mul().add().get(J).i32(4).mul().add().set(WP);
     c.get(KLEN).set(K);
     c.block().loop();
@@ -68,57 +104,95 @@ function denseFunction(): FunctionDef {
       c.get(WP).v128Load(0).set(W0);
       c.get(WP).v128Load(16).set(W1);
       for (let t = 0; t < tileRows; t++) {
-        c.get(xps[t]).load32Splat(0).set(S);
-        c.get(ACC + 2 * t).get(S).get(W0).f32x4Mul().f32x4Add().set(ACC + 2 * t);
-        c.get(ACC + 2 * t + 1).get(S).get(W1).f32x4Mul().f32x4Add().set(ACC + 2 * t + 1);
-        c.get(xps[t]).i32(4).add().set(xps[t]);
+        c.get(XP[t]).load32Splat(0).set(S);
+        accumulate(ACC[2 * t], () => c.get(S).get(W0));
+        accumulate(ACC[2 * t + 1], () => c.get(S).get(W1));
+        c.get(XP[t]).i32(4).add().set(XP[t]);
       }
       c.get(WP).get(WSTRIDE).add().set(WP);
       c.get(K).i32(1).sub().tee(K).i32(0).ne().brIf(0);
     }
     c.end().end();
     c.get(RELU).get(LAST).and().if();
-    for (let a = 0; a < 2 * tileRows; a++) c.get(ACC + a).get(ZERO).f32x4Max().set(ACC + a);
+    for (let a = 0; a < 2 * tileRows; a++) c.get(ACC[a]).get(ZERO).f32x4Max().set(ACC[a]);
     c.end();
     // Store: y[(R + t) * outP + J ...].
     for (let t = 0; t < tileRows; t++) {
-      c.get(YP).get(ACC + 2 * t).v128Store(0);
-      c.get(YP).get(ACC + 2 * t + 1).v128Store(16);
+      c.get(YP).get(ACC[2 * t]).v128Store(0);
+      c.get(YP).get(ACC[2 * t + 1]).v128Store(16);
       if (t < tileRows - 1) c.get(YP).get(WSTRIDE).add().set(YP);
     }
   };
 
   /**
-   * One row x 16 columns (a whole 64-byte line of W per k): a lone row has no row reuse, so
-   * W's cache lines should be used whole. The sums run in ascending k from the bias, exactly as
-   * in the 4-row tiles, so a row's answer never depends on which other rows share its batch
-   * (a service gives the same answer alone or under load).
+   * One row, all columns, streaming W in memory order: y[R, :] += x[R, k] · W[k, :] for each k of
+   * the block, the running sums kept in y (L1-resident: one row of outputs). A lone row has no
+   * row reuse, so reading W is the whole cost, and reading it front to back is what the
+   * hardware prefetcher serves best. Each output still sums from the bias in ascending k with
+   * the same multiply-add as the row tiles, so a row's answer never depends on which other rows
+   * share its batch (a service gives the same answer alone or under load).
    */
-  const rowTile = (): void => {
+  const rowStream = (): void => {
+    // YP = &y[R, 0]; in the first k block the sums start at the bias.
+    c.get(Y).get(R).get(WSTRIDE).mul().add().set(YP);
     c.get(K0).eqz().if();
-    c.get(B).get(J).i32(4).mul().add().set(WP);
-    c.else();
-    c.get(Y).get(R).get(WSTRIDE).mul().add().get(J).i32(4).mul().add().set(WP);
+    {
+      c.i32(0).set(J);
+      c.block().loop();
+      {
+        c.get(YP).get(J).add().get(B).get(J).add().v128Load(0).v128Store(0);
+        c.get(J).i32(16).add().tee(J).get(WSTRIDE).ltU().brIf(0);
+      }
+      c.end().end();
+    }
     c.end();
-    for (let q = 0; q < 4; q++) c.get(WP).v128Load(16 * q).set(ACC + q);
-    c.get(W).get(K0).get(WSTRIDE).mul().add().get(J).i32(4).mul().add().set(WP);
+    c.get(X).get(R).get(XSTRIDE).mul().add().get(K0).i32(4).mul().add().set(XP[0]);
+    c.get(W).get(K0).get(WSTRIDE).mul().add().set(WP);
     c.get(KLEN).set(K);
-    c.get(X).get(R).get(XSTRIDE).mul().add().get(K0).i32(4).mul().add().set(XP0);
     c.block().loop();
     {
-      c.get(XP0).load32Splat(0).set(S);
-      for (let q = 0; q < 4; q++) c.get(ACC + q).get(S).get(WP).v128Load(16 * q).f32x4Mul().f32x4Add().set(ACC + q);
+      c.get(XP[0]).load32Splat(0).set(S);
+      // for (J = 0; J < outP * 4; J += 64): 16 columns of y at YP + J from W at WP + J.
+      c.i32(0).set(J);
+      c.block().loop();
+      {
+        for (let q = 0; q < 4; q++) {
+          c.get(YP).get(J).add();
+          if (fused) c.get(S).get(WP).get(J).add().v128Load(16 * q).get(YP).get(J).add().v128Load(16 * q).f32x4RelaxedMadd();
+          else c.get(YP).get(J).add().v128Load(16 * q).get(S).get(WP).get(J).add().v128Load(16 * q).f32x4Mul().f32x4Add();
+          c.v128Store(16 * q);
+        }
+        c.get(J).i32(64).add().tee(J).get(WSTRIDE).ltU().brIf(0);
+      }
+      c.end().end();
       c.get(WP).get(WSTRIDE).add().set(WP);
-      c.get(XP0).i32(4).add().set(XP0);
+      c.get(XP[0]).i32(4).add().set(XP[0]);
       c.get(K).i32(1).sub().tee(K).i32(0).ne().brIf(0);
     }
     c.end().end();
-    for (let q = 0; q < 4; q++) {
-      c.get(RELU).get(LAST).and().if();
-      c.get(ACC + q).get(ZERO).f32x4Max().set(ACC + q);
-      c.end();
-      c.get(Y).get(R).get(WSTRIDE).mul().add().get(J).i32(4).mul().add().get(ACC + q).v128Store(16 * q);
+    c.get(RELU).get(LAST).and().if();
+    {
+      c.i32(0).set(J);
+      c.block().loop();
+      {
+        c.get(YP).get(J).add().get(YP).get(J).add().v128Load(0).get(ZERO).f32x4Max().v128Store(0);
+        c.get(J).i32(16).add().tee(J).get(WSTRIDE).ltU().brIf(0);
+      }
+      c.end().end();
     }
+    c.end();
+  };
+
+  /** while (R + rows <= ROWS) { tile(rows); R += rows } */
+  const rowLoop = (tileRows: number): void => {
+    c.block().loop();
+    {
+      c.get(R).i32(tileRows).add().get(ROWS).gtU().brIf(1);
+      tile(tileRows);
+      c.get(R).i32(tileRows).add().set(R);
+      c.br(0);
+    }
+    c.end().end();
   };
 
   // for (K0 = 0; K0 < nIn; K0 += KB), KLEN = min(KB, nIn - K0)
@@ -131,38 +205,25 @@ function denseFunction(): FunctionDef {
   c.end();
   c.get(K0).get(KLEN).add().get(NIN).geU().set(LAST);
 
-  // Blocks of 4 rows: for (J = 0; J < outP; J += 8) for (R = 0; R + 4 <= rows; R += 4) tile(4)
+  // Row tiles: for (J = 0; J < outP; J += 8) tiles of TILE_ROWS rows; TAIL = first row left over
   c.i32(0).set(J);
+  c.i32(0).set(TAIL);
   c.block().loop();
   {
     c.get(J).get(OUTP).geU().brIf(1);
     c.i32(0).set(R);
-    c.block().loop();
-    {
-      c.get(R).i32(4).add().get(ROWS).gtU().brIf(1);
-      tile(4);
-      c.get(R).i32(4).add().set(R);
-      c.br(0);
-    }
-    c.end().end();
+    rowLoop(TILE_ROWS);
+    c.get(R).set(TAIL);
     c.get(J).i32(8).add().set(J);
     c.br(0);
   }
   c.end().end();
-  // The last rows % 4 rows, one at a time: for (R = rows - rows % 4; R < rows; R++) for (J = 0; J < outP; J += 16)
-  c.get(ROWS).get(ROWS).i32(3).and().sub().set(R);
+  // The rows left over, one at a time: for (R = TAIL; R < rows; R++) rowStream()
+  c.get(TAIL).set(R);
   c.block().loop();
   {
     c.get(R).get(ROWS).geU().brIf(1);
-    c.i32(0).set(J);
-    c.block().loop();
-    {
-      c.get(J).get(OUTP).geU().brIf(1);
-      rowTile();
-      c.get(J).i32(16).add().set(J);
-      c.br(0);
-    }
-    c.end().end();
+    rowStream();
     c.get(R).i32(1).add().set(R);
     c.br(0);
   }
@@ -172,8 +233,36 @@ function denseFunction(): FunctionDef {
   c.br(0);
   c.end().end();
 
-  const locals = [...new Array<number>(WSTRIDE - R + 1).fill(I32), ...new Array<number>(8 + 4).fill(V128), I32, I32, I32];
+  const locals = [...new Array<number>(i32Count).fill(I32), ...new Array<number>(v128Count).fill(V128)];
   return { name: 'dense', params: [I32, I32, I32, I32, I32, I32, I32, I32], locals, code: c };
+}
+
+/**
+ * Whether f32x4.relaxed_madd validates here. Node 20's V8 has relaxed SIMD behind a flag, so the
+ * flag is switched on first (process-wide, which also covers worker threads); validation alone
+ * decides, so a runtime that refuses the flag simply keeps the plain multiply and add.
+ */
+let relaxedMadd: boolean | null = null;
+export function relaxedMaddAvailable(): boolean {
+  if (relaxedMadd !== null) return relaxedMadd;
+  const probe = new Code().get(0).get(1).get(2).f32x4RelaxedMadd();
+  const bytes = moduleBytes(1, [{ name: 'probe', params: [V128, V128, V128], results: [V128], locals: [], code: probe }]);
+  const validate = (): boolean => {
+    try {
+      return wasmApi().validate(bytes);
+    } catch {
+      return false;
+    }
+  };
+  if (!validate()) {
+    try {
+      setFlagsFromString('--experimental-wasm-relaxed-simd');
+    } catch {
+      // No such flag on this runtime: the plain kernel serves.
+    }
+  }
+  relaxedMadd = validate();
+  return relaxedMadd;
 }
 
 /** The little of the WebAssembly JS API used here (this project's TypeScript libs do not declare it). */
@@ -182,6 +271,7 @@ interface WasmMemory {
 }
 interface WasmApi {
   readonly Module: new (bytes: Uint8Array) => object;
+  readonly validate: (bytes: Uint8Array) => boolean;
   readonly Instance: new (module: object, imports: object) => { readonly exports: Record<string, unknown> };
 }
 
@@ -204,11 +294,18 @@ export interface DenseKernel {
   dense(x: number, w: number, b: number, y: number, rows: number, nIn: number, outP: number, relu: number): void;
 }
 
-/** Compile the kernel with a memory of `bytes` (rounded up to 64 KiB pages). */
-export function instantiateDenseKernel(bytes: number): DenseKernel {
+/**
+ * Compile the kernel with a memory of `bytes` (rounded up to 64 KiB pages).
+ * @example const k = instantiateDenseKernel(1 << 20); k.dense(x, w, b, y, rows, nIn, outP, 1);
+ */
+export function instantiateDenseKernel(bytes: number, options: KernelOptions = {}): DenseKernel {
   const pages = Math.max(1, Math.ceil(bytes / 65536));
   const wasm = wasmApi();
-  const instance = new wasm.Instance(new wasm.Module(moduleBytes(pages, [denseFunction()])), {});
+  // Asking for the fused kernel still goes through detection, which switches the V8 flag on.
+  const available = relaxedMaddAvailable();
+  const fused = options.fused ?? available;
+  if (fused && !available) throw new Error('fast dense kernel: f32x4.relaxed_madd is not available in this runtime');
+  const instance = new wasm.Instance(new wasm.Module(moduleBytes(pages, [denseFunction(fused)])), {});
   const { memory, dense } = instance.exports;
   if (!isMemory(memory) || typeof dense !== 'function') throw new Error('fast dense kernel: unexpected exports');
   return {

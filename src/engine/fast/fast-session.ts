@@ -10,7 +10,7 @@
  */
 import { ShapeError } from '../../errors.js';
 import { modelWidths, validateModel, type ActivationName, type Layer, type ModelDoc, type Normalisation } from '../../model/index.js';
-import { instantiateDenseKernel, type DenseKernel } from './dense-kernel.js';
+import { instantiateDenseKernel, type DenseKernel, type KernelOptions } from './dense-kernel.js';
 
 /** Columns are padded to this many floats (the kernel's widest tile). */
 const PAD = 16;
@@ -25,6 +25,8 @@ export interface FastSessionOptions {
   readonly chunkRows?: number;
   /** Names the model in validation errors. */
   readonly source?: string;
+  /** Kernel choices (tests and benchmarks compare the fused and plain multiply-add). */
+  readonly kernel?: KernelOptions;
 }
 
 /**
@@ -44,6 +46,7 @@ export class FastSession {
   /** Byte addresses of the input buffer and the two activation buffers. */
   private readonly xAddr: number;
   private readonly bufAddr: [number, number];
+  private readonly kernelOptions: KernelOptions;
   private disposed = false;
 
   constructor(
@@ -78,7 +81,8 @@ export class FastSession {
     bytes += this.chunkRows * this.inputs * 4;
     this.bufAddr = [bytes, bytes + this.chunkRows * maxWidth * 4];
     bytes += 2 * this.chunkRows * maxWidth * 4;
-    this.kernel = instantiateDenseKernel(bytes);
+    this.kernelOptions = opts.kernel ?? {};
+    this.kernel = instantiateDenseKernel(bytes, this.kernelOptions);
     const mem = new Float32Array(this.kernel.memory.buffer);
 
     this.steps = [];
@@ -163,7 +167,7 @@ export class FastSession {
     return this.doc.layers.map((_, i) => {
       if (i === this.doc.layers.length - 1) return this.run(data, rows);
       const prefix: ModelDoc = { ...this.doc, layers: this.doc.layers.slice(0, i + 1), labels: null };
-      return new FastSession(prefix, { chunkRows: this.chunkRows }).run(data, rows);
+      return new FastSession(prefix, { chunkRows: this.chunkRows, kernel: this.kernelOptions }).run(data, rows);
     });
   }
 

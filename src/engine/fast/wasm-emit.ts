@@ -133,6 +133,14 @@ export class Code {
   f32x4Mul(): this {
     return this.simd(0xe6);
   }
+  /**
+   * f32x4.relaxed_madd (relaxed-SIMD proposal, opcode 0xfd 0x105): a·b + c from the stack order
+   * a, b, c. Fused into one rounding where the CPU has FMA, else multiply then add; the choice is
+   * fixed per machine, so results are repeatable on it.
+   */
+  f32x4RelaxedMadd(): this {
+    return this.simd(0x105);
+  }
   /** f32x4.max: NaN in, NaN out, like a scalar max. */
   f32x4Max(): this {
     return this.simd(0xe9);
@@ -157,12 +165,17 @@ export interface FunctionDef {
   readonly params: readonly number[];
   /** Extra locals, by type, after the parameters. */
   readonly locals: readonly number[];
+  /** Result types; none when omitted. */
+  readonly results?: readonly number[];
   readonly code: Code;
 }
 
-/** A module with one exported memory ("memory", `pages` x 64 KiB) and the given exported functions (no results). */
+/**
+ * A module with one exported memory ("memory", `pages` x 64 KiB) and the given exported functions
+ * (no results unless a function says so).
+ */
 export function moduleBytes(pages: number, functions: readonly FunctionDef[]): Uint8Array {
-  const types = section(1, vec(functions.map((f) => [0x60, ...vec(f.params.map((p) => [p])), 0])));
+  const types = section(1, vec(functions.map((f) => [0x60, ...vec(f.params.map((p) => [p])), ...vec((f.results ?? []).map((r) => [r]))])));
   const funcs = section(3, vec(functions.map((_, i) => uleb(i))));
   const memory = section(5, vec([[0x00, ...uleb(pages)]]));
   const exports = section(7, vec([[...name('memory'), 0x02, 0], ...functions.map((f, i) => [...name(f.name), 0x00, ...uleb(i)])]));
