@@ -18,8 +18,8 @@ import { Code, I32, V128, moduleBytes, type FunctionDef } from './wasm-emit.js';
 const X = 0, W = 1, B = 2, Y = 3, ROWS = 4, NIN = 5, OUTP = 6, RELU = 7;
 
 /**
- * Inputs per k block. A block's W panel (KB x 8 floats for row tiles, KB x 16 for single rows)
- * stays in L1 while the rows stream past; partial sums wait in y between blocks, which changes
+ * Inputs per k block. A block's W panel (KB x 8 floats) stays in L1 while the row tiles stream
+ * past (128 to 800 measured alike at 784-512-256-10, batch 256); partial sums wait in y between blocks, which changes
  * nothing numerically (the accumulators are float32 either way) and keeps the order of k.
  */
 const KB = 256;
@@ -27,8 +27,8 @@ const KB = 256;
 /**
  * Rows per register tile. 4 x 8 keeps 8 accumulators, 2 weight vectors and 4 splats in
  * registers, and the inner loop is 8 fused multiply-adds to 6 loads, which is what two FMA pipes
- * take per 4 cycles. Tiles of 5 and 6 rows measured 30-40% slower (784-512-256-10, batch 256):
- * the extra accumulators and row pointers spill.
+ * take per 4 cycles. Tiles of 5 and 6 rows measured 30-40% slower (784-512-256-10, batch 256),
+ * presumably because the extra accumulators and row pointers no longer fit in registers.
  */
 const TILE_ROWS = 4;
 
@@ -53,7 +53,10 @@ function denseFunction(fused: boolean): FunctionDef {
   const v128Count = next - 8 - i32Count;
 
   const c = new Code();
-  /** acc += a·b, where `push` leaves a and b on the stack. One instruction sequence for every tile. */
+  /**
+   * acc += a·b, where `push` leaves a and b on the stack. The row tiles use this and the
+   * single-row pass spells out the same operand order, so every output sees one instruction.
+   */
   const accumulate = (acc: number, push: () => void): void => {
     if (fused) {
       push();
