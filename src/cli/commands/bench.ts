@@ -34,7 +34,8 @@ export const bench: Command = {
     // 'auto' measures what a service would get from openModel: fast, else wasm, else js.
     const engine = choice === 'auto' ? (await resolveEngine('auto')).engine : choice;
     const rows = await benchModel(doc, { batches, engine, minMs });
-    io.out(f.json ? JSON.stringify(rows, null, 2) + '\n' : formatBenchRows(rows));
+    const text = f.json ? JSON.stringify(rows, null, 2) : formatBenchRows(rows);
+    io.out(text.endsWith('\n') ? text : text + '\n');
     return 0;
   },
 };
