@@ -1,6 +1,6 @@
 /** Reading a data file as model input: columns matched by feature name when both sides have names. */
 import { DataError } from '../errors.js';
-import { openTable, resolveColumns, shownNames, type TableReader } from '../io/index.js';
+import { openTable, resolveColumns, shownNames, tableFormatOf, type TableReader } from '../io/index.js';
 import type { ModelDoc } from '../model/index.js';
 
 /**
@@ -26,9 +26,23 @@ export function inputColumns(doc: ModelDoc, table: Pick<TableReader, 'columns' |
   return Array.from({ length: doc.inputs }, (_, i) => i);
 }
 
+/**
+ * Columns of a headed CSV / JSONL file that `doc` does not read (IDs, labels, notes), so they
+ * can be read as text: a column the model ignores should not stop a run for not being numeric.
+ * Empty when the model has no feature names, the file no header, or the file is NPY.
+ */
+export async function unusedColumns(doc: ModelDoc, file: string, keep: readonly string[] = []): Promise<string[]> {
+  if (!doc.features || tableFormatOf(file) === 'npy') return [];
+  const probe = await openTable(file, { chunkRows: 1 });
+  const columns = probe.columns;
+  await probe.close();
+  if (!columns || !doc.features.every((f) => columns.includes(f))) return [];
+  return columns.filter((c) => !doc.features!.includes(c) && !keep.includes(c));
+}
+
 /** Stream a data file as float32 model inputs, chunk by chunk. */
 export async function* inputChunks(doc: ModelDoc, file: string, chunkRows: number): AsyncGenerator<{ rows: number; x: Float32Array; firstLine: number }> {
-  const table = await openTable(file, { chunkRows });
+  const table = await openTable(file, { chunkRows, textColumns: await unusedColumns(doc, file) });
   try {
     const cols = inputColumns(doc, table, file);
     for await (const chunk of table.chunks()) {

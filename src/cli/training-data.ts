@@ -6,6 +6,7 @@ import { DataError } from '../errors.js';
 import { openTable, readTable, resolveColumns, shownCell, shownNames, type LoadedTable } from '../io/index.js';
 import { modelWidths, type ModelDoc } from '../model/index.js';
 import type { TuneData } from '../train/config.js';
+import { unusedColumns } from './model-input.js';
 
 /** True when the model's targets are classes: a softmax output, or one sigmoid unit (0 / 1). */
 export function isClassifier(doc: ModelDoc): boolean {
@@ -23,7 +24,10 @@ export function isClassifier(doc: ModelDoc): boolean {
 export async function loadTrainingData(doc: ModelDoc, file: string, targets: readonly string[]): Promise<TuneData> {
   const classes = isClassifier(doc);
   const refs = targets.map((t) => (/^\d+$/.test(t) ? Number(t) : t));
-  const table = await readTable(file, classes ? { textColumns: refs } : {});
+  // Columns neither feature nor target (IDs, notes) are read as text and ignored.
+  const named = refs.filter((r): r is string => typeof r === 'string');
+  const ignored = await unusedColumns(doc, file, named);
+  const table = await readTable(file, { textColumns: [...(classes ? refs : []), ...ignored] });
   const targetCols = resolveColumns(table.columns, table.width, refs, file);
   const featureCols = featureColumns(doc, table, targetCols, file);
   const x = new Float32Array(table.rows * doc.inputs);

@@ -39,6 +39,16 @@ describe('tendon pack / show / run / check on NumPy-written tensors', () => {
     expect(o2).toBeCloseTo(0.772928465, 6);
   });
 
+  it('run ignores columns the model does not read, even when they are not numbers (IDs, labels)', async () => {
+    const input = join(dir, 'extra.csv');
+    const output = join(dir, 'extra-out.csv');
+    await writeFile(input, 'loaf,i2,note,i1\nA-17,0.10,"crust, dark",0.05\n');
+    const r = await runCli('run', model, '--input', input, '--output', output, '--engine', 'js');
+    expect(r.code).toBe(0);
+    const [o1] = (await readFile(output, 'utf8')).trim().split('\n')[1].split(',').map(Number);
+    expect(o1).toBeCloseTo(0.75136507, 6); // Mazur 2015
+  });
+
   it('run writes .jsonl and .npy outputs with one row per input row', async () => {
     const input = join(dir, 'in.jsonl');
     await writeFile(input, '{"i1": 0.05, "i2": 0.10}\n[0.05, 0.10]\n'.split('\n')[0] + '\n{"i1": 0.05, "i2": 0.10}\n');
