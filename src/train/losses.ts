@@ -18,6 +18,7 @@
  *   For one row this is exactly the "E_total" of the step-by-step backpropagation example.
  */
 import type { ActivationName } from '../model/types.js';
+import { softmax } from '../model/activations/softmax.js';
 
 export const LOSS_NAMES = ['cross_entropy', 'binary_cross_entropy', 'mse', 'half_sse'] as const;
 export type LossName = (typeof LOSS_NAMES)[number];
@@ -111,22 +112,9 @@ export function computeLoss(
   }
 }
 
-/** Row-wise softmax in float64, shifted by the row maximum so exp() never overflows. */
+/** Row-wise softmax in float64 (the activation's own reference forward: one definition). */
 export function softmaxRows(z: Float64Array, rows: number, cols: number): Float64Array {
-  const p = new Float64Array(rows * cols);
-  for (let r = 0; r < rows; r++) {
-    const o = r * cols;
-    let max = -Infinity;
-    for (let c = 0; c < cols; c++) max = Math.max(max, z[o + c]);
-    let sum = 0;
-    for (let c = 0; c < cols; c++) {
-      const e = Math.exp(z[o + c] - max);
-      p[o + c] = e;
-      sum += e;
-    }
-    for (let c = 0; c < cols; c++) p[o + c] /= sum;
-  }
-  return p;
+  return softmax.refForward(z, rows, cols, 0);
 }
 
 /**
