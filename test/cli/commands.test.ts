@@ -81,6 +81,26 @@ describe('tendon pack / show / run / check on NumPy-written tensors', () => {
   });
 });
 
+describe('tendon check when float32 cannot keep up', () => {
+  it('exits 1 and points at the layer when catastrophic cancellation breaks the tolerance (common practice)', async () => {
+    // y = 3e7·a - 3e7·b with a = 1.1, b = 1.0999999 (as float32): the exact answer is about
+    // 3.58, but each product near 3.3e7 can only be held to a spacing of 2 in float32, so the
+    // kernel's answer is off by about 0.7 (fused multiply-add) or 1.6 (separate rounding).
+    const spec = join(dir, 'cancel.json');
+    await writeFile(spec, JSON.stringify({ inputs: 2, layers: [{ kind: 'dense', size: 1, activation: 'linear', weight: [[3e7], [-3e7]], bias: [0] }] }));
+    const m = join(dir, 'cancel.tendon');
+    expect((await runCli('pack', spec, '-o', m)).code).toBe(0);
+    const rows = join(dir, 'cancel.csv');
+    await writeFile(rows, 'a,b\n1.1,1.0999999\n');
+    const r = await runCli('check', m, '--input', rows, '--engine', 'fast', '--json');
+    expect(r.code).toBe(1);
+    const report = JSON.parse(r.out);
+    expect(report.pass).toBe(false);
+    expect(report.layers[0].maxAbs).toBeGreaterThan(0.5);
+    expect(report.layers[0].maxAbs).toBeLessThan(2);
+  });
+});
+
 describe('one-line errors and exit codes', () => {
   const cases: [string, () => string[], RegExp, number][] = [
     ['unknown command', () => ['frobnicate'], /unknown command "frobnicate"/, 2],
