@@ -1,0 +1,58 @@
+/**
+ * Copies of a model document and of the arrays a run changes. The tune loop works on its own
+ * copy (the caller's document is never changed) and keeps snapshots of the changing arrays so
+ * it can hand back the last good weights after a divergence, or the best epoch's weights under
+ * early stopping.
+ */
+import type { Layer, ModelDoc } from '../model/index.js';
+import { copyNormalisation } from './normalisation.js';
+
+function cloneLayer(layer: Layer): Layer {
+  switch (layer.kind) {
+    case 'dense':
+      return { ...layer, weight: layer.weight.slice(), bias: layer.bias.slice() };
+    case 'batchnorm':
+      return { ...layer, gamma: layer.gamma.slice(), beta: layer.beta.slice(), runningMean: layer.runningMean.slice(), runningVariance: layer.runningVariance.slice() };
+    case 'dropout':
+      return { ...layer };
+  }
+}
+
+/**
+ * A deep copy: the result shares no array with `doc`.
+ *
+ * @example const work = cloneDoc(doc); work.layers[0] !== doc.layers[0] // true
+ */
+export function cloneDoc(doc: ModelDoc): ModelDoc {
+  return {
+    ...doc,
+    features: doc.features && [...doc.features],
+    labels: doc.labels && [...doc.labels],
+    normalise: doc.normalise && copyNormalisation(doc.normalise),
+    layers: doc.layers.map(cloneLayer),
+    meta: { ...doc.meta, extra: { ...doc.meta.extra } },
+    provenance: doc.provenance.map((p) => ({ ...p })),
+  };
+}
+
+/** Every float32 array the run changes (trainable tensors and batch-norm running statistics). */
+export function mutableArrays(doc: ModelDoc): Float32Array[] {
+  const out: Float32Array[] = [];
+  for (const l of doc.layers) {
+    if (l.kind === 'dense') out.push(l.weight, l.bias);
+    else if (l.kind === 'batchnorm') out.push(l.gamma, l.beta, l.runningMean, l.runningVariance);
+  }
+  return out;
+}
+
+/** Copies of `arrays`: new ones, or written into `into` (same shapes) to spare allocations each step. */
+export function snapshot(arrays: Float32Array[], into?: Float32Array[]): Float32Array[] {
+  if (!into) return arrays.map((a) => a.slice());
+  arrays.forEach((a, i) => into[i].set(a));
+  return into;
+}
+
+/** Write a snapshot back into the arrays it was taken from. */
+export function restore(arrays: Float32Array[], from: Float32Array[]): void {
+  arrays.forEach((a, i) => a.set(from[i]));
+}

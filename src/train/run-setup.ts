@@ -1,0 +1,118 @@
+/**
+ * Everything settled once before the first batch: the seeded random streams, where the steps
+ * run, starting values for layers stored without them, the loss's output activation, the
+ * normalisation block, the dropout masks of training mode, and the parent for provenance.
+ */
+import { TuneConfigError } from '../errors.js';
+import { encodeModel, checksumOf } from '../format/index.js';
+import { SeededRng, initDense, layerKind, type ActivationName, type ForwardContext, type ModelDoc } from '../model/index.js';
+import { wasmSimdAvailable } from '../engine/fast/dense-kernel.js';
+import { fastTrainBlocker } from '../engine/fast/fast-train.js';
+import { TRAIN_PATHS, type TrainPath } from './backends.js';
+import type { TuneData } from './config.js';
+import { rawInputs, type Diagnostic } from './diagnostics.js';
+import { isUnfitted, updateNormalisation, type NormalisationPolicy } from './normalisation.js';
+
+/** Refuse a path name that is not one of TRAIN_PATHS (the option may come from untyped input). */
+export function checkPath(asked: TrainPath | undefined): void {
+  if (asked !== undefined && !(TRAIN_PATHS as readonly string[]).includes(asked)) {
+    throw new TuneConfigError('path', `must be one of ${TRAIN_PATHS.join(', ')}, got "${String(asked)}"`);
+  }
+}
+
+/** Streams for each random choice, so adding draws to one never shifts another. */
+export function streams(seed: number) {
+  const derive = (k: number) => new SeededRng((seed ^ Math.imul(k, 0x9e3779b9)) | 0);
+  return { init: derive(1), split: derive(2), shuffle: derive(3), dropout: derive(4), replay: derive(5) };
+}
+
+/**
+ * The path a run takes: what was asked for, or the fastest one that can train `doc`. An explicit
+ * 'fast' that cannot run here becomes 'engine' with a diagnostic saying why; never an error.
+ */
+export function choosePath(asked: TrainPath | undefined, doc: ModelDoc): { path: TrainPath; fallback: Diagnostic | null } {
+  if (asked === 'engine' || asked === 'reference') return { path: asked, fallback: null };
+  const simd = wasmSimdAvailable();
+  const blocker = simd ? fastTrainBlocker(doc) : 'this runtime lacks WebAssembly SIMD';
+  if (blocker === null) return { path: 'fast', fallback: null };
+  if (asked === undefined) return { path: 'engine', fallback: null };
+  return {
+    path: 'engine',
+    fallback: {
+      code: 'engine_fallback',
+      message: `the fast training path cannot run (${blocker}); training on the tfjs engine instead`,
+      hint: simd
+        ? 'results agree within float32 tolerance; a model of dense and dropout layers only trains on the fast path'
+        : 'results agree within float32 tolerance; a Node.js build with WebAssembly SIMD trains on the fast path',
+    },
+  };
+}
+
+/**
+ * Give layers stored without values (a spec) their starting values: dense weights by
+ * He / Glorot from the seeded generator with zero biases; batch norm as the identity.
+ */
+export function initialiseEmpty(doc: ModelDoc, rng: SeededRng): void {
+  let width = doc.inputs;
+  doc.layers.forEach((layer, i) => {
+    if (layer.kind === 'dense' && layer.weight.length === 0) {
+      const fresh = initDense(width, layer.units, layer.activation, rng, layer.alpha);
+      doc.layers[i] = { ...fresh, alpha: layer.alpha };
+    } else if (layer.kind === 'batchnorm' && layer.gamma.length === 0) {
+      doc.layers[i] = {
+        ...layer,
+        gamma: new Float32Array(width).fill(1),
+        beta: new Float32Array(width),
+        runningMean: new Float32Array(width),
+        runningVariance: new Float32Array(width).fill(1),
+      };
+    }
+    width = layerKind(doc.layers[i].kind).outputWidth(doc.layers[i], width);
+  });
+}
+
+/** The activation the loss sees: the last dense layer's, or linear after a batch norm. */
+export function outputActivation(doc: ModelDoc): ActivationName {
+  for (let i = doc.layers.length - 1; i >= 0; i--) {
+    const l = doc.layers[i];
+    if (l.kind === 'dense') return l.activation;
+    if (l.kind === 'batchnorm') return 'linear';
+  }
+  return 'linear';
+}
+
+/**
+ * Fit an unfitted normalise block from the training rows, or keep or continue a fitted one per
+ * `policy`. Without a block: a diagnostic when the raw inputs look unscaled, else null.
+ */
+export function prepareNormalisation(doc: ModelDoc, train: TuneData, policy: NormalisationPolicy): Diagnostic | null {
+  if (doc.normalise) {
+    doc.normalise = updateNormalisation(doc.normalise, train.x, train.rows, doc.inputs, isUnfitted(doc.normalise) ? 'continue' : policy);
+    return null;
+  }
+  return rawInputs(train.x, train.rows, doc.inputs, false);
+}
+
+/** Training mode whose dropout keep-masks (0 or 1/(1-rate)) draw from `rng`. */
+export function trainingContext(rng: SeededRng): ForwardContext {
+  return {
+    training: true,
+    dropoutMask(_layer, rows, cols, rate) {
+      const mask = new Float32Array(rows * cols);
+      const keep = 1 / (1 - rate);
+      for (let i = 0; i < mask.length; i++) mask[i] = rng.next() < rate ? 0 : keep;
+      return mask;
+    },
+  };
+}
+
+/** The file `doc` came from: as given, else its own checksum; null for a spec without weights. */
+export function parentProvenance(doc: ModelDoc, given: { checksum: string; source: string } | undefined): { checksum: string; source: string } | null {
+  if (given) return given;
+  try {
+    return { checksum: checksumOf(encodeModel(doc)), source: '(memory)' };
+  } catch {
+    // A spec without weights cannot be encoded: it has no parent file to name.
+    return null;
+  }
+}
