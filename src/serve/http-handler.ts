@@ -1,0 +1,212 @@
+/**
+ * The request handler: it holds the served model (slot, batcher, drift monitor, counters),
+ * dispatches each request to its route, and turns every failure into a status code and a
+ * one-line JSON message, so nothing a client sends can throw out of it.
+ */
+import type { IncomingMessage, ServerResponse } from 'node:http';
+import { modelFacts } from '../model/facts.js';
+import { DriftMonitor } from '../drift/index.js';
+import { liveTensorCount } from '../engine/index.js';
+import { openModel, type TendonModel } from '../tendon.js';
+import { BusyError, type BatcherOptions, type MicroBatcher } from './batcher.js';
+import { readBody } from './http-body.js';
+import { HttpProblem } from './http-problem.js';
+import { METHODS, ROUTES, pathOf, printablePath, send, sendJson } from './http-routes.js';
+import { parseScoreBody } from './http-rows.js';
+import { GENERATIONS_KEPT, scoreAnswer, slotBatcher, type Generation, type ModelBatchRunner } from './http-score.js';
+import { METRICS_CONTENT_TYPE, ServiceCounters } from './metrics.js';
+import { ModelSlot, type SwapOutcome } from './swap.js';
+
+export interface RequestHandlerOptions {
+  /** A model made resident by the caller (the caller disposes it), or a model file to open. */
+  readonly model: TendonModel | string;
+  /** Mount point, e.g. "/ml": routes become /ml/v1/score and so on. Default: none. */
+  readonly prefix?: string;
+  /** Micro-batcher settings (the width comes from the model). */
+  readonly batcher?: Omit<BatcherOptions, 'width'>;
+  /** Largest request body in bytes; a larger one is answered 413. Default 1 MiB. */
+  readonly bodyLimitBytes?: number;
+  /** Most rows in one score request. Default 10 000 (never more than the batcher's queue). */
+  readonly maxRowsPerRequest?: number;
+  /** Replace how a batch runs (a worker pool, a slow stand-in in tests). */
+  readonly runBatch?: ModelBatchRunner;
+  /** Drift counters against the model's normalisation statistics: threshold in sd, or false. Default { k: 3 }. */
+  readonly drift?: { readonly k?: number } | false;
+  /** Reload when the model file changes (a file model only). Default false; `tendon serve` turns it on. */
+  readonly watch?: boolean | { readonly debounceMs: number };
+  /** Seconds a client is asked to wait in Retry-After when the queue is full. Default 1. */
+  readonly retryAfterSeconds?: number;
+  /** One line per event (swap, refusal, internal error). Default: stderr. */
+  readonly log?: (line: string) => void;
+}
+
+export interface TendonRequestHandler {
+  (req: IncomingMessage, res: ServerResponse): void;
+  /** Settles when the model is loaded (rejects with the load error for a file that cannot be used). */
+  readonly ready: Promise<void>;
+  readonly counters: ServiceCounters;
+  /** The model being served, null while loading. */
+  readonly model: TendonModel | null;
+  /** Load the model file again (or `path`), check it and swap it in between batches. */
+  reload(path?: string): Promise<SwapOutcome>;
+  /** Refuse new score requests, finish the queued ones, then release the model. */
+  close(): Promise<void>;
+}
+
+/**
+ * A request handler for `node:http`.
+ * @example
+ * const handler = createRequestHandler({ model: 'bakery.tendon', prefix: '/ml' });
+ * http.createServer((req, res) => req.url?.startsWith('/ml/') ? handler(req, res) : ownRoutes(req, res)).listen(8080);
+ */
+export function createRequestHandler(options: RequestHandlerOptions): TendonRequestHandler {
+  const log = options.log ?? ((line: string) => void process.stderr.write(line + '\n'));
+  const prefix = (options.prefix ?? '').replace(/\/+$/, '');
+  const bodyLimit = options.bodyLimitBytes ?? 1 << 20;
+  const retryAfter = String(options.retryAfterSeconds ?? 1);
+  const counters = new ServiceCounters();
+  const generations = new Map<number, Generation>();
+  const runBatch: ModelBatchRunner = options.runBatch ?? ((model, x, rows) => model.run(x, rows));
+
+  let slot: ModelSlot | null = null;
+  let batcher: MicroBatcher | null = null;
+  let drift: DriftMonitor | null = null;
+  let closing = false;
+  let closed: Promise<void> | null = null;
+
+  const remember = (model: TendonModel, generation: number) => {
+    generations.set(generation, { checksum: model.checksum, labels: model.labels });
+    generations.delete(generation - GENERATIONS_KEPT);
+    counters.model = { checksum: model.checksum ?? 'none', inputs: model.inputs, outputs: model.outputs, source: model.source ?? '(document)' };
+    drift = options.drift === false ? null : DriftMonitor.forModel(model.doc, { k: options.drift?.k });
+    counters.drift = drift?.report() ?? null;
+  };
+
+  const start = (model: TendonModel, owned: boolean) => {
+    const s = new ModelSlot(model, model.source, { log, onSwap: (m) => remember(m, s.generation), onOutcome: (o) => counters.swapped(o.swapped) }, owned);
+    slot = s;
+    remember(model, 1);
+    const maxQueue = options.batcher?.maxQueueRows ?? 4096;
+    batcher = slotBatcher(s, runBatch, { ...options.batcher, width: model.inputs, maxQueueRows: maxQueue });
+    if (options.watch && model.source) s.watch(typeof options.watch === 'object' ? options.watch.debounceMs : undefined);
+  };
+
+  const given = options.model;
+  let loadFailure: string | null = null;
+  const ready: Promise<void> = typeof given === 'string' ? openModel(given).then((m) => start(m, true)) : Promise.resolve().then(() => start(given, false));
+  // The failure is reported by /v1/ready and by score answers; `ready` rejects for whoever awaits it.
+  ready.catch((error: unknown) => {
+    loadFailure = error instanceof Error ? error.message : String(error);
+  });
+  const notLoaded = () =>
+    new HttpProblem(503, loadFailure ? `no model: ${loadFailure}` : 'the model is still loading', loadFailure ? {} : { 'retry-after': retryAfter });
+
+  const maxRows = Math.min(options.maxRowsPerRequest ?? 10_000, options.batcher?.maxQueueRows ?? 4096);
+
+  async function score(req: IncomingMessage): Promise<{ status: number; body: unknown; rows: number }> {
+    if (closing) throw new HttpProblem(503, 'shutting down; no new requests are taken', { 'retry-after': retryAfter, connection: 'close' });
+    const model = slot?.current;
+    if (!slot || !batcher || !model) throw notLoaded();
+    const text = (await readBody(req, bodyLimit)).toString('utf8');
+    const { rows, x } = parseScoreBody(text, { inputs: model.inputs, features: model.features, maxRows });
+    let y: Float32Array;
+    try {
+      y = await batcher.submit(x);
+    } catch (error) {
+      if (error instanceof BusyError) throw new HttpProblem(503, error.message, { 'retry-after': retryAfter });
+      throw error;
+    }
+    const { generation, body } = scoreAnswer(y, rows, generations);
+    // Drift counts rows scored by the model now served, not by one swapped out meanwhile.
+    if (drift && generation === slot.generation) {
+      drift.add(x, rows);
+      counters.drift = drift.report();
+    }
+    return { status: 200, body, rows };
+  }
+
+  function about(): unknown {
+    const model = slot?.current;
+    if (!model) throw notLoaded();
+    const file =
+      model.source && model.checksum && model.fileBytes !== null
+        ? { path: model.source, checksum: model.checksum, bytes: model.fileBytes, version: model.formatVersion ?? '' }
+        : null;
+    return modelFacts(model.doc, file);
+  }
+
+  async function route(req: IncomingMessage, res: ServerResponse, path: string): Promise<{ status: number; rows: number }> {
+    const method = METHODS[path];
+    if (!method) throw new HttpProblem(404, `no route ${printablePath(prefix + path)} (routes: ${Object.keys(METHODS).map((p) => prefix + p).join(', ')})`);
+    if (req.method !== method) throw new HttpProblem(405, `${req.method} is not allowed on ${prefix + path}; use ${method}`, { allow: method });
+    switch (path) {
+      case ROUTES.score: {
+        const answer = await score(req);
+        sendJson(res, answer.status, answer.body, closing ? { connection: 'close' } : {});
+        return answer;
+      }
+      case ROUTES.about:
+        sendJson(res, 200, about());
+        return { status: 200, rows: 0 };
+      case ROUTES.alive:
+        sendJson(res, 200, { alive: true });
+        return { status: 200, rows: 0 };
+      case ROUTES.ready: {
+        const ok = slot !== null && !closing;
+        const status = ok ? 200 : 503;
+        sendJson(res, status, { ready: ok, reason: ok ? undefined : closing ? 'shutting down' : notLoaded().message });
+        return { status, rows: 0 };
+      }
+      default:
+        send(res, 200, counters.render({ tensors: liveTensorCount(), residentBytes: process.memoryUsage().rss }), METRICS_CONTENT_TYPE);
+        return { status: 200, rows: 0 };
+    }
+  }
+
+  const handler = (req: IncomingMessage, res: ServerResponse): void => {
+    const started = performance.now();
+    let label = 'other';
+    // A socket error after the client went away is not ours to crash on.
+    res.on('error', () => undefined);
+    req.on('error', () => undefined);
+    const finish = (status: number, rows: number) => counters.request(label, status, (performance.now() - started) / 1000, rows);
+    const fail = (error: unknown) => {
+      const problem = error instanceof HttpProblem ? error : null;
+      if (!problem) log(`tendon serve: internal error on ${printablePath(req.url ?? '')}: ${error instanceof Error ? error.message : String(error)}`);
+      const status = problem?.status ?? 500;
+      const message = problem?.message ?? 'internal error; the request was not scored';
+      if (!res.headersSent) sendJson(res, status, { error: { status, message } }, problem?.headers ?? {});
+      else res.destroy();
+      finish(status, 0);
+    };
+    try {
+      const path = pathOf(req.url, prefix);
+      if (path !== null && path in METHODS) label = prefix + path;
+      if (path === null) throw new HttpProblem(404, `no route ${printablePath(req.url ?? '')}`);
+      route(req, res, path).then((r) => finish(r.status, r.rows), fail);
+    } catch (error) {
+      fail(error);
+    }
+  };
+
+  // defineProperty, not Object.assign: assign would copy the getter's value once (null while loading).
+  Object.defineProperty(handler, 'model', { get: (): TendonModel | null => slot?.current ?? null, enumerable: true });
+  return Object.assign(handler as typeof handler & { readonly model: TendonModel | null }, {
+    ready,
+    counters,
+    reload(path?: string): Promise<SwapOutcome> {
+      if (!slot) return Promise.resolve({ swapped: false as const, reason: 'the model is still loading' });
+      return slot.reload(path);
+    },
+    close(): Promise<void> {
+      closing = true;
+      closed ??= ready
+        .catch(() => undefined)
+        .then(async () => {
+          await batcher?.close();
+          await slot?.close();
+        });
+      return closed;
+    },
+  });
+}
