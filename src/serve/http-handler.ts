@@ -6,6 +6,7 @@
 import type { IncomingMessage, ServerResponse } from 'node:http';
 import { modelFacts } from '../model/facts.js';
 import { DriftMonitor } from '../drift/index.js';
+import { RuntimeFailure } from '../errors.js';
 import { liveTensorCount } from '../engine/index.js';
 import { openModel, type TendonModel } from '../tendon.js';
 import { BusyError, type BatcherOptions, type MicroBatcher } from './batcher.js';
@@ -14,6 +15,7 @@ import { HttpProblem } from './http-problem.js';
 import { METHODS, ROUTES, pathOf, printablePath, send, sendJson } from './http-routes.js';
 import { parseScoreBody } from './http-rows.js';
 import { GENERATIONS_KEPT, scoreAnswer, slotBatcher, type Generation, type ModelBatchRunner } from './http-score.js';
+import { PooledRunner, workerCount, type WorkerCount } from './http-pool.js';
 import { METRICS_CONTENT_TYPE, ServiceCounters } from './metrics.js';
 import { ModelSlot, type SwapOutcome } from './swap.js';
 
@@ -28,8 +30,16 @@ export interface RequestHandlerOptions {
   readonly bodyLimitBytes?: number;
   /** Most rows in one score request. Default 10 000 (never more than the batcher's queue). */
   readonly maxRowsPerRequest?: number;
-  /** Replace how a batch runs (a worker pool, a slow stand-in in tests). */
+  /** Replace how a batch runs (a slow stand-in in tests). Not with `workers` above 1. */
   readonly runBatch?: ModelBatchRunner;
+  /**
+   * Worker threads that run batches, each holding the served model on the main thread's engine.
+   * Default 1: batches run in the main thread. 0 or 'auto': one per core. Above 1, up to that
+   * many batches run at once unless `batcher.maxInFlight` says otherwise.
+   */
+  readonly workers?: WorkerCount;
+  /** The built worker script (dist/worker.js) when `workers` is above 1; default: the one beside the pool module. */
+  readonly workerScript?: string | URL;
   /** Drift counters against the model's normalisation statistics: threshold in sd, or false. Default { k: 3 }. */
   readonly drift?: { readonly k?: number } | false;
   /** Reload when the model file changes (a file model only). Default false; `tendon serve` turns it on. */
@@ -47,6 +57,8 @@ export interface TendonRequestHandler {
   readonly counters: ServiceCounters;
   /** The model being served, null while loading. */
   readonly model: TendonModel | null;
+  /** Worker threads alive now, in every pool including ones still closing; 0 without workers. */
+  readonly liveWorkers: number;
   /** Load the model file again (or `path`), check it and swap it in between batches. */
   reload(path?: string): Promise<SwapOutcome>;
   /** Refuse new score requests, finish the queued ones, then release the model. */
@@ -66,7 +78,10 @@ export function createRequestHandler(options: RequestHandlerOptions): TendonRequ
   const retryAfter = String(options.retryAfterSeconds ?? 1);
   const counters = new ServiceCounters();
   const generations = new Map<number, Generation>();
-  const runBatch: ModelBatchRunner = options.runBatch ?? ((model, x, rows) => model.run(x, rows));
+  const size = workerCount(options.workers);
+  if (size > 1 && options.runBatch) throw new RuntimeFailure(`createRequestHandler: runBatch cannot be combined with workers = ${size}; the workers run the batches`);
+  const pools = size > 1 ? new PooledRunner({ size, workerScript: options.workerScript, log }) : null;
+  const runBatch: ModelBatchRunner = options.runBatch ?? pools?.run ?? ((model, x, rows) => model.run(x, rows));
 
   let slot: ModelSlot | null = null;
   let batcher: MicroBatcher | null = null;
@@ -83,17 +98,39 @@ export function createRequestHandler(options: RequestHandlerOptions): TendonRequ
   };
 
   const start = (model: TendonModel, owned: boolean) => {
-    const s = new ModelSlot(model, model.source, { log, onSwap: (m) => remember(m, s.generation), onOutcome: (o) => counters.swapped(o.swapped) }, owned);
+    const s = new ModelSlot(
+      model,
+      model.source,
+      {
+        log,
+        onSwap: (m) => remember(m, s.generation),
+        onOutcome: (o) => counters.swapped(o.swapped),
+        // A new model gets its pool before it is swapped in; the old pool closes after its last batch.
+        prepare: pools ? (m) => pools.prepare(m) : undefined,
+        onRetired: pools ? (m) => pools.retire(m) : undefined,
+      },
+      owned,
+    );
     slot = s;
     remember(model, 1);
     const maxQueue = options.batcher?.maxQueueRows ?? 4096;
-    batcher = slotBatcher(s, runBatch, { ...options.batcher, width: model.inputs, maxQueueRows: maxQueue });
+    const maxInFlight = options.batcher?.maxInFlight ?? (pools ? size : undefined);
+    batcher = slotBatcher(s, runBatch, { ...options.batcher, width: model.inputs, maxQueueRows: maxQueue, maxInFlight });
     if (options.watch && model.source) s.watch(typeof options.watch === 'object' ? options.watch.debounceMs : undefined);
   };
 
   const given = options.model;
   let loadFailure: string | null = null;
-  const ready: Promise<void> = typeof given === 'string' ? openModel(given).then((m) => start(m, true)) : Promise.resolve().then(() => start(given, false));
+  const startPooled = async (model: TendonModel, owned: boolean) => {
+    try {
+      await pools?.prepare(model);
+    } catch (error) {
+      if (owned) model.dispose();
+      throw error;
+    }
+    start(model, owned);
+  };
+  const ready: Promise<void> = typeof given === 'string' ? openModel(given).then((m) => startPooled(m, true)) : Promise.resolve().then(() => startPooled(given, false));
   // The failure is reported by /v1/ready and by score answers; `ready` rejects for whoever awaits it.
   ready.catch((error: unknown) => {
     loadFailure = error instanceof Error ? error.message : String(error);
@@ -191,7 +228,8 @@ export function createRequestHandler(options: RequestHandlerOptions): TendonRequ
 
   // defineProperty, not Object.assign: assign would copy the getter's value once (null while loading).
   Object.defineProperty(handler, 'model', { get: (): TendonModel | null => slot?.current ?? null, enumerable: true });
-  return Object.assign(handler as typeof handler & { readonly model: TendonModel | null }, {
+  Object.defineProperty(handler, 'liveWorkers', { get: (): number => pools?.liveWorkers ?? 0, enumerable: true });
+  return Object.assign(handler as typeof handler & { readonly model: TendonModel | null; readonly liveWorkers: number }, {
     ready,
     counters,
     reload(path?: string): Promise<SwapOutcome> {
@@ -205,6 +243,7 @@ export function createRequestHandler(options: RequestHandlerOptions): TendonRequ
         .then(async () => {
           await batcher?.close();
           await slot?.close();
+          await pools?.close();
         });
       return closed;
     },

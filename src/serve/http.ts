@@ -14,9 +14,11 @@
  *
  * Re-exports only. The parts: http-routes (route table, writing answers), http-handler (the
  * served model and dispatch), http-score (batching and the score answer), http-server (the
- * standalone server's start and stop), http-body / http-rows / http-problem (reading requests).
+ * standalone server's start and stop), http-pool (worker pools per
+ * served model), http-body / http-rows / http-problem (reading requests).
  */
 export { ROUTES } from './http-routes.js';
 export { createRequestHandler, type RequestHandlerOptions, type TendonRequestHandler } from './http-handler.js';
 export type { ModelBatchRunner } from './http-score.js';
+export { workerCount, type WorkerCount } from './http-pool.js';
 export { startServer, type RunningServer, type ServerOptions } from './http-server.js';

@@ -34,6 +34,16 @@ export interface ModelSlotOptions {
   readonly onSwap?: (model: TendonModel) => void;
   /** Called after each swap or refusal (not for an unchanged file). */
   readonly onOutcome?: (outcome: SwapOutcome) => void;
+  /**
+   * Runs on a checked new model before it is swapped in (e.g. start workers holding it); a
+   * rejection refuses the swap, with its message as the reason, and the old model keeps serving.
+   */
+  readonly prepare?: (model: TendonModel) => Promise<void>;
+  /**
+   * Called once per model when it has left the slot for good: swapped out and its last leased
+   * batch done, refused after prepare, or at close. Called whether or not the slot owns it.
+   */
+  readonly onRetired?: (model: TendonModel) => void;
 }
 
 /**
@@ -124,6 +134,19 @@ export class ModelSlot {
       model.dispose();
       return { swapped: false, reason: 'unchanged (same checksum)' };
     }
+    if (this.options.prepare) {
+      try {
+        await this.options.prepare(model);
+      } catch (error) {
+        model.dispose();
+        return refuse(`could not prepare it: ${error instanceof Error ? error.message : String(error)}`);
+      }
+      if (this.closed) {
+        model.dispose();
+        this.options.onRetired?.(model);
+        return { swapped: false, reason: 'the slot is closed' };
+      }
+    }
     const retired = this.entry;
     this.entry = { model, generation: retired.generation + 1, leases: 0, retired: false, owned: true };
     this.entries.add(this.entry);
@@ -171,5 +194,6 @@ export class ModelSlot {
     if (!entry.retired || entry.leases > 0 || !this.entries.has(entry)) return;
     this.entries.delete(entry);
     if (entry.owned) entry.model.dispose();
+    this.options.onRetired?.(entry.model);
   }
 }

@@ -26,6 +26,8 @@ beforeAll(async () => {
   const common = { bundle: true, platform: 'node', format: 'esm', packages: 'external', target: 'node20', logLevel: 'silent' } as const;
   await build({ ...common, entryPoints: [join(root, 'src/index.ts')], outfile: join(bundles, 'dist/index.js') });
   await build({ ...common, entryPoints: [join(root, 'src/cli/bin.ts')], outfile: join(bundles, 'dist/cli.js') });
+  // Beside cli.js, where the pool looks for its worker script by default (as in the real dist/).
+  await build({ ...common, entryPoints: [join(root, 'src/engine/worker-entry.ts')], outfile: join(bundles, 'dist/worker.js') });
   copyFileSync(join(root, 'examples/service.mjs'), join(bundles, 'examples/service.mjs'));
 });
 
@@ -69,6 +71,34 @@ describe('tendon serve', () => {
     errText = '';
     expect(await main(['serve', modelPath, '--port', '70000'], io)).toBe(2);
     expect(errText).toMatch(/--port: must be 0 to 65535/);
+    errText = '';
+    expect(await main(['serve', modelPath, '--port', '0', '--workers', 'two'], io)).toBe(2);
+    expect(errText).toMatch(/--workers: must be 'auto' or a whole number >= 0, got "two"/);
+  });
+
+  it('as a process with --workers 2: says so, answers like model.run, and SIGTERM exits 0', async () => {
+    const child = spawn(process.execPath, [join(bundles, 'dist/cli.js'), 'serve', modelPath, '--port', '0', '--no-watch', '--workers', '2'], { stdio: ['ignore', 'pipe', 'pipe'] });
+    let out = '';
+    let err = '';
+    child.stderr.on('data', (d: Buffer) => (err += d.toString()));
+    const exited = new Promise<number | null>((r) => child.on('exit', (code) => r(code)));
+    const url = await new Promise<string>((resolveUrl, reject) => {
+      child.stdout.on('data', (d: Buffer) => {
+        out += d.toString();
+        const m = out.match(/on (http:\/\/127\.0\.0\.1:\d+) with 2 worker threads/);
+        if (m) resolveUrl(m[1]);
+      });
+      child.on('exit', (code) => reject(new Error(`exited ${code} before listening: ${err}`)));
+    });
+    const rows = Array.from({ length: 12 }, (_, i) => LOAF.map((v, c) => v + (c === 5 ? i : 0)));
+    const answers = await Promise.all(rows.map((row) => postJson(`${url}/v1/score`, { rows: [row] })));
+    answers.forEach((a, i) => {
+      expect(a.status).toBe(200);
+      expect(a.json.outputs).toEqual(model.run([rows[i]!]));
+    });
+    child.kill('SIGTERM');
+    expect(await exited).toBe(0);
+    expect(err).toMatch(/tendon serve: stopped/);
   });
 
   it('as a process: SIGTERM while requests are queued answers them, then exits 0', async () => {

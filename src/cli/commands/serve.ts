@@ -1,5 +1,5 @@
 import { UsageError } from '../../errors.js';
-import { ROUTES, startServer } from '../../serve/http.js';
+import { ROUTES, startServer, workerCount, type WorkerCount } from '../../serve/http.js';
 import { noExtraPositionals, parseArgs, requirePositional } from '../args.js';
 import type { Command } from '../command.js';
 
@@ -11,13 +11,14 @@ const flags = {
   'wait-ms': { kind: 'number', help: 'longest a request waits for others to share its batch', default: 2 },
   'queue-rows': { kind: 'integer', help: 'rows allowed to wait; past it requests get 503 with Retry-After', default: 4096 },
   'drift-k': { kind: 'number', help: 'drift counters flag a feature whose mean moved more than this many sd', default: 3 },
+  workers: { kind: 'string', help: "worker threads that run batches: 1 runs them in the main thread; 0 or 'auto' one per core", default: '1' },
   'no-watch': { kind: 'boolean', help: 'do not reload when the model file changes (SIGHUP still reloads)' },
 } as const;
 
 export const serve: Command = {
   name: 'serve',
   summary: 'serve a model over HTTP on loopback: score, about, alive, ready and counters routes; hot swap on file change or SIGHUP',
-  usage: 'tendon serve MODEL [--port P] [--host H] [--body-limit BYTES] [--batch-rows N] [--wait-ms MS] [--queue-rows N] [--drift-k K] [--no-watch]',
+  usage: 'tendon serve MODEL [--port P] [--host H] [--body-limit BYTES] [--batch-rows N] [--wait-ms MS] [--queue-rows N] [--drift-k K] [--workers N|auto] [--no-watch]',
   flags,
   async run(argv, io) {
     const { flags: f, positionals } = parseArgs(argv, flags);
@@ -31,6 +32,7 @@ export const serve: Command = {
     };
     const waitMs = f['wait-ms'] ?? 2;
     if (!(waitMs >= 0)) throw new UsageError('--wait-ms', `must be 0 or more, got ${waitMs}`);
+    const workers = parseWorkers(f.workers ?? '1');
     const running = await startServer({
       modelPath,
       port,
@@ -39,11 +41,14 @@ export const serve: Command = {
       batcher: { maxBatchRows: positive('batch-rows', f['batch-rows']), maxWaitMs: waitMs, maxQueueRows: positive('queue-rows', f['queue-rows']) },
       drift: { k: positive('drift-k', f['drift-k']) },
       watch: !f['no-watch'],
+      workers,
       log: (line) => io.err(line + '\n'),
     });
     const model = running.handler.model;
+    const threads = workerCount(workers);
     io.out(
-      `serving ${modelPath} (checksum ${model?.checksum}) on ${running.url}\n` +
+      `serving ${modelPath} (checksum ${model?.checksum}) on ${running.url}` +
+        (threads > 1 ? ` with ${threads} worker threads on the ${model?.engine} engine\n` : '\n') +
         `routes: POST ${ROUTES.score}, GET ${ROUTES.about}, ${ROUTES.alive}, ${ROUTES.ready}, ${ROUTES.counters}\n` +
         `SIGHUP reloads the model file; SIGTERM or Ctrl-C stops after answering what is queued\n`,
     );
@@ -66,3 +71,10 @@ export const serve: Command = {
     return 0;
   },
 };
+
+/** '--workers auto' or a whole number >= 0 (0 also means one per core). */
+function parseWorkers(text: string): WorkerCount {
+  if (text === 'auto') return 'auto';
+  if (!/^\d+$/.test(text)) throw new UsageError('--workers', `must be 'auto' or a whole number >= 0, got ${JSON.stringify(text)}`);
+  return Number(text);
+}
