@@ -2,8 +2,8 @@
  * Streaming CSV tables (RFC 4180): the file is read in 64 KiB pieces and handed out in row
  * chunks, so millions of rows never sit in memory at once.
  */
+import { BatchQueue, fileSize } from './batch-queue.js';
 import { createReadStream } from 'node:fs';
-import { stat } from 'node:fs/promises';
 import { DataError } from '../errors.js';
 import { ChunkBuilder } from './chunk-builder.js';
 import { resolveColumns } from './columns.js';
@@ -42,33 +42,6 @@ export async function* readCsvBatches(path: string, counter: ByteCounter = { byt
   }
 }
 
-/** Pulls single records out of the batches. */
-class RecordQueue {
-  private batch: CsvRecord[] = [];
-  private at = 0;
-  constructor(private readonly batches: AsyncGenerator<CsvRecord[]>) {}
-
-  async next(): Promise<CsvRecord | null> {
-    while (this.at >= this.batch.length) {
-      const step = await this.batches.next();
-      if (step.done) return null;
-      this.batch = step.value;
-      this.at = 0;
-    }
-    return this.batch[this.at++];
-  }
-
-  /** The next record if it is already read, without waiting (null when a read is needed). */
-  nextReady(): CsvRecord | null {
-    return this.at < this.batch.length ? this.batch[this.at++] : null;
-  }
-
-  async close(): Promise<void> {
-    this.batch = [];
-    await this.batches.return(undefined);
-  }
-}
-
 /**
  * Opens a CSV file as a table: reads the header (if any) and the first row, so an empty or
  * header-only file is refused here rather than mid-way. Line numbers in errors are 1-based and
@@ -80,14 +53,9 @@ class RecordQueue {
  * @throws DataError "file is empty", "no data rows", bad cells, ragged rows.
  */
 export async function openCsvTable(path: string, opts: TableOptions = {}): Promise<TableReader> {
-  const bytesTotal = await stat(path).then(
-    (s) => s.size,
-    (e: unknown) => {
-      throw asDataError(path, e);
-    },
-  );
+  const bytesTotal = await fileSize(path);
   const counter = { bytesRead: 0 };
-  const records = new RecordQueue(readCsvBatches(path, counter));
+  const records = new BatchQueue(readCsvBatches(path, counter));
   let head: CsvHead;
   try {
     head = await readHead(path, records, opts);
@@ -163,7 +131,7 @@ interface CsvHead {
   firstRow: CsvRecord;
 }
 
-async function readHead(path: string, records: RecordQueue, opts: TableOptions): Promise<CsvHead> {
+async function readHead(path: string, records: BatchQueue<CsvRecord>, opts: TableOptions): Promise<CsvHead> {
   const first = await records.next();
   if (first === null) throw new DataError(path, 0, 0, 'file is empty');
   // Text columns given by position are known before the header; by name only after it.

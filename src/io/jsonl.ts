@@ -5,12 +5,12 @@
  * 1-based character column from the parser when it gives one, else 1; a bad value names the
  * 1-based column position in the table.
  */
-import { stat } from 'node:fs/promises';
+import { BatchQueue, fileSize } from './batch-queue.js';
 import { firstSyntaxError } from './json-text.js';
 import { DataError } from '../errors.js';
 import { ChunkBuilder } from './chunk-builder.js';
 import { resolveColumns } from './columns.js';
-import { asDataError, shownCell } from './file-errors.js';
+import { shownCell } from './file-errors.js';
 import { readLineBatches, type TextLine } from './lines.js';
 import { rowsPerChunk, type TableChunk, type TableOptions, type TableReader } from './table-types.js';
 
@@ -32,31 +32,6 @@ export function parseJsonLine(path: string, line: TextLine): unknown {
   }
 }
 
-class LineQueue {
-  private batch: TextLine[] = [];
-  private at = 0;
-  constructor(private readonly batches: AsyncGenerator<TextLine[]>) {}
-
-  /** The next non-blank line, or null at the end of the file. */
-  async next(): Promise<TextLine | null> {
-    for (;;) {
-      while (this.at >= this.batch.length) {
-        const step = await this.batches.next();
-        if (step.done) return null;
-        this.batch = step.value;
-        this.at = 0;
-      }
-      const line = this.batch[this.at++];
-      if (line.text.trim() !== '') return line;
-    }
-  }
-
-  async close(): Promise<void> {
-    this.batch = [];
-    await this.batches.return(undefined);
-  }
-}
-
 /**
  * Opens a JSONL file as a table; reads the first non-blank line to learn the columns.
  *
@@ -66,14 +41,9 @@ class LineQueue {
  * @throws DataError "file is empty", bad JSON, lines of the wrong kind, missing or extra keys.
  */
 export async function openJsonlTable(path: string, opts: TableOptions = {}): Promise<TableReader> {
-  const bytesTotal = await stat(path).then(
-    (s) => s.size,
-    (e: unknown) => {
-      throw asDataError(path, e);
-    },
-  );
+  const bytesTotal = await fileSize(path);
   const counter = { bytesRead: 0 };
-  const lines = new LineQueue(readLineBatches(path, counter));
+  const lines = new BatchQueue(readLineBatches(path, counter), (line) => line.text.trim() !== '');
   let firstLine: TextLine;
   let firstValue: Row;
   let columns: string[] | null;
