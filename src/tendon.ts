@@ -7,7 +7,7 @@ import { parityReport, randomInputs, type ParityReport } from './check/index.js'
 import { EngineSession, FastSession, ensureEngine, resolveEngine, type EngineChoice, type RuntimeEngine } from './engine/index.js';
 import { DataError, ShapeError } from './errors.js';
 import { readModelFile, writeModelFile } from './format/index.js';
-import { modelWidths, validateModel, type ModelDoc } from './model/index.js';
+import { validateModel, type ModelDoc } from './model/index.js';
 
 export interface OpenOptions {
   /**
@@ -106,8 +106,7 @@ export class TendonModel {
     return this.doc.inputs;
   }
   get outputs(): number {
-    const widths = modelWidths(this.doc);
-    return widths[widths.length - 1];
+    return this.session.outputs;
   }
   get features(): readonly string[] | null {
     return this.doc.features;

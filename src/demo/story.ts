@@ -86,7 +86,7 @@ export async function runDemo(opts: DemoOptions): Promise<DemoOutcome> {
 
   // 2. Train at the first site.
   const t0 = performance.now();
-  const trained = await tune(fresh, asData(firstTrain), { ...common(opts.seed), epochs: 40, holdout: 0.2, patience: 8 }, { signal: opts.signal });
+  const trained = await tune(fresh, asData(firstTrain), { ...common(opts.seed), epochs: 40, holdout: 0.2, stopAfter: 8 }, { signal: opts.signal });
   const seconds = (performance.now() - t0) / 1000;
   const firstPath = join(dir, 'bakery-northgate.tendon');
   await writeModelFile(firstPath, trained.doc);

@@ -55,7 +55,7 @@ export interface TuneOptions {
   /** Separate hold-out rows. */
   holdoutData?: TuneData;
   /** Epochs without a better hold-out loss before stopping; unset to run every epoch. */
-  patience?: number;
+  stopAfter?: number;
   /** Layer indices whose tensors get no updates (a frozen batch norm keeps its running stats). */
   freeze?: number[];
   /** Individual tensors to leave unchanged, by name, e.g. "layers[0].bias". */
@@ -82,7 +82,7 @@ export interface ResolvedTuneOptions {
   readonly clipNorm: number | null;
   readonly seed: number;
   readonly holdout: { readonly kind: 'none' } | { readonly kind: 'fraction'; readonly fraction: number } | { readonly kind: 'data'; readonly data: TuneData };
-  readonly patience: number | null;
+  readonly stopAfter: number | null;
   readonly freeze: ReadonlySet<number>;
   readonly freezeTensors: ReadonlySet<string>;
   readonly anchor: number;
@@ -177,8 +177,8 @@ export function resolveTuneOptions(opts: TuneOptions, doc: ModelDoc): ResolvedTu
     holdout = { kind: 'fraction', fraction: inRange('holdout', opts.holdout, 0, 0, 1, true, true) };
   }
 
-  const patience = opts.patience === undefined ? null : positiveInt('patience', opts.patience, 1);
-  if (patience !== null && holdout.kind === 'none') throw new TuneConfigError('patience', 'early stopping needs hold-out rows (holdout or holdoutData)');
+  const stopAfter = opts.stopAfter === undefined ? null : positiveInt('stopAfter', opts.stopAfter, 1);
+  if (stopAfter !== null && holdout.kind === 'none') throw new TuneConfigError('stopAfter', 'early stopping needs hold-out rows (holdout or holdoutData)');
 
   const freeze = new Set<number>();
   for (const i of opts.freeze ?? []) {
@@ -217,7 +217,7 @@ export function resolveTuneOptions(opts: TuneOptions, doc: ModelDoc): ResolvedTu
     clipNorm,
     seed,
     holdout,
-    patience,
+    stopAfter,
     freeze,
     freezeTensors,
     anchor,

@@ -172,13 +172,13 @@ export async function tune(doc: ModelDoc, data: TuneData, options: TuneRunOption
       history.push(record);
       hooks.onEpoch?.(record);
 
-      // Early stopping: keep the best hold-out epoch's weights; stop after `patience` without.
+      // Early stopping: keep the best hold-out epoch's weights; stop after `stopAfter` without.
       if (heldEval) {
         if (heldEval.metrics.loss < bestLoss * (1 - IMPROVEMENT)) {
           bestLoss = heldEval.metrics.loss;
           bestEpoch = epoch;
-          if (opts.patience !== null) best = snapshot(arrays, best ?? undefined);
-        } else if (opts.patience !== null && epoch - bestEpoch >= opts.patience) {
+          if (opts.stopAfter !== null) best = snapshot(arrays, best ?? undefined);
+        } else if (opts.stopAfter !== null && epoch - bestEpoch >= opts.stopAfter) {
           stoppedEarly = true;
           break;
         }
@@ -186,7 +186,7 @@ export async function tune(doc: ModelDoc, data: TuneData, options: TuneRunOption
         bestEpoch = epoch;
       }
     }
-    if (opts.patience !== null && best && !aborted) {
+    if (opts.stopAfter !== null && best && !aborted) {
       restore(arrays, best);
     } else {
       bestEpoch = history.length - 1;

@@ -36,7 +36,7 @@ describe('tune options (src/train/config.ts)', () => {
     ['beta2 1', { beta2: 1 }, 'beta2'],
     ['unknown loss', { loss: 'hinge' }, 'loss'],
     ['unknown schedule', { schedule: 'cyclic' }, 'schedule'],
-    ['patience without hold-out', { patience: 3 }, 'patience'],
+    ['stopAfter without hold-out', { stopAfter: 3 }, 'stopAfter'],
     ['bad tensor name', { freezeTensors: ['layers[0].kernel!'] }, 'freezeTensors'],
     ['clipNorm 0', { clipNorm: 0 }, 'clipNorm'],
     ['replay fraction', { replay: { x: new Float32Array(2), rows: 1, y: Int32Array.of(0) }, replayPerBatch: 1.5 }, 'replayPerBatch'],

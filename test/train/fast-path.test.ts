@@ -124,7 +124,7 @@ describe('the fast training path (src/train/tune.ts on src/engine/fast/fast-trai
     const make = (rows: number) => ({ x: Float32Array.from(normals(rng, rows * 3)), rows, y: Float32Array.from(normals(rng, rows)) });
     const train = make(16);
     const hold = make(16);
-    const res = await tune(modelDoc(3, [denseSpec(32, 'tanh'), denseSpec(1, 'linear')]), train, { epochs: 200, batch: 16, lr: 0.03, path: 'fast', holdoutData: hold, patience: 5 });
+    const res = await tune(modelDoc(3, [denseSpec(32, 'tanh'), denseSpec(1, 'linear')]), train, { epochs: 200, batch: 16, lr: 0.03, path: 'fast', holdoutData: hold, stopAfter: 5 });
     expect(res.path).toBe('fast');
     expect(res.stoppedEarly).toBe(true);
     const losses = res.history.map((h) => h.holdout!.loss);

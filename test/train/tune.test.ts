@@ -116,7 +116,7 @@ describe('tune loop (src/train/tune.ts)', () => {
     const train = make(16);
     const hold = make(16);
     const res = await tune(modelDoc(3, [denseSpec(32, 'tanh'), denseSpec(1, 'linear')]), train, {
-      epochs: 200, batch: 16, lr: 0.03, path: 'reference', holdoutData: hold, patience: 5,
+      epochs: 200, batch: 16, lr: 0.03, path: 'reference', holdoutData: hold, stopAfter: 5,
     });
     expect(res.stoppedEarly).toBe(true);
     const losses = res.history.map((h) => h.holdout!.loss);

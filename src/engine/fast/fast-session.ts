@@ -132,7 +132,9 @@ export class FastSession {
       if (this.norm) {
         const { shift, scale } = this.norm;
         const f = this.inputs;
-        for (let i = 0; i < n * f; i++) mem[xAt + i] = (mem[xAt + i] - shift[i % f]) * scale[i % f];
+        for (let r = 0, i = xAt; r < n; r++) {
+          for (let c = 0; c < f; c++, i++) mem[i] = (mem[i] - shift[c]) * scale[c];
+        }
       }
       let from = this.xAddr;
       let width = this.inputs;
