@@ -7,7 +7,7 @@ import { parityReport, randomInputs, type ParityReport } from './check/index.js'
 import { EngineSession, FastSession, ensureEngine, resolveEngine, type EngineChoice, type RuntimeEngine } from './engine/index.js';
 import { DataError, ShapeError } from './errors.js';
 import { readModelFile, writeModelFile } from './format/index.js';
-import { validateModel, type ModelDoc } from './model/index.js';
+import type { ModelDoc } from './model/index.js';
 
 export interface OpenOptions {
   /**
@@ -61,7 +61,7 @@ export async function openModel(path: string, options: OpenOptions = {}): Promis
  * @throws ModelFileError when the document is inconsistent.
  */
 export async function modelFromDocument(doc: ModelDoc, options: OpenOptions = {}): Promise<TendonModel> {
-  validateModel(doc, '(document)');
+  // The session validates the document (once) as it is made.
   const engine = await chooseEngine(options.engine);
   return new TendonModel(doc, engine, { source: null, checksum: null, bytes: null, formatVersion: null, chunkRows: options.chunkRows });
 }
