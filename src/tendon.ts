@@ -7,7 +7,7 @@ import { parityReport, randomInputs, type ParityReport } from './check/index.js'
 import { EngineSession, FastSession, ensureEngine, resolveEngine, type EngineChoice, type RuntimeEngine } from './engine/index.js';
 import { DataError, ShapeError } from './errors.js';
 import { readModelFile, writeModelFile } from './format/index.js';
-import type { ModelDoc } from './model/index.js';
+import { withTemperatureFolded, type ModelDoc } from './model/index.js';
 
 export interface OpenOptions {
   /**
@@ -92,7 +92,9 @@ export class TendonModel {
     origin: ModelOrigin,
   ) {
     const options = { chunkRows: origin.chunkRows, source: origin.source ?? '(document)' };
-    this.session = engine === 'fast' ? new FastSession(doc, options) : new EngineSession(doc, options);
+    // The engines run the document with its calibration temperature folded in (temperature.ts).
+    const runnable = withTemperatureFolded(doc);
+    this.session = engine === 'fast' ? new FastSession(runnable, options) : new EngineSession(runnable, options);
     this.source = origin.source;
     this.checksum = origin.checksum;
     this.fileBytes = origin.bytes;

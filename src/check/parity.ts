@@ -4,7 +4,7 @@
  */
 import { EngineSession } from '../engine/index.js';
 import { ParityError } from '../errors.js';
-import { modelWidths, SeededRng, type ModelDoc } from '../model/index.js';
+import { modelWidths, SeededRng, withTemperatureFolded, type ModelDoc } from '../model/index.js';
 import { referenceForward, toMat64 } from '../reference/index.js';
 import { compareMatrices, topClassAgreement, type Discrepancy } from './compare.js';
 import { FLOAT32_TOLERANCE, type Tolerance } from './tolerance.js';
@@ -45,7 +45,7 @@ export interface ParityOptions {
  */
 export function parityReport(doc: ModelDoc, x: Float32Array, rows: number, opts: ParityOptions = {}): ParityReport {
   const tolerance = opts.tolerance ?? FLOAT32_TOLERANCE;
-  const session: LayerRunner = opts.session ?? new EngineSession(doc);
+  const session: LayerRunner = opts.session ?? new EngineSession(withTemperatureFolded(doc));
   try {
     const engineLayers = session.runLayers(x, rows);
     const ref = referenceForward(doc, toMat64(x, rows, doc.inputs), { keepLayers: true });

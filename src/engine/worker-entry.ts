@@ -8,6 +8,7 @@
 import { parentPort, workerData } from 'node:worker_threads';
 import { TendonError } from '../errors.js';
 import { decodeModel } from '../format/index.js';
+import { withTemperatureFolded } from '../model/index.js';
 import { useEngine } from './backend.js';
 import { EngineSession } from './session.js';
 import { FastSession } from './fast/fast-session.js';
@@ -31,7 +32,8 @@ async function main(): Promise<void> {
   let crashNextRun = setup.crashEveryRun;
   let session: EngineSession | FastSession;
   try {
-    const { doc } = decodeModel(setup.model, setup.source);
+    // Run the document with its calibration temperature folded in, as the façade does.
+    const doc = withTemperatureFolded(decodeModel(setup.model, setup.source).doc);
     if (setup.engine === 'fast') {
       session = new FastSession(doc, { source: setup.source });
     } else {

@@ -258,6 +258,12 @@ export function checkPayload(raw: RawModel): { doc: ModelDoc | null; problems: P
     extra: { ...(info?.extra ?? {}) },
   };
 
+  // 0 is proto3's "absent": a file before 1.1, or a model without a temperature.
+  const temperature = raw.temperature ?? 0;
+  if (temperature !== 0 && !(Number.isFinite(temperature) && temperature > 0)) {
+    problems.push({ where: 'temperature', message: `must be a finite number > 0 (or absent), got ${temperature}` });
+  }
+
   if (problems.length > 0) return { doc: null, problems };
   return {
     doc: {
@@ -270,6 +276,7 @@ export function checkPayload(raw: RawModel): { doc: ModelDoc | null; problems: P
       provenance,
       // The storage a file was written with is that of its dense weights (all share one).
       storage: codecs[0] ?? 'f32',
+      ...(temperature !== 0 ? { temperature } : {}),
     },
     problems,
   };

@@ -9,7 +9,7 @@ import { ModelFileError, type Problem } from '../errors.js';
 import type { Layer, ModelDoc, StorageCodec } from '../model/types.js';
 import { checkPayload } from './check.js';
 import { crcHex } from './crc32.js';
-import { frame, openFrame, type FormatVersion } from './header.js';
+import { FORMAT_VERSION, frame, openFrame, type FormatVersion } from './header.js';
 import {
   ACTIVATION_CODES,
   decodePayload,
@@ -95,7 +95,11 @@ export function toPayload(doc: ModelDoc, problems: Problem[]): RawModel {
       extra: Object.fromEntries(Object.entries(doc.meta.extra).sort(([a], [b]) => (a < b ? -1 : a > b ? 1 : 0))),
     },
     lineage: doc.provenance.map((p) => ({ checksum: p.checksum, source: p.source, action: p.action, at: p.at })),
+    temperature: doc.temperature ?? 0,
   };
+  if (doc.temperature !== undefined && !(Number.isFinite(doc.temperature) && doc.temperature > 0)) {
+    problems.push({ where: 'temperature', message: `must be a finite number > 0, got ${doc.temperature}` });
+  }
   const norm = doc.normalise;
   if (norm?.method === 'zscore') {
     raw.zscore = { mean: orEmpty(norm.mean), std: orEmpty(norm.std), m2: orEmpty(norm.m2), count: norm.count };
@@ -118,7 +122,12 @@ export function encodeModel(doc: ModelDoc, label = '(model being written)'): Uin
   const problems: Problem[] = [];
   const raw = toPayload(doc, problems);
   if (problems.length > 0) throw new ModelFileError(label, problems);
-  return frame(encodePayload(raw));
+  return frame(encodePayload(raw), versionFor(raw));
+}
+
+/** The lowest version that holds the payload (FORMAT.md, section 6): 1.1 only with a temperature. */
+function versionFor(raw: RawModel): FormatVersion {
+  return raw.temperature !== 0 ? FORMAT_VERSION : { major: 1, minor: 0 };
 }
 
 export interface DecodedModel {

@@ -18,8 +18,11 @@ export interface FormatVersion {
   readonly minor: number;
 }
 
-/** The version this code writes. It reads any 1.x. */
-export const FORMAT_VERSION: FormatVersion = { major: 1, minor: 0 };
+/**
+ * The newest version this code writes (1.1 added the temperature); a file is written with the
+ * lowest version that holds it. It reads any 1.x.
+ */
+export const FORMAT_VERSION: FormatVersion = { major: 1, minor: 1 };
 
 export interface FileHeader {
   readonly version: FormatVersion;

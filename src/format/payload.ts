@@ -97,6 +97,8 @@ export interface RawModel {
   layers: RawLayer[];
   info: RawInfo | null;
   lineage: RawLineage[];
+  /** 0 = no temperature (since 1.1). */
+  temperature: number;
 }
 
 let payloadType: protobuf.Type | null = null;

@@ -29,6 +29,9 @@ message TendonModel {
   ModelInfo info = 7;
   // Oldest first: the files this model was derived from.
   repeated LineageStep lineage = 8;
+  // Since 1.1. Calibration temperature T: the output layer's logits are divided by T before
+  // its softmax or sigmoid. 0 (absent) means none; otherwise finite and > 0.
+  double temperature = 9;
 }
 
 // Per-feature z-score statistics (float64). All three arrays empty = not yet fitted.

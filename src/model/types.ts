@@ -103,6 +103,11 @@ export interface ModelDoc {
   provenance: Provenance[];
   /** How tensors are stored when this document is written. */
   storage: StorageCodec;
+  /**
+   * Calibration temperature T > 0 fitted by `tune --calibrate`: the output layer's logits are
+   * divided by T before its softmax or sigmoid. Absent (or 1) means none; see temperature.ts.
+   */
+  temperature?: number;
 }
 
 /** A named float32 tensor of a layer, e.g. layers[0].weight [4, 16]. */

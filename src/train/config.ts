@@ -3,7 +3,8 @@
  * hyperparameters before any epoch runs (TuneConfigError names the option).
  */
 import { TuneConfigError } from '../errors.js';
-import type { ModelDoc } from '../model/types.js';
+import { canCalibrate, outputDenseIndex } from '../model/temperature.js';
+import type { DenseLayer, ModelDoc } from '../model/types.js';
 import { LOSS_NAMES, type LossName } from './losses.js';
 import type { NormalisationPolicy } from './normalisation.js';
 import { ADAM_DEFAULTS, OPTIMISER_NAMES, type OptimiserSpec, type WeightDecay } from './optimisers.js';
@@ -70,6 +71,12 @@ export interface TuneOptions {
   loss?: string;
   /** On a fitted normalise block: 'keep' (default) or 'continue' over the new rows. */
   normalisation?: string;
+  /**
+   * After training, fit a calibration temperature on the hold-out rows (needs hold-out rows and
+   * a softmax or single-sigmoid output). Without it, a temperature the model had is dropped:
+   * it was fitted to the old weights.
+   */
+  calibrate?: boolean;
 }
 
 export interface ResolvedTuneOptions {
@@ -89,6 +96,7 @@ export interface ResolvedTuneOptions {
   readonly replay: { readonly data: TuneData; readonly perBatch: number } | null;
   readonly loss: LossName | null;
   readonly normalisation: NormalisationPolicy;
+  readonly calibrate: boolean;
 }
 
 const isFiniteNumber = (v: unknown): v is number => typeof v === 'number' && Number.isFinite(v);
@@ -180,6 +188,13 @@ export function resolveTuneOptions(opts: TuneOptions, doc: ModelDoc): ResolvedTu
   const stopAfter = opts.stopAfter === undefined ? null : positiveInt('stopAfter', opts.stopAfter, 1);
   if (stopAfter !== null && holdout.kind === 'none') throw new TuneConfigError('stopAfter', 'early stopping needs hold-out rows (holdout or holdoutData)');
 
+  const calibrate = opts.calibrate === true;
+  if (calibrate && holdout.kind === 'none') throw new TuneConfigError('calibrate', 'fitting a temperature needs hold-out rows (holdout or holdoutData)');
+  if (calibrate && !canCalibrate(doc)) throw new TuneConfigError('calibrate', 'a temperature applies to a softmax or sigmoid output layer; this model\'s output is neither');
+  if (calibrate && (doc.layers[outputDenseIndex(doc)] as DenseLayer).activation === 'sigmoid' && (doc.layers[outputDenseIndex(doc)] as DenseLayer).units !== 1) {
+    throw new TuneConfigError('calibrate', 'a temperature is fitted to classes: a softmax output, or one sigmoid unit (this model has several sigmoid outputs)');
+  }
+
   const freeze = new Set<number>();
   for (const i of opts.freeze ?? []) {
     if (!Number.isInteger(i) || i < 0 || i >= doc.layers.length) {
@@ -224,5 +239,6 @@ export function resolveTuneOptions(opts: TuneOptions, doc: ModelDoc): ResolvedTu
     replay,
     loss: opts.loss === undefined ? null : oneOf('loss', opts.loss, LOSS_NAMES, 'mse'),
     normalisation: oneOf('normalisation', opts.normalisation, ['keep', 'continue'] as const, 'keep'),
+    calibrate,
   };
 }

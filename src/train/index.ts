@@ -11,3 +11,4 @@ export { accuracy, argmaxRows, confusionMatrix, meanAbsoluteError, predictedClas
 export { ReluActivity, linearStacks, rawInputs, vanishingGradient, type Diagnostic, type DiagnosticCode } from './diagnostics.js';
 export { renderReport, type ReportEpoch } from './report.js';
 export { batchesPerEpoch, epochBatches, gatherRows, shuffledOrder, splitHoldout } from './shuffle.js';
+export { CALIBRATION_CAUTION, ECE_BINS, classLogits, classProbabilities, expectedCalibrationError, fitTemperature, meanNll, scaledSoftmax, type TemperatureFit } from './calibration.js';

@@ -6,6 +6,7 @@
 import { DivergenceError } from '../errors.js';
 import type { ModelDoc } from '../model/index.js';
 import type { TrainPath } from './backends.js';
+import type { TemperatureFit } from './calibration.js';
 import type { TuneOptions } from './config.js';
 import type { Diagnostic } from './diagnostics.js';
 import type { LossSpec } from './losses.js';
@@ -74,6 +75,10 @@ export interface TuneResult {
   readonly loss: LossSpec;
   /** Where the steps actually ran (after any fallback). */
   readonly path: TrainPath;
+  /** With `calibrate`: the fitted temperature (stored in `doc`) and the hold-out NLL and ECE before and after. */
+  readonly calibration: TemperatureFit | null;
+  /** The temperature the input model had, dropped because it was fitted to the old weights; null when none was. */
+  readonly droppedTemperature: number | null;
 }
 
 /**

@@ -14,7 +14,9 @@
  */
 import { TuneConfigError } from '../errors.js';
 import { SeededRng, modelWidths, validateModel, type ModelDoc } from '../model/index.js';
+import { referenceLogits } from '../reference/index.js';
 import { makeBackend } from './backends.js';
+import { classLogits, fitTemperature, type TemperatureFit } from './calibration.js';
 import { clipGlobalNorm } from './clip.js';
 import { resolveTuneOptions, type TuneData } from './config.js';
 import { linearStacks } from './diagnostics.js';
@@ -52,7 +54,11 @@ export async function tune(doc: ModelDoc, data: TuneData, options: TuneRunOption
   checkPath(options.path);
   const rng = streams(opts.seed);
 
+  // The steps train the raw logits: a stored temperature is set aside, then refitted on the
+  // hold-out rows (calibrate) or dropped, since it was fitted to the old weights.
   const work = cloneDoc(doc);
+  const parentTemperature = work.temperature ?? null;
+  delete work.temperature;
   initialiseEmpty(work, rng.init);
   validateModel(work, work.meta.name || '(model)');
   const widths = modelWidths(work);
@@ -63,6 +69,7 @@ export async function tune(doc: ModelDoc, data: TuneData, options: TuneRunOption
     throw new TuneConfigError('loss', `${spec.name} reads logits, which needs a dense last layer; layers[${work.layers.length - 1}] is ${last.kind}`);
   }
   const classifier = data.y instanceof Int32Array;
+  if (opts.calibrate && !classifier) throw new TuneConfigError('calibrate', 'a temperature is fitted to class targets; these targets are values');
   const { train, held, replay } = runRows(data, opts, work.inputs, outputs, rng.split);
 
   const { path, fallback } = choosePath(options.path, work);
@@ -195,9 +202,18 @@ export async function tune(doc: ModelDoc, data: TuneData, options: TuneRunOption
     backend.dispose();
   }
 
+  // Calibration: one temperature fitted on the hold-out rows' logits (calibration.ts).
+  let calibration: TemperatureFit | null = null;
+  if (opts.calibrate && held && held.y instanceof Int32Array && !aborted) {
+    const { logits, classes } = classLogits(referenceLogits(work, held.x, held.rows), held.rows, outputs);
+    calibration = fitTemperature(logits, held.rows, classes, held.y);
+    work.temperature = calibration.temperature;
+  }
+
   const parent = parentProvenance(doc, options.parent);
   if (parent) work.provenance.push({ checksum: parent.checksum, source: parent.source, action: 'tune', at: new Date().toISOString() });
-  return { doc: work, history, diagnostics: log.list, stoppedEarly, bestEpoch, aborted, loss: spec, path };
+  const droppedTemperature = calibration === null ? parentTemperature : null;
+  return { doc: work, history, diagnostics: log.list, stoppedEarly, bestEpoch, aborted, loss: spec, path, calibration, droppedTemperature };
 }
 
 /**
