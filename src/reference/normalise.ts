@@ -28,3 +28,22 @@ function rangeOf(min: Float64Array | null, max: Float64Array | null): Float64Arr
   if (!min || !max) return null;
   return max.map((hi, c) => hi - min[c]);
 }
+
+/**
+ * Backward through `normalise64`: a gradient with respect to the normalised features becomes
+ * one with respect to the raw features, d/dx = d/dx' / spread. A feature with zero spread maps
+ * to a constant 0, so its raw gradient is 0; an unfitted block passes the gradient through.
+ * @example normaliseBackward64(doc.normalise, dxNormalised)
+ */
+export function normaliseBackward64(n: Normalisation | null, dxn: Mat64): Mat64 {
+  const spread = n ? (n.method === 'zscore' ? (n.mean ? n.std : null) : rangeOf(n.min, n.max)) : null;
+  if (!spread) return mat64(dxn.rows, dxn.cols, Float64Array.from(dxn.data));
+  const dx = new Float64Array(dxn.data.length);
+  for (let r = 0; r < dxn.rows; r++) {
+    for (let c = 0; c < dxn.cols; c++) {
+      const i = r * dxn.cols + c;
+      dx[i] = spread[c] === 0 ? 0 : dxn.data[i] / spread[c];
+    }
+  }
+  return mat64(dxn.rows, dxn.cols, dx);
+}
