@@ -90,7 +90,7 @@ function normsOf(e: ReportEpoch): [number, number][] {
  *
  * @example writeFileSync('run.svg', renderReport('iris', history))
  */
-export function renderReport(title: string, epochs: readonly ReportEpoch[]): string {
+export function renderReport(title: string, epochs: readonly ReportEpoch[], footnote?: string): string {
   const panels: string[] = [];
   const loss: Series[] = [
     { label: 'train loss', colour: COLOURS[0], points: epochs.map((e) => [e.epoch + 1, e.trainLoss]) },
@@ -115,13 +115,15 @@ export function renderReport(title: string, epochs: readonly ReportEpoch[]): str
     points: epochs.flatMap((e) => normsOf(e).filter(([l]) => l === layer).map(([, v]) => [e.epoch + 1, v] as [number, number])),
   }));
   panels.push(panel('gradient norm per layer (log scale)', normSeries, panels.length * PANEL_HEIGHT, true));
-  const height = panels.length * PANEL_HEIGHT + 30;
+  // A footnote (the calibration line of a calibrated run) gets a line of its own under the panels.
+  const height = panels.length * PANEL_HEIGHT + 30 + (footnote ? 24 : 0);
   return [
     `<?xml version="1.0" encoding="UTF-8"?>`,
     `<svg xmlns="http://www.w3.org/2000/svg" width="${WIDTH}" height="${height}" viewBox="0 0 ${WIDTH} ${height}" font-family="sans-serif">`,
     `<rect width="100%" height="100%" fill="#fff"/>`,
     `<text x="${MARGIN.left}" y="20" font-size="15" font-weight="bold">${escapeXml(title)}</text>`,
     `<g transform="translate(0,30)">${panels.join('')}</g>`,
+    ...(footnote ? [`<text x="${MARGIN.left}" y="${height - 8}" font-size="11">${escapeXml(footnote)}</text>`] : []),
     `</svg>`,
     '',
   ].join('\n');

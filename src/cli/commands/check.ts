@@ -7,6 +7,8 @@ import { noExtraPositionals, parseArgs, requirePositional } from '../args.js';
 import type { Command } from '../command.js';
 import { percent, sci, textTable } from '../format.js';
 import { inputChunks } from '../model-input.js';
+import { isClassifier, loadTrainingData } from '../training-data.js';
+import { CALIBRATION_CAUTION, ECE_BINS, accuracy, argmaxRows, classProbabilities, expectedCalibrationError } from '../../train/index.js';
 import { parseEngine } from './engine-flag.js';
 
 const flags = {
@@ -15,6 +17,7 @@ const flags = {
   seed: { kind: 'integer', help: 'seed for the random rows', default: 1 },
   engine: { kind: 'string', help: 'auto, fast, wasm or js', default: 'auto' },
   json: { kind: 'boolean', help: 'print the report as JSON' },
+  target: { kind: 'string', short: 't', help: 'with --input: the class column; also report accuracy and calibration error (ECE, 15 bins) on those labelled rows' },
   against: { kind: 'string', help: 'judge MODEL against its parent file instead (both on the float64 reference path; tolerance by MODEL\'s storage)' },
 } as const;
 
@@ -24,7 +27,7 @@ const MAX_CHECK_ROWS = 100_000;
 export const check: Command = {
   name: 'check',
   summary: 'prove the engine against the float64 reference, per layer and at the output (exit 1 if a tolerance breaks)',
-  usage: 'tendon check MODEL [--input FILE] [--rows N] [--json] [--engine js|wasm|auto] [--against PARENT]',
+  usage: 'tendon check MODEL [--input FILE [--target COLUMN]] [--rows N] [--json] [--engine js|wasm|auto] [--against PARENT]',
   flags,
   async run(argv, io) {
     const { flags: f, positionals } = parseArgs(argv, flags);
@@ -32,13 +35,19 @@ export const check: Command = {
     noExtraPositionals(positionals, 1);
     const rows = f.rows ?? 256;
     if (rows < 1) throw new UsageError('--rows', `must be at least 1, got ${rows}`);
+    if (f.target !== undefined && !f.input) throw new UsageError('--target', 'needs --input: the labelled rows to judge');
+    if (f.target !== undefined && f.against) throw new UsageError('--target', 'cannot be combined with --against');
     if (f.against) return checkAgainst(path, f.against, rows, f.seed ?? 1, f.input, f.json, io);
     const model = await openModel(path, { engine: parseEngine(f.engine) });
     try {
       const input = f.input ? await readInput(model, f.input) : undefined;
       const report = model.check(input ?? { x: randomInputs(model.doc, rows, f.seed ?? 1), rows });
-      if (f.json) io.out(JSON.stringify({ model: path, engine: model.engine, ...report }, null, 2) + '\n');
-      else io.out(describeParity(report, `${path} on the ${model.engine} engine, ${report.output.rows} rows${f.input ? ` from ${f.input}` : ' (seeded random)'}`));
+      const labelled = f.input && f.target !== undefined ? await labelledQuality(model, f.input, f.target) : null;
+      if (f.json) io.out(JSON.stringify({ model: path, engine: model.engine, ...report, ...(labelled ? { labelled } : {}) }, null, 2) + '\n');
+      else {
+        io.out(describeParity(report, `${path} on the ${model.engine} engine, ${report.output.rows} rows${f.input ? ` from ${f.input}` : ' (seeded random)'}`));
+        if (labelled) io.out(describeLabelled(labelled, f.input ?? ''));
+      }
       return report.pass ? 0 : 1;
     } finally {
       model.dispose();
@@ -104,4 +113,44 @@ async function checkAgainst(path: string, parentPath: string, rows: number, seed
     );
   }
   return c.pass ? 0 : 1;
+}
+
+/** Accuracy, calibration error and mean NLL of the model as it runs, on labelled rows. */
+interface LabelledQuality {
+  readonly rows: number;
+  readonly accuracy: number;
+  readonly ece: number;
+  readonly bins: number;
+  /** Mean negative log-likelihood in nats per row (probabilities clamped at 1e-12). */
+  readonly nll: number;
+  /** The calibration temperature the model applies; null when it has none. */
+  readonly temperature: number | null;
+  readonly caution: string;
+}
+
+async function labelledQuality(model: TendonModel, file: string, target: string): Promise<LabelledQuality> {
+  if (!isClassifier(model.doc)) throw new UsageError('--target', 'accuracy and calibration error need a classifier (a softmax output, or one sigmoid unit)');
+  const data = await loadTrainingData(model.doc, file, [target]);
+  const labels = data.y as Int32Array;
+  const y = model.run(Float32Array.from(data.x), data.rows);
+  const { probs, classes } = classProbabilities(y, data.rows, model.outputs);
+  let nll = 0;
+  for (let r = 0; r < data.rows; r++) nll -= Math.log(Math.max(probs[r * classes + labels[r]], 1e-12));
+  return {
+    rows: data.rows,
+    accuracy: accuracy(argmaxRows(probs, data.rows, classes), labels),
+    ece: expectedCalibrationError(probs, data.rows, classes, labels),
+    bins: ECE_BINS,
+    nll: nll / Math.max(data.rows, 1),
+    temperature: model.doc.temperature ?? null,
+    caution: CALIBRATION_CAUTION,
+  };
+}
+
+function describeLabelled(q: LabelledQuality, file: string): string {
+  return (
+    `\non ${q.rows} labelled rows of ${file}: accuracy ${percent(q.accuracy, 2)}, calibration error (ECE, ${q.bins} bins) ${q.ece.toFixed(4)}, ` +
+    `mean NLL ${q.nll.toFixed(4)}; ${q.temperature === null ? 'no calibration temperature' : `calibration temperature ${q.temperature.toFixed(4)}`}\n` +
+    `note: ${q.caution}\n`
+  );
 }

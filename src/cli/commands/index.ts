@@ -6,9 +6,10 @@ import { fold } from './fold.js';
 import { serve } from './serve.js';
 import { shrink } from './shrink.js';
 import { demo } from './demo.js';
+import { explain } from './explain.js';
 import { pack } from './pack.js';
 import { run } from './run.js';
 import { show } from './show.js';
 import { tune } from './tune.js';
 
-export const commands: readonly Command[] = [demo, pack, show, run, check, tune, bench, shrink, fold, serve];
+export const commands: readonly Command[] = [demo, pack, show, run, check, explain, tune, bench, shrink, fold, serve];

@@ -2,6 +2,7 @@ import { writeFile } from 'node:fs/promises';
 import { UsageError } from '../../errors.js';
 import { readModelFile, writeModelFile } from '../../format/index.js';
 import { renderReport } from '../../train/report.js';
+import { CALIBRATION_CAUTION, ECE_BINS, type TemperatureFit } from '../../train/calibration.js';
 import { tune as tuneModel, type EpochRecord, type TuneRunOptions } from '../../train/tune.js';
 import { ensureEngine, useEngine } from '../../engine/index.js';
 import { buildModelFromSpecFile } from './pack.js';
@@ -37,6 +38,7 @@ const flags = {
   loss: { kind: 'string', help: 'override the loss chosen from the output activation' },
   report: { kind: 'string', help: 'write an SVG report: loss and accuracy curves, per-layer gradient norms' },
   log: { kind: 'string', help: 'per-epoch log: text or jsonl (default: text on a terminal, jsonl otherwise)' },
+  calibrate: { kind: 'boolean', help: 'after training, fit a calibration temperature on the hold-out rows and store it (needs --holdout or --holdout-file)' },
   'keep-interrupted': { kind: 'boolean', help: 'on Ctrl-C, save what is complete as OUT.interrupted' },
   engine: { kind: 'string', help: 'auto, fast, wasm or js', default: 'auto' },
 } as const;
@@ -44,7 +46,7 @@ const flags = {
 export const tune: Command = {
   name: 'tune',
   summary: 'train or fine-tune a model (a model file, or a JSON spec) on local data with mini-batch gradient descent',
-  usage: 'tendon tune MODEL|SPEC.json --data FILE --target COLUMN[,COLUMN] -o OUT [--epochs N] [--batch K] [--lr X] [--optimizer sgd|momentum|adam] [--seed S] [--holdout FRACTION | --holdout-file FILE] [--freeze LAYERS] [--anchor STRENGTH] [--report FILE]',
+  usage: 'tendon tune MODEL|SPEC.json --data FILE --target COLUMN[,COLUMN] -o OUT [--epochs N] [--batch K] [--lr X] [--optimizer sgd|momentum|adam] [--seed S] [--holdout FRACTION | --holdout-file FILE] [--freeze LAYERS] [--anchor STRENGTH] [--calibrate] [--report FILE]',
   flags,
   async run(argv, io) {
     const { flags: f, positionals } = parseArgs(argv, flags);
@@ -54,6 +56,9 @@ export const tune: Command = {
     const targets = requireFlag(f.target, 'target').split(',').map((t) => t.trim()).filter(Boolean);
     const out = requireFlag(f.out, 'out');
     if (f.holdout !== undefined && f['holdout-file'] !== undefined) throw new UsageError('--holdout', 'give --holdout or --holdout-file, not both');
+    if (f.calibrate && f.holdout === undefined && f['holdout-file'] === undefined) {
+      throw new UsageError('--calibrate', 'needs hold-out rows to fit the temperature on: add --holdout FRACTION or --holdout-file FILE');
+    }
     const log = f.log ?? (io.interactive ? 'text' : 'jsonl');
     if (log !== 'text' && log !== 'jsonl') throw new UsageError('--log', `must be text or jsonl, got "${log}"`);
     const freeze = f.freeze === undefined ? undefined : parseIndices(f.freeze);
@@ -92,6 +97,7 @@ export const tune: Command = {
       loss: f.loss,
       parent: parent ? { checksum: parent.checksum, source: modelPath } : undefined,
       path,
+      calibrate: f.calibrate || undefined,
     };
 
     const bar = progressLine((t) => io.err(t), io.interactive && log === 'text');
@@ -130,6 +136,7 @@ export const tune: Command = {
             holdoutAccuracy: e.holdout?.accuracy ?? null,
             gradientNorms: e.gradientNorms,
           })),
+          result.calibration ? calibrationText(result.calibration) : undefined,
         ),
       );
     }
@@ -147,11 +154,30 @@ export const tune: Command = {
     const seconds = (performance.now() - started) / 1000;
     const ran = result.path === 'fast' ? 'the fast kernel' : result.path === 'engine' ? `the tfjs ${ensureEngine()} engine` : 'the float64 reference';
     const summary = `saved ${out} (checksum ${written.checksum}) after ${result.history.length} epochs in ${seconds.toFixed(1)} s on ${ran}; weights from epoch ${result.bestEpoch + 1}${result.stoppedEarly ? ' (stopped early)' : ''}`;
-    if (log === 'jsonl') io.out(JSON.stringify({ saved: out, checksum: written.checksum, epochs: result.history.length, bestEpoch: result.bestEpoch, stoppedEarly: result.stoppedEarly, path: result.path }) + '\n');
-    else io.out(summary + '\n');
+    const c = result.calibration;
+    if (log === 'jsonl') {
+      const calibration = c
+        ? { temperature: c.temperature, atBound: c.atBound, rows: c.rows, nllBefore: c.nllBefore, nllAfter: c.nllAfter, eceBefore: c.eceBefore, eceAfter: c.eceAfter, bins: ECE_BINS }
+        : null;
+      io.out(JSON.stringify({ saved: out, checksum: written.checksum, epochs: result.history.length, bestEpoch: result.bestEpoch, stoppedEarly: result.stoppedEarly, path: result.path, calibration, droppedTemperature: result.droppedTemperature }) + '\n');
+    } else {
+      io.out(summary + '\n');
+      if (c) io.out(`${calibrationText(c)}\nnote: ${CALIBRATION_CAUTION}\n`);
+    }
+    if (result.droppedTemperature !== null) {
+      io.err(`note: the input model's calibration temperature ${result.droppedTemperature.toFixed(4)} was dropped: it was fitted to the old weights; add --calibrate to fit a new one\n`);
+    }
     return 0;
   },
 };
+
+/** One line: the fitted temperature and the hold-out calibration error and NLL before and after. */
+function calibrationText(c: TemperatureFit): string {
+  return (
+    `calibration: temperature ${c.temperature.toFixed(4)}${c.atBound ? ' (at the end of the search range)' : ''} fitted on ${grouped(c.rows)} hold-out rows; ` +
+    `calibration error (ECE, ${ECE_BINS} bins) ${c.eceBefore.toFixed(4)} -> ${c.eceAfter.toFixed(4)}, hold-out NLL ${c.nllBefore.toFixed(4)} -> ${c.nllAfter.toFixed(4)}`
+  );
+}
 
 function parseIndices(text: string): number[] {
   return text.split(',').map((part) => {
