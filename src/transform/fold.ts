@@ -102,6 +102,8 @@ export function foldModel(doc: ModelDoc, options: FoldOptions = {}): FoldResult 
     meta: { ...doc.meta, extra },
     provenance: [...doc.provenance, { checksum: parent.checksum, source: parent.source, action: 'fold', at: options.at ?? new Date().toISOString() }],
     storage: doc.storage,
+    // Folding keeps the output layer's logits, so a calibration temperature still fits them.
+    ...(doc.temperature !== undefined ? { temperature: doc.temperature } : {}),
   };
   validateModel(folded, '(folded model)');
   return { doc: folded, steps };
