@@ -11,6 +11,7 @@ import { liveTensorCount } from '../engine/index.js';
 import { openModel, type TendonModel } from '../tendon.js';
 import { BusyError, type BatcherOptions, type MicroBatcher } from './batcher.js';
 import { readBody } from './http-body.js';
+import { EXPLAIN_MAX_ROWS, explainRequest } from './http-explain.js';
 import { HttpProblem } from './http-problem.js';
 import { METHODS, ROUTES, pathOf, printablePath, send, sendJson } from './http-routes.js';
 import { parseScoreBody } from './http-rows.js';
@@ -30,6 +31,8 @@ export interface RequestHandlerOptions {
   readonly bodyLimitBytes?: number;
   /** Most rows in one score request. Default 10 000 (never more than the batcher's queue). */
   readonly maxRowsPerRequest?: number;
+  /** Most rows in one explain request (float64 work on the main thread). Default 100. */
+  readonly maxExplainRows?: number;
   /** Replace how a batch runs (a slow stand-in in tests). Not with `workers` above 1. */
   readonly runBatch?: ModelBatchRunner;
   /**
@@ -181,6 +184,14 @@ export function createRequestHandler(options: RequestHandlerOptions): TendonRequ
         const answer = await score(req);
         sendJson(res, answer.status, answer.body, closing ? { connection: 'close' } : {});
         return answer;
+      }
+      case ROUTES.explain: {
+        if (closing) throw new HttpProblem(503, 'shutting down; no new requests are taken', { 'retry-after': retryAfter, connection: 'close' });
+        const model = slot?.current;
+        if (!model) throw notLoaded();
+        const answer = await explainRequest(req, model, { bodyLimitBytes: bodyLimit, maxRows: options.maxExplainRows ?? EXPLAIN_MAX_ROWS });
+        sendJson(res, 200, answer.body);
+        return { status: 200, rows: answer.rows };
       }
       case ROUTES.about:
         sendJson(res, 200, about());

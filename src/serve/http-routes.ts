@@ -7,6 +7,7 @@ import type { ServerResponse } from 'node:http';
 
 export const ROUTES = {
   score: '/v1/score',
+  explain: '/v1/explain',
   about: '/v1/about',
   alive: '/v1/alive',
   ready: '/v1/ready',
@@ -16,6 +17,7 @@ export const ROUTES = {
 /** The one method each route answers. */
 export const METHODS: Record<string, 'GET' | 'POST'> = {
   [ROUTES.score]: 'POST',
+  [ROUTES.explain]: 'POST',
   [ROUTES.about]: 'GET',
   [ROUTES.alive]: 'GET',
   [ROUTES.ready]: 'GET',

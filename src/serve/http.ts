@@ -4,6 +4,7 @@
  *
  * Routes (under an optional prefix):
  *   POST /v1/score     {"rows": [[...], ...]} or {"rows": [{"feature": value, ...}]} -> outputs
+ *   POST /v1/explain   the same rows -> per-feature attributions by name (?class=&steps=&baseline=)
  *   GET  /v1/about     the model's facts (what `tendon show --json` prints)
  *   GET  /v1/alive     the process answers
  *   GET  /v1/ready     a model is loaded and the endpoint is not shutting down
@@ -15,7 +16,7 @@
  * Re-exports only. The parts: http-routes (route table, writing answers), http-handler (the
  * served model and dispatch), http-score (batching and the score answer), http-server (the
  * standalone server's start and stop), http-pool (worker pools per
- * served model), http-body / http-rows / http-problem (reading requests).
+ * served model), http-explain (attributions), http-body / http-rows / http-problem (reading requests).
  */
 export { ROUTES } from './http-routes.js';
 export { createRequestHandler, type RequestHandlerOptions, type TendonRequestHandler } from './http-handler.js';
