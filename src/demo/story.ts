@@ -10,6 +10,9 @@ import type { EngineChoice } from '../engine/index.js';
 import { writeModelFile } from '../format/index.js';
 import { SeededRng, type ModelDoc } from '../model/index.js';
 import { openModel, type TendonModel } from '../tendon.js';
+import { ATTRIBUTION_CAUTION, DEFAULT_STEPS, explainRows, namedBaseline, topFeatures } from '../explain/index.js';
+import { referenceForward, referenceLogits, toMat64 } from '../reference/index.js';
+import { CALIBRATION_CAUTION, expectedCalibrationError, scaledSoftmax } from '../train/calibration.js';
 import { argmaxRows, accuracy, confusionMatrix } from '../train/metrics.js';
 import { tune, type EpochRecord, type TuneResult } from '../train/tune.js';
 import type { TuneRunOptions } from '../train/tune.js';
@@ -29,6 +32,10 @@ export interface DemoOutcome {
   readonly parityPass: boolean;
   /** Accuracy of each model at each site's test rows. */
   readonly table: { model: string; first: number; second: number }[];
+  /** Why one flagged loaf was flagged: its attributions (integrated gradients) and completeness gap. */
+  readonly explained: { readonly loaf: number; readonly label: string; readonly top: { name: string; value: number }[]; readonly gap: number } | null;
+  /** The temperature fitted at the first site and the calibration error on its new loaves before and after. */
+  readonly calibration: { readonly temperature: number; readonly eceBefore: number; readonly eceAfter: number };
 }
 
 /** The model the demo starts from: seven raw sensor readings in, three bake classes out. */
@@ -86,7 +93,7 @@ export async function runDemo(opts: DemoOptions): Promise<DemoOutcome> {
 
   // 2. Train at the first site.
   const t0 = performance.now();
-  const trained = await tune(fresh, asData(firstTrain), { ...common(opts.seed), epochs: 40, holdout: 0.2, stopAfter: 8 }, { signal: opts.signal });
+  const trained = await tune(fresh, asData(firstTrain), { ...common(opts.seed), epochs: 40, holdout: 0.2, stopAfter: 8, calibrate: true }, { signal: opts.signal });
   const seconds = (performance.now() - t0) / 1000;
   const firstPath = join(dir, 'bakery-northgate.tendon');
   await writeModelFile(firstPath, trained.doc);
@@ -118,6 +125,13 @@ export async function runDemo(opts: DemoOptions): Promise<DemoOutcome> {
       `4. parity against the float64 reference on ${parity.output.rows} rows: max abs error ${parity.output.maxAbs.toExponential(2)}, ` +
         `max rel error ${parity.output.maxRel.toExponential(2)}, top class agrees on ${pct(parity.output.topClassAgreement ?? 1)} — ${parity.pass ? 'PASS' : 'FAIL'}`,
     );
+    const calibration = calibrationOnNewLoaves(trained.doc, firstTest);
+    say(
+      `   calibration: temperature ${calibration.temperature.toFixed(3)} fitted on the ${trained.calibration?.rows ?? 0} hold-out loaves; ` +
+        `calibration error (ECE, 15 bins) on the ${firstTest.rows} new loaves ${calibration.eceBefore.toFixed(3)} before, ${calibration.eceAfter.toFixed(3)} after`,
+    );
+    say(`   (${CALIBRATION_CAUTION})`);
+    const explained = explainFlagged(trained.doc, firstTest, say);
 
     // 4. The second site: its sensors read differently.
     const secondBefore = accuracyOf(model, secondTest);
@@ -168,10 +182,56 @@ export async function runDemo(opts: DemoOptions): Promise<DemoOutcome> {
     say(`  npx tendon show ${firstPath}`);
     say(`  npx tendon check ${firstPath}`);
     say(`  npx tendon tune ${firstPath} --data ${join(dir, 'riverside-loaves.csv')} --target quality --anchor 0.05 --replay ${join(dir, 'northgate-loaves.csv')} --holdout 0.2 --epochs 20 -o ${join(dir, 'mine.tendon')}`);
-    return { dir, firstSiteAccuracy: firstAcc, parityPass: parity.pass, table };
+    say(`  npx tendon explain ${firstPath} --input ${join(dir, 'northgate-loaves.csv')} --output ${join(dir, 'why.csv')}`);
+    return { dir, firstSiteAccuracy: firstAcc, parityPass: parity.pass, table, explained, calibration };
   } finally {
     model.dispose();
   }
+}
+
+/** Plain words for the sensor columns, for the sentence that says why a loaf was flagged. */
+const PLAIN_WORDS: Record<string, string> = {
+  zone1_temp_c: 'zone 1 temperature',
+  zone2_temp_c: 'zone 2 temperature',
+  zone3_temp_c: 'zone 3 temperature',
+  humidity_pct: 'humidity',
+  belt_speed_m_min: 'belt speed',
+  dough_mass_g: 'dough mass',
+  proof_time_min: 'proof time',
+};
+
+/**
+ * The first new loaf the model flags (not "good"), explained against the average loaf: the
+ * three features that moved its score most, in plain words.
+ */
+function explainFlagged(doc: ModelDoc, b: BakeryBatch, say: (line: string) => void): DemoOutcome['explained'] {
+  const probs = referenceForward(doc, toMat64(b.x, b.rows, 7)).y.data;
+  const top = argmaxRows(probs, b.rows, 3);
+  const loaf = top.findIndex((k) => BAKERY_LABELS[k] !== 'good');
+  if (loaf < 0) return null;
+  const row = b.x.subarray(loaf * 7, loaf * 7 + 7);
+  const e = explainRows(doc, row, 1, { output: top[loaf], baseline: namedBaseline(doc, 'mean', 'baseline'), steps: DEFAULT_STEPS });
+  const label = BAKERY_LABELS[top[loaf]];
+  const best = topFeatures(doc, e.attributions, 0, 3);
+  say('');
+  say(
+    `   why new loaf ${loaf + 1} was flagged "${label}" (p = ${e.score[0].toFixed(2)}, against ${e.baselineScore[0].toFixed(2)} for the average loaf): ` +
+      best.map((f) => `${PLAIN_WORDS[f.name] ?? f.name} ${f.value >= 0 ? '+' : ''}${f.value.toFixed(2)}`).join(', '),
+  );
+  say(`   (integrated gradients; the seven shares sum to the difference to within ${(e.gaps[0] * 100).toFixed(2)}%; ${ATTRIBUTION_CAUTION})`);
+  return { loaf, label, top: best, gap: e.gaps[0] };
+}
+
+/** Calibration error on new loaves without and with the fitted temperature (float64 path). */
+function calibrationOnNewLoaves(doc: ModelDoc, b: BakeryBatch): DemoOutcome['calibration'] {
+  const temperature = doc.temperature ?? 1;
+  const z = referenceLogits(doc, b.x, b.rows);
+  const labels = Int32Array.from(b.y);
+  return {
+    temperature,
+    eceBefore: expectedCalibrationError(scaledSoftmax(z, b.rows, 3, 1), b.rows, 3, labels),
+    eceAfter: expectedCalibrationError(scaledSoftmax(z, b.rows, 3, temperature), b.rows, 3, labels),
+  };
 }
 
 function common(seed: number): TuneRunOptions {

@@ -24,5 +24,16 @@ describe('tendon demo', () => {
     const files = await readdir(dir);
     expect(files).toEqual(expect.arrayContaining(['bakery-fresh.tendon', 'bakery-northgate.tendon', 'bakery-riverside.tendon', 'northgate-loaves.csv']));
     expect(lines.join('\n')).toContain('PASS');
+    // Why a loaf was flagged: three features in plain words, completeness within 1%
+    // (integrated gradients, Sundararajan, Taly and Yan 2017).
+    expect(outcome.explained).not.toBeNull();
+    expect(outcome.explained!.top).toHaveLength(3);
+    expect(outcome.explained!.gap).toBeLessThan(0.01);
+    expect(lines.join('\n')).toMatch(/why new loaf \d+ was flagged "(under|over)" .*: [a-z0-9 ]+ [+-]\d\.\d\d, [a-z0-9 ]+ [+-]\d\.\d\d, [a-z0-9 ]+ [+-]\d\.\d\d/);
+    expect(lines.join('\n')).toContain('not causes in the world');
+    // Calibration before and after on new loaves (Guo et al. 2017; invented data pins the demo's numbers' direction).
+    expect(outcome.calibration.temperature).toBeGreaterThan(0);
+    expect(outcome.calibration.eceAfter).toBeLessThanOrEqual(outcome.calibration.eceBefore);
+    expect(lines.join('\n')).toMatch(/calibration error \(ECE, 15 bins\) on the 1500 new loaves 0\.\d{3} before, 0\.\d{3} after/);
   });
 });
