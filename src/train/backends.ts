@@ -63,7 +63,7 @@ export function makeBackend(path: TrainPath, doc: ModelDoc, preActivation: boole
   const view = logitsView(doc, preActivation);
   const outputs = (): number => {
     let w = doc.inputs;
-    for (const l of doc.layers) if (l.kind === 'dense') w = l.units;
+    for (const l of doc.layers) if (l.kind === 'dense') w = l.size;
     return w;
   };
   if (path === 'reference') {

@@ -47,7 +47,7 @@ interface WorkDense {
   readonly kind: 'dense';
   readonly origin: number[];
   inputs: number;
-  units: number;
+  size: number;
   activation: ActivationName;
   alpha: number;
   weight: Float64Array;
@@ -92,7 +92,7 @@ export function foldModel(doc: ModelDoc, options: FoldOptions = {}): FoldResult 
   }
   work = collapseLinear(work, steps);
 
-  const parent = options.parent ?? { checksum: checksumOf(encodeModel(doc)), source: doc.meta.name || '(document)' };
+  const parent = options.parent ?? { checksum: checksumOf(encodeModel(doc)), source: doc.meta.name ? `${doc.meta.name}, held in memory` : 'a model held in memory' };
   const folded: ModelDoc = {
     inputs: doc.inputs,
     features: doc.features ? [...doc.features] : null,
@@ -100,7 +100,7 @@ export function foldModel(doc: ModelDoc, options: FoldOptions = {}): FoldResult 
     normalise: normalise ? copyNormalisation(normalise) : null,
     layers: work.map(fromWork),
     meta: { ...doc.meta, extra },
-    provenance: [...doc.provenance, { checksum: parent.checksum, source: parent.source, action: 'fold', at: options.at ?? new Date().toISOString() }],
+    provenance: [...doc.provenance, { checksum: parent.checksum, source: parent.source, action: 'folded', at: options.at ?? new Date().toISOString() }],
     storage: doc.storage,
     // Folding keeps the output layer's logits, so a calibration temperature still fits them.
     ...(doc.temperature !== undefined ? { temperature: doc.temperature } : {}),
@@ -117,13 +117,13 @@ function toWork(doc: ModelDoc): Work[] {
         kind: 'dense',
         origin: [i],
         inputs: width,
-        units: layer.units,
+        size: layer.size,
         activation: layer.activation,
         alpha: layer.alpha,
         weight: Float64Array.from(layer.weight),
         bias: Float64Array.from(layer.bias),
       };
-      width = layer.units;
+      width = layer.size;
       return w;
     }
     return { kind: layer.kind, origin: [i], layer, width };
@@ -133,12 +133,12 @@ function toWork(doc: ModelDoc): Work[] {
 function fromWork(w: Work): Layer {
   if (w.kind !== 'dense') return w.layer;
   // The one rounding to float32 of every folded value.
-  return { kind: 'dense', units: w.units, activation: w.activation, alpha: w.alpha, weight: Float32Array.from(w.weight), bias: Float32Array.from(w.bias) };
+  return { kind: 'dense', size: w.size, activation: w.activation, alpha: w.alpha, weight: Float32Array.from(w.weight), bias: Float32Array.from(w.bias) };
 }
 
 /** Per-feature u = a ⊙ x + c absorbed by the dense layer that reads u. */
 function absorbBefore(dense: WorkDense, a: ArrayLike<number>, c: ArrayLike<number>): void {
-  const { inputs, units, weight, bias } = dense;
+  const { inputs, size: units, weight, bias } = dense;
   for (let k = 0; k < inputs; k++) {
     for (let j = 0; j < units; j++) {
       const w = weight[k * units + j];
@@ -150,7 +150,7 @@ function absorbBefore(dense: WorkDense, a: ArrayLike<number>, c: ArrayLike<numbe
 
 /** Per-unit a ⊙ y + c applied after a linear dense layer, absorbed into that layer. */
 function absorbAfter(dense: WorkDense, a: ArrayLike<number>, c: ArrayLike<number>): void {
-  const { inputs, units, weight, bias } = dense;
+  const { inputs, size: units, weight, bias } = dense;
   for (let k = 0; k < inputs; k++) for (let j = 0; j < units; j++) weight[k * units + j] *= a[j];
   for (let j = 0; j < units; j++) bias[j] = a[j] * bias[j] + c[j];
 }
@@ -222,15 +222,15 @@ function collapseLinear(work: Work[], steps: FoldStep[]): Work[] {
   for (const w of work) {
     const prev = out[out.length - 1];
     if (w.kind === 'dense' && prev?.kind === 'dense' && prev.activation === 'linear') {
-      const pairParams = prev.inputs * prev.units + prev.units + w.inputs * w.units + w.units;
-      const productParams = prev.inputs * w.units + w.units;
+      const pairParams = prev.inputs * prev.size + prev.size + w.inputs * w.size + w.size;
+      const productParams = prev.inputs * w.size + w.size;
       const layers = [...prev.origin, ...w.origin];
       if (productParams > pairParams) {
         steps.push({
           step: 'linear-collapse',
           layers,
           folded: false,
-          reason: `the product would hold ${productParams} parameters, more than the pair's ${pairParams} (a ${prev.units}-unit bottleneck)`,
+          reason: `the product would hold ${productParams} parameters, more than the pair's ${pairParams} (a ${prev.size}-unit bottleneck)`,
         });
         out.push(w);
         continue;
@@ -247,8 +247,8 @@ function collapseLinear(work: Work[], steps: FoldStep[]): Work[] {
 /** W = W1·W2, b = b1·W2 + b2; the result takes the second layer's activation. */
 function multiply(first: WorkDense, second: WorkDense): WorkDense {
   const n = first.inputs;
-  const m = first.units;
-  const p = second.units;
+  const m = first.size;
+  const p = second.size;
   const weight = new Float64Array(n * p);
   for (let i = 0; i < n; i++) {
     for (let k = 0; k < m; k++) {
@@ -263,7 +263,7 @@ function multiply(first: WorkDense, second: WorkDense): WorkDense {
     kind: 'dense',
     origin: [...first.origin, ...second.origin],
     inputs: n,
-    units: p,
+    size: p,
     activation: second.activation,
     alpha: second.alpha,
     weight,

@@ -113,7 +113,7 @@ describe('integrated gradients: sensitivity and dummy (a feature the model ignor
     const doc = deepDoc('relu', 31);
     const first = doc.layers[0];
     if (first.kind !== 'dense') throw new Error('expected dense');
-    for (let j = 0; j < first.units; j++) first.weight[2 * first.units + j] = 0;
+    for (let j = 0; j < first.size; j++) first.weight[2 * first.size + j] = 0;
     const x = rowsNear(doc, 6, 3);
     const baseline = new Float64Array(4).fill(-3);
     const e = explainRows(doc, x, 6, { output: 'top', baseline, steps: 32 });

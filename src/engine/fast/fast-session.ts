@@ -67,7 +67,7 @@ export class FastSession {
     let maxWidth = 0;
     for (const layer of doc.layers) {
       if (layer.kind === 'dense') {
-        const outP = padded(layer.units);
+        const outP = padded(layer.size);
         plan.push({ layer, width, wAt: bytes, bAt: bytes + width * outP * 4 });
         bytes += (width * outP + outP) * 4;
         width = outP;
@@ -89,12 +89,12 @@ export class FastSession {
     const realWidths = widths.slice(0, -1);
     plan.forEach(({ layer, width: inWidth, wAt, bAt }, i) => {
       if (layer.kind === 'dense') {
-        const outP = padded(layer.units);
+        const outP = padded(layer.size);
         const realIn = realWidths[i];
         // W rows beyond the real inputs (padding of the previous layer) stay zero.
-        for (let k = 0; k < realIn; k++) mem.set(layer.weight.subarray(k * layer.units, (k + 1) * layer.units), wAt / 4 + k * outP);
+        for (let k = 0; k < realIn; k++) mem.set(layer.weight.subarray(k * layer.size, (k + 1) * layer.size), wAt / 4 + k * outP);
         mem.set(layer.bias, bAt / 4);
-        this.steps.push({ kind: 'dense', w: wAt, b: bAt, nIn: inWidth, out: layer.units, outP, relu: layer.activation === 'relu', activation: layer.activation, alpha: layer.alpha });
+        this.steps.push({ kind: 'dense', w: wAt, b: bAt, nIn: inWidth, out: layer.size, outP, relu: layer.activation === 'relu', activation: layer.activation, alpha: layer.alpha });
       } else if (layer.kind === 'batchnorm') {
         // Inference form folded in float64: y = x * scale + shift, scale = gamma / sqrt(var + eps).
         const n = layer.gamma.length;

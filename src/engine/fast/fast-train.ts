@@ -111,7 +111,7 @@ export class FastTrainSession {
     let inP = doc.inputs;
     doc.layers.forEach((layer, index) => {
       if (layer.kind === 'dense') {
-        const outP = padded(layer.units);
+        const outP = padded(layer.size);
         plan.push({ kind: 'dense', index, layer, inReal: this.widths[index], inP, outP, w: 0, b: 0 });
         inP = outP;
       } else if (layer.kind === 'dropout') {
@@ -201,7 +201,7 @@ export class FastTrainSession {
       // whether y > 0, so the tape keeps y in z's place.
       const relu = p.layer.activation === 'relu';
       k.dense(this.scratch.a, p.w, p.b, this.scratch.out, rows, p.inP, p.outP, relu ? 1 : 0);
-      const units = p.layer.units;
+      const units = p.layer.size;
       const z = takeRows(mem, this.scratch.out, rows, p.outP, units);
       const logits = this.preActivation && pi === this.plan.length - 1;
       // The loss reads the logits directly, so the last activation is never needed.
@@ -235,7 +235,7 @@ export class FastTrainSession {
         grads[pi] = [];
         continue;
       }
-      const units = p.layer.units;
+      const units = p.layer.size;
       const isLast = pi === this.plan.length - 1;
       const dz = isLast && this.preActivation ? d : activationBackward(tape.z[pi]!, tape.y[pi]!, d, rows, units, p.layer.activation, p.layer.alpha);
       // dW = hᵀ · dz: x = hᵀ [inP rows x `rows` inputs], W = dz [rows x outP].
@@ -279,7 +279,7 @@ export class FastTrainSession {
     const mem = new Float32Array(this.kernel.memory.buffer);
     for (const p of this.plan) {
       if (p.kind !== 'dense' || (wanted && !wanted.has(p.index))) continue;
-      const units = p.layer.units;
+      const units = p.layer.size;
       if (units === p.outP) mem.set(p.layer.weight, p.w / 4);
       else for (let r = 0; r < p.inReal; r++) mem.set(p.layer.weight.subarray(r * units, (r + 1) * units), p.w / 4 + r * p.outP);
       mem.set(p.layer.bias, p.b / 4);
