@@ -15,6 +15,8 @@ export interface ModelFacts {
   outputs: number;
   features: string[] | null;
   labels: string[] | null;
+  /** Calibration temperature, or null when the model has none. */
+  temperature: number | null;
   normalise: { method: string; fitted: boolean; rowsSeen: number } | null;
   storage: string;
   parameters: number;
@@ -59,6 +61,7 @@ export function modelFacts(doc: ModelDoc, file: { path: string; checksum: string
     outputs: widths[widths.length - 1],
     features: doc.features,
     labels: doc.labels,
+    temperature: doc.temperature ?? null,
     normalise: norm
       ? { method: norm.method, fitted: norm.method === 'zscore' ? norm.mean !== null : norm.min !== null, rowsSeen: norm.count }
       : null,

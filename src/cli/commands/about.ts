@@ -41,6 +41,7 @@ function describe(f: ModelFacts): string {
   lines.push(`created ${f.created || '(unknown)'}; weights stored as ${f.storage}`);
   lines.push(`inputs ${f.inputs}${f.features ? `: ${f.features.join(', ')}` : ''}`);
   lines.push(`outputs ${f.outputs}${f.labels ? `: ${f.labels.join(', ')}` : ''}`);
+  if (f.temperature !== null) lines.push(`calibration temperature ${f.temperature} (logits divided by it before the output activation)`);
   lines.push(
     f.normalise
       ? `normalisation ${f.normalise.method}, ${f.normalise.fitted ? `fitted over ${grouped(f.normalise.rowsSeen)} rows` : 'not fitted yet (fitted from data on the first tune)'}`
