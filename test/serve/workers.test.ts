@@ -230,3 +230,32 @@ describe('serving on worker threads', () => {
     expect(() => createRequestHandler({ model: a, workers: 2, runBatch: (m, x, rows) => m.run(x, rows) })).toThrow(/runBatch cannot be combined with workers = 2/);
   });
 });
+
+describe('a calibrated model on worker threads', () => {
+  it('each worker applies the stored temperature: pooled answers equal the main thread and softmax(z / T) of the float64 reference', async () => {
+    // Temperature scaling (Guo, Pleiss, Sun and Weinberger 2017): probabilities = softmax(z / T).
+    const path = join(dir, 'calibrated.tendon');
+    await writeModelFile(path, { ...docA, temperature: 2.5 });
+    const one = await served(path, 1);
+    const two = await served(path, 2);
+    try {
+      const rows = Array.from({ length: 8 }, (_, i) => rowOf(3000 + i));
+      const single = await postJson(`${one.url}/v1/score`, { rows });
+      const pooled = await postJson(`${two.url}/v1/score`, { rows });
+      expect(pooled.json.outputs).toEqual(single.json.outputs);
+      const ref = referenceForward({ ...docA, temperature: 2.5 }, toMat64(Float64Array.from(rows.flat()), rows.length, WIDTHS[0])).y.data;
+      const raw = referenceForward(docA, toMat64(Float64Array.from(rows.flat()), rows.length, WIDTHS[0])).y.data;
+      let movedApart = 0;
+      rows.forEach((_, r) => {
+        (pooled.json.outputs[r] as number[]).forEach((p, k) => {
+          expect(Math.abs(p - ref[r * 5 + k])).toBeLessThan(1e-5);
+          movedApart = Math.max(movedApart, Math.abs(p - raw[r * 5 + k]));
+        });
+      });
+      expect(movedApart).toBeGreaterThan(1e-3); // the temperature changed the probabilities
+    } finally {
+      await one.close();
+      await two.close();
+    }
+  });
+});
