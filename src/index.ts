@@ -4,7 +4,7 @@
 export { openModel, modelFromDocument, engineFallback, TendonModel, type OpenOptions } from './tendon.js';
 export * from './errors.js';
 export * from './model/types.js';
-export { validateModel, modelWidths, outputWidth, SeededRng } from './model/index.js';
+export { validateModel, modelWidths, outputWidth, SeededRng, withTemperatureFolded } from './model/index.js';
 export { encodeModel, decodeModel, readModelFile, writeModelFile, crc32 } from './format/index.js';
 export {
   EngineSession,
@@ -20,7 +20,9 @@ export {
   type EngineChoice,
   type RuntimeEngine,
 } from './engine/index.js';
-export { referenceForward } from './reference/index.js';
+export { referenceForward, inputGradient } from './reference/index.js';
+export { explainRows, integratedGradients, completenessGaps, topFeatures, type Explanation, type Attribution, type ClassChoice } from './explain/index.js';
+export { fitTemperature, expectedCalibrationError, ECE_BINS, type TemperatureFit } from './train/calibration.js';
 export { parityReport, randomInputs, FLOAT32_TOLERANCE, type ParityReport, type Tolerance } from './check/index.js';
 export { buildFromSpec, type SpecOptions } from './spec/spec.js';
 export { openTable, readTable, openTableWriter, readNpy, writeNpy, readIdx } from './io/index.js';
