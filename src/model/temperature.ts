@@ -3,9 +3,10 @@
  * softmax(z / T) (or sigmoid(z / T)) instead of softmax(z), where z are the output layer's logits.
  *
  * Where it is applied: `doc.temperature` stays the stored fact, and the engines never see it.
- * Every place that opens a document for running (the façade's session, a pool worker, the
- * float64 reference forward) runs `withTemperatureFolded(doc)` instead, which divides the
- * output dense layer's weights and bias by T once: z / T = x·(W / T) + b / T. Dividing every
+ * The one function that opens a document for running (`openRunner`, used by the façade, a pool
+ * worker, parity and the benchmarks) and the float64 reference forward run
+ * `withTemperatureFolded(doc)` instead, which divides the output dense layer's weights and bias
+ * by T once: z / T = x·(W / T) + b / T. Dividing every
  * logit of a row by the same positive number keeps their order, so no top class changes, and
  * no engine needs code of its own for it. The training paths read the document as stored
  * without the fold: tune trains the raw logits and fits (or drops) the temperature afterwards.

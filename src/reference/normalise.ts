@@ -1,6 +1,5 @@
 /** The model's input normalisation in float64. */
-import type { Mat64, Normalisation } from '../model/index.js';
-import { mat64 } from '../model/index.js';
+import { inputAffine, mat64, type Mat64, type Normalisation } from '../model/index.js';
 
 /**
  * Raw features to what the first layer sees:
@@ -11,9 +10,9 @@ import { mat64 } from '../model/index.js';
  * @example normalise64({ method: 'minmax', min, max, count }, x)
  */
 export function normalise64(n: Normalisation | null, x: Mat64): Mat64 {
-  const centre = n ? (n.method === 'zscore' ? n.mean : n.min) : null;
-  const spread = n ? (n.method === 'zscore' ? n.std : rangeOf(n.min, n.max)) : null;
-  if (!centre || !spread) return mat64(x.rows, x.cols, Float64Array.from(x.data));
+  const affine = inputAffine(n);
+  if (!affine) return mat64(x.rows, x.cols, Float64Array.from(x.data));
+  const { centre, spread } = affine;
   const y = new Float64Array(x.data.length);
   for (let r = 0; r < x.rows; r++) {
     for (let c = 0; c < x.cols; c++) {
@@ -24,11 +23,6 @@ export function normalise64(n: Normalisation | null, x: Mat64): Mat64 {
   return mat64(x.rows, x.cols, y);
 }
 
-function rangeOf(min: Float64Array | null, max: Float64Array | null): Float64Array | null {
-  if (!min || !max) return null;
-  return max.map((hi, c) => hi - min[c]);
-}
-
 /**
  * Backward through `normalise64`: a gradient with respect to the normalised features becomes
  * one with respect to the raw features, d/dx = d/dx' / spread. A feature with zero spread maps
@@ -36,8 +30,9 @@ function rangeOf(min: Float64Array | null, max: Float64Array | null): Float64Arr
  * @example normaliseBackward64(doc.normalise, dxNormalised)
  */
 export function normaliseBackward64(n: Normalisation | null, dxn: Mat64): Mat64 {
-  const spread = n ? (n.method === 'zscore' ? (n.mean ? n.std : null) : rangeOf(n.min, n.max)) : null;
-  if (!spread) return mat64(dxn.rows, dxn.cols, Float64Array.from(dxn.data));
+  const affine = inputAffine(n);
+  if (!affine) return mat64(dxn.rows, dxn.cols, Float64Array.from(dxn.data));
+  const { spread } = affine;
   const dx = new Float64Array(dxn.data.length);
   for (let r = 0; r < dxn.rows; r++) {
     for (let c = 0; c < dxn.cols; c++) {

@@ -7,7 +7,7 @@ import { TuneConfigError } from '../errors.js';
 import { encodeModel, checksumOf } from '../format/index.js';
 import { SeededRng, initDense, layerKind, type ActivationName, type ForwardContext, type ModelDoc } from '../model/index.js';
 import { wasmSimdAvailable } from '../engine/fast/dense-kernel.js';
-import { fastTrainBlocker } from '../engine/fast/fast-train.js';
+import { simdTrainBlocker } from '../engine/fast/simd-trainer.js';
 import { TRAIN_PATHS, type TrainPath } from './backends.js';
 import type { TuneData } from './config.js';
 import { rawInputs, type Diagnostic } from './diagnostics.js';
@@ -33,7 +33,7 @@ export function streams(seed: number) {
 export function choosePath(asked: TrainPath | undefined, doc: ModelDoc): { path: TrainPath; fallback: Diagnostic | null } {
   if (asked === 'engine' || asked === 'reference') return { path: asked, fallback: null };
   const simd = wasmSimdAvailable();
-  const blocker = simd ? fastTrainBlocker(doc) : 'this runtime lacks WebAssembly SIMD';
+  const blocker = simd ? simdTrainBlocker(doc) : 'this runtime lacks WebAssembly SIMD';
   if (blocker === null) return { path: 'fast', fallback: null };
   if (asked === undefined) return { path: 'engine', fallback: null };
   return {

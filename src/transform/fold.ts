@@ -14,7 +14,7 @@
  * The arithmetic runs in float64 on the float32 weights and is rounded to float32 once, at the end.
  */
 import { checksumOf, encodeModel } from '../format/index.js';
-import { validateModel, type ActivationName, type BatchNormLayer, type Layer, type ModelDoc, type Normalisation } from '../model/index.js';
+import { batchNormAffine, inputAffine, validateModel, type ActivationName, type Layer, type ModelDoc, type Normalisation } from '../model/index.js';
 
 export type FoldStepName = 'dropout' | 'batchnorm' | 'normalisation' | 'linear-collapse';
 
@@ -155,18 +155,6 @@ function absorbAfter(dense: WorkDense, a: ArrayLike<number>, c: ArrayLike<number
   for (let j = 0; j < units; j++) bias[j] = a[j] * bias[j] + c[j];
 }
 
-/** Batch normalisation at inference (Ioffe and Szegedy, 2015) as a per-feature affine map. */
-function batchNormAffine(bn: BatchNormLayer): { a: Float64Array; c: Float64Array } {
-  const n = bn.gamma.length;
-  const a = new Float64Array(n);
-  const c = new Float64Array(n);
-  for (let i = 0; i < n; i++) {
-    a[i] = bn.gamma[i] / Math.sqrt(bn.runningVariance[i] + bn.epsilon);
-    c[i] = bn.beta[i] - a[i] * bn.runningMean[i];
-  }
-  return { a, c };
-}
-
 function foldBatchNorms(work: Work[], steps: FoldStep[]): Work[] {
   const out: Work[] = [];
   for (let i = 0; i < work.length; i++) {
@@ -175,7 +163,8 @@ function foldBatchNorms(work: Work[], steps: FoldStep[]): Work[] {
       out.push(w);
       continue;
     }
-    const { a, c } = batchNormAffine(w.layer);
+    // Batch normalisation at inference (Ioffe and Szegedy, 2015) as a per-feature affine map.
+    const { scale: a, shift: c } = batchNormAffine(w.layer);
     const before = out[out.length - 1];
     const after = work[i + 1];
     if (before?.kind === 'dense' && before.activation === 'linear') {
@@ -200,11 +189,11 @@ function foldBatchNorms(work: Work[], steps: FoldStep[]): Work[] {
 function foldNormalisation(work: Work[], norm: Normalisation | null): { step: FoldStep } {
   const step = (folded: boolean, reason: string): { step: FoldStep } => ({ step: { step: 'normalisation', layers: [], folded, reason } });
   if (!norm) return step(false, 'the model has no input normalisation');
-  const centre = norm.method === 'zscore' ? norm.mean : norm.min;
-  const spread = norm.method === 'zscore' ? norm.std : norm.max && norm.min ? norm.max.map((hi, k) => hi - norm.min![k]) : null;
-  if (!centre || !spread) return step(false, `the ${norm.method} statistics are not fitted yet (a first tune fits them)`);
+  const affine = inputAffine(norm);
+  if (!affine) return step(false, `the ${norm.method} statistics are not fitted yet (a first tune fits them)`);
   const first = work[0];
   if (first?.kind !== 'dense') return step(false, `the first remaining layer is ${first ? first.kind : 'missing'}, not dense`);
+  const { centre, spread } = affine;
   const flat = spread.findIndex((s) => s === 0);
   if (flat >= 0) {
     // Kept rather than zeroing the weight row: a later tune that continues the statistics

@@ -37,7 +37,7 @@ function relativeGap(a: readonly number[], b: readonly number[]): number {
 
 const batchnorm = (): Layer => ({ kind: 'batchnorm', gamma: new Float32Array(0), beta: new Float32Array(0), runningMean: new Float32Array(0), runningVariance: new Float32Array(0), epsilon: 1e-5, momentum: 0.9 });
 
-describe('the fast training path (src/train/tune.ts on src/engine/fast/fast-train.ts)', () => {
+describe('the fast training path (src/train/tune.ts on src/engine/fast/simd-trainer.ts)', () => {
   it('is the default for a dense model when WebAssembly SIMD is there, and the tfjs engine otherwise', async () => {
     const res = await tune(modelDoc(3, [denseSpec(4, 'relu'), { kind: 'dropout', rate: 0.2 }, denseSpec(2, 'softmax')]), blobs(20, 3, 2, 1), { epochs: 1 });
     expect(res.path).toBe(wasmSimdAvailable() ? 'fast' : 'engine');
