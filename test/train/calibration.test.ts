@@ -6,7 +6,10 @@
  */
 import { describe, expect, it } from 'vitest';
 import { SeededRng } from '../../src/model/index.js';
+import { referenceForward, referenceLogits, toMat64 } from '../../src/reference/index.js';
 import { classLogits, expectedCalibrationError, fitTemperature, meanNll, scaledSoftmax } from '../../src/train/calibration.js';
+import { tune } from '../../src/train/tune.js';
+import { denseSpec, modelDoc } from './fixtures.js';
 
 describe('expected calibration error', () => {
   it('matches a hand-worked example, including a confidence on a bin edge', () => {
@@ -83,5 +86,28 @@ describe('temperature scaling', () => {
     expect(k).toBe(2);
     const p = scaledSoftmax(two, 3, 2, 1.5);
     z.forEach((v, r) => expect(p[r * 2 + 1]).toBeCloseTo(1 / (1 + Math.exp(-v / 1.5)), 14));
+  });
+});
+
+describe('tune with calibrate', () => {
+  // Invented rows for a property check (the published fact: T divides the logits before the sigmoid).
+  const rng = new SeededRng(3);
+  const rows = 200;
+  const x = Float32Array.from({ length: rows * 2 }, () => rng.normal());
+  const y = Int32Array.from({ length: rows }, (_, r) => (x[r * 2] + 0.5 * x[r * 2 + 1] + 0.8 * rng.normal() > 0 ? 1 : 0));
+
+  it('a single sigmoid output gets a temperature: the model then answers sigmoid(z / T)', async () => {
+    const res = await tune(modelDoc(2, [denseSpec(8, 'tanh'), denseSpec(1, 'sigmoid')]), { x, rows, y }, { epochs: 30, batch: 16, lr: 0.01, seed: 1, holdout: 0.3, calibrate: true });
+    const t = res.doc.temperature!;
+    expect(t).toBe(res.calibration!.temperature);
+    const z = referenceLogits(res.doc, x, rows);
+    const p = referenceForward(res.doc, toMat64(x, rows, 2)).y.data;
+    for (let r = 0; r < rows; r += 17) expect(p[r]).toBeCloseTo(1 / (1 + Math.exp(-z[r] / t)), 6);
+  });
+
+  it('is refused for regression targets and without hold-out rows (TuneConfigError, exit 2)', async () => {
+    const values = Float32Array.from({ length: rows }, (_, r) => x[r * 2]);
+    await expect(tune(modelDoc(2, [denseSpec(1, 'linear')]), { x, rows, y: values }, { epochs: 1, holdout: 0.3, calibrate: true })).rejects.toThrow(/calibrate: a temperature applies to a softmax or sigmoid output layer/);
+    await expect(tune(modelDoc(2, [denseSpec(1, 'sigmoid')]), { x, rows, y }, { epochs: 1, calibrate: true })).rejects.toThrow(/calibrate: fitting a temperature needs hold-out rows/);
   });
 });
