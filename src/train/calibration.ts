@@ -111,7 +111,11 @@ export function expectedCalibrationError(probs: Float64Array, rows: number, clas
 export interface TemperatureFit {
   /** The fitted T in [0.01, 100]. */
   readonly temperature: number;
-  /** True when the fit stopped at an end of the search range (the optimum may lie beyond). */
+  /**
+   * True when the fit stopped at an end of the search range: the NLL has no minimum inside it
+   * (at the low end, typically because every hold-out row is classified right). Such a T is not
+   * stored by tune.
+   */
   readonly atBound: boolean;
   readonly rows: number;
   /** Mean negative log-likelihood (nats per row) at T = 1 and at the fitted T. */

@@ -80,7 +80,10 @@ export interface TuneResult {
   readonly loss: LossSpec;
   /** Where the steps actually ran (after any fallback). */
   readonly path: TrainPath;
-  /** With `calibrate`: the fitted temperature (stored in `doc`) and the hold-out NLL and ECE before and after. */
+  /**
+   * With `calibrate`: the fitted temperature and the hold-out NLL and ECE before and after. It is
+   * stored in `doc` unless `atBound` (no minimum inside the search range: nothing is stored).
+   */
   readonly calibration: TemperatureFit | null;
   /** The temperature the input model had, dropped because it was fitted to the old weights; null when none was. */
   readonly droppedTemperature: number | null;

@@ -207,7 +207,9 @@ export async function tune(doc: ModelDoc, data: TuneData, options: TuneRunOption
   if (opts.calibrate && held && held.y instanceof Int32Array && !aborted) {
     const { logits, classes } = classLogits(referenceLogits(work, held.x, held.rows), held.rows, outputs);
     calibration = fitTemperature(logits, held.rows, classes, held.y);
-    work.temperature = calibration.temperature;
+    // A fit at an end of the range has no minimum inside it (e.g. every hold-out row right, so
+    // the likelihood keeps rising as T falls): storing it would be a confident wrong answer.
+    if (!calibration.atBound) work.temperature = calibration.temperature;
   }
 
   const lineage = tuneProvenance(doc, options.parent, options.origin);

@@ -63,6 +63,23 @@ describe('tune --calibrate', () => {
     expect((await readModelFile(out)).doc.temperature).toBeUndefined();
   });
 
+  it('the SVG report carries the calibration line, and about prints the temperature', async () => {
+    const report = join(dir, 'cal.svg');
+    const r = await runCli('tune', model, '--data', join(dir, 'iris.csv'), '--target', 'species', '-o', join(dir, 'cal.tendon'), '--epochs', '1', '--holdout', '0.3', '--calibrate', '--report', report, '--engine', 'js');
+    expect(r.code).toBe(0);
+    const svg = await readFile(report, 'utf8');
+    const about = await runCli('about', join(dir, 'cal.tendon'));
+    // After one more epoch the 45 hold-out rows may all be classified right; then no T is best
+    // inside the range and none is stored. Either way the report and the file agree.
+    if ((await readModelFile(join(dir, 'cal.tendon'))).doc.temperature === undefined) {
+      expect(svg).toMatch(/calibration: no temperature stored: on 45 hold-out rows the likelihood has no best T inside \[0\.01, 100\]/);
+      expect(about.out).not.toMatch(/calibration temperature/);
+    } else {
+      expect(svg).toMatch(/calibration: temperature \d+\.\d{4} fitted on 45 hold-out rows; calibration error \(ECE, 15 bins\) 0\.\d{4} -&gt; 0\.\d{4}/);
+      expect(about.out).toMatch(/calibration temperature \d/);
+    }
+  });
+
   it('fold keeps the temperature', async () => {
     const out = join(dir, 'folded.tendon');
     const r = await runCli('fold', model, '-o', out);

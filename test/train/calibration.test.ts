@@ -105,6 +105,15 @@ describe('tune with calibrate', () => {
     for (let r = 0; r < rows; r += 17) expect(p[r]).toBeCloseTo(1 / (1 + Math.exp(-z[r] / t)), 6);
   });
 
+  it('stores no temperature when every hold-out row is right (the NLL keeps falling as T -> 0, no minimum inside the range)', async () => {
+    const easy = Int32Array.from({ length: rows }, (_, r) => (x[r * 2] > 0 ? 1 : 0));
+    const res = await tune(modelDoc(2, [denseSpec(1, 'sigmoid')]), { x, rows, y: easy }, { epochs: 200, batch: 16, lr: 0.1, seed: 1, holdout: 0.3, calibrate: true });
+    expect(res.history.at(-1)!.holdout!.accuracy).toBe(1);
+    expect(res.calibration!.atBound).toBe(true);
+    expect(res.calibration!.temperature).toBeLessThan(0.011);
+    expect(res.doc.temperature).toBeUndefined();
+  });
+
   it('is refused for regression targets and without hold-out rows (TuneConfigError, exit 2)', async () => {
     const values = Float32Array.from({ length: rows }, (_, r) => x[r * 2]);
     await expect(tune(modelDoc(2, [denseSpec(1, 'linear')]), { x, rows, y: values }, { epochs: 1, holdout: 0.3, calibrate: true })).rejects.toThrow(/calibrate: a temperature applies to a softmax or sigmoid output layer/);

@@ -158,12 +158,12 @@ export const tune: Command = {
     const c = result.calibration;
     if (log === 'jsonl') {
       const calibration = c
-        ? { temperature: c.temperature, atBound: c.atBound, rows: c.rows, nllBefore: c.nllBefore, nllAfter: c.nllAfter, eceBefore: c.eceBefore, eceAfter: c.eceAfter, bins: ECE_BINS }
+        ? { stored: !c.atBound, temperature: c.temperature, atBound: c.atBound, rows: c.rows, nllBefore: c.nllBefore, nllAfter: c.nllAfter, eceBefore: c.eceBefore, eceAfter: c.eceAfter, bins: ECE_BINS }
         : null;
       io.out(JSON.stringify({ saved: out, checksum: written.checksum, epochs: result.history.length, bestEpoch: result.bestEpoch, stoppedEarly: result.stoppedEarly, path: result.path, calibration, droppedTemperature: result.droppedTemperature }) + '\n');
     } else {
       io.out(summary + '\n');
-      if (c) io.out(`${calibrationText(c)}\nnote: ${CALIBRATION_CAUTION}\n`);
+      if (c) io.out(`${calibrationText(c)}\n${c.atBound ? '' : `note: ${CALIBRATION_CAUTION}\n`}`);
     }
     if (result.droppedTemperature !== null) {
       io.err(`note: the input model's calibration temperature ${result.droppedTemperature.toFixed(4)} was dropped: it was fitted to the old weights; add --calibrate to fit a new one\n`);
@@ -174,8 +174,15 @@ export const tune: Command = {
 
 /** One line: the fitted temperature and the hold-out calibration error and NLL before and after. */
 function calibrationText(c: TemperatureFit): string {
+  if (c.atBound) {
+    return (
+      `calibration: no temperature stored: on ${grouped(c.rows)} hold-out rows the likelihood has no best T inside [0.01, 100] ` +
+      `(it kept improving towards ${c.temperature.toFixed(2)}${c.temperature < 1 ? ', as it does when every hold-out row is classified right' : ''}); ` +
+      'hold out more rows, or rows the model finds harder'
+    );
+  }
   return (
-    `calibration: temperature ${c.temperature.toFixed(4)}${c.atBound ? ' (at the end of the search range)' : ''} fitted on ${grouped(c.rows)} hold-out rows; ` +
+    `calibration: temperature ${c.temperature.toFixed(4)} fitted on ${grouped(c.rows)} hold-out rows; ` +
     `calibration error (ECE, ${ECE_BINS} bins) ${c.eceBefore.toFixed(4)} -> ${c.eceAfter.toFixed(4)}, hold-out NLL ${c.nllBefore.toFixed(4)} -> ${c.nllAfter.toFixed(4)}`
   );
 }
