@@ -80,11 +80,13 @@ describe('tune --calibrate', () => {
     }
   });
 
-  it('fold keeps the temperature', async () => {
-    const out = join(dir, 'folded.tendon');
-    const r = await runCli('fold', model, '-o', out);
-    expect(r.code).toBe(0);
-    expect((await readModelFile(out)).doc.temperature).toBe((await readModelFile(model)).doc.temperature);
+  it('fold and shrink keep the temperature (fold keeps the logits; shrink moves them by its storage error only)', async () => {
+    const folded = join(dir, 'folded.tendon');
+    expect((await runCli('fold', model, '-o', folded)).code).toBe(0);
+    expect((await readModelFile(folded)).doc.temperature).toBe((await readModelFile(model)).doc.temperature);
+    const small = join(dir, 'small.tendon');
+    expect((await runCli('shrink', model, '--store', 'f16', '-o', small)).code).toBe(0);
+    expect((await readModelFile(small)).doc.temperature).toBe((await readModelFile(model)).doc.temperature);
   });
 });
 
