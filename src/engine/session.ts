@@ -5,7 +5,7 @@
  */
 import * as tf from '@tensorflow/tfjs-core';
 import { ShapeError } from '../errors.js';
-import { layerKind, modelWidths, validateModel, type BackwardOptions, type BatchStats, type ForwardContext, type ModelDoc, type Normalisation } from '../model/index.js';
+import { foldTargetScaling, layerKind, modelWidths, validateModel, type BackwardOptions, type BatchStats, type ForwardContext, type ModelDoc, type Normalisation } from '../model/index.js';
 import { ensureEngine, type EngineName } from './backend.js';
 
 export interface SessionOptions {
@@ -65,10 +65,11 @@ export class EngineSession {
   private disposed = false;
 
   /** @throws ModelFileError when the document is not usable. */
-  constructor(
-    readonly doc: ModelDoc,
-    opts: SessionOptions = {},
-  ) {
+  readonly doc: ModelDoc;
+
+  constructor(doc: ModelDoc, opts: SessionOptions = {}) {
+    // A stored target scaling runs folded into the last dense layer (model/target-scaling.ts).
+    this.doc = doc = foldTargetScaling(doc);
     validateModel(doc, opts.source ?? '(model)');
     this.chunkRows = opts.chunkRows ?? DEFAULT_CHUNK_ROWS;
     if (!(Number.isInteger(this.chunkRows) && this.chunkRows > 0)) throw new RangeError(`chunkRows must be a positive integer, got ${this.chunkRows}`);

@@ -9,7 +9,7 @@ import { ModelFileError, type Problem } from '../errors.js';
 import type { Layer, ModelDoc, StorageCodec } from '../model/types.js';
 import { checkPayload } from './check.js';
 import { crcHex } from './crc32.js';
-import { frame, openFrame, type FormatVersion } from './header.js';
+import { FORMAT_VERSION, frame, openFrame, type FormatVersion } from './header.js';
 import {
   ACTIVATION_CODES,
   decodePayload,
@@ -96,6 +96,7 @@ export function toPayload(doc: ModelDoc, problems: Problem[]): RawModel {
     },
     lineage: doc.provenance.map((p) => ({ checksum: p.checksum, source: p.source, action: p.action, at: p.at })),
   };
+  if (doc.targetScaling) raw.target_scaling = { mean: Array.from(doc.targetScaling.mean), std: Array.from(doc.targetScaling.std) };
   const norm = doc.normalise;
   if (norm?.method === 'zscore') {
     raw.zscore = { mean: orEmpty(norm.mean), std: orEmpty(norm.std), m2: orEmpty(norm.m2), count: norm.count };
@@ -118,7 +119,8 @@ export function encodeModel(doc: ModelDoc, label = '(model being written)'): Uin
   const problems: Problem[] = [];
   const raw = toPayload(doc, problems);
   if (problems.length > 0) throw new ModelFileError(label, problems);
-  return frame(encodePayload(raw));
+  // The lowest version that holds what is written (FORMAT.md section 6): 1.1 only for target scaling.
+  return frame(encodePayload(raw), raw.target_scaling ? FORMAT_VERSION : { major: 1, minor: 0 });
 }
 
 export interface DecodedModel {

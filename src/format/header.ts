@@ -18,8 +18,8 @@ export interface FormatVersion {
   readonly minor: number;
 }
 
-/** The version this code writes. It reads any 1.x. */
-export const FORMAT_VERSION: FormatVersion = { major: 1, minor: 0 };
+/** The newest version this code writes (1.1 added target scaling). It reads any 1.x. */
+export const FORMAT_VERSION: FormatVersion = { major: 1, minor: 1 };
 
 export interface FileHeader {
   readonly version: FormatVersion;

@@ -2,6 +2,7 @@
 import { ModelFileError, type Problem } from '../errors.js';
 import { isLayerKindName, layerKind } from './layers/catalogue.js';
 import { finiteProblems, isPositiveInt } from './layers/checks.js';
+import { targetScalingProblems } from './target-scaling.js';
 import type { ModelDoc } from './types.js';
 
 /**
@@ -43,6 +44,7 @@ export function modelProblems(doc: ModelDoc): Problem[] {
   if (doc.labels && problems.every((p) => !p.where.startsWith('layers')) && doc.labels.length !== width) {
     problems.push({ where: 'labels', message: `has ${doc.labels.length} names, expected one per output (${width})` });
   }
+  if (problems.every((p) => !p.where.startsWith('layers'))) problems.push(...targetScalingProblems(doc));
   return problems;
 }
 

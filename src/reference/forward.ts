@@ -3,7 +3,7 @@
  * tape. Plain loops only (through the layer kinds' reference halves); no tfjs.
  */
 import { layerKind, type BackwardOptions, type BatchStats, type ForwardContext, type Mat64, type ModelDoc } from '../model/index.js';
-import { mat64 } from '../model/index.js';
+import { foldTargetScaling, mat64 } from '../model/index.js';
 import { normalise64 } from './normalise.js';
 
 const INFERENCE: ForwardContext = {
@@ -14,11 +14,13 @@ const INFERENCE: ForwardContext = {
 };
 
 /**
- * Inference in float64: normalise the raw features, then each layer in inference mode.
+ * Inference in float64: normalise the raw features, then each layer in inference mode; a stored
+ * target scaling is folded into the last dense layer first, as the engines do.
  * `layers` (with keepLayers) holds each layer's output, in order.
  * @example referenceForward(doc, mat64(1, 2, Float64Array.of(0.05, 0.1))).y
  */
-export function referenceForward(doc: ModelDoc, x: Mat64, opts: { keepLayers?: boolean } = {}): { y: Mat64; layers?: Mat64[] } {
+export function referenceForward(given: ModelDoc, x: Mat64, opts: { keepLayers?: boolean } = {}): { y: Mat64; layers?: Mat64[] } {
+  const doc = foldTargetScaling(given);
   let h = normalise64(doc.normalise, x);
   const layers: Mat64[] = [];
   doc.layers.forEach((layer, i) => {

@@ -9,7 +9,7 @@
  * backend's matrix product. Parity with the float64 reference is held in the tests.
  */
 import { ShapeError } from '../../errors.js';
-import { modelWidths, validateModel, type ActivationName, type Layer, type ModelDoc, type Normalisation } from '../../model/index.js';
+import { foldTargetScaling, modelWidths, validateModel, type ActivationName, type Layer, type ModelDoc, type Normalisation } from '../../model/index.js';
 import { instantiateDenseKernel, type DenseKernel, type KernelOptions } from './dense-kernel.js';
 
 /** Columns are padded to this many floats (the kernel's widest tile). */
@@ -49,10 +49,11 @@ export class FastSession {
   private readonly kernelOptions: KernelOptions;
   private disposed = false;
 
-  constructor(
-    readonly doc: ModelDoc,
-    opts: FastSessionOptions = {},
-  ) {
+  readonly doc: ModelDoc;
+
+  constructor(doc: ModelDoc, opts: FastSessionOptions = {}) {
+    // A stored target scaling runs folded into the last dense layer (model/target-scaling.ts).
+    this.doc = doc = foldTargetScaling(doc);
     validateModel(doc, opts.source ?? '(model)');
     const widths = modelWidths(doc);
     this.inputs = widths[0];
