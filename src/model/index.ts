@@ -18,5 +18,5 @@ export { mat64, matMul64 } from './layers/mat64.js';
 export { SeededRng, fisherYates } from './rng.js';
 export { DEFAULT_LEAKY_ALPHA, initDense } from './init.js';
 export { modelProblems, modelWidths, outputWidth, validateModel } from './validate.js';
-export { modelFacts, type ModelFacts } from './facts.js';
+export { modelFacts, outputsAreClasses, type ModelFacts } from './facts.js';
 export { attachTargetScaling, fitTargetScaling, foldTargetScaling, scalableOutputLayer, targetScalingProblems } from './target-scaling.js';
