@@ -61,7 +61,7 @@ export const tune: Command = {
     const fromSpec = modelPath.toLowerCase().endsWith('.json');
     const parent = fromSpec ? null : await readModelFile(modelPath);
     const doc = parent ? parent.doc : await buildModelFromSpecFile(modelPath, { seed: f.seed });
-    const data = await loadTrainingData(doc, dataPath, targets);
+    const data = await loadTrainingData(doc, dataPath, targets, (m) => io.err(`tendon tune: warning: ${m}\n`));
     const holdoutData = f['holdout-file'] ? await loadTrainingData(doc, f['holdout-file'], targets) : undefined;
     const replay = f.replay ? await loadTrainingData(doc, f.replay, targets) : undefined;
     const choice = parseEngine(f.engine);
