@@ -19,6 +19,15 @@ export function isClassifier(doc: ModelDoc): boolean {
 
 type Layout = Pick<TableReader, 'columns' | 'width'>;
 
+/** Rows per chunk while loading: small, so the float64 chunk and the cell text stay small. */
+const TRAINING_CHUNK_ROWS = 256;
+
+/**
+ * Bytes a text reader may have read past the rows it handed out (a stream piece and the one
+ * queued), left out when guessing the file's row count from the share read so far.
+ */
+const READ_AHEAD_BYTES = 128 * 1024;
+
 /**
  * Load `file` as training rows for `doc`. `targets` names the target column(s) by header name
  * or 0-based position. Feature columns: matched by name when the model has feature names and
@@ -46,6 +55,8 @@ export async function loadTrainingData(
     targetCols = targetsInLabelOrder(doc, refs, targetCols, outputs, file);
   }
   const table = await openTable(file, {
+    // Small chunks: each is float64 and short-lived; the rows are kept only as float32.
+    chunkRows: TRAINING_CHUNK_ROWS,
     header: layout.columns !== null,
     textColumns: classes ? targetCols : [],
     skipColumns: otherColumns(layout.width, [...featureCols, ...targetCols]),
@@ -135,9 +146,9 @@ function targetsInLabelOrder(doc: ModelDoc, refs: readonly ColumnRef[], targetCo
 }
 
 /**
- * A float32 or int32 buffer of rows x width that grows as chunks arrive. Its first size is
- * guessed from the share of the file read so far, so a file is normally held in one buffer
- * (no copy when it grows): at most a few percent more than the rows need.
+ * A float32 or int32 buffer of rows x width that grows as chunks arrive. Its size is guessed
+ * from the share of the file read so far, generously, so a file is normally held in one
+ * buffer and never copied while it grows.
  */
 class GrowingRows<T extends Float32Array | Int32Array> {
   rows = 0;
@@ -156,9 +167,10 @@ class GrowingRows<T extends Float32Array | Int32Array> {
     const need = (this.rows + more) * this.width;
     if (need <= this.buffer.length) return this.buffer;
     const { bytesRead, bytesTotal } = this.table;
-    const share = bytesRead > 0 ? Math.min(1, bytesRead / bytesTotal) : 1;
-    // Rows expected in the whole file, from the rows per byte seen so far, plus a margin.
-    const expected = Math.ceil(((this.rows + more) / share) * 1.03);
+    // Rows expected in the whole file, from the rows per byte seen so far, plus a margin. The
+    // margin costs little: pages of the buffer that are never written are never resident.
+    const consumed = Math.max(bytesRead - READ_AHEAD_BYTES, bytesRead / 2, 1);
+    const expected = bytesRead >= bytesTotal ? this.rows + more : Math.ceil(((this.rows + more) * bytesTotal) / consumed * 1.15);
     const grown = new this.make(Math.max(need, expected * this.width, Math.ceil(this.buffer.length * 1.25)));
     grown.set(this.buffer.subarray(0, this.rows * this.width));
     this.buffer = grown;
