@@ -31,9 +31,9 @@ export async function refuseOverwritingInputs(out: string, inputs: readonly { pa
 }
 
 /**
- * The feature names a headed data file gives a model that has none: every column except the
- * targets, in file order (the columns the training rows were read from). Null for files without
- * a header (NPY) or when the names cannot serve as feature names (wrong count, empty or repeated).
+ * The feature names a headed data file gives a model that has none: every named column except
+ * the targets, in file order (the columns the training rows were read from). Null for files
+ * without a header (NPY) or when the names cannot serve as feature names (wrong count, repeated).
  * @example await headerFeatureNames('iris.csv', ['species'], 4) // ['sepal_length', ...]
  */
 export async function headerFeatureNames(file: string, targets: readonly string[], inputs: number): Promise<string[] | null> {
@@ -44,8 +44,9 @@ export async function headerFeatureNames(file: string, targets: readonly string[
   await probe.close();
   if (!columns) return null;
   const targetCols = resolveColumns(columns, width, targets.map((t) => (/^\d+$/.test(t) ? Number(t) : t)), file);
-  const names = columns.filter((_, i) => !targetCols.includes(i));
-  const usable = names.length === inputs && names.every((n) => n.trim() !== '') && new Set(names).size === names.length;
+  // Columns without a name (an index column, a trailing comma) are never read as features.
+  const names = columns.filter((name, i) => name.trim() !== '' && !targetCols.includes(i));
+  const usable = names.length === inputs && new Set(names).size === names.length;
   return usable ? names : null;
 }
 

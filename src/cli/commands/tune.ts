@@ -69,7 +69,7 @@ export const tune: Command = {
     ]);
     const parent = fromSpec ? null : await readModelFile(modelPath);
     const doc = parent ? parent.doc : await buildModelFromSpecFile(modelPath, { seed: f.seed });
-    const data = await loadTrainingData(doc, dataPath, targets);
+    const data = await loadTrainingData(doc, dataPath, targets, (m) => io.err(`tendon tune: warning: ${m}\n`));
     // A spec without feature names learns them from the header, so the model can score the same
     // file later (its target column is then told apart from the features by name).
     if (fromSpec && !doc.features) doc.features = await headerFeatureNames(dataPath, targets, doc.inputs);
