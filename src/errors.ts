@@ -97,16 +97,20 @@ export class ParityError extends TendonError {
   }
 }
 
-/** Training stopped because a loss or gradient became NaN or infinite. */
+/**
+ * Training stopped because a loss or gradient became NaN or infinite. `outcome` says what
+ * became of the weights (the API hands them back; the command line says nothing was saved).
+ */
 export class DivergenceError extends TendonError {
   readonly exitCode = 1;
   constructor(
     readonly epoch: number,
     readonly batch: number,
     readonly layer: string,
-    detail: string,
+    readonly detail: string,
+    readonly outcome: string,
   ) {
-    super(`training diverged at epoch ${epoch}, batch ${batch}: ${detail} (first non-finite gradient in ${layer}); last good weights kept`);
+    super(`training diverged at epoch ${epoch}, batch ${batch}: ${detail} (first non-finite gradient in ${layer}); ${outcome}`);
   }
 }
 

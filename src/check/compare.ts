@@ -9,6 +9,8 @@ export interface Discrepancy {
   /** The element furthest past the tolerance (0-based); -1 when there are no elements. */
   readonly worstRow: number;
   readonly worstCol: number;
+  /** How far the worst element is past its bound (the smaller of abs and rel ratio): <= 1 passes. */
+  readonly worstRatio: number;
   readonly pass: boolean;
 }
 
@@ -34,6 +36,7 @@ export function compareMatrices(a: ArrayLike<number>, b: ArrayLike<number>, cols
     maxRel,
     worstRow: worst < 0 ? -1 : Math.floor(worst / cols),
     worstCol: worst < 0 ? -1 : worst % cols,
+    worstRatio: Math.max(worstRatio, 0),
     pass: worstRatio <= 1,
   };
 }

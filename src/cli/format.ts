@@ -33,3 +33,36 @@ export function bytesText(bytes: number): string {
 export function grouped(n: number): string {
   return Math.round(n).toLocaleString('en-US');
 }
+
+/** Past this many names a list is abbreviated to its ends. */
+const LISTED_NAMES = 40;
+
+/**
+ * A list of names after a label, for people: one line when it fits `width`, wrapped under the
+ * label up to LISTED_NAMES names, else the first and last few with the count (every name is in
+ * --json).
+ * @example namesText('inputs 4: ', ['a', 'b', 'c', 'd']) // "inputs 4: a, b, c, d"
+ */
+export function namesText(label: string, names: readonly string[], width = 100): string {
+  const flat = label + names.join(', ');
+  if (flat.length <= width) return flat;
+  if (names.length > LISTED_NAMES) {
+    return `${label}${names.slice(0, 6).join(', ')}, ... ${names.slice(-2).join(', ')} (${names.length - 8} more between; all in --json)`;
+  }
+  const indent = ' '.repeat(label.length);
+  const lines: string[] = [];
+  let line = label;
+  let empty = true;
+  names.forEach((name, i) => {
+    const piece = name + (i < names.length - 1 ? ',' : '');
+    if (!empty && line.length + 1 + piece.length > width) {
+      lines.push(line);
+      line = indent;
+      empty = true;
+    }
+    line += (empty ? '' : ' ') + piece;
+    empty = false;
+  });
+  lines.push(line);
+  return lines.join('\n');
+}

@@ -1,50 +1,72 @@
 /** Reading a data file as model input: columns matched by feature name when both sides have names. */
 import { DataError } from '../errors.js';
-import { openTable, resolveColumns, shownNames, tableFormatOf, type TableReader } from '../io/index.js';
+import { openTable, resolveColumns, shownNames, type TableReader } from '../io/index.js';
 import type { ModelDoc } from '../model/index.js';
 
 /**
  * Which table columns feed the model's inputs, in the model's order. With feature names in the
  * model and a header in the file, columns are matched by name (any order, extra columns
- * ignored); otherwise the table must have exactly `inputs` columns.
+ * ignored); otherwise the table's named columns are taken in order and must number `inputs`.
+ * A column with an empty header name (a dataframe's index, a comma ending every line) is never
+ * an input.
  */
 export function inputColumns(doc: ModelDoc, table: Pick<TableReader, 'columns' | 'width'>, file: string): number[] {
+  const named = namedColumns(table);
   if (doc.features && table.columns) {
     const missing = doc.features.filter((name) => !table.columns!.includes(name));
     if (missing.length === 0) return resolveColumns(table.columns, table.width, doc.features, file);
     // A header that names some features but not all would be read by position, feeding one
     // feature's values into another's input: refuse it. Position is used only when the header
     // shares no name with the model (it names the columns some other way).
-    const named = doc.features.length - missing.length;
-    if (named > 0 || table.width !== doc.inputs) {
-      throw new DataError(file, 1, 0, `missing feature column${missing.length > 1 ? 's' : ''} ${shownNames(missing)} (the header has: ${shownNames(table.columns)})`);
+    const shared = doc.features.length - missing.length;
+    if (shared > 0 || named.length !== doc.inputs) {
+      throw new DataError(file, 1, 0, `missing feature column${missing.length > 1 ? 's' : ''} ${shownNames(missing)} (the header has: ${shownNames(table.columns.filter((c) => c !== ''))})`);
     }
   }
-  if (table.width !== doc.inputs) {
-    throw new DataError(file, 1, 0, `has ${table.width} columns, but the model takes ${doc.inputs} inputs${doc.features ? ` (${doc.features.join(', ')})` : ''}`);
+  if (named.length !== doc.inputs) {
+    const unnamed = table.width - named.length;
+    throw new DataError(
+      file,
+      1,
+      0,
+      `has ${named.length} columns${unnamed > 0 ? ` (besides ${unnamed} unnamed)` : ''}, but the model takes ${doc.inputs} inputs${doc.features ? ` (${doc.features.join(', ')})` : ''}`,
+    );
   }
-  return Array.from({ length: doc.inputs }, (_, i) => i);
+  return named;
+}
+
+/** Positions of the columns that can be read: all, less those with an empty header name. */
+export function namedColumns(table: Pick<TableReader, 'columns' | 'width'>): number[] {
+  const all = Array.from({ length: table.width }, (_, i) => i);
+  return table.columns ? all.filter((i) => table.columns![i] !== '') : all;
+}
+
+/** The columns and width of a data file, from its header or first row (the file is opened and closed). */
+export async function tableLayout(file: string): Promise<Pick<TableReader, 'columns' | 'width'>> {
+  // Only the header (or first row) is looked at: no cell is parsed as a number.
+  const probe = await openTable(file, { chunkRows: 1 });
+  try {
+    return { columns: probe.columns, width: probe.width };
+  } finally {
+    await probe.close();
+  }
+}
+
+/** Positions in 0..width-1 that are not in `used`: the columns to skip. */
+export function otherColumns(width: number, used: readonly number[]): number[] {
+  return Array.from({ length: width }, (_, i) => i).filter((i) => !used.includes(i));
 }
 
 /**
- * Columns of a headed CSV / JSONL file that `doc` does not read (IDs, labels, notes), so they
- * can be read as text: a column the model ignores should not stop a run for not being numeric.
- * Empty when the model has no feature names, the file no header, or the file is NPY.
+ * Stream a data file as float32 model inputs, chunk by chunk. Columns the model does not read
+ * are never parsed, so a blank label column or an ID column cannot stop a run.
  */
-export async function unusedColumns(doc: ModelDoc, file: string, keep: readonly string[] = []): Promise<string[]> {
-  if (!doc.features || tableFormatOf(file) === 'npy') return [];
-  const probe = await openTable(file, { chunkRows: 1 });
-  const columns = probe.columns;
-  await probe.close();
-  if (!columns || !doc.features.every((f) => columns.includes(f))) return [];
-  return columns.filter((c) => !doc.features!.includes(c) && !keep.includes(c));
-}
-
-/** Stream a data file as float32 model inputs, chunk by chunk. */
 export async function* inputChunks(doc: ModelDoc, file: string, chunkRows: number): AsyncGenerator<{ rows: number; x: Float32Array; firstLine: number }> {
-  const table = await openTable(file, { chunkRows, textColumns: await unusedColumns(doc, file) });
+  const layout = await tableLayout(file);
+  const cols = inputColumns(doc, layout, file);
+  // The header question is settled once, by the look above, whatever columns are skipped.
+  const table = await openTable(file, { chunkRows, header: layout.columns !== null, skipColumns: otherColumns(layout.width, cols) });
   try {
-    const cols = inputColumns(doc, table, file);
     for await (const chunk of table.chunks()) {
       const x = new Float32Array(chunk.rows * cols.length);
       for (let r = 0; r < chunk.rows; r++) {

@@ -2,12 +2,20 @@
  * Drift: incoming raw features compared with the normalisation statistics stored in the model,
  * the signal that the data have moved away from what the model learnt and a fine-tune is due.
  *
- * Per feature:
- * - z-score models: the incoming mean has moved by more than `k` stored standard deviations,
- *   |mean_in - mean| / std > k; and values beyond mean ± 6 std (a tail a normal feature
- *   reaches about twice in a billion rows) are counted as out of range.
- * - min-max models: values outside the [min, max] seen when the statistics were fitted are
- *   counted as out of range (no spread is stored, so no mean test).
+ * Drift is judged on the shift of the incoming MEAN, never on single values:
+ * - z-score models: a feature is flagged when |mean_in - mean| / std > k, the shift measured in
+ *   TRAINING standard deviations (default k = 3). Training sd rather than the standard error of
+ *   the incoming mean: the standard error shrinks with the row count, so a long-running service
+ *   would flag shifts too small to matter, while a shift of k training sd means the same thing
+ *   after 100 rows and after a million. The model's own training rows give a shift of 0.
+ * - min-max models (no mean or spread is stored): flagged when the incoming mean lies outside
+ *   the [min, max] seen when the statistics were fitted.
+ * - a feature that was constant when the statistics were fitted (std 0, or min = max) is mapped
+ *   to 0 by the model and cannot move an answer: it is reported, never flagged.
+ * Values beyond mean ± 6 std (z-score) or outside the seen range (min-max) are counted and shown
+ * as a hint about tails and outliers, but one value does not flag a feature: every real file
+ * has a few (a normal feature passes 6 sd about twice in a billion rows, real features far
+ * more often).
  */
 import type { ModelDoc, Normalisation } from '../model/index.js';
 import { baselineNormalisation } from '../transform/index.js';
@@ -25,10 +33,12 @@ export interface FeatureDrift {
   readonly stdIn: number;
   readonly minIn: number;
   readonly maxIn: number;
-  /** |mean_in - mean| / std for z-score models; null for min-max models or no rows. */
+  /** |mean_in - mean| / std for z-score models; null for min-max models, constant features or no rows. */
   readonly meanShiftSd: number | null;
-  /** Values outside the stored range (min-max) or mean ± 6 std (z-score). */
+  /** Values outside the stored range (min-max) or mean ± 6 std (z-score); shown, never flagged on their own. */
   readonly outOfRange: number;
+  /** The feature did not vary when the statistics were fitted: the model ignores it, so it is never flagged. */
+  readonly constantInTraining: boolean;
   readonly drifted: boolean;
   /** Why it is flagged, empty when it is not. */
   readonly reason: string;
@@ -113,16 +123,16 @@ export class DriftMonitor {
     const m = this.moments;
     const b = this.baseline;
     const features = this.names.map((name, c): FeatureDrift => {
+      const constant = b.method === 'zscore' ? b.std[c] === 0 : b.max[c] === b.min[c];
       let shift: number | null = null;
-      if (b.method === 'zscore' && m.count > 0) {
-        const d = Math.abs(m.mean[c] - b.mean[c]);
-        // A feature that never varied has drifted by any move at all.
-        shift = b.std[c] > 0 ? d / b.std[c] : d === 0 ? 0 : Infinity;
-      }
       const reasons: string[] = [];
-      if (shift !== null && shift > this.k) reasons.push(`mean moved ${shift.toFixed(1)} sd`);
-      if (this.outside[c] > 0) {
-        reasons.push(`${this.outside[c]} value${this.outside[c] > 1 ? 's' : ''} outside ${b.method === 'zscore' ? `mean ± ${ZSCORE_RANGE_SD} sd` : 'the seen range'}`);
+      if (m.count > 0 && !constant) {
+        if (b.method === 'zscore') {
+          shift = Math.abs(m.mean[c] - b.mean[c]) / b.std[c];
+          if (shift > this.k) reasons.push(`mean moved ${shift.toFixed(1)} sd`);
+        } else if (m.mean[c] < Math.fround(b.min[c]) || m.mean[c] > Math.fround(b.max[c])) {
+          reasons.push(`mean ${Number(m.mean[c].toPrecision(4))} outside the seen range [${Number(b.min[c].toPrecision(4))}, ${Number(b.max[c].toPrecision(4))}]`);
+        }
       }
       return {
         index: c,
@@ -133,6 +143,7 @@ export class DriftMonitor {
         maxIn: m.max[c],
         meanShiftSd: shift,
         outOfRange: this.outside[c],
+        constantInTraining: constant,
         drifted: reasons.length > 0,
         reason: reasons.join('; '),
       };
@@ -148,15 +159,28 @@ export class DriftMonitor {
 export function describeDrift(report: DriftReport): string {
   const header = ['feature', 'mean in', 'sd in', 'min in', 'max in', 'shift (sd)', 'out of range', 'drift'];
   const num = (v: number | null) => (v === null || Number.isNaN(v) ? '-' : Number.isFinite(v) ? Number(v.toPrecision(4)).toString() : String(v));
-  const rows = report.features.map((f) => [f.name, num(f.meanIn), num(f.stdIn), num(f.minIn), num(f.maxIn), num(f.meanShiftSd), String(f.outOfRange), f.drifted ? f.reason : 'ok']);
+  const rows = report.features.map((f) => [
+    f.name,
+    num(f.meanIn),
+    num(f.stdIn),
+    num(f.minIn),
+    num(f.maxIn),
+    num(f.meanShiftSd),
+    String(f.outOfRange),
+    f.drifted ? f.reason : f.constantInTraining ? 'ok (constant in training: the model ignores it)' : 'ok',
+  ]);
   const widths = header.map((h, i) => Math.max(h.length, ...rows.map((r) => r[i].length)));
   const line = (cells: string[]) => cells.map((cell, i) => (i === 0 || i === cells.length - 1 ? cell.padEnd(widths[i]) : cell.padStart(widths[i]))).join('  ').trimEnd();
   const summary =
     report.drifted.length === 0
       ? 'no feature has drifted'
       : `${report.drifted.length} feature${report.drifted.length > 1 ? 's have' : ' has'} drifted (${report.drifted.join(', ')}): time to fine-tune on fresh rows`;
+  const rule =
+    report.method === 'zscore'
+      ? `a feature drifts when its incoming mean moves more than ${report.k} training sd; "out of range" counts values beyond mean ± ${ZSCORE_RANGE_SD} sd, shown only`
+      : 'a feature drifts when its incoming mean leaves the range seen in training; "out of range" counts single values outside it, shown only';
   return [
-    `drift: ${report.rows} rows against the model's ${report.method} statistics (mean threshold ${report.k} sd)`,
+    `drift: ${report.rows} rows against the model's ${report.method} statistics (${rule})`,
     line(header),
     line(widths.map((w) => '-'.repeat(w))),
     ...rows.map(line),

@@ -9,7 +9,7 @@
  * The façade (src/tendon.ts), parity (src/check), the benchmarks (src/bench) and the worker
  * pool (worker-entry.ts) all open runners through `openRunner`.
  */
-import { withTemperatureFolded, type ModelDoc } from '../model/index.js';
+import { runningForm, type ModelDoc } from '../model/index.js';
 import type { RuntimeEngine } from './choice.js';
 import { SimdRunner } from './fast/simd-runner.js';
 import type { KernelOptions } from './fast/dense-kernel.js';
@@ -57,9 +57,9 @@ export interface RunnerOptions {
  *   run one of its layers; Error when a tfjs engine is asked for while the process runs the other.
  */
 export function openRunner(stored: ModelDoc, engine: RuntimeEngine, opts: RunnerOptions = {}): Runner {
-  // A stored calibration temperature is folded into the output layer here, once, so no engine
-  // needs code for it (model/temperature.ts); the reference forward folds it the same way.
-  const doc = withTemperatureFolded(stored);
+  // A stored calibration temperature or target scaling is folded into the output layer here,
+  // once, so no engine needs code for it (model/running-form.ts); the reference forward does the same.
+  const doc = runningForm(stored);
   switch (engine) {
     case 'fast':
       return new SimdRunner(doc, opts);

@@ -17,6 +17,7 @@ import type {
   Normalisation,
   Provenance,
   StorageCodec,
+  TargetScaling,
 } from '../model/types.js';
 import {
   ACTIVATION_CODES,
@@ -25,6 +26,7 @@ import {
   type RawLayer,
   type RawMinMax,
   type RawModel,
+  type RawTargetScaling,
   type RawZScore,
 } from './payload.js';
 import { decodeTensor, formatShape, type DecodedTensor } from './tensor.js';
@@ -195,7 +197,8 @@ function checkZScore(raw: RawZScore, inputs: number, problems: Problem[]): Norma
     { mean: raw.mean, std: raw.std, m2: raw.m2 },
     {
       mean: FINITE,
-      std: { ok: (v) => Number.isFinite(v) && v > 0, rule: 'finite and > 0' },
+      // 0 marks a feature that was constant when fitted: it maps to 0 and contributes nothing.
+      std: { ok: (v) => Number.isFinite(v) && v >= 0, rule: 'finite and >= 0' },
       m2: { ok: (v) => Number.isFinite(v) && v >= 0, rule: 'finite and >= 0' },
     },
     raw.count,
@@ -215,6 +218,22 @@ function checkMinMax(raw: RawMinMax, inputs: number, problems: Problem[]): Norma
     }
   }
   return { method: 'minmax', min: stats?.min ?? null, max: stats?.max ?? null, count: raw.count };
+}
+
+/** Target scaling: one finite mean and one std > 0 per output; the layer rule is the model's (model/target-scaling.ts). */
+function checkTargetScaling(raw: RawTargetScaling, outputs: number | null, problems: Problem[]): TargetScaling | null {
+  const before = problems.length;
+  for (const [name, values] of [['mean', raw.mean], ['std', raw.std]] as const) {
+    if (outputs !== null && values.length !== outputs) {
+      problems.push({ where: `target_scaling.${name}`, message: `has ${values.length} values, expected one per output (${outputs})` });
+    }
+  }
+  const badMean = raw.mean.findIndex((v) => !Number.isFinite(v));
+  if (badMean >= 0) problems.push({ where: 'target_scaling.mean', message: `values must be finite (element ${badMean} is ${raw.mean[badMean]})` });
+  const badStd = raw.std.findIndex((v) => !(Number.isFinite(v) && v > 0));
+  if (badStd >= 0) problems.push({ where: 'target_scaling.std', message: `values must be finite and > 0 (element ${badStd} is ${raw.std[badStd]})` });
+  if (problems.length > before) return null;
+  return { mean: Float64Array.from(raw.mean), std: Float64Array.from(raw.std) };
 }
 
 /**
@@ -242,6 +261,8 @@ export function checkPayload(raw: RawModel): { doc: ModelDoc | null; problems: P
   if (raw.output_labels.length > 0 && width.value !== null && raw.output_labels.length !== width.value) {
     problems.push({ where: 'output_labels', message: `${raw.output_labels.length} labels for ${width.value} outputs (${width.from})` });
   }
+
+  const targetScaling = raw.target_scaling ? checkTargetScaling(raw.target_scaling, width.value, problems) : null;
 
   const provenance: Provenance[] = raw.lineage.map((step, i) => {
     if (!/^[0-9a-f]{8}$/.test(step.checksum)) {
@@ -271,6 +292,7 @@ export function checkPayload(raw: RawModel): { doc: ModelDoc | null; problems: P
       features: raw.feature_names.length > 0 ? [...raw.feature_names] : null,
       labels: raw.output_labels.length > 0 ? [...raw.output_labels] : null,
       normalise,
+      ...(targetScaling ? { targetScaling } : {}),
       layers: layers.filter((l): l is Layer => l !== null),
       meta,
       provenance,

@@ -100,6 +100,7 @@ export function toPayload(doc: ModelDoc, problems: Problem[]): RawModel {
   if (doc.temperature !== undefined && !(Number.isFinite(doc.temperature) && doc.temperature > 0)) {
     problems.push({ where: 'temperature', message: `must be a finite number > 0, got ${doc.temperature}` });
   }
+  if (doc.targetScaling) raw.target_scaling = { mean: Array.from(doc.targetScaling.mean), std: Array.from(doc.targetScaling.std) };
   const norm = doc.normalise;
   if (norm?.method === 'zscore') {
     raw.zscore = { mean: orEmpty(norm.mean), std: orEmpty(norm.std), m2: orEmpty(norm.m2), count: norm.count };
@@ -125,9 +126,9 @@ export function encodeModel(doc: ModelDoc, label = '(model being written)'): Uin
   return frame(encodePayload(raw), versionFor(raw));
 }
 
-/** The lowest version that holds the payload (FORMAT.md, section 6): 1.1 only with a temperature. */
+/** The lowest version that holds the payload (FORMAT.md, section 6): 1.1 only with a temperature or a target scaling. */
 function versionFor(raw: RawModel): FormatVersion {
-  return raw.temperature !== 0 ? FORMAT_VERSION : { major: 1, minor: 0 };
+  return raw.temperature !== 0 || raw.target_scaling ? FORMAT_VERSION : { major: 1, minor: 0 };
 }
 
 export interface DecodedModel {

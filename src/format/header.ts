@@ -19,8 +19,8 @@ export interface FormatVersion {
 }
 
 /**
- * The newest version this code writes (1.1 added the temperature); a file is written with the
- * lowest version that holds it. It reads any 1.x.
+ * The newest version this code writes (1.1 added the calibration temperature and target
+ * scaling); a file is written with the lowest version that holds it. It reads any 1.x.
  */
 export const FORMAT_VERSION: FormatVersion = { major: 1, minor: 1 };
 

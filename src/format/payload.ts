@@ -87,6 +87,11 @@ export interface RawLineage {
   at: string;
 }
 
+export interface RawTargetScaling {
+  mean: number[];
+  std: number[];
+}
+
 export interface RawModel {
   inputs: number;
   feature_names: string[];
@@ -99,6 +104,8 @@ export interface RawModel {
   lineage: RawLineage[];
   /** 0 = no temperature (since 1.1). */
   temperature: number;
+  /** Since 1.1; null (or absent) when the file has none. */
+  target_scaling?: RawTargetScaling | null;
 }
 
 let payloadType: protobuf.Type | null = null;

@@ -32,12 +32,24 @@ message TendonModel {
   // Since 1.1. Calibration temperature T: the output layer's logits are divided by T before
   // its softmax or sigmoid. 0 (absent) means none; otherwise finite and > 0.
   double temperature = 9;
+  // Since 1.1. Regression targets as the model learnt them; absent = the outputs are the answers.
+  TargetScaling target_scaling = 10;
+}
+
+// The answer for output j is z_j * std_j + mean_j, z being the output of the last dense layer,
+// which must have a linear activation (only dropout may follow it). Both arrays hold one value
+// per output.
+message TargetScaling {
+  repeated double mean = 1;
+  // Each finite and > 0.
+  repeated double std = 2;
 }
 
 // Per-feature z-score statistics (float64). All three arrays empty = not yet fitted.
 message ZScoreStats {
   repeated double mean = 1;
-  // Population standard deviation, each > 0.
+  // Population standard deviation, each >= 0. 0 marks a feature that was constant when fitted:
+  // it maps to 0 (contributes nothing) rather than to a division by zero.
   repeated double std = 2;
   // Sum of squared deviations from the mean (Welford's M2), each >= 0.
   repeated double m2 = 3;

@@ -64,3 +64,10 @@ export function selectColumns(
   const columns = names === null ? null : indices.map((i) => names[i]);
   return { columns, rows: table.rows, width, data, text, indices };
 }
+
+/** A 0/1 flag per column position, set for `positions`. */
+export function columnMask(width: number, positions: readonly number[]): Uint8Array {
+  const mask = new Uint8Array(width);
+  for (const p of positions) mask[p] = 1;
+  return mask;
+}

@@ -11,7 +11,6 @@ export interface CsvRecord {
 }
 
 const QUOTE = 34;
-const COMMA = 44;
 const LF = 10;
 const CR = 13;
 
@@ -50,7 +49,15 @@ export class CsvTokenizer {
   private afterCRInQuotes = false;
   private first = true;
 
-  constructor(private readonly file: string) {}
+  private readonly sep: number;
+
+  /** `separator`: the cell separator, one character (a comma unless told). */
+  constructor(
+    private readonly file: string,
+    separator = ',',
+  ) {
+    this.sep = separator.charCodeAt(0);
+  }
 
   push(text: string): CsvRecord[] {
     const out: CsvRecord[] = [];
@@ -61,6 +68,7 @@ export class CsvTokenizer {
     }
     let fieldStart = start;
     const n = text.length;
+    const sep = this.sep;
     for (let i = start; i < n; i++) {
       const c = text.charCodeAt(i);
       if (this.afterCR) {
@@ -87,13 +95,13 @@ export class CsvTokenizer {
           // Tight scan to the next special character: most cells are short unquoted numbers.
           let j = i;
           let d = c;
-          while (d !== COMMA && d !== LF && d !== CR && d !== QUOTE && ++j < n) d = text.charCodeAt(j);
+          while (d !== sep && d !== LF && d !== CR && d !== QUOTE && ++j < n) d = text.charCodeAt(j);
           if (j >= n) {
             i = n;
             break;
           }
           i = j;
-          if (d === COMMA) {
+          if (d === sep) {
             this.cells.push(this.pending + text.slice(fieldStart, i));
             this.pending = '';
             this.state = State.FieldStart;
@@ -132,7 +140,7 @@ export class CsvTokenizer {
             this.pending += '"';
             fieldStart = i + 1;
             this.state = State.Quoted;
-          } else if (c === COMMA) {
+          } else if (c === sep) {
             this.cells.push(this.pending);
             this.pending = '';
             this.pendingQuoted = false;

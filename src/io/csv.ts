@@ -6,40 +6,74 @@ import { BatchQueue, fileSize } from './batch-queue.js';
 import { createReadStream } from 'node:fs';
 import { DataError } from '../errors.js';
 import { ChunkBuilder } from './chunk-builder.js';
-import { resolveColumns } from './columns.js';
+import { columnMask, resolveColumns } from './columns.js';
 import { CsvTokenizer, type CsvRecord } from './csv-tokenizer.js';
 import { asDataError, shownCell } from './file-errors.js';
-import { describeBadNumber, parseNumberCell } from './numbers.js';
-import { rowsPerChunk, type TableChunk, type TableOptions, type TableReader } from './table-types.js';
+import { describeBadNumber, OUT_OF_FLOAT32, overflowsFloat32, parseNumberCell } from './numbers.js';
+import { rowsPerChunk, type CsvSeparator, type TableChunk, type TableOptions, type TableReader } from './table-types.js';
 
 const READ_PIECE_BYTES = 64 * 1024;
 
 interface ByteCounter {
   bytesRead: number;
+  /** The separator in use, once the first piece is read. */
+  separator?: CsvSeparator;
 }
 
 /**
  * The records of a CSV file, a batch per piece read (batches, not single records, keep the
- * per-await cost off the per-row path). `counter.bytesRead` follows the read.
+ * per-await cost off the per-row path). `counter.bytesRead` follows the read. The separator
+ * is sniffed from the first line unless given (see `sniffSeparator`).
  *
  * @example for await (const batch of readCsvBatches('a.csv')) for (const r of batch) use(r.cells);
  */
-export async function* readCsvBatches(path: string, counter: ByteCounter = { bytesRead: 0 }): AsyncGenerator<CsvRecord[]> {
+export async function* readCsvBatches(path: string, counter: ByteCounter = { bytesRead: 0 }, separator?: CsvSeparator): AsyncGenerator<CsvRecord[]> {
   const stream = createReadStream(path, { encoding: 'utf8', highWaterMark: READ_PIECE_BYTES });
-  const tokenizer = new CsvTokenizer(path);
+  let tokenizer: CsvTokenizer | null = null;
   try {
     for await (const piece of stream as AsyncIterable<string>) {
       counter.bytesRead = stream.bytesRead;
+      if (!tokenizer) {
+        counter.separator = separator ?? sniffSeparator(piece);
+        tokenizer = new CsvTokenizer(path, counter.separator);
+      }
       const batch = tokenizer.push(piece);
       if (batch.length > 0) yield batch;
     }
-    const last = tokenizer.end();
+    const last = tokenizer?.end() ?? [];
     if (last.length > 0) yield last;
   } catch (error) {
     throw asDataError(path, error);
   } finally {
     stream.destroy();
   }
+}
+
+/**
+ * The separator of a CSV file, from its first line (outside quotes): a comma if there is one,
+ * else a semicolon (as spreadsheets write CSV where the comma is the decimal mark), else a tab,
+ * else a comma (a one-column file).
+ *
+ * @example sniffSeparator('a;b;c\n1,5;2;3\n') // ';'
+ */
+export function sniffSeparator(text: string): CsvSeparator {
+  let commas = 0;
+  let semicolons = 0;
+  let tabs = 0;
+  let quoted = false;
+  for (let i = 0; i < text.length; i++) {
+    const c = text[i];
+    if (c === '"') quoted = !quoted;
+    else if (quoted) continue;
+    else if (c === '\n' || c === '\r') break;
+    else if (c === ',') commas++;
+    else if (c === ';') semicolons++;
+    else if (c === '\t') tabs++;
+  }
+  if (commas > 0) return ',';
+  if (semicolons > 0) return ';';
+  if (tabs > 0) return '\t';
+  return ',';
 }
 
 /**
@@ -54,16 +88,16 @@ export async function* readCsvBatches(path: string, counter: ByteCounter = { byt
  */
 export async function openCsvTable(path: string, opts: TableOptions = {}): Promise<TableReader> {
   const bytesTotal = await fileSize(path);
-  const counter = { bytesRead: 0 };
-  const records = new BatchQueue(readCsvBatches(path, counter));
+  const counter: ByteCounter = { bytesRead: 0 };
+  const records = new BatchQueue(readCsvBatches(path, counter, opts.separator));
   let head: CsvHead;
   try {
-    head = await readHead(path, records, opts);
+    head = await readHead(path, records, opts, counter);
   } catch (error) {
     await records.close();
     throw error;
   }
-  const { columns, width, textColumns } = head;
+  const { columns, width, textColumns, skipped } = head;
   let pendingRow: CsvRecord | null = head.firstRow;
   const chunkRows = rowsPerChunk(width, opts.chunkRows);
   let closed = false;
@@ -73,22 +107,32 @@ export async function openCsvTable(path: string, opts: TableOptions = {}): Promi
     if (started) throw new Error('CSV table chunks() can be iterated only once');
     started = true;
     const builder = new ChunkBuilder(width, chunkRows, textColumns);
-    const isText = new Uint8Array(width);
-    for (const c of textColumns) isText[c] = 1;
+    // 0: a number, 1: text, 2: skipped (never parsed).
+    const use = new Uint8Array(width);
+    for (const c of textColumns) use[c] = 1;
+    skipped.forEach((flag, c) => {
+      if (flag) use[c] = 2;
+    });
     const addRow = (record: CsvRecord): void => {
       const cells = record.cells;
       if (cells.length !== width) throw raggedRow(path, record, width, columns !== null);
       const offset = builder.startRow(record.line);
       const values = builder.values;
       for (let c = 0; c < width; c++) {
+        const kind = use[c];
+        if (kind === 2) {
+          values[offset + c] = Number.NaN;
+          continue;
+        }
         const cell = cells[c];
-        if (isText[c]) {
+        if (kind === 1) {
           if (cell.trim() === '') throw badCell(path, record.line, c, cell, columns, 'is empty');
           builder.setText(c, cell);
           continue;
         }
         const value = parseNumberCell(cell);
-        if (value === undefined) throw badCell(path, record.line, c, cell, columns, describeBadNumber(cell));
+        if (value === undefined) throw badCell(path, record.line, c, cell, columns, whyNotNumber(cell, head.separator));
+        if (overflowsFloat32(value)) throw badCell(path, record.line, c, cell, columns, OUT_OF_FLOAT32);
         values[offset + c] = value;
       }
     };
@@ -128,38 +172,58 @@ interface CsvHead {
   columns: string[] | null;
   width: number;
   textColumns: number[];
+  /** 1 for a column never read: asked to skip, or unnamed in the header. */
+  skipped: Uint8Array;
+  separator: CsvSeparator;
   firstRow: CsvRecord;
 }
 
-async function readHead(path: string, records: BatchQueue<CsvRecord>, opts: TableOptions): Promise<CsvHead> {
+async function readHead(path: string, records: BatchQueue<CsvRecord>, opts: TableOptions, counter: ByteCounter): Promise<CsvHead> {
   const first = await records.next();
   if (first === null) throw new DataError(path, 0, 0, 'file is empty');
-  // Text columns given by position are known before the header; by name only after it.
-  const positional = (opts.textColumns ?? []).filter((c): c is number => typeof c === 'number');
+  const separator = counter.separator ?? ',';
+  // Text and skipped columns given by position are known before the header; by name only after it.
+  const positional = [...(opts.textColumns ?? []), ...(opts.skipColumns ?? [])].filter((c): c is number => typeof c === 'number');
   const isHeader =
     opts.header ?? first.cells.some((cell, i) => !positional.includes(i) && parseNumberCell(cell) === undefined);
   if (!isHeader) {
     const width = first.cells.length;
-    return { columns: null, width, textColumns: resolveColumns(null, width, opts.textColumns ?? [], path), firstRow: first };
+    const skipped = columnMask(width, resolveColumns(null, width, opts.skipColumns ?? [], path));
+    return { columns: null, width, textColumns: resolveColumns(null, width, opts.textColumns ?? [], path), skipped, separator, firstRow: first };
   }
   const columns = headerNames(path, first);
   const firstRow = await records.next();
   if (firstRow === null) throw new DataError(path, first.line, 0, 'no data rows (the file holds only a header)');
-  const textColumns = resolveColumns(columns, columns.length, opts.textColumns ?? [], path);
-  return { columns, width: columns.length, textColumns, firstRow };
+  const width = columns.length;
+  const textColumns = resolveColumns(columns, width, opts.textColumns ?? [], path);
+  const skipped = columnMask(width, resolveColumns(columns, width, opts.skipColumns ?? [], path));
+  // An unnamed column (a dataframe's index written first, or a comma ending every line) is never read.
+  columns.forEach((name, c) => {
+    if (name === '' && !textColumns.includes(c)) skipped[c] = 1;
+  });
+  return { columns, width, textColumns, skipped, separator, firstRow };
 }
 
 function headerNames(path: string, record: CsvRecord): string[] {
-  // Names are trimmed so "a, b" matches a model feature called "b".
+  // Names are trimmed so "a, b" matches a model feature called "b". Empty names are unnamed
+  // columns (never read), so they may repeat.
   const names = record.cells.map((c) => c.trim());
   names.forEach((name, i) => {
-    if (name === '') throw new DataError(path, record.line, i + 1, 'empty column name in the header row');
+    if (name === '') return;
     const earlier = names.indexOf(name);
     if (earlier < i) {
       throw new DataError(path, record.line, i + 1, `column name ${shownCell(name)} repeats column ${earlier + 1}`);
     }
   });
   return names;
+}
+
+/** Why a cell is not a number, with a hint when a semicolon file writes decimal commas ("1,5"). */
+function whyNotNumber(cell: string, separator: CsvSeparator): string {
+  if (separator === ';' && /^\s*[+-]?\d*,\d+\s*$/.test(cell)) {
+    return 'is not a number (a decimal comma? tendon reads numbers with a decimal point, like 1.5)';
+  }
+  return describeBadNumber(cell);
 }
 
 function raggedRow(path: string, record: CsvRecord, width: number, hasHeader: boolean): DataError {
@@ -177,6 +241,6 @@ function badCell(
   columns: readonly string[] | null,
   why: string,
 ): DataError {
-  const name = columns ? `"${columns[column]}"` : String(column + 1);
+  const name = columns && columns[column] !== '' ? `"${columns[column]}"` : String(column + 1);
   return new DataError(path, line, column + 1, `cell ${shownCell(cell)} in column ${name} ${why}`);
 }

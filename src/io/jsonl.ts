@@ -1,6 +1,8 @@
 /**
  * JSONL tables: one JSON value per line, either an array of numbers or an object keyed by
- * column names (every line the same kind; objects with the same keys, in any order).
+ * column names (every line the same kind). The first line's keys are the columns; keys other
+ * lines add are ignored, and a column's key may be missing on a line only if that column is
+ * skipped.
  * Blank lines are skipped. Errors name the 1-based line; a JSON syntax error names the
  * 1-based character column from the parser when it gives one, else 1; a bad value names the
  * 1-based column position in the table.
@@ -11,6 +13,7 @@ import { DataError } from '../errors.js';
 import { ChunkBuilder } from './chunk-builder.js';
 import { resolveColumns } from './columns.js';
 import { shownCell } from './file-errors.js';
+import { OUT_OF_FLOAT32, overflowsFloat32 } from './numbers.js';
 import { readLineBatches, type TextLine } from './lines.js';
 import { rowsPerChunk, type TableChunk, type TableOptions, type TableReader } from './table-types.js';
 
@@ -38,7 +41,7 @@ export function parseJsonLine(path: string, line: TextLine): unknown {
  * @example
  * const t = await openJsonlTable('rows.jsonl');
  * t.columns // ['temp', 'humidity'] for lines like {"temp": 21.5, "humidity": 0.4}
- * @throws DataError "file is empty", bad JSON, lines of the wrong kind, missing or extra keys.
+ * @throws DataError "file is empty", bad JSON, lines of the wrong kind, a missing key of a column that is read.
  */
 export async function openJsonlTable(path: string, opts: TableOptions = {}): Promise<TableReader> {
   const bytesTotal = await fileSize(path);
@@ -63,41 +66,54 @@ export async function openJsonlTable(path: string, opts: TableOptions = {}): Pro
     throw error;
   }
   const chunkRows = rowsPerChunk(width, opts.chunkRows);
-  const isText = new Uint8Array(width);
-  for (const c of textColumns) isText[c] = 1;
+  // 0: a number, 1: text, 2: skipped (any value, or no key at all).
+  const use = new Uint8Array(width);
+  for (const c of textColumns) use[c] = 1;
+  try {
+    for (const c of resolveColumns(columns, width, opts.skipColumns ?? [], path)) use[c] = 2;
+  } catch (error) {
+    await lines.close();
+    throw error;
+  }
   let closed = false;
   let started = false;
 
   const addRow = (builder: ChunkBuilder, line: TextLine, value: Row): void => {
     const offset = builder.startRow(line.line);
     const values = builder.values;
-    let cells: unknown[];
     if (columns === null) {
       if (!Array.isArray(value)) throw new DataError(path, line.line, 1, 'expected an array like the first line, found an object');
       if (value.length !== width) {
         throw new DataError(path, line.line, Math.min(value.length, width) + 1, `row has ${value.length} values, expected ${width} (the first line has ${width})`);
       }
-      cells = value;
-    } else {
-      if (Array.isArray(value)) throw new DataError(path, line.line, 1, 'expected an object like the first line, found an array');
-      cells = columns.map((name, c) => {
-        if (!Object.hasOwn(value, name)) throw new DataError(path, line.line, c + 1, `key "${name}" is missing`);
-        return value[name];
-      });
-      if (Object.keys(value).length !== width) {
-        const extra = Object.keys(value).find((k) => !columns!.includes(k));
-        throw new DataError(path, line.line, 0, `key "${extra}" is not among the first line's keys (${columns.join(', ')})`);
-      }
+    } else if (Array.isArray(value)) {
+      throw new DataError(path, line.line, 1, 'expected an object like the first line, found an array');
     }
+    // Keys the first line does not have are ignored (extra fields of any type).
     for (let c = 0; c < width; c++) {
-      const cell = cells[c];
+      const kind = use[c];
+      if (kind === 2) {
+        values[offset + c] = Number.NaN;
+        continue;
+      }
+      let cell: unknown;
+      if (columns === null) {
+        cell = (value as unknown[])[c];
+      } else {
+        const name = columns[c];
+        if (!Object.hasOwn(value, name)) throw new DataError(path, line.line, c + 1, `key "${name}" is missing (the first line has it)`);
+        cell = (value as Record<string, unknown>)[name];
+      }
       const name = columns ? `"${columns[c]}"` : String(c + 1);
-      if (isText[c]) {
-        if (typeof cell !== 'string' || cell.trim() === '') {
-          throw new DataError(path, line.line, c + 1, `value ${shownValue(cell)} in column ${name} is not a non-empty string`);
+      if (kind === 1) {
+        // A class cell: a name, or a number read as its text ("2" for 2 or 2.0).
+        const text = typeof cell === 'number' && Number.isFinite(cell) ? String(cell) : cell;
+        if (typeof text !== 'string' || text.trim() === '') {
+          throw new DataError(path, line.line, c + 1, `value ${shownValue(cell)} in column ${name} is neither a non-empty string nor a number`);
         }
-        builder.setText(c, cell);
+        builder.setText(c, text);
       } else if (typeof cell === 'number' && Number.isFinite(cell)) {
+        if (overflowsFloat32(cell)) throw new DataError(path, line.line, c + 1, `value ${cell} in column ${name} ${OUT_OF_FLOAT32}`);
         values[offset + c] = cell;
       } else {
         throw new DataError(path, line.line, c + 1, `value ${shownValue(cell)} in column ${name} is not a finite number`);

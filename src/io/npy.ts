@@ -1,11 +1,12 @@
 /**
- * NPY arrays (NumPy NEP 1): read little-endian, C-order numeric arrays; write float32 or
+ * NPY arrays (NumPy NEP 1): read numeric arrays of any common dtype, byte order and memory order; write float32 or
  * float64 arrays in format 1.0 with the data on a 64-byte boundary; stream rows out when their
  * count is not known up front.
  */
 import { open, readFile, type FileHandle } from 'node:fs/promises';
 import { endianness } from 'node:os';
 import { DataError } from '../errors.js';
+import { float16Value } from '../format/index.js';
 import { openAtomicFile, type AtomicFile } from './atomic-file.js';
 import { asDataError } from './file-errors.js';
 import {
@@ -15,44 +16,44 @@ import {
   parseNpyDict,
   type NpyHeader,
 } from './npy-header.js';
+import { columnMask, resolveColumns } from './columns.js';
+import { OUT_OF_FLOAT32, overflowsFloat32 } from './numbers.js';
 import { rowsPerChunk, type TableChunk, type TableOptions, type TableReader } from './table-types.js';
 
 export type NpyArray = Float32Array | Float64Array | Uint8Array | Int8Array | Int32Array;
 export type NpyWriteDtype = '<f4' | '<f8';
 
+/**
+ * An NPY dtype: byte order, kind and size, e.g. '<f4' (little-endian float32), '>i8' (big-endian
+ * int64), '|u1'. Every plain numeric dtype NumPy writes is read; values become float64 unless the
+ * file already holds one of NpyArray's types in the host's byte order.
+ */
 interface Dtype {
+  descr: string;
+  kind: 'f' | 'i' | 'u' | 'b';
   size: number;
-  make(buffer: ArrayBuffer): NpyArray;
+  littleEndian: boolean;
 }
 
-const DTYPES: Record<string, Dtype> = {
-  '<f4': { size: 4, make: (b) => new Float32Array(b) },
-  '<f8': { size: 8, make: (b) => new Float64Array(b) },
-  '|u1': { size: 1, make: (b) => new Uint8Array(b) },
-  '|i1': { size: 1, make: (b) => new Int8Array(b) },
-  '<i4': { size: 4, make: (b) => new Int32Array(b) },
-};
-// Single-byte types have no byte order; NumPy spells them '|u1' but '<u1' means the same.
-DTYPES['<u1'] = DTYPES['|u1'];
-DTYPES['<i1'] = DTYPES['|i1'];
+/** Kinds and sizes read, for error messages. */
+const READ_DTYPES = ['f2', 'f4', 'f8', 'i1', 'i2', 'i4', 'i8', 'u1', 'u2', 'u4', 'u8', 'b1'];
 
 const LITTLE_ENDIAN_HOST = endianness() === 'LE';
 
 function dtypeOf(file: string, descr: string): Dtype {
-  const dtype = DTYPES[descr];
-  if (dtype) return dtype;
-  if (descr.startsWith('>')) {
-    throw new DataError(file, 0, 0, `NPY dtype '${descr}' is big-endian; only little-endian arrays are read (supported: ${Object.keys(DTYPES).join(', ')})`);
+  const m = /^([<>|=]?)([fiub])(\d+)$/.exec(descr);
+  if (!m || !READ_DTYPES.includes(m[2] + m[3])) {
+    throw new DataError(file, 0, 0, `NPY dtype '${descr}' is not supported (numbers only: float16/32/64, int8/16/32/64, uint8/16/32/64, bool, in either byte order)`);
   }
-  throw new DataError(file, 0, 0, `NPY dtype '${descr}' is not supported (supported: ${Object.keys(DTYPES).join(', ')})`);
+  const size = Number(m[3]);
+  // '|' means no byte order (one byte); '=' is the writer's native order, which NumPy records as
+  // '<' or '>' anyway: read it as little-endian, NumPy's usual host.
+  return { descr, kind: m[2] as Dtype['kind'], size, littleEndian: m[1] !== '>' };
 }
 
 /** Checks a parsed header and returns the dtype and element count. */
 function checkHeader(file: string, header: NpyHeader): { dtype: Dtype; count: number } {
   const dtype = dtypeOf(file, header.descr);
-  if (header.fortranOrder) {
-    throw new DataError(file, 0, 0, 'NPY array is in Fortran (column-major) order; only C (row-major) order is read');
-  }
   if (header.shape.length === 0) throw new DataError(file, 0, 0, 'NPY array is a 0-d scalar; expected at least one dimension');
   const count = header.shape.reduce((a, b) => a * b, 1);
   return { dtype, count };
@@ -70,23 +71,84 @@ function shapeText(shape: readonly number[]): string {
   return `(${shape.join(', ')}${shape.length === 1 ? ',' : ''})`;
 }
 
-/** Copies little-endian bytes into a fresh, aligned typed array. */
+/** The values of `bytes` (whole elements of `dtype`) in a fresh array: the file's own type when the host can hold it as is, else float64. */
 function bytesToArray(dtype: Dtype, bytes: Uint8Array): NpyArray {
-  const buffer = new ArrayBuffer(bytes.length);
-  new Uint8Array(buffer).set(bytes);
-  if (!LITTLE_ENDIAN_HOST && dtype.size > 1) {
-    const u8 = new Uint8Array(buffer);
-    for (let i = 0; i < u8.length; i += dtype.size) u8.subarray(i, i + dtype.size).reverse();
+  const native = dtype.size === 1 || dtype.littleEndian === LITTLE_ENDIAN_HOST;
+  if (native) {
+    const buffer = new ArrayBuffer(bytes.length);
+    new Uint8Array(buffer).set(bytes);
+    if (dtype.kind === 'f' && dtype.size === 4) return new Float32Array(buffer);
+    if (dtype.kind === 'f' && dtype.size === 8) return new Float64Array(buffer);
+    if (dtype.kind === 'i' && dtype.size === 4) return new Int32Array(buffer);
+    if (dtype.kind === 'i' && dtype.size === 1) return new Int8Array(buffer);
+    if (dtype.kind !== 'f' && dtype.size === 1) return new Uint8Array(buffer);
   }
-  return dtype.make(buffer);
+  const count = bytes.length / dtype.size;
+  const out = new Float64Array(count);
+  const view = new DataView(bytes.buffer, bytes.byteOffset, bytes.byteLength);
+  const le = dtype.littleEndian;
+  const read = elementReader(dtype, view, le);
+  for (let i = 0; i < count; i++) out[i] = read(i * dtype.size);
+  return out;
+}
+
+function elementReader(dtype: Dtype, view: DataView, le: boolean): (at: number) => number {
+  const key = dtype.kind + dtype.size;
+  switch (key) {
+    case 'f2':
+      return (at) => float16Value(view.getUint16(at, le));
+    case 'f4':
+      return (at) => view.getFloat32(at, le);
+    case 'f8':
+      return (at) => view.getFloat64(at, le);
+    case 'i1':
+      return (at) => view.getInt8(at);
+    case 'i2':
+      return (at) => view.getInt16(at, le);
+    case 'i4':
+      return (at) => view.getInt32(at, le);
+    // 64-bit integers beyond 2^53 round to the nearest float64, as NumPy's own astype(float) does.
+    case 'i8':
+      return (at) => Number(view.getBigInt64(at, le));
+    case 'u2':
+      return (at) => view.getUint16(at, le);
+    case 'u4':
+      return (at) => view.getUint32(at, le);
+    case 'u8':
+      return (at) => Number(view.getBigUint64(at, le));
+    default: // u1, b1
+      return (at) => view.getUint8(at);
+  }
+}
+
+/** A Fortran-order (column-major) array's values rearranged into C (row-major) order. */
+function fortranToC(values: NpyArray, shape: readonly number[]): NpyArray {
+  if (shape.length < 2) return values;
+  const out = new (values.constructor as new (n: number) => NpyArray)(values.length);
+  const index = new Array<number>(shape.length).fill(0);
+  // Walk the Fortran order (first index fastest), writing each value to its C-order place.
+  const cStride = new Array<number>(shape.length);
+  let stride = 1;
+  for (let d = shape.length - 1; d >= 0; d--) {
+    cStride[d] = stride;
+    stride *= shape[d];
+  }
+  for (let f = 0; f < values.length; f++) {
+    let c = 0;
+    for (let d = 0; d < shape.length; d++) c += index[d] * cStride[d];
+    out[c] = values[f];
+    for (let d = 0; d < shape.length && ++index[d] === shape[d]; d++) index[d] = 0;
+  }
+  return out;
 }
 
 /**
  * Decodes a whole NPY file held in memory.
  *
  * @example decodeNpy('x.npy', bytes) // { shape: [3, 4], descr: '<f4', data: Float32Array(12) }
- * @throws DataError for a bad magic, big-endian or unsupported dtype, Fortran order, or data
- *   whose length does not match the shape.
+ * Big-endian and Fortran-order arrays are converted (values in C order, host byte order).
+ * @throws DataError for a bad magic, an unsupported dtype, or data whose length does not match
+ *   the shape.
  */
 export function decodeNpy(file: string, bytes: Buffer): { shape: number[]; descr: string; data: NpyArray } {
   const header = decodeNpyHeader(file, bytes);
@@ -96,7 +158,8 @@ export function decodeNpy(file: string, bytes: Buffer): { shape: number[]; descr
   if (have !== need) {
     throw new DataError(file, 0, 0, `NPY data holds ${have} bytes, but shape ${shapeText(header.shape)} of '${header.descr}' needs ${need}`);
   }
-  return { shape: header.shape, descr: header.descr, data: bytesToArray(dtype, bytes.subarray(header.dataOffset)) };
+  const values = bytesToArray(dtype, bytes.subarray(header.dataOffset));
+  return { shape: header.shape, descr: header.descr, data: header.fortranOrder ? fortranToC(values, header.shape) : values };
 }
 
 /** Reads a whole NPY file. @example const { shape, data } = await readNpy('w.npy'); */
@@ -149,15 +212,17 @@ export function littleEndianBytes(data: Float32Array | Float64Array, dtype: NpyW
 }
 
 /**
- * Opens an NPY file as a table (1-D is one column; dimensions after the first are flattened
- * into the row). Reads `chunkRows` rows per read, so memory stays bounded.
+ * Opens a 1-D or 2-D NPY file as a table (1-D is one column). Reads `chunkRows` rows per read,
+ * so memory stays bounded; a Fortran-order file is read whole and rearranged first. Text
+ * columns (class cells given by position) hand out each number as text ("2" for 2.0), so a
+ * target column can hold class indices. Values past the float32 range are refused, naming
+ * the row and column.
  *
- * @example const t = await openNpyTable('x.npy'); t.width // 784 for shape (n, 28, 28)
+ * @example const t = await openNpyTable('x.npy'); t.width // 5 for shape (n, 5)
+ * @throws DataError for 3-D and larger arrays: their rows are not table rows, and flattening
+ *   them silently would hide a wrong shape.
  */
 export async function openNpyTable(path: string, opts: TableOptions = {}): Promise<TableReader> {
-  if (opts.textColumns && opts.textColumns.length > 0) {
-    throw new DataError(path, 0, 0, 'NPY files hold numbers only; text columns cannot be read from them');
-  }
   let handle: FileHandle;
   try {
     handle = await open(path, 'r');
@@ -167,6 +232,7 @@ export async function openNpyTable(path: string, opts: TableOptions = {}): Promi
   let header: NpyHeader;
   let dtype: Dtype;
   let bytesTotal: number;
+  let whole: NpyArray | null = null;
   try {
     bytesTotal = (await handle.stat()).size;
     const preamble = Buffer.alloc(Math.min(NPY_PREAMBLE_BYTES, bytesTotal));
@@ -181,18 +247,38 @@ export async function openNpyTable(path: string, opts: TableOptions = {}): Promi
     if (have !== checked.count * dtype.size) {
       throw new DataError(path, 0, 0, `NPY data holds ${have} bytes, but shape ${shapeText(header.shape)} of '${header.descr}' needs ${checked.count * dtype.size}`);
     }
+    if (header.shape.length > 2) {
+      const flat = `(${header.shape[0]}, ${header.shape.slice(1).reduce((a, b) => a * b, 1)})`;
+      throw new DataError(path, 0, 0, `NPY array has ${header.shape.length} dimensions ${shapeText(header.shape)}; a table needs 1 or 2 (rows, columns): reshape it to ${flat} first, e.g. numpy's a.reshape(len(a), -1)`);
+    }
+    if (header.fortranOrder && header.shape.length === 2) {
+      const bytes = Buffer.alloc(have);
+      await handle.read(bytes, 0, have, header.dataOffset);
+      whole = fortranToC(bytesToArray(dtype, bytes), header.shape);
+    }
   } catch (error) {
     await handle.close();
     throw asDataError(path, error);
   }
   const rowsTotal = header.shape[0];
-  const width = header.shape.slice(1).reduce((a, b) => a * b, 1);
+  const width = header.shape.length === 2 ? header.shape[1] : 1;
   if (rowsTotal === 0 || width === 0) {
     await handle.close();
     throw new DataError(path, 0, 0, `no data rows (NPY shape ${shapeText(header.shape)})`);
   }
+  let textColumns: number[];
+  let skipped: Uint8Array;
+  try {
+    textColumns = resolveColumns(null, width, opts.textColumns ?? [], path);
+    skipped = columnMask(width, resolveColumns(null, width, opts.skipColumns ?? [], path));
+  } catch (error) {
+    await handle.close();
+    throw error;
+  }
   const rowBytes = width * dtype.size;
   const chunkRows = rowsPerChunk(width, opts.chunkRows);
+  const mayOverflow = dtype.kind === 'f' && dtype.size === 8;
+  const anySkipped = skipped.includes(1);
   let bytesRead = header.dataOffset;
   let closed = false;
   const close = async (): Promise<void> => {
@@ -201,15 +287,43 @@ export async function openNpyTable(path: string, opts: TableOptions = {}): Promi
     await handle.close();
   };
 
+  const toChunk = (row: number, rows: number, values: NpyArray): TableChunk => {
+    const data = values instanceof Float64Array ? values : Float64Array.from(values);
+    // Only float64 values can pass the float32 range; skipped columns are never looked at.
+    if (mayOverflow || anySkipped) {
+      for (let i = 0; i < data.length; i++) {
+        const c = i % width;
+        if (skipped[c]) data[i] = Number.NaN;
+        else if (overflowsFloat32(data[i])) {
+          throw new DataError(path, row + Math.floor(i / width) + 1, c + 1, `value ${data[i]} in column ${c + 1} ${OUT_OF_FLOAT32}`);
+        }
+      }
+    }
+    const chunk: TableChunk = { rows, data, firstLine: row + 1 };
+    if (textColumns.length > 0) {
+      chunk.text = new Map(textColumns.map((c) => {
+        const cells: string[] = [];
+        for (let r = 0; r < rows; r++) cells.push(String(data[r * width + c]));
+        for (let r = 0; r < rows; r++) data[r * width + c] = Number.NaN;
+        return [c, cells];
+      }));
+    }
+    return chunk;
+  };
+
   async function* chunks(): AsyncGenerator<TableChunk> {
     try {
       for (let row = 0; row < rowsTotal && !closed; row += chunkRows) {
         const rows = Math.min(chunkRows, rowsTotal - row);
+        if (whole) {
+          bytesRead += rows * rowBytes;
+          yield toChunk(row, rows, whole.slice(row * width, (row + rows) * width));
+          continue;
+        }
         const bytes = Buffer.alloc(rows * rowBytes);
         await handle.read(bytes, 0, bytes.length, header.dataOffset + row * rowBytes);
         bytesRead += bytes.length;
-        const values = bytesToArray(dtype, bytes);
-        yield { rows, data: values instanceof Float64Array ? values : Float64Array.from(values), firstLine: row + 1 };
+        yield toChunk(row, rows, bytesToArray(dtype, bytes));
       }
     } finally {
       await close();
@@ -219,7 +333,7 @@ export async function openNpyTable(path: string, opts: TableOptions = {}): Promi
   return {
     columns: null,
     width,
-    textColumns: [],
+    textColumns,
     get bytesRead() {
       return bytesRead;
     },

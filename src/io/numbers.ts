@@ -21,6 +21,17 @@ export function parseNumberCell(cell: string): number | undefined {
   return Number.isFinite(value) ? value : undefined;
 }
 
+/**
+ * True for a finite float64 that float32 cannot hold (|v| past 3.4028235e38 after rounding,
+ * IEEE 754 binary32): models compute in float32, so such a cell would turn into Infinity / NaN.
+ */
+export function overflowsFloat32(value: number): boolean {
+  return Number.isFinite(value) && !Number.isFinite(Math.fround(value));
+}
+
+/** The end of an error message about such a cell. */
+export const OUT_OF_FLOAT32 = 'is out of the float32 range (largest finite: 3.4028235e38)';
+
 /** Why a cell failed `parseNumberCell`, in words for an error message. */
 export function describeBadNumber(cell: string): string {
   const text = cell.trim();

@@ -6,6 +6,9 @@
 export const TABLE_FORMATS = ['csv', 'jsonl', 'npy'] as const;
 export type TableFormat = (typeof TABLE_FORMATS)[number];
 
+/** Cell separators a CSV file may use. */
+export type CsvSeparator = ',' | ';' | '\t';
+
 /** A column given by header name or by 0-based position. */
 export type ColumnRef = string | number;
 
@@ -19,6 +22,17 @@ export interface TableOptions {
    * in `data` hold NaN so that column positions stay the same; their cells come in `text`.
    */
   textColumns?: readonly ColumnRef[];
+  /**
+   * Columns never read: their cells are not parsed (any text, empty, or in JSONL any value or
+   * no key at all) and their slots in `data` hold NaN. For IDs, notes, blank label columns.
+   */
+  skipColumns?: readonly ColumnRef[];
+  /**
+   * CSV only: the cell separator. Left out, it is sniffed from the first line: a comma if it
+   * holds one (outside quotes), else a semicolon if it holds one, else a tab if it holds one,
+   * else a comma. `.tsv` files are read with a tab.
+   */
+  separator?: CsvSeparator;
   /**
    * CSV only: whether the first row is a header. Left out, it is a header when any of its
    * cells (outside text columns given by position) is not a number.

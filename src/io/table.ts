@@ -8,13 +8,15 @@ import { openJsonlTable } from './jsonl.js';
 import { openNpyTable } from './npy.js';
 import { TABLE_FORMATS, type LoadedTable, type TableFormat, type TableOptions, type TableReader } from './table-types.js';
 
-const BY_EXTENSION: Record<string, TableFormat> = { '.csv': 'csv', '.jsonl': 'jsonl', '.npy': 'npy' };
+// A .tsv file is CSV with tabs (RFC 4180 rules for quotes); a .csv file may use commas,
+// semicolons or tabs (sniffed from its first line).
+const BY_EXTENSION: Record<string, TableFormat> = { '.csv': 'csv', '.tsv': 'csv', '.jsonl': 'jsonl', '.npy': 'npy' };
 
 /** The format a path names by its extension. @throws DataError for an unknown extension. */
 export function tableFormatOf(path: string): TableFormat {
   const format = BY_EXTENSION[extname(path).toLowerCase()];
   if (!format) {
-    throw new DataError(path, 0, 0, `unknown data file extension "${extname(path)}"; supported: ${Object.keys(BY_EXTENSION).join(', ')} (or name the format)`);
+    throw new DataError(path, 0, 0, `unknown data file extension "${extname(path)}"; supported: ${Object.keys(BY_EXTENSION).join(', ')} (rename the file to one of these)`);
   }
   return format;
 }
@@ -35,7 +37,7 @@ export async function openTable(path: string, opts: TableOptions = {}): Promise<
   }
   switch (format) {
     case 'csv':
-      return openCsvTable(path, opts);
+      return openCsvTable(path, extname(path).toLowerCase() === '.tsv' && !opts.separator ? { ...opts, separator: '\t' } : opts);
     case 'jsonl':
       return openJsonlTable(path, opts);
     case 'npy':

@@ -18,11 +18,23 @@ export interface ModelFacts {
   /** Calibration temperature, or null when the model has none. */
   temperature: number | null;
   normalise: { method: string; fitted: boolean; rowsSeen: number } | null;
+  /** Regression targets scaled inside the model: answer = last layer's output x std + mean. */
+  targetScaling: { mean: number[]; std: number[] } | null;
   storage: string;
   parameters: number;
   layers: { index: number; kind: string; activation?: string; inputs: number; outputs: number; tensors: { name: string; shape: number[] }[]; parameters: number; detail: string }[];
   provenance: ModelDoc['provenance'];
   extra: Record<string, string>;
+}
+
+/**
+ * True when the model's answers are classes: a softmax output, or one sigmoid unit (0 / 1).
+ * Anything else answers values (regression), judged by how far they move, not by a top class.
+ * @example outputsAreClasses(doc) // false for a linear output
+ */
+export function outputsAreClasses(doc: ModelDoc): boolean {
+  const last = [...doc.layers].reverse().find((l) => l.kind === 'dense');
+  return last?.kind === 'dense' && (last.activation === 'softmax' || (last.activation === 'sigmoid' && last.size === 1));
 }
 
 /** The facts `tendon about` prints; also served by the HTTP endpoint's description route. */
@@ -65,6 +77,7 @@ export function modelFacts(doc: ModelDoc, file: { path: string; checksum: string
     normalise: norm
       ? { method: norm.method, fitted: norm.method === 'zscore' ? norm.mean !== null : norm.min !== null, rowsSeen: norm.count }
       : null,
+    targetScaling: doc.targetScaling ? { mean: Array.from(doc.targetScaling.mean), std: Array.from(doc.targetScaling.std) } : null,
     storage: doc.storage,
     parameters: layers.reduce((n, l) => n + l.parameters, 0),
     layers,

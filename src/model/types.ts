@@ -71,6 +71,17 @@ export type Normalisation =
       count: number;
     };
 
+/**
+ * Regression targets as the model learnt them: training saw (y - mean) / std per output, so
+ * the answer is y = z·std + mean, z being the last dense layer's linear output. Runners fold
+ * it into that layer (model/target-scaling.ts); training works on z.
+ */
+export interface TargetScaling {
+  readonly mean: Float64Array;
+  /** Each finite and > 0. */
+  readonly std: Float64Array;
+}
+
 export interface Provenance {
   /** CRC-32 of the parent file's payload, as 8 lowercase hex digits. */
   checksum: string;
@@ -98,6 +109,8 @@ export interface ModelDoc {
   /** Optional output labels, one per output. */
   labels: string[] | null;
   normalise: Normalisation | null;
+  /** Absent or null: the last layer's outputs are the answers. */
+  targetScaling?: TargetScaling | null;
   layers: Layer[];
   meta: ModelMeta;
   provenance: Provenance[];

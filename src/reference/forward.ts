@@ -3,7 +3,7 @@
  * tape. Plain loops only (through the layer kinds' reference halves); no tfjs.
  */
 import { layerKind, type BackwardOptions, type BatchStats, type ForwardContext, type Mat64, type ModelDoc } from '../model/index.js';
-import { mat64, withTemperatureFolded } from '../model/index.js';
+import { mat64, runningForm } from '../model/index.js';
 import { normalise64 } from './normalise.js';
 
 const INFERENCE: ForwardContext = {
@@ -15,12 +15,13 @@ const INFERENCE: ForwardContext = {
 
 /**
  * Inference in float64: normalise the raw features, then each layer in inference mode, with a
- * stored calibration temperature folded into the output layer as the engines run it.
+ * stored calibration temperature or target scaling folded into the output layer as the engines
+ * run it (model/running-form.ts).
  * `layers` (with keepLayers) holds each layer's output, in order.
  * @example referenceForward(doc, mat64(1, 2, Float64Array.of(0.05, 0.1))).y
  */
 export function referenceForward(doc: ModelDoc, x: Mat64, opts: { keepLayers?: boolean } = {}): { y: Mat64; layers?: Mat64[] } {
-  const running = withTemperatureFolded(doc);
+  const running = runningForm(doc);
   let h = normalise64(running.normalise, x);
   const layers: Mat64[] = [];
   running.layers.forEach((layer, i) => {

@@ -3,7 +3,7 @@
  * layers' own reference backward halves run from a one-hot output gradient, then back through
  * the model's normalisation. This is what integrated gradients integrate.
  */
-import { mat64, withTemperatureFolded, type ForwardContext, type Mat64, type ModelDoc } from '../model/index.js';
+import { mat64, runningForm, type ForwardContext, type Mat64, type ModelDoc } from '../model/index.js';
 import { referenceBackwardTape, referenceForwardTrain } from './forward.js';
 import { normaliseBackward64 } from './normalise.js';
 
@@ -22,7 +22,7 @@ const INFERENCE_WITH_TAPE: ForwardContext = {
  * @example inputGradient(doc, mat64(1, 2, Float64Array.of(0.05, 0.1)), Int32Array.of(0)).dx
  */
 export function inputGradient(doc: ModelDoc, x: Mat64, output: Int32Array): { y: Mat64; dx: Mat64 } {
-  const running = withTemperatureFolded(doc);
+  const running = runningForm(doc);
   const { y, tape } = referenceForwardTrain(running, x, INFERENCE_WITH_TAPE);
   const dy = mat64(y.rows, y.cols);
   for (let r = 0; r < y.rows; r++) dy.data[r * y.cols + output[r]] = 1;

@@ -77,6 +77,12 @@ export interface TuneOptions {
    * it was fitted to the old weights.
    */
   calibrate?: boolean;
+  /**
+   * Regression with a linear output: fit each target's mean and standard deviation from the
+   * training rows, train on (y - mean) / std and store them in the model, which answers in
+   * target units. Default true. A model that already stores a target scaling keeps it either way.
+   */
+  scaleTargets?: boolean;
 }
 
 export interface ResolvedTuneOptions {
@@ -97,6 +103,7 @@ export interface ResolvedTuneOptions {
   readonly loss: LossName | null;
   readonly normalisation: NormalisationPolicy;
   readonly calibrate: boolean;
+  readonly scaleTargets: boolean;
 }
 
 const isFiniteNumber = (v: unknown): v is number => typeof v === 'number' && Number.isFinite(v);
@@ -118,6 +125,12 @@ function oneOf<T extends string>(name: string, v: string | undefined, allowed: r
   if (v === undefined) return fallback;
   if (!(allowed as readonly string[]).includes(v)) throw new TuneConfigError(name, `must be one of ${allowed.join(', ')}, got "${v}"`);
   return v as T;
+}
+
+function flag(name: string, v: boolean | undefined, fallback: boolean): boolean {
+  if (v === undefined) return fallback;
+  if (typeof v !== 'boolean') throw new TuneConfigError(name, `must be true or false, got ${String(v)}`);
+  return v;
 }
 
 function checkData(name: string, data: TuneData, inputs: number): void {
@@ -240,5 +253,6 @@ export function resolveTuneOptions(opts: TuneOptions, doc: ModelDoc): ResolvedTu
     loss: opts.loss === undefined ? null : oneOf('loss', opts.loss, LOSS_NAMES, 'mse'),
     normalisation: oneOf('normalisation', opts.normalisation, ['keep', 'continue'] as const, 'keep'),
     calibrate,
+    scaleTargets: flag('scaleTargets', opts.scaleTargets, true),
   };
 }

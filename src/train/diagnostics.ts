@@ -2,9 +2,9 @@
  * Diagnostics for the usual reasons a network fails to train. Each is a plain object the CLI
  * prints and tests read; `code` is stable, `message` says what was seen, `hint` what to try.
  */
-import type { Layer } from '../model/types.js';
+import type { Layer, Normalisation } from '../model/types.js';
 
-export type DiagnosticCode = 'vanishing_gradient' | 'dead_relu' | 'linear_stack' | 'raw_inputs' | 'engine_fallback';
+export type DiagnosticCode = 'vanishing_gradient' | 'dead_relu' | 'linear_stack' | 'raw_inputs' | 'engine_fallback' | 'constant_features';
 
 export interface Diagnostic {
   readonly code: DiagnosticCode;
@@ -155,5 +155,36 @@ export function rawInputs(
     code: 'raw_inputs',
     message: `inputs are far from standardised and the model has no normalisation: ${shown}`,
     hint: 'add a zscore normalise block to the model; it is fitted from the training rows',
+  };
+}
+
+/** Names shown in one warning line before "and N more". */
+const SHOWN_NAMES = 12;
+
+/**
+ * A warning naming the features whose fitted spread is zero (z-score std 0, or min-max
+ * max = min): they were constant in the rows the statistics came from, so normalisation maps
+ * them to 0 and they contribute nothing to the answers. Kept rather than refused: real files
+ * hold such columns (border pixels, a hold-out split that leaves one value), and a later tune
+ * that continues the statistics can give them a spread again.
+ *
+ * @example constantFeatures(doc.normalise, ['a', 'b']) // null or { code: 'constant_features', ... }
+ */
+export function constantFeatures(norm: Normalisation | null, names: readonly string[] | null): Diagnostic | null {
+  if (!norm) return null;
+  const centre = norm.method === 'zscore' ? norm.mean : norm.min;
+  const spread = norm.method === 'zscore' ? norm.std : norm.max && norm.min ? norm.max.map((hi, c) => hi - norm.min![c]) : null;
+  if (!centre || !spread) return null;
+  const flat: string[] = [];
+  spread.forEach((s, c) => {
+    if (s === 0) flat.push(names?.[c] ?? `input ${c}`);
+  });
+  if (flat.length === 0) return null;
+  const shown = flat.slice(0, SHOWN_NAMES).join(', ') + (flat.length > SHOWN_NAMES ? ` and ${flat.length - SHOWN_NAMES} more` : '');
+  const what = norm.method === 'zscore' ? 'standard deviation' : 'range';
+  return {
+    code: 'constant_features',
+    message: `${flat.length} feature${flat.length > 1 ? 's were' : ' was'} constant in the training rows (${what} 0) and contribute${flat.length > 1 ? '' : 's'} nothing: ${shown}`,
+    hint: 'the model keeps them with scale 0; drop the columns from the model, or fine-tune later with --normalisation continue on rows where they vary',
   };
 }

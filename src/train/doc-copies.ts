@@ -29,6 +29,7 @@ export function cloneDoc(doc: ModelDoc): ModelDoc {
     features: doc.features && [...doc.features],
     labels: doc.labels && [...doc.labels],
     normalise: doc.normalise && copyNormalisation(doc.normalise),
+    ...(doc.targetScaling ? { targetScaling: { mean: doc.targetScaling.mean.slice(), std: doc.targetScaling.std.slice() } } : {}),
     layers: doc.layers.map(cloneLayer),
     meta: { ...doc.meta, extra: { ...doc.meta.extra } },
     provenance: doc.provenance.map((p) => ({ ...p })),

@@ -5,7 +5,18 @@
  */
 import { TuneConfigError } from '../errors.js';
 import { encodeModel, checksumOf } from '../format/index.js';
-import { SeededRng, initDense, layerKind, type ActivationName, type ForwardContext, type ModelDoc } from '../model/index.js';
+import {
+  SeededRng,
+  attachTargetScaling,
+  fitTargetScaling,
+  initDense,
+  layerKind,
+  scalableOutputLayer,
+  type ActivationName,
+  type ForwardContext,
+  type ModelDoc,
+  type TargetScaling,
+} from '../model/index.js';
 import { wasmSimdAvailable } from '../engine/fast/dense-kernel.js';
 import { simdTrainBlocker } from '../engine/fast/simd-trainer.js';
 import { TRAIN_PATHS, type TrainPath } from './backends.js';
@@ -91,6 +102,38 @@ export function prepareNormalisation(doc: ModelDoc, train: TuneData, policy: Nor
     return null;
   }
   return rawInputs(train.x, train.rows, doc.inputs, false);
+}
+
+/** True when the layer that gives the answers is stored without weights (a spec): a tune initialises it. */
+export function outputLayerEmpty(doc: ModelDoc): boolean {
+  const at = scalableOutputLayer(doc);
+  const layer = at >= 0 ? doc.layers[at] : null;
+  return layer?.kind === 'dense' && layer.weight.length === 0;
+}
+
+/**
+ * The target scaling a run trains with, or null: the one the model stores; else, for regression
+ * onto a linear output with `scale` on, one fitted from the training targets. Added to a model
+ * whose output layer already holds trained weights, it is attached with the inverse fold, so
+ * the model's answers are unchanged before the first step; a freshly initialised output layer
+ * starts in the scaled units directly. Sets `doc.targetScaling` accordingly.
+ */
+export function prepareTargetScaling(doc: ModelDoc, train: TuneData, outputs: number, scale: boolean, freshOutput: boolean): TargetScaling | null {
+  if (doc.targetScaling) return doc.targetScaling;
+  if (!scale || train.y instanceof Int32Array || scalableOutputLayer(doc) < 0) return null;
+  const fitted = fitTargetScaling(train.y, train.rows, outputs);
+  if (freshOutput) doc.targetScaling = fitted;
+  else attachTargetScaling(doc, fitted);
+  return fitted;
+}
+
+/** `data` with its targets as the model learns them, (y - mean) / std, in a new array; class targets pass as they are. */
+export function scaledTargets(data: TuneData, scaling: TargetScaling | null): TuneData {
+  if (!scaling || data.y instanceof Int32Array) return data;
+  const outputs = scaling.mean.length;
+  const y = new Float32Array(data.y.length);
+  for (let i = 0; i < y.length; i++) y[i] = (data.y[i] - scaling.mean[i % outputs]) / scaling.std[i % outputs];
+  return { ...data, y };
 }
 
 /** Training mode whose dropout keep-masks (0 or 1/(1-rate)) draw from `rng`. */

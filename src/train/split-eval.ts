@@ -3,7 +3,7 @@
  * loss, accuracy and confusion for classifiers, MAE and RMSE for regression, and which ReLU
  * units fired. Separate from the loop because it never changes weights.
  */
-import type { ModelDoc } from '../model/index.js';
+import type { ModelDoc, TargetScaling } from '../model/index.js';
 import type { TrainBackend } from './backends.js';
 import type { TuneData } from './config.js';
 import { ReluActivity } from './diagnostics.js';
@@ -12,12 +12,13 @@ import { accuracy, confusionMatrix, meanAbsoluteError, predictedClasses, rootMea
 import { targetsOf } from './tune-data.js';
 
 export interface SplitMetrics {
+  /** On the targets as the model learns them (scaled, when the model scales its targets). */
   readonly loss: number;
   /** Classifiers only. */
   readonly accuracy: number | null;
   /** Classifiers only: row = true class, column = predicted. */
   readonly confusion: number[][] | null;
-  /** Regression only. */
+  /** Regression only, in target units (a target scaling is undone first). */
   readonly mae: number | null;
   readonly rmse: number | null;
 }
@@ -48,6 +49,7 @@ export function evaluateSplit(
   outputs: number,
   classifier: boolean,
   reluLayers: readonly number[],
+  targetScaling: TargetScaling | null = null,
 ): Evaluation {
   const relu = new ReluActivity();
   let lossSum = 0;
@@ -72,6 +74,14 @@ export function evaluateSplit(
       relu,
     };
   }
-  const t = data.y instanceof Int32Array ? Float64Array.from(data.y) : data.y;
+  const t = data.y instanceof Int32Array ? Float64Array.from(data.y) : Float64Array.from(data.y);
+  if (targetScaling) {
+    // Both sides back in target units: z·std + mean.
+    for (let i = 0; i < t.length; i++) {
+      const j = i % outputs;
+      outAll[i] = outAll[i] * targetScaling.std[j] + targetScaling.mean[j];
+      t[i] = t[i] * targetScaling.std[j] + targetScaling.mean[j];
+    }
+  }
   return { metrics: { loss, accuracy: null, confusion: null, mae: meanAbsoluteError(outAll, t), rmse: rootMeanSquaredError(outAll, t) }, relu };
 }

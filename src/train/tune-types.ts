@@ -91,7 +91,7 @@ export interface TuneResult {
 
 /**
  * Divergence with the document as it was before the step that went bad, so a caller can keep it.
- * Still a DivergenceError (exit code 1, the same message).
+ * Still a DivergenceError (exit code 1).
  */
 export class TuneDivergence extends DivergenceError {
   constructor(
@@ -102,6 +102,6 @@ export class TuneDivergence extends DivergenceError {
     /** A copy of the last weights whose loss and gradients were finite. */
     readonly lastGood: ModelDoc,
   ) {
-    super(epoch, batch, layer, detail);
+    super(epoch, batch, layer, detail, 'the weights before the failing step are in the error (lastGood)');
   }
 }

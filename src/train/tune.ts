@@ -19,14 +19,26 @@ import { makeBackend } from './backends.js';
 import { classLogits, fitTemperature, type TemperatureFit } from './calibration.js';
 import { clipGlobalNorm } from './clip.js';
 import { resolveTuneOptions, type TuneData } from './config.js';
-import { linearStacks } from './diagnostics.js';
+import { constantFeatures, linearStacks } from './diagnostics.js';
 import { cloneDoc, mutableArrays, restore, snapshot } from './doc-copies.js';
 import { DiagnosticLog, epochFindings } from './epoch-findings.js';
 import { firstBrokenSlot, firstNonFiniteLayer, layerLabel, layerSquaredNorms } from './finite-checks.js';
 import { computeLoss, lossFor } from './losses.js';
 import { makeOptimiser } from './optimisers.js';
 import { anchorStarts, changedLayers, slotsOf, stepGradients, updateRunningStatistics } from './param-slots.js';
-import { checkPath, choosePath, initialiseEmpty, outputActivation, prepareNormalisation, streams, trainingContext, tuneProvenance } from './run-setup.js';
+import {
+  checkPath,
+  choosePath,
+  initialiseEmpty,
+  outputActivation,
+  outputLayerEmpty,
+  prepareNormalisation,
+  prepareTargetScaling,
+  scaledTargets,
+  streams,
+  trainingContext,
+  tuneProvenance,
+} from './run-setup.js';
 import { rateAt } from './schedule.js';
 import { epochBatches } from './shuffle.js';
 import { evaluateSplit, hiddenReluLayers } from './split-eval.js';
@@ -59,6 +71,7 @@ export async function tune(doc: ModelDoc, data: TuneData, options: TuneRunOption
   const work = cloneDoc(doc);
   const parentTemperature = work.temperature ?? null;
   delete work.temperature;
+  const freshOutput = outputLayerEmpty(work);
   initialiseEmpty(work, rng.init);
   validateModel(work, work.meta.name || '(model)');
   const widths = modelWidths(work);
@@ -70,15 +83,29 @@ export async function tune(doc: ModelDoc, data: TuneData, options: TuneRunOption
   }
   const classifier = data.y instanceof Int32Array;
   if (opts.calibrate && !classifier) throw new TuneConfigError('calibrate', 'a temperature is fitted to class targets; these targets are values');
-  const { train, held, replay } = runRows(data, opts, work.inputs, outputs, rng.split);
+  const rowsAsGiven = runRows(data, opts, work.inputs, outputs, rng.split);
+
+  // Regression targets scaled inside the model: the loop trains on z = (y - mean) / std with the
+  // scaling set aside (so every path runs the bare layers), and the result stores it again.
+  const scaling = prepareTargetScaling(work, rowsAsGiven.train, outputs, opts.scaleTargets, freshOutput);
+  work.targetScaling = null;
+  const withScaling = (d: ModelDoc): ModelDoc => (scaling ? { ...d, targetScaling: scaling } : d);
+  const train = scaledTargets(rowsAsGiven.train, scaling);
+  const held = rowsAsGiven.held && scaledTargets(rowsAsGiven.held, scaling);
+  const replay = rowsAsGiven.replay && scaledTargets(rowsAsGiven.replay, scaling);
 
   const { path, fallback } = choosePath(options.path, work);
   const stacks = linearStacks(work.layers);
   const raw = prepareNormalisation(work, train, opts.normalisation);
-  const log = new DiagnosticLog([fallback, ...stacks, raw]);
+  const log = new DiagnosticLog([fallback, ...stacks, raw, constantFeatures(work.normalise, work.features)]);
 
   // What the steps change, and the snapshots that undo them.
   const slots = slotsOf(work, opts);
+  if (slots.length > 0 && slots.every((sl) => sl.frozen)) {
+    // Refused rather than run: epochs that change nothing would look like a finished training.
+    const layers = [...new Set(slots.map((sl) => sl.layer))].join(', ');
+    throw new TuneConfigError(opts.freezeTensors.size > 0 ? 'freezeTensors' : 'freeze', `every layer with weights (${layers}) is frozen: nothing would train`);
+  }
   const anchorStart = anchorStarts(slots, opts.anchor);
   const optimiser = makeOptimiser(opts.optimiser, opts.decay);
   const gradientsChange = anchorStart !== null || opts.clip !== null;
@@ -122,7 +149,7 @@ export async function tune(doc: ModelDoc, data: TuneData, options: TuneRunOption
         const bad = firstNonFiniteLayer(layerSq, grads);
         if (!Number.isFinite(loss.value) || bad >= 0) {
           restore(arrays, lastGood);
-          throw new TuneDivergence(epoch + 1, b + 1, bad >= 0 ? layerLabel(work, bad) : 'the loss', `loss is ${loss.value}`, cloneDoc(work));
+          throw new TuneDivergence(epoch + 1, b + 1, bad >= 0 ? layerLabel(work, bad) : 'the loss', `loss is ${loss.value}`, withScaling(cloneDoc(work)));
         }
         for (const [l, sq] of layerSq) normSums.set(l, (normSums.get(l) ?? 0) + Math.sqrt(sq));
 
@@ -138,7 +165,7 @@ export async function tune(doc: ModelDoc, data: TuneData, options: TuneRunOption
         const brokenAt = firstBrokenSlot(slots);
         if (brokenAt) {
           restore(arrays, lastGood);
-          throw new TuneDivergence(epoch + 1, b + 1, layerLabel(work, brokenAt.layer), `the update made ${brokenAt.ref.name} non-finite (learning rate ${lr})`, cloneDoc(work));
+          throw new TuneDivergence(epoch + 1, b + 1, layerLabel(work, brokenAt.layer), `the update made ${brokenAt.ref.name} non-finite (learning rate ${lr})`, withScaling(cloneDoc(work)));
         }
         backend.refresh(changed);
 
@@ -159,8 +186,8 @@ export async function tune(doc: ModelDoc, data: TuneData, options: TuneRunOption
 
       // The epoch's report: both splits in inference mode, gradient norms, diagnostics.
       const seconds = (performance.now() - started) / 1000;
-      const trainEval = evaluateSplit(backend, work, train, spec, outputs, classifier, reluLayers);
-      const heldEval = held ? evaluateSplit(backend, work, held, spec, outputs, classifier, []) : null;
+      const trainEval = evaluateSplit(backend, work, train, spec, outputs, classifier, reluLayers, scaling);
+      const heldEval = held ? evaluateSplit(backend, work, held, spec, outputs, classifier, [], scaling) : null;
       const found = epochFindings(work, normSums, batches.length, trainEval.relu, epoch);
       log.addNew(found.diagnostics);
       const record: EpochRecord = {
@@ -212,6 +239,7 @@ export async function tune(doc: ModelDoc, data: TuneData, options: TuneRunOption
     if (!calibration.atBound) work.temperature = calibration.temperature;
   }
 
+  if (scaling) work.targetScaling = scaling;
   const lineage = tuneProvenance(doc, options.parent, options.origin);
   if (lineage) work.provenance.push({ ...lineage, at: new Date().toISOString() });
   const droppedTemperature = calibration === null ? parentTemperature : null;

@@ -4,7 +4,7 @@
  */
 import { compareMatrices, FLOAT32_TOLERANCE, topClassAgreement, type Tolerance } from '../check/index.js';
 import { ShapeError } from '../errors.js';
-import { modelWidths, type ModelDoc } from '../model/index.js';
+import { modelWidths, outputsAreClasses, type ModelDoc } from '../model/index.js';
 import { referenceForward, toMat64 } from '../reference/index.js';
 
 export interface OutputComparison {
@@ -14,8 +14,10 @@ export interface OutputComparison {
   /** Where the worst element is (0-based), -1 with no rows. */
   readonly worstRow: number;
   readonly worstCol: number;
-  /** Share of rows whose largest output is in the same column; null for one output or no rows. */
+  /** Share of rows whose largest output is in the same column; null for regression, one output or no rows. */
   readonly topClassAgreement: number | null;
+  /** The worst element's error over its bound (the smaller of the abs and rel ratios): <= 1 passes. */
+  readonly worstRatio: number;
   readonly tolerance: Tolerance;
   readonly pass: boolean;
 }
@@ -39,7 +41,9 @@ export function compareOutputs(parent: ModelDoc, candidate: ModelDoc, x: Float32
     maxRel: d.maxRel,
     worstRow: d.worstRow,
     worstCol: d.worstCol,
-    topClassAgreement: outParent > 1 && rows > 0 ? topClassAgreement(a, b, rows, outParent) : null,
+    // Regression outputs have no top class: their measure is the largest output change above.
+    topClassAgreement: outParent > 1 && rows > 0 && outputsAreClasses(parent) ? topClassAgreement(a, b, rows, outParent) : null,
+    worstRatio: d.worstRatio,
     tolerance,
     pass: d.pass,
   };

@@ -98,6 +98,8 @@ export function foldModel(doc: ModelDoc, options: FoldOptions = {}): FoldResult 
     features: doc.features ? [...doc.features] : null,
     labels: doc.labels ? [...doc.labels] : null,
     normalise: normalise ? copyNormalisation(normalise) : null,
+    // Kept as it is: every fold leaves the last dense layer linear, which is all it needs.
+    ...(doc.targetScaling ? { targetScaling: { mean: doc.targetScaling.mean.slice(), std: doc.targetScaling.std.slice() } } : {}),
     layers: work.map(fromWork),
     meta: { ...doc.meta, extra },
     provenance: [...doc.provenance, { checksum: parent.checksum, source: parent.source, action: 'folded', at: options.at ?? new Date().toISOString() }],

@@ -81,24 +81,45 @@ export function denseWeightBytes(doc: ModelDoc, codec: StorageCodec): number {
 }
 
 /**
- * The storage choices as lines of text for `show --costs`.
+ * The verdict for one choice, from the same per-value rule the check applies: a value passes
+ * when its abs error <= abs OR its rel error <= rel, so the largest rel error (often on an output
+ * near 0, judged by abs) may exceed rel while every value is within. The worst value's share of
+ * its bound says how close the choice came.
+ * @example costVerdict(choice.cost) // "within (worst value at 16% of its bound)"
+ */
+export function costVerdict(cost: OutputComparison): string {
+  return cost.pass ? `within (worst value at ${Math.round(cost.worstRatio * 100)}% of its bound)` : `BROKEN (worst value ${cost.worstRatio.toPrecision(3)}x its bound)`;
+}
+
+/**
+ * The storage choices as lines of text for `about --costs`; the top-class column only for
+ * models whose answers are classes.
  * @example describeStorageCosts(storageCost(doc)) // "storage  file  dense weights  max abs err ..."
  */
 export function describeStorageCosts(choices: readonly StorageChoice[]): string {
-  const header = ['store', 'file bytes', 'weight bytes', 'max abs err', 'max rel err', 'top class agrees', 'within'];
+  const classes = choices.some((c) => c.cost.topClassAgreement !== null);
+  const header = ['store', 'file bytes', 'weight bytes', 'max abs err', 'max rel err', ...(classes ? ['top class agrees'] : []), 'tolerance', 'verdict'];
   const rows = choices.map((c) => [
     c.codec,
     String(c.fileBytes),
     String(c.weightBytes),
     short(c.cost.maxAbs),
     short(c.cost.maxRel),
-    c.cost.topClassAgreement === null ? '-' : `${(c.cost.topClassAgreement * 100).toFixed(1)}%`,
-    `${c.cost.pass ? 'yes' : 'NO'} (rel ${c.tolerance.rel})`,
+    ...(classes ? [c.cost.topClassAgreement === null ? '-' : `${(c.cost.topClassAgreement * 100).toFixed(1)}%`] : []),
+    `abs ${c.tolerance.abs} or rel ${c.tolerance.rel}`,
+    costVerdict(c.cost),
   ]);
   const widths = header.map((h, i) => Math.max(h.length, ...rows.map((r) => r[i].length)));
-  const line = (cells: string[]) => cells.map((cell, i) => (i === 0 ? cell.padEnd(widths[i]) : cell.padStart(widths[i]))).join('  ');
+  const line = (cells: string[]) => cells.map((cell, i) => (i === 0 || i >= cells.length - 2 ? cell.padEnd(widths[i]) : cell.padStart(widths[i]))).join('  ').trimEnd();
   const rowsSeen = choices[0]?.cost.rows ?? 0;
-  return [`storage choices (outputs against float32 on ${rowsSeen} seeded rows, float64 reference path):`, line(header), ...rows.map(line)].join('\n') + '\n';
+  return (
+    [
+      `storage choices (outputs against float32 on ${rowsSeen} seeded rows, float64 reference path):`,
+      line(header),
+      ...rows.map(line),
+      'a value is within when its abs error <= abs or its rel error <= rel (rel errors of outputs near 0 are judged by abs)',
+    ].join('\n') + '\n'
+  );
 }
 
 function short(v: number): string {

@@ -115,7 +115,13 @@ const CSV_CASES: [string, () => string, Outcome][] = [
   ['extra columns are ignored when every feature is named', () => 'z,c,a,b\n9,3,1,2\n', { rows: [[1, 2, 3]] }],
   ['a header naming some features but missing one is refused, not read by position', () => 'b,a,d\n1,2,3\n', { where: ':1', error: /missing feature column "c"/ }],
   ['a repeated column name', () => 'a,b,a\n1,2,3\n', { where: ':1:3', error: /column name "a" repeats column 1/ }],
-  ['an empty column name', () => 'a,,c\n1,2,3\n', { where: ':1:2', error: /empty column name/ }],
+  ['an empty column name where a feature should be: that feature is missing', () => 'a,,c\n1,2,3\n', { where: ':1', error: /missing feature column "b"/ }],
+  ['a dataframe index column (empty name) first is never read', () => ',a,b,c\n0,1,2,3\nrow-1,0.5,1,0\n', { rows: [[1, 2, 3], [0.5, 1, 0]] }],
+  ['a comma ending every line (an empty-named, empty last column)', () => 'a,b,c,\n1,2,3,\n', { rows: [[1, 2, 3]] }],
+  ['an empty cell in a column the model does not read', () => 'a,b,c,label\n1,2,3,\n0.5,1,0,good\n', { rows: [[1, 2, 3], [0.5, 1, 0]] }],
+  ['a number beyond float32 (1e39), refused at the cell', () => 'a,b,c\n1,2,3\n1,1e39,3\n', { where: ':3:2', error: /cell "1e39" in column "b" is out of the float32 range/ }],
+  ['semicolon-separated (sniffed from the header)', () => 'a;b;c\n1;2;3\n', { rows: [[1, 2, 3]] }],
+  ['semicolon-separated with decimal commas is refused with a hint', () => 'a;b;c\n1,5;2;3\n', { where: ':2:1', error: /decimal comma/ }],
   ['a 10 MB cell that is not a float64 (a single 10 MB line)', () => `a,b,c\n${'9'.repeat(TEN_MB)},1,1\n`, { where: ':2:1', error: /in column "a" is out of the float64 range/ }],
   ['a 10 MB line of letters', () => `a,b,c\n1,${'x'.repeat(TEN_MB)},1\n`, { where: ':2:2', error: /in column "b" is not a number/ }],
   ['a 10 MB line of 5 million cells', () => `a,b,c\n${'1,'.repeat(TEN_MB / 2 - 1)}1\n`, { where: ':2:4', error: /row has 5242880 cells, expected 3/ }],
@@ -131,6 +137,9 @@ const JSONL_CASES: [string, () => string, Outcome][] = [
   ['a number given as a string', () => '{"a":1,"b":"2","c":3}\n', { where: ':1:2', error: /value "2" in column "b" is not a finite number/ }],
   ['null', () => '{"a":1,"b":2,"c":null}\n', { where: ':1:3', error: /value null in column "c" is not a finite number/ }],
   ['a missing key', () => '{"a":1,"b":2,"c":3}\n{"a":1,"c":3}\n', { where: ':2:2', error: /key "b" is missing/ }],
+  ['extra keys of any type are ignored', () => '{"id":7,"a":1,"b":2,"c":3,"meta":{"x":[1]},"ok":true,"note":null}\n{"a":4,"b":5,"c":6,"id":8,"ok":false,"meta":null,"note":"n"}\n', { rows: [[1, 2, 3], [4, 5, 6]] }],
+  ['an unused key present on some lines only is ignored', () => '{"a":1,"b":2,"c":3,"note":"x"}\n{"a":4,"b":5,"c":6}\n{"a":7,"b":8,"c":9,"extra":1}\n', { rows: [[1, 2, 3], [4, 5, 6], [7, 8, 9]] }],
+  ['a number beyond float32 (1e39), refused at the value', () => '{"a":1,"b":2,"c":1e39}\n', { where: ':1:3', error: /value 1e\+39 in column "c" is out of the float32 range/ }],
   ['a ragged array row', () => '[1,2,3]\n[1,2]\n', { where: ':2:3', error: /row has 2 values, expected 3/ }],
   ['a 10 MB string value (a single 10 MB line)', () => `{"a":1,"b":"${'x'.repeat(TEN_MB)}","c":3}\n`, { where: ':1:2', error: /in column "b" is not a finite number/ }],
 ];
@@ -191,10 +200,12 @@ const TUNE_CASES: [string, () => string, TuneOutcome][] = [
   ['an unknown class after a quoted cell spanning lines', () => 'a,b,label\n1,2,"yes"\n3,4,"no\n"\n5,6,maybe\n', { where: ':5:3', error: /class "maybe"/ }],
   ['a 10 MB class label', () => `a,b,label\n1,2,${'z'.repeat(TEN_MB)}\n`, { where: ':2:3', error: /is not one the model knows/ }],
   ['a class index out of range', () => 'a,b,label\n1,2,2\n', { where: ':2:3', error: /class "2"/ }],
+  ['class indices, including float-looking whole numbers (0.0) as dataframes write them', () => 'a,b,label\n1,2,1\n3,4,0.0\n5,6,1.0\n', { features: [[1, 2], [3, 4], [5, 6]] }],
+  ['a column mixing class names and indices is refused at the first index', () => 'a,b,label\n1,2,yes\n3,4,no\n5,6,1\n', { where: ':4:3', error: /mixes class names and indices \("yes" on line 2, "1" on line 4\)/ }],
   [
-    'BOM, CRLF, quoted labels, columns in another order, class indices: read correctly',
-    () => '\uFEFFlabel,b,a\r\n"yes",2,1\r\nno,4,3\r\n1,0.5,-1\r\n" no ",8,7\r\n',
-    // Every label cell ("yes", no, 1, " no ") is a class the model knows, or tune would refuse it.
+    'BOM, CRLF, quoted labels, columns in another order: read correctly',
+    () => '\uFEFFlabel,b,a\r\n"yes",2,1\r\nno,4,3\r\nyes,0.5,-1\r\n" no ",8,7\r\n',
+    // Every label cell ("yes", no, yes, " no ") is a class the model knows, or tune would refuse it.
     { features: [[1, 2], [3, 4], [-1, 0.5], [7, 8]] },
   ],
 ];

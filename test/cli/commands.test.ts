@@ -6,6 +6,7 @@ import { mkdtemp, readFile, writeFile, copyFile } from 'node:fs/promises';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { beforeAll, describe, expect, it } from 'vitest';
+import { readModelFile } from '../../src/format/index.js';
 import { runCli } from './run-cli.js';
 
 const fixtures = join(import.meta.dirname, '..', 'fixtures', 'cli');
@@ -167,14 +168,19 @@ describe('one-line errors and exit codes', () => {
     expect(r.err).toMatch(/broken\.json:3:\d+: invalid JSON/);
   });
 
-  it('a Fortran-order .npy tensor is refused naming the tensor (NEP 1)', async () => {
+  it('a Fortran-order .npy tensor is read in C order: the same model as the C-order file (NEP 1)', async () => {
     const spec = join(dir, 'fortran-spec.json');
     const s = JSON.parse(await readFile(join(dir, 'mazur-spec.json'), 'utf8'));
     s.layers[1].weight = 'mazur-w2-fortran.npy';
     await writeFile(spec, JSON.stringify(s));
-    const r = await runCli('pack', spec, '-o', join(dir, 'x.tendon'));
-    expect(r.code).toBe(2);
-    expect(r.err).toMatch(/layers\[1\]\.weight/);
-    expect(r.err.toLowerCase()).toMatch(/fortran/);
+    const fortran = join(dir, 'fortran.tendon');
+    const plain = join(dir, 'plain.tendon');
+    expect((await runCli('pack', spec, '-o', fortran)).code).toBe(0);
+    expect((await runCli('pack', join(dir, 'mazur-spec.json'), '-o', plain)).code).toBe(0);
+    const [a, b] = await Promise.all([readModelFile(fortran), readModelFile(plain)]);
+    const w = (m: typeof a): number[] => Array.from((m.doc.layers[1] as { weight: Float32Array }).weight);
+    // make-mazur-npy.py: W2 = [[0.40, 0.50], [0.45, 0.55]] (Mazur 2015), in both memory orders.
+    expect(w(a)).toEqual(w(b));
+    expect(w(a)).toEqual([0.4, 0.5, 0.45, 0.55].map(Math.fround));
   });
 });

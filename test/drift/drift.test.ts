@@ -61,23 +61,23 @@ describe('DriftMonitor', () => {
     for (const f of report.features) expect(f.meanShiftSd!).toBeLessThan(0.1);
   });
 
-  it('flags the one feature whose mean moved 4 sd (past k = 3), and counts values beyond mean ± 6 sd', () => {
+  it('flags the one feature whose mean moved 4 sd (past k = 3); a value beyond mean ± 6 sd is counted, not flagged', async () => {
     const drift = DriftMonitor.forModel(bakeryDoc(1))!;
     drift.add(bakeryRows(1000, 6, { feature: 3, sd: 4 }), 1000);
     const outlier = bakeryRows(1, 7);
     outlier[5] = 800 + 7 * 45; // dough mass 7 sd above its stored mean
     drift.add(outlier, 1);
     const report = drift.report();
-    expect(report.drifted).toEqual(['humidity_pct', 'dough_mass_g']);
+    expect(report.drifted).toEqual(['humidity_pct']);
     const humidity = report.features[3];
     expect(humidity.meanShiftSd!).toBeGreaterThan(3.75);
     expect(humidity.meanShiftSd!).toBeLessThan(4.2);
     expect(humidity.reason).toMatch(/mean moved (3\.[89]|4\.[01]) sd/);
-    expect(report.features[5]).toMatchObject({ outOfRange: 1, drifted: true });
+    expect(report.features[5]).toMatchObject({ outOfRange: 1, drifted: false });
     expect(report.features[5].meanShiftSd!).toBeLessThan(3);
   });
 
-  it('min-max models: values outside the seen range are flagged, values inside are not', () => {
+  it('min-max models: flagged when the incoming mean leaves the seen range; single values outside are counted only', () => {
     const rng = new SeededRng(3);
     const norm = minmax(rng, 3);
     if (norm.method !== 'minmax') throw new Error('minmax');
@@ -86,10 +86,26 @@ describe('DriftMonitor', () => {
     const inside = Float32Array.of(norm.min![0], norm.max![1], (norm.min![2] + norm.max![2]) / 2);
     drift.add(inside, 1);
     expect(drift.report().drifted).toEqual([]);
+    // Means after both rows: input_0 at min - 0.5 (outside), input_2 between the middle and max + 0.5 (inside).
     drift.add(Float32Array.of(norm.min![0] - 1, norm.max![1], norm.max![2] + 0.5), 1);
     const report = drift.report();
-    expect(report.drifted).toEqual(['input_0', 'input_2']);
+    expect(report.drifted).toEqual(['input_0']);
+    expect(report.features[2]).toMatchObject({ outOfRange: 1, drifted: false });
     expect(report.features[0].meanShiftSd).toBeNull();
+  });
+
+  it('a feature constant in training (std 0) is reported but never flagged: the model maps it to 0', () => {
+    const doc = bakeryDoc(1);
+    const norm = doc.normalise;
+    if (norm?.method !== 'zscore' || !norm.std) throw new Error('bakery doc has zscore statistics');
+    norm.std[2] = 0;
+    const drift = DriftMonitor.forModel(doc)!;
+    const x = bakeryRows(200, 11);
+    for (let r = 0; r < 200; r++) x[r * 7 + 2] += 50;
+    drift.add(x, 200);
+    const report = drift.report();
+    expect(report.drifted).toEqual([]);
+    expect(report.features[2]).toMatchObject({ constantInTraining: true, meanShiftSd: null, drifted: false });
   });
 
   it('a folded model keeps its statistics for drift; a model without statistics gets no monitor', () => {

@@ -60,24 +60,51 @@ describe('NPY reading (files written by NumPy, NEP 1)', () => {
     expect(Array.from(a.data)).toEqual([0, 0.25, 0.5, 0.75, 1, 1.25, 1.5, 1.75]);
   });
 
-  it('as a table: 1-D is one column, 3-D rows are flattened', async () => {
+  it('as a table: 1-D is one column; 3-D is refused (not flattened), naming the shape and the fix', async () => {
     const one = await readTable(fixture('f4-1d.npy'));
     expect([one.rows, one.width, one.columns]).toEqual([3, 1, null]);
-    const three = await readTable(fixture('f4-3d.npy'));
-    expect([three.rows, three.width]).toEqual([2, 4]);
-    expect(Array.from(three.data)).toEqual([0, 1, 2, 3, 4, 5, 6, 7]);
+    const three = await captureDataError(() => readTable(fixture('f4-3d.npy')));
+    expect(three.detail).toMatch(/NPY array has 3 dimensions \(2, 2, 2\); a table needs 1 or 2 .* reshape it to \(2, 4\)/);
+    // decodeNpy still hands out N-D tensors (weights in a layer spec).
+    expect(decodeNpy('f4-3d.npy', readFileSync(fixture('f4-3d.npy'))).shape).toEqual([2, 2, 2]);
   });
 
+  // Values as make-npy.py writes them with NumPy (NEP 1 headers); every common dtype, either
+  // byte order, and Fortran order are read as the same numbers in C order.
   it.each([
-    ['f4-big-endian.npy', /'>f4' is big-endian/],
-    ['f8-fortran.npy', /Fortran \(column-major\) order/],
-    ['i8-1d.npy', /'<i8' is not supported/],
-  ])('refuses %s, naming the file and the reason', async (name, why) => {
-    const e = await captureDataError(() => readNpy(fixture(name)));
-    expect(e.file).toBe(fixture(name));
-    expect(e.detail).toMatch(why);
-    const t = await captureDataError(() => readTable(fixture(name)));
-    expect(t.detail).toMatch(why);
+    ['f4-big-endian.npy', [2, 2], [0, 1, 2, 3]],
+    ['f8-big-endian.npy', [3, 2], [0, 0.5, 1, 1.5, 2, 2.5]],
+    ['f8-fortran.npy', [2, 3], [0, 1, 2, 3, 4, 5]],
+    ['i4-fortran.npy', [3, 4], [0, 1, 2, 3, 4, 5, 6, 7, 8, 9, 10, 11]],
+    ['i8-1d.npy', [2], [1, 2]],
+    ['i8-2d.npy', [2, 3], [5, -1, 0, 2, 7, 1]],
+    ['i8-big-endian.npy', [2, 3], [5, -1, 0, 2, 7, 1]],
+    ['f2-2d.npy', [2, 3], [-1, -0.75, -0.5, -0.25, 0, 0.25]],
+    ['i2-1d.npy', [3], [-32768, 0, 32767]],
+    ['u2-1d.npy', [3], [0, 1, 65535]],
+    ['u4-1d.npy', [2], [0, 4000000000]],
+    ['u8-1d.npy', [2], [0, 2 ** 53]],
+    ['b1-1d.npy', [3], [1, 0, 1]],
+  ])('reads %s (shape %j) as NumPy wrote it', async (name, shape, values) => {
+    const a = await readNpy(fixture(name));
+    expect(a.shape).toEqual(shape);
+    expect(Array.from(a.data)).toEqual(values);
+    const t = await readTable(fixture(name));
+    expect([t.rows, t.width]).toEqual([shape[0], shape[1] ?? 1]);
+    expect(Array.from(t.data)).toEqual(values);
+  });
+
+  it('a float64 value past the float32 range is refused at its row and column as a table', async () => {
+    // 1e39 > 3.4028235e38, the largest binary32 (IEEE 754); make-npy.py puts it at row 2, column 2.
+    const e = await captureDataError(() => readTable(fixture('f8-past-float32.npy')));
+    expect([e.line, e.column]).toEqual([2, 2]);
+    expect(e.detail).toMatch(/value 1e\+39 in column 2 is out of the float32 range/);
+  });
+
+  it('refuses a dtype that is not a plain number, naming it', async () => {
+    const header = formatNpyHeader('<c16', [1]);
+    const e = await captureDataError(() => decodeNpy('c.npy', Buffer.concat([header, Buffer.alloc(16)])));
+    expect(e.detail).toMatch(/NPY dtype '<c16' is not supported/);
   });
 
   it('refuses data shorter or longer than the shape, a bad magic, and an unknown version', async () => {

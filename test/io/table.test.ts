@@ -16,7 +16,7 @@ describe('openTable / readTable', () => {
 
   it('refuses an unknown extension naming the supported ones', async () => {
     const e = await captureDataError(() => openTable(file('x.xlsx', 'a')));
-    expect(e.detail).toBe('unknown data file extension ".xlsx"; supported: .csv, .jsonl, .npy (or name the format)');
+    expect(e.detail).toBe('unknown data file extension ".xlsx"; supported: .csv, .tsv, .jsonl, .npy (rename the file to one of these)');
   });
 
   it('the same rows read the same from CSV, JSONL and NPY (common practice: one table, three spellings)', async () => {
@@ -26,9 +26,12 @@ describe('openTable / readTable', () => {
     expect([jsonl.rows, jsonl.width]).toEqual([csv.rows, csv.width]);
   });
 
-  it('refuses text columns for NPY, which holds numbers only', async () => {
-    const e = await captureDataError(() => openTable(FIXTURES + 'f8-2d.npy', { textColumns: [0] }));
-    expect(e.detail).toMatch(/numbers only/);
+  it('NPY text columns hand out each number as its text (class indices by position)', async () => {
+    // f8-2d.npy holds i * 0.1 for i = 0..5, shape (2, 3) (make-npy.py).
+    const t = await readTable(FIXTURES + 'f8-2d.npy', { textColumns: [0] });
+    expect(t.text.get(0)).toEqual(['0', String(3 * 0.1)]);
+    expect(Number.isNaN(t.data[0])).toBe(true);
+    expect(t.data[1]).toBe(0.1);
   });
 
   it('reads NPY in chunks of the asked size', async () => {

@@ -131,8 +131,11 @@ describe('the fast training path (src/train/tune.ts on src/engine/fast/simd-trai
     expect(res.bestEpoch).toBe(losses.indexOf(Math.min(...losses)));
     expect(res.history.length - 1 - res.bestEpoch).toBe(5);
     const y = referenceForward(res.doc, mat64(16, 3, Float64Array.from(hold.x))).y;
+    // The loss is on the scaled targets (the default for regression); the RMSE is in target units,
+    // so the reference forward (which undoes the scaling) must reproduce it.
+    expect(res.doc.targetScaling).toBeTruthy();
     const again = computeLoss({ name: 'mse', input: 'outputs' }, y.data, 16, 1, { kind: 'values', values: hold.y }).value;
-    expect(again).toBeCloseTo(losses[res.bestEpoch], 5);
+    expect(Math.sqrt(again)).toBeCloseTo(res.history[res.bestEpoch].holdout!.rmse!, 5);
   });
 
   it('a float32 overflow stops the run, names the top layer whose gradient is not finite and keeps the last good weights', async () => {

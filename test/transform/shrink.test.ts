@@ -4,7 +4,8 @@ import { join } from 'node:path';
 import { afterAll, describe, expect, it } from 'vitest';
 import { writeModelFile } from '../../src/format/index.js';
 import { SeededRng, type DenseLayer, type ModelDoc } from '../../src/model/index.js';
-import { SHRINK_TOLERANCE, denseWeightBytes, foldModel, shrinkModel, storageCost } from '../../src/transform/index.js';
+import { compareMatrices } from '../../src/check/index.js';
+import { SHRINK_TOLERANCE, costVerdict, denseWeightBytes, foldModel, shrinkModel, storageCost } from '../../src/transform/index.js';
 import { runCli } from '../cli/run-cli.js';
 import { bakeryDoc, batchNorm, dense, docOf, zscore } from './models.js';
 
@@ -160,5 +161,38 @@ describe('tendon shrink, fold, check --against, about --costs', () => {
     const missing = await runCli('fold', join(dir, 'nope.tendon'), '-o', join(dir, 'y.tendon'));
     expect(missing.code).toBe(2);
     expect(missing.err).toMatch(/nope\.tendon: cannot read the model file: no such file/);
+  });
+});
+
+describe('the storage verdict follows the per-value rule (src/check/tolerance.ts: abs OR rel per value)', () => {
+  // Hand-computed values against the i8 bound, abs 0.05 or rel 0.05.
+  const i8 = SHRINK_TOLERANCE.i8;
+
+  it('an output near 0 with a large relative error but a tiny absolute one is within; the verdict says how close the worst value came', () => {
+    // Value 0: |0.0016 - 0.001| = 6e-4 <= 0.05 (rel 6e-4 / max(0.001, 1e-3) = 0.6, past 0.05); value 1: 1e-3 abs.
+    const d = compareMatrices(Float64Array.of(0.0016, 10.001), Float64Array.of(0.001, 10), 2, i8);
+    expect(d.maxRel).toBeCloseTo(0.6, 10);
+    expect(d.pass).toBe(true);
+    // Worst value: min(6e-4 / 0.05, 0.6 / 0.05) = 0.012; value 1: min(0.02, 0.002) = 0.002.
+    expect(d.worstRatio).toBeCloseTo(0.012, 10);
+    expect(costVerdict({ rows: 1, maxAbs: d.maxAbs, maxRel: d.maxRel, worstRow: 0, worstCol: 0, topClassAgreement: null, worstRatio: d.worstRatio, tolerance: i8, pass: d.pass })).toBe(
+      'within (worst value at 1% of its bound)',
+    );
+  });
+
+  it('a value past both bounds is BROKEN, with how far: |11 - 10| = 1 is 20x abs 0.05 and 0.1 / 0.05 = 2x rel, so 2x', () => {
+    const d = compareMatrices(Float64Array.of(11), Float64Array.of(10), 1, i8);
+    expect(d.pass).toBe(false);
+    expect(d.worstRatio).toBeCloseTo(2, 10);
+    expect(costVerdict({ rows: 1, maxAbs: d.maxAbs, maxRel: d.maxRel, worstRow: 0, worstCol: 0, topClassAgreement: null, worstRatio: d.worstRatio, tolerance: i8, pass: d.pass })).toBe('BROKEN (worst value 2.00x its bound)');
+  });
+
+  it('about --costs prints the bound beside each verdict and the rule under the table', async () => {
+    const parent = join(dir, 'bakery-verdict.tendon');
+    await writeModelFile(parent, bakeryDoc(3));
+    const shown = await runCli('about', parent, '--costs');
+    const i8Line = shown.out.split('\n').find((l) => l.startsWith('i8 '))!;
+    expect(i8Line).toMatch(/abs 0\.05 or rel 0\.05\s+within \(worst value at \d+% of its bound\)/);
+    expect(shown.out).toContain('a value is within when its abs error <= abs or its rel error <= rel');
   });
 });

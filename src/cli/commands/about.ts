@@ -3,7 +3,7 @@ import { modelFacts, type ModelFacts } from '../../model/facts.js';
 import { noExtraPositionals, parseArgs, requirePositional } from '../args.js';
 import { describeStorageCosts, storageCost } from '../../transform/index.js';
 import type { Command } from '../command.js';
-import { bytesText, grouped, textTable } from '../format.js';
+import { bytesText, grouped, namesText, sci, textTable } from '../format.js';
 
 const flags = {
   json: { kind: 'boolean', help: 'print the facts as one JSON object' },
@@ -39,9 +39,13 @@ function describe(f: ModelFacts): string {
   if (f.file) lines.push(`${f.file.path}  ${bytesText(f.file.bytes)}  format ${f.file.formatVersion}  checksum ${f.file.checksum}`);
   if (f.name || f.description) lines.push(`${f.name}${f.description ? ` — ${f.description}` : ''}`);
   lines.push(`created ${f.created || '(unknown)'}; weights stored as ${f.storage}`);
-  lines.push(`inputs ${f.inputs}${f.features ? `: ${f.features.join(', ')}` : ''}`);
-  lines.push(`outputs ${f.outputs}${f.labels ? `: ${f.labels.join(', ')}` : ''}`);
+  lines.push(f.features ? namesText(`inputs ${f.inputs}: `, f.features) : `inputs ${f.inputs}`);
+  lines.push(f.labels ? namesText(`outputs ${f.outputs}: `, f.labels) : `outputs ${f.outputs}`);
   if (f.temperature !== null) lines.push(`calibration temperature ${f.temperature} (logits divided by it before the output activation)`);
+  if (f.targetScaling) {
+    const each = f.targetScaling.mean.map((m, j) => `${f.labels?.[j] ?? `output ${j}`} mean ${sci(m)} sd ${sci(f.targetScaling!.std[j])}`);
+    lines.push(namesText('targets scaled inside the model (answers = last layer x sd + mean): ', each));
+  }
   lines.push(
     f.normalise
       ? `normalisation ${f.normalise.method}, ${f.normalise.fitted ? `fitted over ${grouped(f.normalise.rowsSeen)} rows` : 'not fitted yet (fitted from data on the first tune)'}`

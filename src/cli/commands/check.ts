@@ -1,7 +1,7 @@
 import { randomInputs, type ParityReport } from '../../check/index.js';
 import { UsageError } from '../../errors.js';
 import { readModelFile } from '../../format/index.js';
-import { compareOutputs, SHRINK_TOLERANCE, type OutputComparison } from '../../transform/index.js';
+import { compareOutputs, costVerdict, SHRINK_TOLERANCE, type OutputComparison } from '../../transform/index.js';
 import { openModel, type TendonModel } from '../../tendon.js';
 import { noExtraPositionals, parseArgs, requirePositional } from '../args.js';
 import type { Command } from '../command.js';
@@ -109,7 +109,7 @@ async function checkAgainst(path: string, parentPath: string, rows: number, seed
         `tolerance for ${child.doc.storage} storage: abs ${tolerance.abs}, rel ${tolerance.rel}\n` +
         `max abs err ${sci(c.maxAbs)}, max rel err ${sci(c.maxRel)}${c.pass ? '' : ` (worst at row ${c.worstRow}, column ${c.worstCol})`}\n` +
         (c.topClassAgreement === null ? '' : `top class agrees on ${percent(c.topClassAgreement, 2)} of rows\n`) +
-        `${c.pass ? 'PASS' : 'FAIL'}: ${c.pass ? 'within the tolerance' : 'the tolerance is broken'}\n`,
+        `${c.pass ? 'PASS' : 'FAIL'}: ${costVerdict(c)}; a value passes when its abs error <= abs or its rel error <= rel\n`,
     );
   }
   return c.pass ? 0 : 1;

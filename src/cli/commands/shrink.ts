@@ -1,5 +1,5 @@
 import { readModelFile, writeModelFile } from '../../format/index.js';
-import { shrinkModel, storageCost } from '../../transform/index.js';
+import { costVerdict, shrinkModel, storageCost } from '../../transform/index.js';
 import { noExtraPositionals, parseArgs, requireFlag, requirePositional } from '../args.js';
 import type { Command } from '../command.js';
 import { bytesText, sci } from '../format.js';
@@ -28,7 +28,8 @@ export const shrink: Command = {
     io.out(
       `shrank ${path} (${bytesText(read.bytes)}, ${read.doc.storage}) to ${out} (${bytesText(written.bytes)}, ${codec}), checksum ${written.checksum}\n` +
         `outputs against float32 on ${cost.cost.rows} seeded rows: max abs err ${sci(cost.cost.maxAbs)}, max rel err ${sci(cost.cost.maxRel)}` +
-        `${cost.cost.topClassAgreement === null ? '' : `, top class agrees on ${(cost.cost.topClassAgreement * 100).toFixed(1)}%`}\n` +
+        `${cost.cost.topClassAgreement === null ? '' : `, top class agrees on ${(cost.cost.topClassAgreement * 100).toFixed(1)}%`}; ` +
+        `${costVerdict(cost.cost)}; bound per value: abs ${cost.tolerance.abs} or rel ${cost.tolerance.rel}\n` +
         `judge it on your own rows: tendon check ${out} --against ${path} --input ROWS\n`,
     );
     return 0;

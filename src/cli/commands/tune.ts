@@ -1,9 +1,9 @@
 import { writeFile } from 'node:fs/promises';
-import { UsageError } from '../../errors.js';
+import { DivergenceError, UsageError } from '../../errors.js';
 import { readModelFile, writeModelFile } from '../../format/index.js';
 import { renderReport } from '../../train/report.js';
 import { CALIBRATION_CAUTION, ECE_BINS, type TemperatureFit } from '../../train/calibration.js';
-import { tune as tuneModel, type EpochRecord, type TuneRunOptions } from '../../train/tune.js';
+import { tune as tuneModel, TuneDivergence, type EpochRecord, type TuneRunOptions } from '../../train/tune.js';
 import { ensureEngine, useEngine } from '../../engine/index.js';
 import { buildModelFromSpecFile } from './pack.js';
 import { noExtraPositionals, parseArgs, requireFlag, requirePositional } from '../args.js';
@@ -11,6 +11,7 @@ import type { Command } from '../command.js';
 import { grouped, percent, sci } from '../format.js';
 import { progressLine } from '../progress.js';
 import { loadTrainingData } from '../training-data.js';
+import { headerFeatureNames, inFlagTerms, refuseOverwritingInputs } from '../tune-guards.js';
 import { parseEngine } from './engine-flag.js';
 
 const flags = {
@@ -36,6 +37,7 @@ const flags = {
   'replay-share': { kind: 'number', help: 'replay rows per batch: a count, or a fraction of the batch', default: 0.25 },
   normalisation: { kind: 'string', help: 'a fitted normalise block: keep (frozen) or continue over the new rows', default: 'keep' },
   loss: { kind: 'string', help: 'override the loss chosen from the output activation' },
+  'raw-targets': { kind: 'boolean', help: 'regression: train on the targets as given (default: each target scaled to mean 0, sd 1 inside the model; answers stay in target units)' },
   report: { kind: 'string', help: 'write an SVG report: loss and accuracy curves, per-layer gradient norms' },
   log: { kind: 'string', help: 'per-epoch log: text or jsonl (default: text on a terminal, jsonl otherwise)' },
   calibrate: { kind: 'boolean', help: 'after training, fit a calibration temperature on the hold-out rows and store it (needs --holdout or --holdout-file)' },
@@ -64,9 +66,18 @@ export const tune: Command = {
     const freeze = f.freeze === undefined ? undefined : parseIndices(f.freeze);
 
     const fromSpec = modelPath.toLowerCase().endsWith('.json');
+    await refuseOverwritingInputs(out, [
+      { path: modelPath, what: fromSpec ? 'spec' : 'input model' },
+      { path: dataPath, what: 'training data' },
+      { path: f['holdout-file'], what: 'hold-out data' },
+      { path: f.replay, what: 'replay data' },
+    ]);
     const parent = fromSpec ? null : await readModelFile(modelPath);
     const doc = parent ? parent.doc : await buildModelFromSpecFile(modelPath, { seed: f.seed });
-    const data = await loadTrainingData(doc, dataPath, targets);
+    const data = await loadTrainingData(doc, dataPath, targets, (m) => io.err(`tendon tune: warning: ${m}\n`));
+    // A spec without feature names learns them from the header, so the model can score the same
+    // file later (its target column is then told apart from the features by name).
+    if (fromSpec && !doc.features) doc.features = await headerFeatureNames(dataPath, targets, doc.inputs);
     const holdoutData = f['holdout-file'] ? await loadTrainingData(doc, f['holdout-file'], targets) : undefined;
     const replay = f.replay ? await loadTrainingData(doc, f.replay, targets) : undefined;
     const choice = parseEngine(f.engine);
@@ -95,6 +106,7 @@ export const tune: Command = {
       replayPerBatch: replay ? f['replay-share'] : undefined,
       normalisation: f.normalisation,
       loss: f.loss,
+      scaleTargets: !f['raw-targets'],
       parent: parent ? { checksum: parent.checksum, source: modelPath } : undefined,
       origin: parent ? undefined : `spec ${modelPath}`,
       path,
@@ -115,13 +127,20 @@ export const tune: Command = {
         bar.update(`epoch ${p.epoch + 1}/${f.epochs ?? 10}  batch ${p.batch + 1}/${p.batches}  loss ${sci(p.loss)}  ${grouped(p.rows / Math.max(seconds, 1e-9))} rows/s`, (p.batch + 1) / p.batches);
       },
       onEpoch: (e) => (log === 'jsonl' ? io.out(JSON.stringify(epochJson(e)) + '\n') : say(epochText(e))),
+    }).catch((error: unknown) => {
+      bar.clear();
+      if (error instanceof TuneDivergence) {
+        throw new DivergenceError(error.epoch, error.batch, error.layer, error.detail, `nothing saved (${out} not written); try a lower --lr or --clip`);
+      }
+      throw inFlagTerms(error);
     });
     bar.clear();
 
     for (const d of result.diagnostics) {
       const where = d.layer !== undefined ? ` (layer ${d.layer})` : '';
       const text = `warning${where}: ${d.message}${d.hint ? ` — hint: ${d.hint}` : ''}`;
-      if (log === 'jsonl') io.out(JSON.stringify({ warning: d.code, layer: d.layer ?? null, epoch: d.epoch ?? null, message: d.message, hint: d.hint }) + '\n');
+      // Epochs are counted from 1 wherever the command line shows them.
+      if (log === 'jsonl') io.out(JSON.stringify({ warning: d.code, layer: d.layer ?? null, epoch: d.epoch === undefined ? null : d.epoch + 1, message: d.message, hint: d.hint }) + '\n');
       else io.err(text + '\n');
     }
     if (f.report) {
@@ -160,7 +179,7 @@ export const tune: Command = {
       const calibration = c
         ? { stored: !c.atBound, temperature: c.temperature, atBound: c.atBound, rows: c.rows, nllBefore: c.nllBefore, nllAfter: c.nllAfter, eceBefore: c.eceBefore, eceAfter: c.eceAfter, bins: ECE_BINS }
         : null;
-      io.out(JSON.stringify({ saved: out, checksum: written.checksum, epochs: result.history.length, bestEpoch: result.bestEpoch, stoppedEarly: result.stoppedEarly, path: result.path, calibration, droppedTemperature: result.droppedTemperature }) + '\n');
+      io.out(JSON.stringify({ saved: out, checksum: written.checksum, epochs: result.history.length, bestEpoch: result.bestEpoch + 1, stoppedEarly: result.stoppedEarly, path: result.path, calibration, droppedTemperature: result.droppedTemperature }) + '\n');
     } else {
       io.out(summary + '\n');
       if (c) io.out(`${calibrationText(c)}\n${c.atBound ? '' : `note: ${CALIBRATION_CAUTION}\n`}`);
