@@ -9,5 +9,4 @@ export { clipGlobalNorm, globalNorm } from './clip.js';
 export { combineMoments, updateNormalisation, isUnfitted, copyNormalisation, type NormalisationPolicy } from './normalisation.js';
 export { accuracy, argmaxRows, confusionMatrix, meanAbsoluteError, predictedClasses, rootMeanSquaredError } from './metrics.js';
 export { ReluActivity, linearStacks, rawInputs, vanishingGradient, type Diagnostic, type DiagnosticCode } from './diagnostics.js';
-export { renderReport, type ReportEpoch } from './report.js';
 export { batchesPerEpoch, epochBatches, gatherRows, shuffledOrder, splitHoldout } from './shuffle.js';

@@ -7,6 +7,7 @@ import { noExtraPositionals, parseArgs, requirePositional } from '../args.js';
 import type { Command } from '../command.js';
 import { percent, sci, textTable } from '../format.js';
 import { inputChunks } from '../model-input.js';
+import { reportFormat, writeAgainstReport, writeCheckReport } from '../report-files.js';
 import { parseEngine } from './engine-flag.js';
 
 const flags = {
@@ -15,6 +16,7 @@ const flags = {
   seed: { kind: 'integer', help: 'seed for the random rows', default: 1 },
   engine: { kind: 'string', help: 'auto, fast, wasm or js', default: 'auto' },
   json: { kind: 'boolean', help: 'print the report as JSON' },
+  report: { kind: 'string', help: 'also write the per-layer errors against the tolerance as one HTML page (FILE.html)' },
   against: { kind: 'string', help: 'judge MODEL against its parent file instead (both on the float64 reference path; tolerance by MODEL\'s storage)' },
 } as const;
 
@@ -24,7 +26,7 @@ const MAX_CHECK_ROWS = 100_000;
 export const check: Command = {
   name: 'check',
   summary: 'prove the engine against the float64 reference, per layer and at the output (exit 1 if a tolerance breaks)',
-  usage: 'tendon check MODEL [--input FILE] [--rows N] [--json] [--engine js|wasm|auto] [--against PARENT]',
+  usage: 'tendon check MODEL [--input FILE] [--rows N] [--json] [--engine js|wasm|auto] [--against PARENT] [--report FILE.html]',
   flags,
   async run(argv, io) {
     const { flags: f, positionals } = parseArgs(argv, flags);
@@ -32,13 +34,15 @@ export const check: Command = {
     noExtraPositionals(positionals, 1);
     const rows = f.rows ?? 256;
     if (rows < 1) throw new UsageError('--rows', `must be at least 1, got ${rows}`);
-    if (f.against) return checkAgainst(path, f.against, rows, f.seed ?? 1, f.input, f.json, io);
+    if (f.report) reportFormat(f.report, false);
+    if (f.against) return checkAgainst(path, f.against, rows, f.seed ?? 1, f.input, f.json, io, f.report);
     const model = await openModel(path, { engine: parseEngine(f.engine) });
     try {
       const input = f.input ? await readInput(model, f.input) : undefined;
       const report = model.check(input ?? { x: randomInputs(model.doc, rows, f.seed ?? 1), rows });
       if (f.json) io.out(JSON.stringify({ model: path, engine: model.engine, ...report }, null, 2) + '\n');
       else io.out(describeParity(report, `${path} on the ${model.engine} engine, ${report.output.rows} rows${f.input ? ` from ${f.input}` : ' (seeded random)'}`));
+      if (f.report) await writeCheckReport(f.report, path, model.engine, report, f.input ? `from ${f.input}` : '(seeded random)');
       return report.pass ? 0 : 1;
     } finally {
       model.dispose();
@@ -85,7 +89,7 @@ export function describeParity(report: ParityReport, title: string): string {
 }
 
 /** `check MODEL --against PARENT`: the two models' outputs on the same rows, both on the float64 reference path. */
-async function checkAgainst(path: string, parentPath: string, rows: number, seed: number, input: string | undefined, json: boolean, io: { out(t: string): void }): Promise<number> {
+async function checkAgainst(path: string, parentPath: string, rows: number, seed: number, input: string | undefined, json: boolean, io: { out(t: string): void }, reportPath?: string): Promise<number> {
   const [child, parent] = await Promise.all([readModelFile(path), readModelFile(parentPath)]);
   // Rows are drawn around the PARENT's statistics: a folded child no longer keeps its own.
   const x = input ? await readInput({ doc: parent.doc, inputs: parent.doc.inputs }, input) : { x: randomInputs(parent.doc, rows, seed), rows };
@@ -103,5 +107,6 @@ async function checkAgainst(path: string, parentPath: string, rows: number, seed
         `${c.pass ? 'PASS' : 'FAIL'}: ${c.pass ? 'within the tolerance' : 'the tolerance is broken'}\n`,
     );
   }
+  if (reportPath) await writeAgainstReport(reportPath, path, parentPath, child.doc.storage, c);
   return c.pass ? 0 : 1;
 }

@@ -1,7 +1,5 @@
-import { writeFile } from 'node:fs/promises';
 import { UsageError } from '../../errors.js';
 import { readModelFile, writeModelFile } from '../../format/index.js';
-import { renderReport } from '../../train/report.js';
 import { tune as tuneModel, type EpochRecord, type TuneRunOptions } from '../../train/tune.js';
 import { ensureEngine, useEngine } from '../../engine/index.js';
 import { buildModelFromSpecFile } from './pack.js';
@@ -9,6 +7,7 @@ import { noExtraPositionals, parseArgs, requireFlag, requirePositional } from '.
 import type { Command } from '../command.js';
 import { grouped, percent, sci } from '../format.js';
 import { progressLine } from '../progress.js';
+import { reportFormat, writeTuneReport } from '../report-files.js';
 import { loadTrainingData } from '../training-data.js';
 import { parseEngine } from './engine-flag.js';
 
@@ -35,7 +34,7 @@ const flags = {
   'replay-share': { kind: 'number', help: 'replay rows per batch: a count, or a fraction of the batch', default: 0.25 },
   normalisation: { kind: 'string', help: 'a fitted normalise block: keep (frozen) or continue over the new rows', default: 'keep' },
   loss: { kind: 'string', help: 'override the loss chosen from the output activation' },
-  report: { kind: 'string', help: 'write an SVG report: loss and accuracy curves, per-layer gradient norms' },
+  report: { kind: 'string', help: 'FILE.html: the whole run as one page (curves, confusion, per-class results, gradients, findings); FILE.svg: the curves alone' },
   log: { kind: 'string', help: 'per-epoch log: text or jsonl (default: text on a terminal, jsonl otherwise)' },
   'keep-interrupted': { kind: 'boolean', help: 'on Ctrl-C, save what is complete as OUT.interrupted' },
   engine: { kind: 'string', help: 'auto, fast, wasm or js', default: 'auto' },
@@ -57,6 +56,7 @@ export const tune: Command = {
     const log = f.log ?? (io.interactive ? 'text' : 'jsonl');
     if (log !== 'text' && log !== 'jsonl') throw new UsageError('--log', `must be text or jsonl, got "${log}"`);
     const freeze = f.freeze === undefined ? undefined : parseIndices(f.freeze);
+    if (f.report) reportFormat(f.report, true);
 
     const fromSpec = modelPath.toLowerCase().endsWith('.json');
     const parent = fromSpec ? null : await readModelFile(modelPath);
@@ -118,22 +118,7 @@ export const tune: Command = {
       if (log === 'jsonl') io.out(JSON.stringify({ warning: d.code, layer: d.layer ?? null, epoch: d.epoch ?? null, message: d.message, hint: d.hint }) + '\n');
       else io.err(text + '\n');
     }
-    if (f.report) {
-      await writeFile(
-        f.report,
-        renderReport(
-          `tendon tune ${modelPath}`,
-          result.history.map((e) => ({
-            epoch: e.epoch,
-            trainLoss: e.train.loss,
-            holdoutLoss: e.holdout?.loss ?? null,
-            trainAccuracy: e.train.accuracy,
-            holdoutAccuracy: e.holdout?.accuracy ?? null,
-            gradientNorms: e.gradientNorms,
-          })),
-        ),
-      );
-    }
+    if (f.report) await writeTuneReport(f.report, modelPath, result);
     if (result.aborted) {
       if (f['keep-interrupted']) {
         const partial = `${out}.interrupted`;
