@@ -349,11 +349,16 @@ export interface HeatMapSpec {
  */
 export function heatMap(spec: HeatMapSpec): string {
   const n = spec.labels.length;
-  const cell = Math.max(18, Math.min(48, Math.floor(420 / Math.max(1, n))));
   const longest = Math.max(30, ...spec.labels.map((l) => textWidth(l, TYPE.label)));
+  const cell = Math.max(18, Math.min(48, Math.floor(420 / Math.max(1, n))));
+  const fontSize = Math.min(TYPE.label, cell * 0.4);
+  // Column labels wider than a cell are set on a slant, with room above for them.
+  const slant = longest * (fontSize / TYPE.label) > cell - 4;
+  const columnRoom = slant ? Math.min(130, longest * 0.75) + 12 : 18;
   const left = 36 + Math.min(160, longest + 10);
-  const top = 62;
-  const width = Math.max(360, left + n * cell + 30);
+  const top = 46 + columnRoom;
+  const note = 'darker = more rows; the outlined diagonal = right answers';
+  const width = Math.max(360, left + n * cell + 30, textWidth(note, TYPE.note) + 40);
   const height = top + n * cell + 40;
   const max = Math.max(1, ...spec.counts.flat());
   const parts: string[] = [svgOpen(width, height, spec.title)];
@@ -361,9 +366,13 @@ export function heatMap(spec: HeatMapSpec): string {
   parts.push(text(left + (n * cell) / 2, 40, spec.columnTitle, { 'font-size': TYPE.label, fill: MUTED, 'text-anchor': 'middle', class: 'axis-title x' }));
   const midY = top + (n * cell) / 2;
   parts.push(text(16, midY, spec.rowTitle, { 'font-size': TYPE.label, fill: MUTED, 'text-anchor': 'middle', transform: `rotate(-90 16 ${px(midY)})`, class: 'axis-title y' }));
-  const fontSize = Math.min(TYPE.label, cell * 0.4);
   spec.labels.forEach((label, c) => {
-    parts.push(text(left + c * cell + cell / 2, top - 6, label, { 'font-size': fontSize, fill: INK, 'text-anchor': 'middle', class: 'column-label' }));
+    const cx = left + c * cell + cell / 2;
+    parts.push(
+      slant
+        ? text(cx, top - 6, label, { 'font-size': fontSize, fill: INK, 'text-anchor': 'start', transform: `rotate(-40 ${px(cx)} ${px(top - 6)})`, class: 'column-label' })
+        : text(cx, top - 6, label, { 'font-size': fontSize, fill: INK, 'text-anchor': 'middle', class: 'column-label' }),
+    );
     parts.push(text(left - 6, top + c * cell + cell / 2 + 4, label, { 'font-size': fontSize, fill: INK, 'text-anchor': 'end', class: 'row-label' }));
   });
   spec.counts.forEach((row, r) =>
@@ -379,7 +388,7 @@ export function heatMap(spec: HeatMapSpec): string {
     }),
   );
   parts.push(`<rect x="${px(left)}" y="${px(top)}" width="${n * cell}" height="${n * cell}" fill="none" stroke="${AXIS}"/>`);
-  parts.push(text(left, height - 14, `darker = more rows; diagonal (outlined) = right answers; largest cell ${max}`, { 'font-size': TYPE.note, fill: MUTED }));
+  parts.push(text(16, height - 14, note, { 'font-size': TYPE.note, fill: MUTED }));
   parts.push('</svg>');
   return parts.join('');
 }

@@ -76,9 +76,15 @@ export const CHART = {
   groupGap: 12,
 } as const;
 
-/** Heat map ramp: from the page to the ink blue, straight in sRGB; counts read on top. */
-const HEAT_LOW = '#f2f5fa';
-const HEAT_HIGH = '#1f3c6e';
+/**
+ * Heat map ramp, page-pale to ink blue. It steps over the middle lightness band, where neither
+ * dark nor white text reaches 4.5:1: shares up to one half run from pale to mid-light (dark
+ * counts), above one half from mid-dark to deep (white counts).
+ */
+const HEAT_STOPS = [
+  ['#f2f5fa', '#94a7c7'],
+  ['#48639a', '#1f3c6e'],
+] as const;
 
 /**
  * Fill of a heat-map cell at `share` in [0, 1], and the text colour that reads on it.
@@ -86,9 +92,11 @@ const HEAT_HIGH = '#1f3c6e';
  */
 export function heatColour(share: number): { fill: string; text: string } {
   const t = Math.min(1, Math.max(0, share));
-  const a = hexToRgb(HEAT_LOW);
-  const b = hexToRgb(HEAT_HIGH);
-  const fill = rgbToHex(a.map((v, i) => v + (b[i] - v) * t));
+  const [from, to] = t <= 0.5 ? HEAT_STOPS[0] : HEAT_STOPS[1];
+  const u = t <= 0.5 ? t / 0.5 : (t - 0.5) / 0.5;
+  const a = hexToRgb(from);
+  const b = hexToRgb(to);
+  const fill = rgbToHex(a.map((v, i) => v + (b[i] - v) * u));
   return { fill, text: readableOn(fill, INK, PAPER) };
 }
 

@@ -10,11 +10,12 @@
 export function niceStep(span: number, target = 5): number {
   if (!(span > 0) || !Number.isFinite(span)) return 1;
   const raw = span / Math.max(1, target);
-  const power = 10 ** Math.floor(Math.log10(raw));
-  const f = raw / power;
+  const k = Math.floor(Math.log10(raw));
+  const f = raw / 10 ** k;
   // Thresholds at the geometric midpoints between 1, 2, 5 and 10 pick the nearest step.
   const nice = f < Math.SQRT2 ? 1 : f < Math.sqrt(10) ? 2 : f < Math.sqrt(50) ? 5 : 10;
-  return nice * power;
+  // Divide by 10^-k for negative k: 5 / 1e10 is the double nearest 5e-10, 5 * 1e-10 is not.
+  return k < 0 ? nice / 10 ** -k : nice * 10 ** k;
 }
 
 /** A value with the float noise of k x step removed (0.30000000000000004 -> 0.3). */
@@ -72,16 +73,17 @@ export function linearAxis(values: readonly number[], pixelLo: number, pixelHi: 
  */
 export function logAxis(values: readonly number[], pixelLo: number, pixelHi: number, maxTicks = 8): Axis {
   const positive = values.filter((v) => v > 0 && Number.isFinite(v));
-  let a = positive.length ? Math.floor(Math.log10(Math.min(...positive)) + 1e-9) : 0;
-  let b = positive.length ? Math.ceil(Math.log10(Math.max(...positive)) - 1e-9) : 1;
+  // The slack absorbs log10's rounding at exact powers of ten (log10(1000) = 2.9999999999999996).
+  let a = positive.length ? Math.floor(Math.log10(Math.min(...positive)) + 1e-12) : 0;
+  let b = positive.length ? Math.ceil(Math.log10(Math.max(...positive)) - 1e-12) : 1;
   if (b <= a) b = a + 1;
   const every = Math.ceil((b - a + 1) / maxTicks);
   a = Math.floor(a / every) * every;
   b = Math.ceil(b / every) * every;
   const ticks: number[] = [];
   for (let k = a; k <= b; k += every) ticks.push(clean(10 ** k));
-  const lo = 10 ** a;
-  const hi = 10 ** b;
+  const lo = clean(10 ** a);
+  const hi = clean(10 ** b);
   return {
     lo,
     hi,
