@@ -109,7 +109,9 @@ export function readAxis(svg: XmlElement, which: 'x' | 'y', log: boolean): ReadA
     return log ? 10 ** v : v;
   };
   for (const t of ticks) {
-    if (Math.abs(f(invert(t.pixel)) - f(t.value)) > 1e-6 * Math.max(1, Math.abs(f(t.value)))) throw new Error(`${which} tick ${t.value} off the axis line`);
+    // Coordinates are written to 0.01 px: every tick must sit where the fit puts it, to 0.02 px.
+    const expected = a.pixel + (f(t.value) - f(a.value)) / slope;
+    if (Math.abs(expected - t.pixel) > 0.02) throw new Error(`${which} tick ${t.value} at ${t.pixel} px, off the axis line (${expected} px)`);
   }
   return { ticks, invert };
 }
