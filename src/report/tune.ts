@@ -68,14 +68,14 @@ function layersOf(epochs: readonly TuneEpochView[], pick: (e: TuneEpochView) => 
   return [...new Set(epochs.flatMap((e) => Object.keys(pick(e) ?? {}).map(Number)))].sort((a, b) => a - b);
 }
 
-function perLayerSeries(input: TuneReportInput, pick: (e: TuneEpochView) => Readonly<Record<number, number>> | undefined): LineSeries[] {
+function perLayerSeries(input: Pick<TuneReportInput, 'epochs' | 'layerNames'>, pick: (e: TuneEpochView) => Readonly<Record<number, number>> | undefined): LineSeries[] {
   return layersOf(input.epochs, pick).map((l) => ({
     label: layerName(input, l),
     points: input.epochs.map((e) => [e.epoch + 1, pick(e)?.[l] ?? Number.NaN] as const),
   }));
 }
 
-function gradientChart(input: TuneReportInput): string {
+function gradientChart(input: Pick<TuneReportInput, 'epochs' | 'layerNames'>): string {
   return lineChart({ title: 'Gradient norm per layer', xTitle: 'epoch', yTitle: 'mean gradient norm', series: perLayerSeries(input, (e) => e.gradientNorms), log: true, integerX: true });
 }
 
@@ -85,7 +85,7 @@ function gradientChart(input: TuneReportInput): string {
  */
 export function tuneCurvesSvg(input: Pick<TuneReportInput, 'title' | 'epochs' | 'layerNames'>): string {
   const acc = accuracyChart(input.epochs);
-  return svgDocument(input.title, [lossChart(input.epochs), ...(acc ? [acc] : []), gradientChart({ ...input, bestEpoch: 0 })]);
+  return svgDocument(input.title, [lossChart(input.epochs), ...(acc ? [acc] : []), gradientChart(input)]);
 }
 
 export interface ClassScores {
