@@ -8,6 +8,7 @@ import { join } from 'node:path';
 import { beforeAll, describe, expect, it } from 'vitest';
 import { benchBaselines, benchModel, denseStackDoc } from '../../src/bench/index.js';
 import { parityReport, randomInputs } from '../../src/check/index.js';
+import { EngineSession } from '../../src/engine/index.js';
 import { writeBenchReport, writeCheckReport } from '../../src/cli/report-files.js';
 import { barChart } from '../../src/report/index.js';
 import { byClass, htmlElements, htmlText, num, parseHtml, parseSvg, readAxis, svgsOfPage, ticksAreRound, type XmlElement } from './read-back.js';
@@ -48,6 +49,27 @@ describe('check --report FILE.html', () => {
     // The js engine on a small tanh stack is well inside float32 tolerance (see src/check/tolerance.ts).
     expect(report.pass).toBe(true);
     expect(htmlText(verdict)).toBe('PASS: every layer is within the tolerance.');
+  });
+});
+
+describe('check --report FILE.html on a broken engine', () => {
+  it('says FAIL, names the layer, and draws its bar past the tolerance line', async () => {
+    const doc = denseStackDoc([6, 12, 3], 4, 'tanh', 'softmax');
+    const inner = new EngineSession(doc);
+    // A fault injected after the engine ran: layer 0's outputs all moved by 0.01.
+    const broken = { runLayers: (x: Float32Array, rows: number) => inner.runLayers(x, rows).map((l, i) => (i === 0 ? l.map((v) => v + 0.01) : l)), dispose: () => inner.dispose() };
+    const report = parityReport(doc, randomInputs(doc, 32, 1), 32, { session: broken });
+    inner.dispose();
+    expect(report.pass).toBe(false);
+    const file = join(dir, 'check-broken.html');
+    await writeCheckReport(file, 'm.tendon', 'js', report, '(seeded random)');
+    const { doc: page } = parseHtml(await readFile(file, 'utf8'));
+    const verdict = htmlElements(page).find((e) => e.attrs.some((a) => a.name === 'class' && a.value === 'verdict fail'))!;
+    expect(htmlText(verdict)).toBe('FAIL: 0 dense broke the tolerance.');
+    const abs = svgsOfPage(page).find((s) => byClass(s, 'chart-title')[0].textContent === 'Absolute error against the tolerance')!;
+    const got = barValues(abs, true).get('0 dense|max abs error')!;
+    expect(got).toBeGreaterThan(report.tolerance.abs);
+    expect(Math.abs(Math.log10(got) - Math.log10(report.layers[0].maxAbs))).toBeLessThan(1e-3);
   });
 });
 
