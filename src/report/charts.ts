@@ -293,7 +293,10 @@ export function barChart(spec: BarChartSpec): string {
 
   const values = spec.groups.flatMap((g) => g.values.filter((v): v is number => v !== null && Number.isFinite(v)));
   const markValues = (spec.marks ?? []).map((mk) => mk.value);
-  const axis = spec.log ? logAxis([...values, ...markValues], plot.left, plot.right) : linearAxis([...values, ...markValues], plot.left, plot.right, { include: [0, ...(spec.percent ? [1] : [])] });
+  // On a log axis bars need a baseline below the smallest value: one decade under it, so the
+  // smallest bar still has length and no mark sits on the edge.
+  const positives = [...values, ...markValues].filter((v) => v > 0);
+  const axis = spec.log ? logAxis([...values, ...markValues, ...(positives.length ? [Math.min(...positives) / 10] : [])], plot.left, plot.right) : linearAxis([...values, ...markValues], plot.left, plot.right, { include: [0, ...(spec.percent ? [1] : [])] });
   const zero = spec.log ? plot.left : axis.toPixel(0);
   parts.push(axisMarkup(axis, 'x', plot, !!spec.percent, true));
   parts.push(`<line x1="${px(zero)}" y1="${px(plot.top)}" x2="${px(zero)}" y2="${px(plot.bottom)}" stroke="${AXIS}"/>`);
@@ -324,7 +327,7 @@ export function barChart(spec: BarChartSpec): string {
     const x = axis.toPixel(mk.value);
     parts.push(
       `<g class="mark"><line x1="${px(x)}" y1="${px(plot.top - 4)}" x2="${px(x)}" y2="${px(plot.bottom)}" stroke="${INK}" stroke-width="1.4" stroke-dasharray="5 3"/>` +
-        text(x, plot.top - 8, `${mk.label} ${valueText(mk.value, !!spec.percent)}`, { 'font-size': TYPE.note, fill: INK, 'text-anchor': 'middle' }) +
+        text(x, plot.top - 8, `${mk.label} ${valueText(mk.value, !!spec.percent)}`, { 'font-size': TYPE.note, fill: INK, 'text-anchor': x < plot.left + 60 ? 'start' : x > plot.right - 60 ? 'end' : 'middle' }) +
         `</g>`,
     );
   }
