@@ -9,7 +9,9 @@ import { spawnSync } from 'node:child_process';
 import * as tf from '@tensorflow/tfjs-core';
 import type { DenseLayer, ModelDoc } from '../model/index.js';
 import { referenceForward, toMat64 } from '../reference/index.js';
-import type { Timing } from './measure.js';
+import { useEngine } from '../engine/index.js';
+import { timeCalls, type Timing } from './measure.js';
+import { seededRows } from './models.js';
 
 /** Forward a user would write with tfjs-core ops; dense layers with relu / linear / softmax only. */
 export function plainTfjsForward(doc: ModelDoc): { run(x: Float32Array, rows: number): Float32Array; dispose(): void } {
@@ -94,4 +96,57 @@ interface NumpyOutput {
   numpy: string;
   blas: string;
   results: { widths: number[]; batch: number; rowsPerSec: number; p50Ms: number; p99Ms: number; calls: number }[];
+}
+
+export interface BaselineRow {
+  readonly name: 'plain tfjs ops' | 'float64 reference';
+  readonly batch: number;
+  /** null when skipped (see the notes). */
+  readonly rowsPerSec: number | null;
+}
+
+/** A baseline call predicted to take longer than this is skipped, so a report stays quick. */
+const BASELINE_CALL_BUDGET_MS = 3000;
+
+/**
+ * The baselines of a user's model, on the same seeded rows as benchModel: plain tfjs-core ops on
+ * the JS backend (dense models with relu / linear / softmax only) and the float64 reference.
+ * Switches the process's tfjs backend to js; measure the engine afterwards.
+ * @example const { rows, notes } = await benchBaselines(doc, { batches: [1, 256], minMs: 500 });
+ */
+export async function benchBaselines(doc: ModelDoc, opts: { batches: readonly number[]; minMs: number; seed?: number }): Promise<{ rows: BaselineRow[]; notes: string[] }> {
+  const rows: BaselineRow[] = [];
+  const notes: string[] = [];
+  const plainFits = doc.layers.every((l) => l.kind === 'dense' && ['relu', 'linear', 'softmax'].includes(l.activation));
+  let plain: ReturnType<typeof plainTfjsForward> | null = null;
+  if (plainFits) {
+    await useEngine('js');
+    plain = plainTfjsForward(doc);
+    if (doc.normalise) notes.push('plain tfjs ops leave out the model\'s input normalisation (a small share of the work)');
+  } else {
+    notes.push('plain tfjs ops not run: written for dense layers with relu, linear or softmax only');
+  }
+  const ref = referenceRunner(doc);
+  const rates: Record<BaselineRow['name'], number | null> = { 'plain tfjs ops': null, 'float64 reference': null };
+  const timed = async (name: BaselineRow['name'], batch: number, fn: () => unknown): Promise<void> => {
+    const seen = rates[name];
+    if (seen !== null && (batch / seen) * 1000 > BASELINE_CALL_BUDGET_MS) {
+      notes.push(`${name} at batch ${batch} skipped: one call predicted at ${Math.round((batch / seen) * 1000)} ms`);
+      rows.push({ name, batch, rowsPerSec: null });
+      return;
+    }
+    const t = await timeCalls(fn, batch, { minMs: opts.minMs, minCalls: 2, warmupCalls: 1 });
+    rates[name] = t.rowsPerSec;
+    rows.push({ name, batch, rowsPerSec: t.rowsPerSec });
+  };
+  try {
+    for (const batch of [...opts.batches].sort((a, b) => a - b)) {
+      const x = seededRows(batch, doc.inputs, (opts.seed ?? 1) + batch);
+      if (plain) await timed('plain tfjs ops', batch, () => plain!.run(x, batch));
+      await timed('float64 reference', batch, () => ref(x, batch));
+    }
+  } finally {
+    plain?.dispose();
+  }
+  return { rows, notes };
 }

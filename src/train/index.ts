@@ -9,6 +9,5 @@ export { clipGlobalNorm, globalNorm } from './clip.js';
 export { combineMoments, updateNormalisation, isUnfitted, copyNormalisation, type NormalisationPolicy } from './normalisation.js';
 export { accuracy, argmaxRows, confusionMatrix, meanAbsoluteError, predictedClasses, rootMeanSquaredError } from './metrics.js';
 export { ReluActivity, linearStacks, rawInputs, vanishingGradient, type Diagnostic, type DiagnosticCode } from './diagnostics.js';
-export { renderReport, type ReportEpoch } from './report.js';
 export { batchesPerEpoch, epochBatches, gatherRows, shuffledOrder, splitHoldout } from './shuffle.js';
 export { CALIBRATION_CAUTION, ECE_BINS, classLogits, classProbabilities, expectedCalibrationError, fitTemperature, meanNll, scaledSoftmax, type TemperatureFit } from './calibration.js';

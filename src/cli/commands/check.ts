@@ -9,6 +9,7 @@ import { percent, sci, textTable } from '../format.js';
 import { inputChunks } from '../model-input.js';
 import { isClassifier, loadTrainingData } from '../training-data.js';
 import { CALIBRATION_CAUTION, ECE_BINS, accuracy, argmaxRows, classProbabilities, expectedCalibrationError } from '../../train/index.js';
+import { reportFormat, writeAgainstReport, writeCheckReport } from '../report-files.js';
 import { parseEngine } from './engine-flag.js';
 
 const flags = {
@@ -18,6 +19,7 @@ const flags = {
   engine: { kind: 'string', help: 'auto, fast, wasm or js', default: 'auto' },
   json: { kind: 'boolean', help: 'print the report as JSON' },
   target: { kind: 'string', short: 't', help: 'with --input: the class column; also report accuracy and calibration error (ECE, 15 bins) on those labelled rows' },
+  report: { kind: 'string', help: 'also write the per-layer errors against the tolerance as one HTML page (FILE.html)' },
   against: { kind: 'string', help: 'judge MODEL against its parent file instead (both on the float64 reference path; tolerance by MODEL\'s storage)' },
 } as const;
 
@@ -27,7 +29,7 @@ const MAX_CHECK_ROWS = 100_000;
 export const check: Command = {
   name: 'check',
   summary: 'prove the engine against the float64 reference, per layer and at the output (exit 1 if a tolerance breaks)',
-  usage: 'tendon check MODEL [--input FILE [--target COLUMN]] [--rows N] [--json] [--engine js|wasm|auto] [--against PARENT]',
+  usage: 'tendon check MODEL [--input FILE [--target COLUMN]] [--rows N] [--json] [--engine js|wasm|auto] [--against PARENT] [--report FILE.html]',
   flags,
   async run(argv, io) {
     const { flags: f, positionals } = parseArgs(argv, flags);
@@ -37,7 +39,8 @@ export const check: Command = {
     if (rows < 1) throw new UsageError('--rows', `must be at least 1, got ${rows}`);
     if (f.target !== undefined && !f.input) throw new UsageError('--target', 'needs --input: the labelled rows to judge');
     if (f.target !== undefined && f.against) throw new UsageError('--target', 'cannot be combined with --against');
-    if (f.against) return checkAgainst(path, f.against, rows, f.seed ?? 1, f.input, f.json, io);
+    if (f.report) reportFormat(f.report, false);
+    if (f.against) return checkAgainst(path, f.against, rows, f.seed ?? 1, f.input, f.json, io, f.report);
     const model = await openModel(path, { engine: parseEngine(f.engine) });
     try {
       const input = f.input ? await readInput(model, f.input) : undefined;
@@ -48,6 +51,7 @@ export const check: Command = {
         io.out(describeParity(report, `${path} on the ${model.engine} engine, ${report.output.rows} rows${f.input ? ` from ${f.input}` : ' (seeded random)'}`));
         if (labelled) io.out(describeLabelled(labelled, f.input ?? ''));
       }
+      if (f.report) await writeCheckReport(f.report, path, model.engine, report, f.input ? `from ${f.input}` : '(seeded random)');
       return report.pass ? 0 : 1;
     } finally {
       model.dispose();
@@ -94,7 +98,7 @@ export function describeParity(report: ParityReport, title: string): string {
 }
 
 /** `check MODEL --against PARENT`: the two models' outputs on the same rows, both on the float64 reference path. */
-async function checkAgainst(path: string, parentPath: string, rows: number, seed: number, input: string | undefined, json: boolean, io: { out(t: string): void }): Promise<number> {
+async function checkAgainst(path: string, parentPath: string, rows: number, seed: number, input: string | undefined, json: boolean, io: { out(t: string): void }, reportPath?: string): Promise<number> {
   const [child, parent] = await Promise.all([readModelFile(path), readModelFile(parentPath)]);
   // Rows are drawn around the PARENT's statistics: a folded child no longer keeps its own.
   const x = input ? await readInput({ doc: parent.doc, inputs: parent.doc.inputs }, input) : { x: randomInputs(parent.doc, rows, seed), rows };
@@ -112,6 +116,7 @@ async function checkAgainst(path: string, parentPath: string, rows: number, seed
         `${c.pass ? 'PASS' : 'FAIL'}: ${costVerdict(c)}; a value passes when its abs error <= abs or its rel error <= rel\n`,
     );
   }
+  if (reportPath) await writeAgainstReport(reportPath, path, parentPath, child.doc.storage, c);
   return c.pass ? 0 : 1;
 }
 

@@ -1,7 +1,5 @@
-import { writeFile } from 'node:fs/promises';
 import { DivergenceError, UsageError } from '../../errors.js';
 import { readModelFile, writeModelFile } from '../../format/index.js';
-import { renderReport } from '../../train/report.js';
 import { CALIBRATION_CAUTION, ECE_BINS, type TemperatureFit } from '../../train/calibration.js';
 import { tune as tuneModel, TuneDivergence, type EpochRecord, type TuneRunOptions } from '../../train/tune.js';
 import { ensureEngine, useEngine } from '../../engine/index.js';
@@ -10,6 +8,7 @@ import { noExtraPositionals, parseArgs, requireFlag, requirePositional } from '.
 import type { Command } from '../command.js';
 import { grouped, percent, sci } from '../format.js';
 import { progressLine } from '../progress.js';
+import { reportFormat, writeTuneReport } from '../report-files.js';
 import { loadTrainingData } from '../training-data.js';
 import { headerFeatureNames, inFlagTerms, refuseOverwritingInputs } from '../tune-guards.js';
 import { parseEngine } from './engine-flag.js';
@@ -38,7 +37,7 @@ const flags = {
   normalisation: { kind: 'string', help: 'a fitted normalise block: keep (frozen) or continue over the new rows', default: 'keep' },
   loss: { kind: 'string', help: 'override the loss chosen from the output activation' },
   'raw-targets': { kind: 'boolean', help: 'regression: train on the targets as given (default: each target scaled to mean 0, sd 1 inside the model; answers stay in target units)' },
-  report: { kind: 'string', help: 'write an SVG report: loss and accuracy curves, per-layer gradient norms' },
+  report: { kind: 'string', help: 'FILE.html: the whole run as one page (curves, confusion, per-class results, gradients, findings); FILE.svg: the curves alone' },
   log: { kind: 'string', help: 'per-epoch log: text or jsonl (default: text on a terminal, jsonl otherwise)' },
   calibrate: { kind: 'boolean', help: 'after training, fit a calibration temperature on the hold-out rows and store it (needs --holdout or --holdout-file)' },
   'keep-interrupted': { kind: 'boolean', help: 'on Ctrl-C, save what is complete as OUT.interrupted' },
@@ -64,6 +63,7 @@ export const tune: Command = {
     const log = f.log ?? (io.interactive ? 'text' : 'jsonl');
     if (log !== 'text' && log !== 'jsonl') throw new UsageError('--log', `must be text or jsonl, got "${log}"`);
     const freeze = f.freeze === undefined ? undefined : parseIndices(f.freeze);
+    if (f.report) reportFormat(f.report, true);
 
     const fromSpec = modelPath.toLowerCase().endsWith('.json');
     await refuseOverwritingInputs(out, [
@@ -143,23 +143,7 @@ export const tune: Command = {
       if (log === 'jsonl') io.out(JSON.stringify({ warning: d.code, layer: d.layer ?? null, epoch: d.epoch === undefined ? null : d.epoch + 1, message: d.message, hint: d.hint }) + '\n');
       else io.err(text + '\n');
     }
-    if (f.report) {
-      await writeFile(
-        f.report,
-        renderReport(
-          `tendon tune ${modelPath}`,
-          result.history.map((e) => ({
-            epoch: e.epoch,
-            trainLoss: e.train.loss,
-            holdoutLoss: e.holdout?.loss ?? null,
-            trainAccuracy: e.train.accuracy,
-            holdoutAccuracy: e.holdout?.accuracy ?? null,
-            gradientNorms: e.gradientNorms,
-          })),
-          result.calibration ? calibrationText(result.calibration) : undefined,
-        ),
-      );
-    }
+    if (f.report) await writeTuneReport(f.report, modelPath, result, result.calibration ? [calibrationText(result.calibration)] : []);
     if (result.aborted) {
       if (f['keep-interrupted']) {
         const partial = `${out}.interrupted`;
