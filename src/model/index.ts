@@ -1,5 +1,5 @@
 export * from './types.js';
-export type { ActivationKind } from './activations/kind.js';
+export type { ActivationF32, ActivationKind } from './activations/kind.js';
 export { activationKind } from './activations/catalogue.js';
 export type {
   BackwardOptions,
@@ -8,6 +8,9 @@ export type {
   EngineForward,
   ForwardContext,
   LayerKind,
+  SimdInference,
+  SimdPart,
+  SimdTraining,
   Mat64,
   RefBackward,
   RefForward,

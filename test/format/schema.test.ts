@@ -9,7 +9,7 @@ import { ACTIVATIONS, STORAGE_CODECS } from '../../src/model/types.js';
 const protoPath = fileURLToPath(new URL('../../formats/tendon.proto', import.meta.url));
 
 describe('embedded schema', () => {
-  it('equals formats/tendon.proto byte for byte', () => {
+  it('the schema the runtime parses is formats/tendon.proto, byte for byte (the build embeds the file)', () => {
     expect(TENDON_SCHEMA).toBe(readFileSync(protoPath, 'utf8'));
   });
 

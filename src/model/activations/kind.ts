@@ -5,6 +5,19 @@
 import type * as tf from '@tensorflow/tfjs-core';
 import type { ActivationName } from '../types.js';
 
+/**
+ * The fast engine's float32 pass (plain loops over the kernel's output, after the matrix
+ * product). Values are computed in double and stored as float32, like the kernel's output.
+ */
+export interface ActivationF32 {
+  /** The kernel's store applies it (its one fused activation is ReLU), so `forward` is not run on kernel output. */
+  readonly fusedInKernel: 'relu' | null;
+  /** y = f(z) in place on the first `cols` values of `rows` rows that start `stride` apart at `at`. */
+  forward(data: Float32Array, at: number, rows: number, stride: number, cols: number, alpha: number): void;
+  /** dL/dz from z, y = f(z) and dL/dy (compact rows x cols), as a new array. */
+  backward(z: Float32Array, y: Float32Array, dy: Float32Array, rows: number, cols: number, alpha: number): Float32Array;
+}
+
 export interface ActivationKind {
   readonly name: ActivationName;
   /** Initialisation that keeps variance through the layer: He for the ReLU family, Glorot otherwise. */
@@ -19,4 +32,6 @@ export interface ActivationKind {
   engineForward(z: tf.Tensor2D, alpha: number): tf.Tensor2D;
   /** tfjs engine: dL/dz. */
   engineBackward(z: tf.Tensor2D, y: tf.Tensor2D, dy: tf.Tensor2D, alpha: number): tf.Tensor2D;
+  /** The fast engine's float32 forward and backward (see `pointwiseF32` for element-wise ones). */
+  readonly f32: ActivationF32;
 }

@@ -1,4 +1,5 @@
 import * as tf from '@tensorflow/tfjs-core';
+import { pointwiseF32 } from './f32.js';
 import type { ActivationKind } from './kind.js';
 import { logistic } from './sigmoid.js';
 
@@ -20,4 +21,8 @@ export const softplus: ActivationKind = {
   },
   engineForward: (z) => tf.softplus(z),
   engineBackward: (z, _y, dy) => tf.mul(dy, tf.sigmoid(z)),
+  f32: pointwiseF32(
+    (z) => Math.max(z, 0) + Math.log1p(Math.exp(-Math.abs(z))),
+    (z) => logistic(z),
+  ),
 };

@@ -184,4 +184,8 @@ export const batchnorm: LayerKind<BatchNormLayer> = {
   validate,
   reference: { forward: (layer, x, ctx) => refForward(layer, x, ctx), backward: (layer, saved, dy) => refBackward(layer, saved, dy) },
   engine: { upload: engineUpload, forward: (layer, w, x, ctx) => engineForward(layer, w, x, ctx), backward: (layer, w, s, dy) => engineBackward(layer, w, s, dy) },
+  simd: {
+    inference: (layer) => ({ op: 'affine', ...batchNormAffine(layer) }),
+    training: { refused: 'fast training runs dense and dropout layers only' },
+  },
 };

@@ -122,4 +122,8 @@ export const dense: LayerKind<DenseLayer> = {
   validate,
   reference: { forward: (layer, x) => refForward(layer, x), backward: refBackward },
   engine: { upload: engineUpload, forward: (layer, w, x, ctx) => engineForward(layer, w, x, ctx), backward: engineBackward },
+  simd: {
+    inference: (layer) => ({ op: 'dense', weight: layer.weight, bias: layer.bias, size: layer.size, activation: layer.activation, alpha: layer.alpha }),
+    training: (layer) => ({ op: 'dense', layer }),
+  },
 };

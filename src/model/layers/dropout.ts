@@ -54,4 +54,8 @@ export const dropout: LayerKind<DropoutLayer> = {
       return { dx: mask ? as2D(tf.mul(dy, mask), 'dropout dx') : tf.clone(dy), grads: [] };
     },
   },
+  simd: {
+    inference: () => ({ op: 'identity' }),
+    training: (layer) => ({ op: 'mask', rate: layer.rate }),
+  },
 };
