@@ -20,6 +20,10 @@ export interface ActivationF32 {
 
 export interface ActivationKind {
   readonly name: ActivationName;
+  /** Its code in the file (the Activation enum of formats/tendon.proto; append only, never reused). */
+  readonly code: number;
+  /** Whether it reads the layer's `alpha` (a slope that must then be >= 0). */
+  readonly usesAlpha: boolean;
   /** Initialisation that keeps variance through the layer: He for the ReLU family, Glorot otherwise. */
   readonly init: 'he' | 'glorot';
   /** The name tfjs's fused matMul uses for this activation, when it fuses it. */

@@ -5,6 +5,8 @@ import type { ActivationKind } from './kind.js';
 /** f(z) = z for z > 0, alpha·z otherwise; keeps a gradient for negative inputs. */
 export const leakyRelu: ActivationKind = {
   name: 'leaky_relu',
+  code: 3,
+  usesAlpha: true,
   init: 'he',
   fused: 'leakyrelu',
   refForward(z, _rows, _cols, alpha) {

@@ -5,6 +5,8 @@ import type { ActivationKind } from './kind.js';
 /** f(z) = z. */
 export const linear: ActivationKind = {
   name: 'linear',
+  code: 1,
+  usesAlpha: false,
   init: 'glorot',
   fused: 'linear',
   refForward: (z) => Float64Array.from(z),

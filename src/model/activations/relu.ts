@@ -5,6 +5,8 @@ import type { ActivationKind } from './kind.js';
 /** f(z) = max(z, 0). The derivative at exactly 0 is taken as 0 on both paths. */
 export const relu: ActivationKind = {
   name: 'relu',
+  code: 2,
+  usesAlpha: false,
   init: 'he',
   fused: 'relu',
   refForward(z) {

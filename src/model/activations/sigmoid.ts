@@ -5,6 +5,8 @@ import type { ActivationKind } from './kind.js';
 /** The logistic function f(z) = 1 / (1 + exp(-z)). */
 export const sigmoid: ActivationKind = {
   name: 'sigmoid',
+  code: 4,
+  usesAlpha: false,
   init: 'glorot',
   fused: 'sigmoid',
   refForward(z) {

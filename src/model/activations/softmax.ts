@@ -4,6 +4,8 @@ import type { ActivationKind } from './kind.js';
 /** Row-wise softmax: y_j = exp(z_j) / sum_k exp(z_k). */
 export const softmax: ActivationKind = {
   name: 'softmax',
+  code: 7,
+  usesAlpha: false,
   init: 'glorot',
   refForward(z, rows, cols) {
     const y = new Float64Array(z.length);

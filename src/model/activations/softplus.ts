@@ -6,6 +6,8 @@ import { logistic } from './sigmoid.js';
 /** f(z) = log(1 + exp(z)), a smooth ReLU whose derivative is the logistic function. */
 export const softplus: ActivationKind = {
   name: 'softplus',
+  code: 6,
+  usesAlpha: false,
   // Close to ReLU for |z| > a few units, so it takes ReLU's initialisation.
   init: 'he',
   refForward(z) {

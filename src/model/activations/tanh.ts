@@ -5,6 +5,8 @@ import type { ActivationKind } from './kind.js';
 /** Hyperbolic tangent. */
 export const tanh: ActivationKind = {
   name: 'tanh',
+  code: 5,
+  usesAlpha: false,
   init: 'glorot',
   refForward(z) {
     const y = new Float64Array(z.length);

@@ -119,6 +119,8 @@ export interface LayerKind<L extends Layer = Layer> {
   tensors(layer: L, inputWidth: number, index: number): ParamRef[];
   /** Tensors updated by gradient descent, in a fixed order; gradients come back in this order. */
   trainable(layer: L, inputWidth: number, index: number): ParamRef[];
+  /** Its attributes in a few words, for `tendon about` (e.g. "relu", "rate 0.2"). */
+  describe(layer: L): string;
   /** Problems with attributes and tensor sizes; `where` is e.g. "layers[2] (dense)". */
   validate(layer: L, inputWidth: number, where: string): Problem[];
 
