@@ -192,6 +192,12 @@ export const batchnorm: LayerKind<BatchNormLayer> = {
   outputWidth: (_layer, inputWidth) => inputWidth,
   tensors,
   trainable: params,
+  clone: (layer) => ({ ...layer, gamma: layer.gamma.slice(), beta: layer.beta.slice(), runningMean: layer.runningMean.slice(), runningVariance: layer.runningVariance.slice() }),
+  // The identity: gamma 1, beta 0, running mean 0, running variance 1.
+  fillEmpty: (layer, width) =>
+    layer.gamma.length === 0
+      ? { ...layer, gamma: new Float32Array(width).fill(1), beta: new Float32Array(width), runningMean: new Float32Array(width), runningVariance: new Float32Array(width).fill(1) }
+      : null,
   describe: (layer) => `epsilon ${layer.epsilon}, momentum ${layer.momentum}`,
   validate,
   reference: { forward: (layer, x, ctx) => refForward(layer, x, ctx), backward: (layer, saved, dy) => refBackward(layer, saved, dy) },

@@ -12,6 +12,7 @@ import { as2D } from './engine-util.js';
 import type { BackwardOptions, EngineBackward, EngineForward, LayerKind, Mat64, RefBackward, RefForward } from './kind.js';
 import { columnSums64, mat64, matMul64, matMulTransA64, matMulTransB64 } from './mat64.js';
 import { finiteProblems, isPositiveInt } from './checks.js';
+import { initDense } from '../init.js';
 
 interface DenseSaved {
   readonly x: Mat64;
@@ -121,6 +122,9 @@ export const dense: LayerKind<DenseLayer> = {
   outputWidth: (layer) => layer.size,
   tensors: params,
   trainable: params,
+  clone: (layer) => ({ ...layer, weight: layer.weight.slice(), bias: layer.bias.slice() }),
+  // He / Glorot weights from the seeded generator, zero biases; alpha as given.
+  fillEmpty: (layer, inputWidth, rng) => (layer.weight.length === 0 ? { ...initDense(inputWidth, layer.size, layer.activation, rng, layer.alpha), alpha: layer.alpha } : null),
   describe: (layer) => (isActivationName(layer.activation) && activationKind(layer.activation).usesAlpha ? `${layer.activation} (alpha ${layer.alpha})` : layer.activation),
   validate,
   reference: { forward: (layer, x) => refForward(layer, x), backward: refBackward },

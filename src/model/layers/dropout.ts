@@ -32,6 +32,8 @@ export const dropout: LayerKind<DropoutLayer> = {
   outputWidth: (_layer, inputWidth) => inputWidth,
   tensors: () => [],
   trainable: () => [],
+  clone: (layer) => ({ ...layer }),
+  fillEmpty: () => null,
   describe: (layer) => `rate ${layer.rate}`,
   validate,
   reference: {

@@ -8,6 +8,7 @@
  */
 import type * as tf from '@tensorflow/tfjs-core';
 import type { Problem } from '../../errors.js';
+import type { SeededRng } from '../rng.js';
 import type { ActivationName, Layer, ParamRef } from '../types.js';
 
 /** A rows x cols float64 matrix, row-major. */
@@ -119,6 +120,13 @@ export interface LayerKind<L extends Layer = Layer> {
   tensors(layer: L, inputWidth: number, index: number): ParamRef[];
   /** Tensors updated by gradient descent, in a fixed order; gradients come back in this order. */
   trainable(layer: L, inputWidth: number, index: number): ParamRef[];
+  /** A deep copy that shares no array with `layer`. */
+  clone(layer: L): L;
+  /**
+   * Starting values for a layer stored without them (a spec for a first tune), or null when it
+   * has its values already (or needs none).
+   */
+  fillEmpty(layer: L, inputWidth: number, rng: SeededRng): L | null;
   /** Its attributes in a few words, for `tendon about` (e.g. "relu", "rate 0.2"). */
   describe(layer: L): string;
   /** Problems with attributes and tensor sizes; `where` is e.g. "layers[2] (dense)". */
