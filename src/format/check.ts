@@ -8,6 +8,7 @@
  */
 import type { Problem } from '../errors.js';
 import { BATCHNORM_RULES, DROPOUT_RATE_RULE, activationByCode, activationNames, activationKind } from '../model/index.js';
+import { LAYER_KINDS } from '../model/types.js';
 import type {
   BatchNormLayer,
   DenseLayer,
@@ -147,9 +148,12 @@ function checkLayer(raw: RawLayer, index: number, width: Width, problems: Proble
       }
       return { kind: 'dropout', rate };
     }
-    default:
-      problems.push({ where, message: 'no layer kind is set (expected dense, batchnorm or dropout)' });
+    case undefined:
+      problems.push({ where, message: `no layer kind is set (expected ${LAYER_KINDS.join(', ')})` });
       return null;
+    default:
+      // Every kind has a case above: a new one fails to compile here until it does.
+      throw new Error(`checkLayer: unhandled layer kind ${String(raw.kind satisfies never)}`);
   }
 }
 

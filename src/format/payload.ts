@@ -4,7 +4,7 @@
  * (snake_case), so messages and FORMAT.md read the same.
  */
 import protobuf from 'protobufjs';
-import type { StorageCodec } from '../model/types.js';
+import type { LayerKindName, StorageCodec } from '../model/types.js';
 import { PAYLOAD_MESSAGE, TENDON_SCHEMA } from './schema.js';
 
 // Activation enum codes live with each activation (its `code`, src/model/activations/); 0
@@ -45,8 +45,8 @@ export interface RawDropout {
 }
 
 export interface RawLayer {
-  /** Which member of the oneof is set; absent when none is. */
-  kind?: 'dense' | 'batchnorm' | 'dropout';
+  /** Which member of the oneof is set (the oneof's names are the layer kind names); absent when none is. */
+  kind?: LayerKindName;
   dense?: RawDense | null;
   batchnorm?: RawBatchNorm | null;
   dropout?: RawDropout | null;

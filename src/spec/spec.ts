@@ -7,10 +7,11 @@
  */
 import { dirname, resolve } from 'node:path';
 import { ModelFileError, type Problem } from '../errors.js';
-import { BATCHNORM_RULES, DROPOUT_RATE_RULE, activationNames, isActivationName } from '../model/index.js';
+import { BATCHNORM_RULES, DROPOUT_RATE_RULE, activationNames, isActivationName, isLayerKindName } from '../model/index.js';
 import {
   STORAGE_CODECS,
   type Layer,
+  type LayerKindName,
   type ModelDoc,
   type Normalisation,
   type StorageCodec,
@@ -162,13 +163,14 @@ async function buildLayer(
   ctx: LayerContext,
 ): Promise<{ layer: Layer; outputWidth: number | undefined } | undefined> {
   const { fail, loadVector } = ctx;
-  const allowed: Record<string, string[]> = {
+  // Typed by every layer kind: a new kind fails to compile here until it lists its spec fields.
+  const allowed: Record<LayerKindName, string[]> = {
     dense: ['kind', 'size', 'activation', 'weight', 'bias', 'alpha'],
     batchnorm: ['kind', 'gamma', 'beta', 'mean', 'variance', 'epsilon', 'momentum'],
     dropout: ['kind', 'rate'],
   };
   const kind = raw.kind;
-  if (typeof kind !== 'string' || !(kind in allowed)) {
+  if (typeof kind !== 'string' || !isLayerKindName(kind)) {
     return fail(`${where}.kind`, `must be one of ${Object.keys(allowed).join(', ')}, got ${JSON.stringify(kind)}`);
   }
   for (const key of Object.keys(raw)) {
@@ -206,7 +208,8 @@ async function buildLayer(
     };
   }
 
-  // dense
+  // Every other kind returned above: a new kind fails to compile here until it has its branch.
+  if (kind !== 'dense') throw new Error(`buildLayer: unhandled layer kind ${String(kind satisfies never)}`);
   const units = positiveInt(raw.size, `${where}.size`, fail);
   const activation = raw.activation === undefined ? 'linear' : raw.activation;
   if (!isActivationName(activation)) {
