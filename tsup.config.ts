@@ -1,6 +1,9 @@
 import { defineConfig } from 'tsup';
 
 // The library ships as ESM + CJS with declarations; the CLI and the worker entry are ESM only.
+// `.proto` imports load as text: formats/tendon.proto is embedded, never copied by hand.
+const loader = { '.proto': 'text' } as const;
+
 export default defineConfig([
   {
     entry: { index: 'src/index.ts' },
@@ -8,6 +11,7 @@ export default defineConfig([
     dts: true,
     sourcemap: true,
     clean: true,
+    loader,
     target: 'node20',
   },
   {
@@ -16,5 +20,6 @@ export default defineConfig([
     sourcemap: true,
     target: 'node20',
     banner: { js: '#!/usr/bin/env node' },
+    loader,
   },
 ]);

@@ -121,3 +121,16 @@ export class RuntimeFailure extends TendonError {
     super(message);
   }
 }
+
+/** An engine that cannot run one of a model's layers; refused when the model is opened, never run as something else. */
+export class EngineRefusal extends TendonError {
+  readonly exitCode = 2;
+  constructor(
+    readonly engine: string,
+    readonly layerIndex: number,
+    readonly kind: string,
+    readonly detail: string,
+  ) {
+    super(`the ${engine} engine cannot run layers[${layerIndex}] (${kind}): ${detail}`);
+  }
+}

@@ -7,8 +7,9 @@
  * nothing from the model layer.
  */
 import type { Problem } from '../errors.js';
+import { BATCHNORM_RULES, DROPOUT_RATE_RULE, activationByCode, activationNames, activationKind } from '../model/index.js';
+import { LAYER_KINDS } from '../model/types.js';
 import type {
-  ActivationName,
   BatchNormLayer,
   DenseLayer,
   Layer,
@@ -20,7 +21,6 @@ import type {
   TargetScaling,
 } from '../model/types.js';
 import {
-  ACTIVATION_CODES,
   type RawBatchNorm,
   type RawDense,
   type RawLayer,
@@ -30,10 +30,6 @@ import {
   type RawZScore,
 } from './payload.js';
 import { decodeTensor, formatShape, type DecodedTensor } from './tensor.js';
-
-const ACTIVATION_BY_CODE = new Map<number, ActivationName>(
-  (Object.keys(ACTIVATION_CODES) as ActivationName[]).map((name) => [ACTIVATION_CODES[name], name]),
-);
 
 /** The width flowing into the next layer and where it came from, for messages. */
 interface Width {
@@ -46,9 +42,9 @@ function checkDense(raw: RawDense, where: string, width: Width, problems: Proble
   const sizeOk = Number.isInteger(raw.size) && raw.size >= 1;
   if (!sizeOk) problems.push({ where: `${where}.size`, message: `size must be at least 1, got ${raw.size}` });
 
-  const activation = ACTIVATION_BY_CODE.get(raw.activation);
+  const activation = activationByCode(raw.activation)?.name;
   if (activation === undefined) {
-    const known = [...ACTIVATION_BY_CODE].map(([code, name]) => `${code} = ${name}`).join(', ');
+    const known = activationNames().map((name) => `${activationKind(name).code} = ${name}`).join(', ');
     problems.push({
       where: `${where}.activation`,
       message: raw.activation === 0 ? 'activation is not set' : `unknown activation code ${raw.activation} (known: ${known})`,
@@ -115,11 +111,8 @@ function checkBatchNorm(raw: RawBatchNorm, where: string, width: Width, problems
       });
     }
   }
-  if (!(Number.isFinite(raw.epsilon) && raw.epsilon > 0)) {
-    problems.push({ where: `${where}.epsilon`, message: `epsilon must be a finite number > 0, got ${raw.epsilon}` });
-  }
-  if (!(raw.momentum >= 0 && raw.momentum <= 1)) {
-    problems.push({ where: `${where}.momentum`, message: `momentum must lie in [0, 1], got ${raw.momentum}` });
+  for (const name of ['epsilon', 'momentum'] as const) {
+    if (!BATCHNORM_RULES[name].ok(raw[name])) problems.push({ where: `${where}.${name}`, message: `${name} must be ${BATCHNORM_RULES[name].rule}, got ${raw[name]}` });
   }
   if (width.value === null && lengths.length > 0) width.value = lengths[0][1];
   width.from = `${where.replace(/\.batchnorm$/, '')} (batchnorm)`;
@@ -151,15 +144,18 @@ function checkLayer(raw: RawLayer, index: number, width: Width, problems: Proble
       return raw.batchnorm ? checkBatchNorm(raw.batchnorm, `${where}.batchnorm`, width, problems) : null;
     case 'dropout': {
       const rate = raw.dropout?.rate ?? 0;
-      if (!(rate >= 0 && rate < 1)) {
-        problems.push({ where: `${where}.dropout.rate`, message: `rate must lie in [0, 1), got ${rate}` });
+      if (!DROPOUT_RATE_RULE.ok(rate)) {
+        problems.push({ where: `${where}.dropout.rate`, message: `rate must be ${DROPOUT_RATE_RULE.rule}, got ${rate}` });
         return null;
       }
       return { kind: 'dropout', rate };
     }
-    default:
-      problems.push({ where, message: 'no layer kind is set (expected dense, batchnorm or dropout)' });
+    case undefined:
+      problems.push({ where, message: `no layer kind is set (expected ${LAYER_KINDS.join(', ')})` });
       return null;
+    default:
+      // Every kind has a case above: a new one fails to compile here until it does.
+      throw new Error(`checkLayer: unhandled layer kind ${String(raw.kind satisfies never)}`);
   }
 }
 

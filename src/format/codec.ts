@@ -6,12 +6,12 @@
  * precision (f32 / float64): they are small, and rounding them shifts every output.
  */
 import { ModelFileError, type Problem } from '../errors.js';
+import { activationKind, isActivationName } from '../model/index.js';
 import type { Layer, ModelDoc, StorageCodec } from '../model/types.js';
 import { checkPayload } from './check.js';
 import { crcHex } from './crc32.js';
 import { FORMAT_VERSION, frame, openFrame, type FormatVersion } from './header.js';
 import {
-  ACTIVATION_CODES,
   decodePayload,
   encodePayload,
   type RawLayer,
@@ -43,7 +43,7 @@ function encodeLayer(layer: Layer, index: number, storage: StorageCodec, problem
       if (!Number.isInteger(rows)) {
         problems.push({ where: `${where}.weight`, message: `${layer.weight.length} values do not divide into ${layer.size} columns (size)` });
       }
-      const activation: number | undefined = ACTIVATION_CODES[layer.activation];
+      const activation = isActivationName(layer.activation) ? activationKind(layer.activation).code : undefined;
       if (activation === undefined) {
         problems.push({ where: `${where}.activation`, message: `unknown activation "${layer.activation}"` });
       }

@@ -4,19 +4,11 @@
  * (snake_case), so messages and FORMAT.md read the same.
  */
 import protobuf from 'protobufjs';
-import type { ActivationName, StorageCodec } from '../model/types.js';
+import type { LayerKindName, StorageCodec } from '../model/types.js';
 import { PAYLOAD_MESSAGE, TENDON_SCHEMA } from './schema.js';
 
-/** Activation enum codes in the file. 0 means "not set" and is refused. */
-export const ACTIVATION_CODES: Readonly<Record<ActivationName, number>> = {
-  linear: 1,
-  relu: 2,
-  leaky_relu: 3,
-  sigmoid: 4,
-  tanh: 5,
-  softplus: 6,
-  softmax: 7,
-};
+// Activation enum codes live with each activation (its `code`, src/model/activations/); 0
+// means "not set" and is refused.
 
 /** Tensor dtype codes in the file. 0 means "not set" and is refused. */
 export const DTYPE_CODES: Readonly<Record<StorageCodec, number>> = { f32: 1, f16: 2, i8: 3 };
@@ -53,8 +45,8 @@ export interface RawDropout {
 }
 
 export interface RawLayer {
-  /** Which member of the oneof is set; absent when none is. */
-  kind?: 'dense' | 'batchnorm' | 'dropout';
+  /** Which member of the oneof is set (the oneof's names are the layer kind names); absent when none is. */
+  kind?: LayerKindName;
   dense?: RawDense | null;
   batchnorm?: RawBatchNorm | null;
   dropout?: RawDropout | null;

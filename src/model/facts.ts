@@ -44,14 +44,7 @@ export function modelFacts(doc: ModelDoc, file: { path: string; checksum: string
     const kind = layerKind(layer.kind);
     const tensors = kind.tensors(layer, widths[i], i).map((t) => ({ name: t.name, shape: [...t.shape] }));
     const trainable = kind.trainable(layer, widths[i], i).reduce((n, t) => n + t.data.length, 0);
-    const detail =
-      layer.kind === 'dense'
-        ? layer.activation === 'leaky_relu'
-          ? `leaky_relu (alpha ${layer.alpha})`
-          : layer.activation
-        : layer.kind === 'batchnorm'
-          ? `epsilon ${layer.epsilon}, momentum ${layer.momentum}`
-          : `rate ${layer.rate}`;
+    const detail = kind.describe(layer);
     return {
       index: i,
       kind: layer.kind,

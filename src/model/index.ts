@@ -1,6 +1,7 @@
 export * from './types.js';
-export type { ActivationKind } from './activations/kind.js';
-export { activationKind } from './activations/catalogue.js';
+export type { ActivationF32, ActivationKind } from './activations/kind.js';
+export { activationByCode, activationKind, activationNames, isActivationName, registerActivation } from './activations/catalogue.js';
+export { pointwiseF32 } from './activations/f32.js';
 export type {
   BackwardOptions,
   BatchStats,
@@ -8,13 +9,17 @@ export type {
   EngineForward,
   ForwardContext,
   LayerKind,
+  SimdInference,
+  SimdPart,
+  SimdTraining,
   Mat64,
   RefBackward,
   RefForward,
   Rng,
 } from './layers/kind.js';
 export { isLayerKindName, layerKind } from './layers/catalogue.js';
-export { batchNormAffine } from './layers/batchnorm.js';
+export { BATCHNORM_RULES, batchNormAffine } from './layers/batchnorm.js';
+export { DROPOUT_RATE_RULE } from './layers/dropout.js';
 export { mat64, matMul64 } from './layers/mat64.js';
 export { SeededRng, fisherYates } from './rng.js';
 export { DEFAULT_LEAKY_ALPHA, initDense } from './init.js';

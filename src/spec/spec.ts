@@ -7,11 +7,11 @@
  */
 import { dirname, resolve } from 'node:path';
 import { ModelFileError, type Problem } from '../errors.js';
+import { BATCHNORM_RULES, DROPOUT_RATE_RULE, activationNames, isActivationName, isLayerKindName } from '../model/index.js';
 import {
-  ACTIVATIONS,
   STORAGE_CODECS,
-  type ActivationName,
   type Layer,
+  type LayerKindName,
   type ModelDoc,
   type Normalisation,
   type StorageCodec,
@@ -163,13 +163,14 @@ async function buildLayer(
   ctx: LayerContext,
 ): Promise<{ layer: Layer; outputWidth: number | undefined } | undefined> {
   const { fail, loadVector } = ctx;
-  const allowed: Record<string, string[]> = {
+  // Typed by every layer kind: a new kind fails to compile here until it lists its spec fields.
+  const allowed: Record<LayerKindName, string[]> = {
     dense: ['kind', 'size', 'activation', 'weight', 'bias', 'alpha'],
     batchnorm: ['kind', 'gamma', 'beta', 'mean', 'variance', 'epsilon', 'momentum'],
     dropout: ['kind', 'rate'],
   };
   const kind = raw.kind;
-  if (typeof kind !== 'string' || !(kind in allowed)) {
+  if (typeof kind !== 'string' || !isLayerKindName(kind)) {
     return fail(`${where}.kind`, `must be one of ${Object.keys(allowed).join(', ')}, got ${JSON.stringify(kind)}`);
   }
   for (const key of Object.keys(raw)) {
@@ -178,15 +179,15 @@ async function buildLayer(
 
   if (kind === 'dropout') {
     const rate = raw.rate === undefined ? 0.5 : raw.rate;
-    if (typeof rate !== 'number' || !(rate >= 0 && rate < 1)) return fail(`${where}.rate`, `must be a number in [0, 1), got ${JSON.stringify(raw.rate)}`);
+    if (!DROPOUT_RATE_RULE.ok(rate)) return fail(`${where}.rate`, `must be a number ${DROPOUT_RATE_RULE.rule}, got ${JSON.stringify(raw.rate)}`);
     return { layer: { kind: 'dropout', rate }, outputWidth: width };
   }
 
   if (kind === 'batchnorm') {
     const epsilon = raw.epsilon === undefined ? DEFAULT_BN_EPSILON : raw.epsilon;
     const momentum = raw.momentum === undefined ? DEFAULT_BN_MOMENTUM : raw.momentum;
-    if (typeof epsilon !== 'number' || !(epsilon > 0)) fail(`${where}.epsilon`, `must be a number > 0, got ${JSON.stringify(raw.epsilon)}`);
-    if (typeof momentum !== 'number' || !(momentum >= 0 && momentum < 1)) fail(`${where}.momentum`, `must be in [0, 1), got ${JSON.stringify(raw.momentum)}`);
+    if (!BATCHNORM_RULES.epsilon.ok(epsilon)) fail(`${where}.epsilon`, `must be ${BATCHNORM_RULES.epsilon.rule}, got ${JSON.stringify(raw.epsilon)}`);
+    if (!BATCHNORM_RULES.momentum.ok(momentum)) fail(`${where}.momentum`, `must be ${BATCHNORM_RULES.momentum.rule}, got ${JSON.stringify(raw.momentum)}`);
     if (width === undefined) return undefined;
     const vector = async (name: string, fill: number) =>
       raw[name] === undefined ? new Float64Array(width).fill(fill) : await loadVector(raw[name], `${where}.${name}`, width);
@@ -207,17 +208,18 @@ async function buildLayer(
     };
   }
 
-  // dense
+  // Every other kind returned above: a new kind fails to compile here until it has its branch.
+  if (kind !== 'dense') throw new Error(`buildLayer: unhandled layer kind ${String(kind satisfies never)}`);
   const units = positiveInt(raw.size, `${where}.size`, fail);
   const activation = raw.activation === undefined ? 'linear' : raw.activation;
-  if (typeof activation !== 'string' || !(ACTIVATIONS as readonly string[]).includes(activation)) {
-    fail(`${where}.activation`, `must be one of ${ACTIVATIONS.join(', ')}, got ${JSON.stringify(raw.activation)}`);
+  if (!isActivationName(activation)) {
+    fail(`${where}.activation`, `must be one of ${activationNames().join(', ')}, got ${JSON.stringify(raw.activation)}`);
   }
   const alpha = raw.alpha === undefined ? DEFAULT_LEAKY_ALPHA : raw.alpha;
   if (typeof alpha !== 'number' || !Number.isFinite(alpha)) fail(`${where}.alpha`, `must be a number, got ${JSON.stringify(raw.alpha)}`);
   if (units === undefined) return undefined;
-  if (width === undefined || typeof activation !== 'string' || typeof alpha !== 'number') return { layer: placeholder(units), outputWidth: units };
-  const act = activation as ActivationName;
+  if (width === undefined || !isActivationName(activation) || typeof alpha !== 'number') return { layer: placeholder(units), outputWidth: units };
+  const act = activation;
 
   let weight: Float32Array | undefined;
   let bias: Float32Array | undefined;

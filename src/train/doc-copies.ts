@@ -4,18 +4,11 @@
  * it can hand back the last good weights after a divergence, or the best epoch's weights under
  * early stopping.
  */
-import type { Layer, ModelDoc } from '../model/index.js';
+import { layerKind, modelWidths, type Layer, type ModelDoc } from '../model/index.js';
 import { copyNormalisation } from './normalisation.js';
 
 function cloneLayer(layer: Layer): Layer {
-  switch (layer.kind) {
-    case 'dense':
-      return { ...layer, weight: layer.weight.slice(), bias: layer.bias.slice() };
-    case 'batchnorm':
-      return { ...layer, gamma: layer.gamma.slice(), beta: layer.beta.slice(), runningMean: layer.runningMean.slice(), runningVariance: layer.runningVariance.slice() };
-    case 'dropout':
-      return { ...layer };
-  }
+  return layerKind(layer.kind).clone(layer);
 }
 
 /**
@@ -36,14 +29,10 @@ export function cloneDoc(doc: ModelDoc): ModelDoc {
   };
 }
 
-/** Every float32 array the run changes (trainable tensors and batch-norm running statistics). */
+/** Every float32 array the run may change: every stored tensor (trainable ones and batch-norm running statistics). */
 export function mutableArrays(doc: ModelDoc): Float32Array[] {
-  const out: Float32Array[] = [];
-  for (const l of doc.layers) {
-    if (l.kind === 'dense') out.push(l.weight, l.bias);
-    else if (l.kind === 'batchnorm') out.push(l.gamma, l.beta, l.runningMean, l.runningVariance);
-  }
-  return out;
+  const widths = modelWidths(doc);
+  return doc.layers.flatMap((l, i) => layerKind(l.kind).tensors(l, widths[i], i).map((t) => t.data));
 }
 
 /** Copies of `arrays`: new ones, or written into `into` (same shapes) to spare allocations each step. */

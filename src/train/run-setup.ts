@@ -66,18 +66,8 @@ export function choosePath(asked: TrainPath | undefined, doc: ModelDoc): { path:
 export function initialiseEmpty(doc: ModelDoc, rng: SeededRng): void {
   let width = doc.inputs;
   doc.layers.forEach((layer, i) => {
-    if (layer.kind === 'dense' && layer.weight.length === 0) {
-      const fresh = initDense(width, layer.size, layer.activation, rng, layer.alpha);
-      doc.layers[i] = { ...fresh, alpha: layer.alpha };
-    } else if (layer.kind === 'batchnorm' && layer.gamma.length === 0) {
-      doc.layers[i] = {
-        ...layer,
-        gamma: new Float32Array(width).fill(1),
-        beta: new Float32Array(width),
-        runningMean: new Float32Array(width),
-        runningVariance: new Float32Array(width).fill(1),
-      };
-    }
+    const filled = layerKind(layer.kind).fillEmpty(layer, width, rng);
+    if (filled) doc.layers[i] = filled;
     width = layerKind(doc.layers[i].kind).outputWidth(doc.layers[i], width);
   });
 }

@@ -11,12 +11,16 @@
  * - two dense layers, the first linear: (x·W1 + b1)·W2 + b2 = x·(W1·W2) + (b1·W2 + b2).
  * - dropout is the identity at inference.
  *
+ * Each layer kind says what it is at inference (its `simd.inference` form: a dense product, a
+ * per-feature affine map, or the identity); a kind with no such form is kept as it is.
+ *
  * The arithmetic runs in float64 on the float32 weights and is rounded to float32 once, at the end.
  */
 import { checksumOf, encodeModel } from '../format/index.js';
-import { batchNormAffine, inputAffine, validateModel, type ActivationName, type Layer, type ModelDoc, type Normalisation } from '../model/index.js';
+import { inputAffine, layerKind, validateModel, type ActivationName, type Layer, type LayerKindName, type ModelDoc, type Normalisation } from '../model/index.js';
 
-export type FoldStepName = 'dropout' | 'batchnorm' | 'normalisation' | 'linear-collapse';
+/** A layer kind folded or kept (batchnorm, dropout, ...), the input normalisation, or a product of two dense layers. */
+export type FoldStepName = LayerKindName | 'normalisation' | 'linear-collapse';
 
 export interface FoldStep {
   readonly step: FoldStepName;
@@ -54,14 +58,28 @@ interface WorkDense {
   bias: Float64Array;
 }
 
-interface WorkOther {
-  readonly kind: 'batchnorm' | 'dropout';
+/** A layer that is a per-feature affine map at inference, y = scale ⊙ x + shift (batch normalisation). */
+interface WorkAffine {
+  readonly kind: 'affine';
   readonly origin: number[];
   readonly layer: Layer;
-  readonly width: number;
+  readonly scale: Float64Array;
+  readonly shift: Float64Array;
 }
 
-type Work = WorkDense | WorkOther;
+/** A layer that is the identity at inference (dropout), or one without an inference form (kept). */
+interface WorkOther {
+  readonly kind: 'identity' | 'kept';
+  readonly origin: number[];
+  readonly layer: Layer;
+}
+
+type Work = WorkDense | WorkAffine | WorkOther;
+
+/** The layer kind a work item stands for, for steps and messages. */
+function kindOf(w: Work): LayerKindName {
+  return w.kind === 'dense' ? 'dense' : w.layer.kind;
+}
 
 /**
  * Fold a model for inference. The input document is never changed.
@@ -76,8 +94,8 @@ export function foldModel(doc: ModelDoc, options: FoldOptions = {}): FoldResult 
 
   // Dropout first: removing identities makes neighbours adjacent for the folds that follow.
   work = work.filter((w) => {
-    if (w.kind !== 'dropout') return true;
-    steps.push({ step: 'dropout', layers: [...w.origin], folded: true, reason: 'identity at inference' });
+    if (w.kind !== 'identity') return true;
+    steps.push({ step: kindOf(w), layers: [...w.origin], folded: true, reason: 'identity at inference' });
     return false;
   });
 
@@ -114,21 +132,30 @@ export function foldModel(doc: ModelDoc, options: FoldOptions = {}): FoldResult 
 function toWork(doc: ModelDoc): Work[] {
   let width = doc.inputs;
   return doc.layers.map((layer, i): Work => {
-    if (layer.kind === 'dense') {
-      const w: WorkDense = {
-        kind: 'dense',
-        origin: [i],
-        inputs: width,
-        size: layer.size,
-        activation: layer.activation,
-        alpha: layer.alpha,
-        weight: Float64Array.from(layer.weight),
-        bias: Float64Array.from(layer.bias),
-      };
-      width = layer.size;
-      return w;
+    const inputs = width;
+    width = layerKind(layer.kind).outputWidth(layer, width);
+    const part = layerKind(layer.kind).simd.inference;
+    if (typeof part !== 'function') return { kind: 'kept', origin: [i], layer };
+    const form = part(layer);
+    switch (form.op) {
+      case 'dense':
+        return {
+          kind: 'dense',
+          origin: [i],
+          inputs,
+          size: form.size,
+          activation: form.activation,
+          alpha: form.alpha,
+          weight: Float64Array.from(form.weight),
+          bias: Float64Array.from(form.bias),
+        };
+      case 'affine':
+        return { kind: 'affine', origin: [i], layer, scale: form.scale, shift: form.shift };
+      case 'identity':
+        return { kind: 'identity', origin: [i], layer };
+      default:
+        throw new Error(`fold: unknown inference form ${String(form satisfies never)}`);
     }
-    return { kind: layer.kind, origin: [i], layer, width };
   });
 }
 
@@ -161,27 +188,28 @@ function foldBatchNorms(work: Work[], steps: FoldStep[]): Work[] {
   const out: Work[] = [];
   for (let i = 0; i < work.length; i++) {
     const w = work[i];
-    if (w.kind !== 'batchnorm' || w.layer.kind !== 'batchnorm') {
+    if (w.kind !== 'affine') {
       out.push(w);
       continue;
     }
-    // Batch normalisation at inference (Ioffe and Szegedy, 2015) as a per-feature affine map.
-    const { scale: a, shift: c } = batchNormAffine(w.layer);
+    // E.g. batch normalisation at inference (Ioffe and Szegedy, 2015): the kind gives the map.
+    const { scale: a, shift: c } = w;
+    const step = kindOf(w);
     const before = out[out.length - 1];
     const after = work[i + 1];
     if (before?.kind === 'dense' && before.activation === 'linear') {
       absorbAfter(before, a, c);
       before.origin.push(...w.origin);
-      steps.push({ step: 'batchnorm', layers: [...w.origin], folded: true, reason: `into the linear dense layer before it (layers[${before.origin[0]}])` });
+      steps.push({ step, layers: [...w.origin], folded: true, reason: `into the linear dense layer before it (layers[${before.origin[0]}])` });
     } else if (after?.kind === 'dense') {
       absorbBefore(after, a, c);
       after.origin.unshift(...w.origin);
-      steps.push({ step: 'batchnorm', layers: [...w.origin], folded: true, reason: `into the dense layer after it (layers[${after.origin[after.origin.length - 1]}])` });
+      steps.push({ step, layers: [...w.origin], folded: true, reason: `into the dense layer after it (layers[${after.origin[after.origin.length - 1]}])` });
     } else {
       const why = before?.kind === 'dense'
         ? `the dense layer before it applies ${before.activation}, so the affine map cannot move inside it, and no dense layer follows`
         : 'no linear dense layer before it and no dense layer after it';
-      steps.push({ step: 'batchnorm', layers: [...w.origin], folded: false, reason: why });
+      steps.push({ step, layers: [...w.origin], folded: false, reason: why });
       out.push(w);
     }
   }
@@ -194,7 +222,7 @@ function foldNormalisation(work: Work[], norm: Normalisation | null): { step: Fo
   const affine = inputAffine(norm);
   if (!affine) return step(false, `the ${norm.method} statistics are not fitted yet (a first tune fits them)`);
   const first = work[0];
-  if (first?.kind !== 'dense') return step(false, `the first remaining layer is ${first ? first.kind : 'missing'}, not dense`);
+  if (first?.kind !== 'dense') return step(false, `the first remaining layer is ${first ? kindOf(first) : 'missing'}, not dense`);
   const { centre, spread } = affine;
   const flat = spread.findIndex((s) => s === 0);
   if (flat >= 0) {

@@ -23,7 +23,8 @@ beforeAll(async () => {
   await writeModelFile(modelPath, bakeryDoc(5));
   model = await openModel(modelPath);
   mkdirSync(join(bundles, 'examples'));
-  const common = { bundle: true, platform: 'node', format: 'esm', packages: 'external', target: 'node20', logLevel: 'silent' } as const;
+  // The .proto text loader, as in tsup.config.ts: the schema is embedded from formats/tendon.proto.
+  const common = { bundle: true, platform: 'node', format: 'esm', packages: 'external', target: 'node20', logLevel: 'silent', loader: { '.proto': 'text' } } as const;
   await build({ ...common, entryPoints: [join(root, 'src/index.ts')], outfile: join(bundles, 'dist/index.js') });
   await build({ ...common, entryPoints: [join(root, 'src/cli/bin.ts')], outfile: join(bundles, 'dist/cli.js') });
   // Beside cli.js, where the pool looks for its worker script by default (as in the real dist/).

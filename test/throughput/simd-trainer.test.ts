@@ -1,4 +1,5 @@
 import { describe, expect, it } from 'vitest';
+import { EngineRefusal } from '../../src/errors.js';
 import { SimdTrainer, simdTrainBlocker } from '../../src/engine/fast/simd-trainer.js';
 import { referenceBackwardTape, referenceForward, referenceForwardTrain, toMat64 } from '../../src/reference/index.js';
 import { SeededRng, mat64, type ActivationName, type ForwardContext, type ModelDoc } from '../../src/model/index.js';
@@ -139,9 +140,17 @@ describe('SimdTrainer (own kernel) gradients against the float64 reference backw
     expect(after[1]).toBeCloseTo(before[1]!, 6);
   });
 
-  it('refuses batch normalisation with a RangeError naming the layer', () => {
+  it('refuses batch normalisation with an EngineRefusal naming the layer, its kind and the engine', () => {
     const doc = denseStackDoc([4, 8, 2], 1);
     const bn = { kind: 'batchnorm' as const, gamma: new Float32Array(8).fill(1), beta: new Float32Array(8), runningMean: new Float32Array(8), runningVariance: new Float32Array(8).fill(1), epsilon: 1e-3, momentum: 0.9 };
-    expect(() => new SimdTrainer({ ...doc, layers: [doc.layers[0]!, bn, doc.layers[1]!] }, { preActivation: true })).toThrow(/layers\[1\] is batchnorm/);
+    let thrown: unknown = null;
+    try {
+      new SimdTrainer({ ...doc, layers: [doc.layers[0]!, bn, doc.layers[1]!] }, { preActivation: true });
+    } catch (error) {
+      thrown = error;
+    }
+    expect(thrown).toBeInstanceOf(EngineRefusal);
+    expect(thrown).toMatchObject({ engine: 'fast', layerIndex: 1, kind: 'batchnorm' });
+    expect(String((thrown as Error).message)).toMatch(/fast engine cannot run layers\[1\] \(batchnorm\)/);
   });
 });

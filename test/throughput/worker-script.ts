@@ -24,7 +24,8 @@ export function workerScript(): string {
   mkdirSync(dirname(out), { recursive: true });
   execFileSync(
     join(root, 'node_modules', '.bin', 'esbuild'),
-    ['src/engine/worker-entry.ts', '--bundle', '--platform=node', '--format=esm', '--target=node20', '--packages=external', `--outfile=${out}`, '--log-level=warning'],
+    // --loader:.proto=text as in tsup.config.ts: the schema is embedded from formats/tendon.proto.
+    ['src/engine/worker-entry.ts', '--bundle', '--platform=node', '--format=esm', '--target=node20', '--packages=external', '--loader:.proto=text', `--outfile=${out}`, '--log-level=warning'],
     { cwd: root },
   );
   bundled = out;

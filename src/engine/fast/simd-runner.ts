@@ -8,14 +8,26 @@
  * much as the arithmetic; at 256 rows this kernel's register tiling beats the tfjs wasm
  * backend's matrix product. Parity with the float64 reference is held in the tests.
  */
-import { ShapeError } from '../../errors.js';
-import { batchNormAffine, inputShiftScale, modelWidths, validateModel, type ActivationName, type Layer, type ModelDoc } from '../../model/index.js';
+import { EngineRefusal, ShapeError } from '../../errors.js';
+import { activationKind, inputShiftScale, layerKind, modelWidths, validateModel, type ActivationF32, type ModelDoc, type SimdInference } from '../../model/index.js';
 import type { Runner } from '../runner.js';
 import { instantiateDenseKernel, padded, type DenseKernel, type KernelOptions } from './dense-kernel.js';
 
 type Step =
-  | { readonly kind: 'dense'; readonly w: number; readonly b: number; readonly nIn: number; readonly out: number; readonly outP: number; readonly relu: boolean; readonly activation: ActivationName; readonly alpha: number }
-  | { readonly kind: 'affine'; readonly width: number; readonly scale: Float32Array; readonly shift: Float32Array };
+  | { readonly op: 'dense'; readonly w: number; readonly b: number; readonly nIn: number; readonly out: number; readonly outP: number; readonly activation: ActivationF32; readonly alpha: number }
+  | { readonly op: 'affine'; readonly scale: Float32Array; readonly shift: Float32Array };
+
+/**
+ * Each layer as the kernel's operations, from its own kind (the catalogue).
+ * @throws EngineRefusal naming the first layer this engine cannot run.
+ */
+export function simdInferencePlan(doc: ModelDoc): SimdInference[] {
+  return doc.layers.map((layer, i) => {
+    const part = layerKind(layer.kind).simd.inference;
+    if (typeof part !== 'function') throw new EngineRefusal('fast', i, layer.kind, `${part.refused}; open the model with --engine js or wasm`);
+    return part(layer);
+  });
+}
 
 export interface SimdRunnerOptions {
   /** Rows per kernel pass; bounds the activation buffers. Default 256. */
@@ -31,7 +43,8 @@ export interface SimdRunnerOptions {
  * @example
  * const fast = new SimdRunner(doc); // or openRunner(doc, 'fast')
  * const y = fast.run(features, rows); // Float32Array rows x outputs, owned by the caller
- * @throws ModelFileError when the document is not usable; Error when WebAssembly SIMD is missing.
+ * @throws ModelFileError when the document is not usable; EngineRefusal when a layer has no
+ *   fast-kernel form; Error when WebAssembly SIMD is missing.
  */
 export class SimdRunner implements Runner {
   readonly engine = 'fast' as const;
@@ -60,18 +73,18 @@ export class SimdRunner implements Runner {
 
     // Plan the memory: weights first, then the input chunk and two activation buffers.
     let bytes = 0;
-    const plan: { layer: Layer; width: number; wAt: number; bAt: number }[] = [];
+    const plan: { op: SimdInference; width: number; wAt: number; bAt: number }[] = [];
     let width = this.inputs; // floats per row of the current activation
     let maxWidth = 0;
-    for (const layer of doc.layers) {
-      if (layer.kind === 'dense') {
-        const outP = padded(layer.size);
-        plan.push({ layer, width, wAt: bytes, bAt: bytes + width * outP * 4 });
+    for (const op of simdInferencePlan(doc)) {
+      if (op.op === 'dense') {
+        const outP = padded(op.size);
+        plan.push({ op, width, wAt: bytes, bAt: bytes + width * outP * 4 });
         bytes += (width * outP + outP) * 4;
         width = outP;
         maxWidth = Math.max(maxWidth, outP);
       } else {
-        plan.push({ layer, width, wAt: -1, bAt: -1 });
+        plan.push({ op, width, wAt: -1, bAt: -1 });
       }
     }
     maxWidth = Math.max(maxWidth, width);
@@ -85,20 +98,26 @@ export class SimdRunner implements Runner {
 
     this.steps = [];
     const realWidths = widths.slice(0, -1);
-    plan.forEach(({ layer, width: inWidth, wAt, bAt }, i) => {
-      if (layer.kind === 'dense') {
-        const outP = padded(layer.size);
-        const realIn = realWidths[i];
-        // W rows beyond the real inputs (padding of the previous layer) stay zero.
-        for (let k = 0; k < realIn; k++) mem.set(layer.weight.subarray(k * layer.size, (k + 1) * layer.size), wAt / 4 + k * outP);
-        mem.set(layer.bias, bAt / 4);
-        this.steps.push({ kind: 'dense', w: wAt, b: bAt, nIn: inWidth, out: layer.size, outP, relu: layer.activation === 'relu', activation: layer.activation, alpha: layer.alpha });
-      } else if (layer.kind === 'batchnorm') {
-        // Inference form folded in float64 and rounded once: y = x * scale + shift.
-        const affine = batchNormAffine(layer);
-        this.steps.push({ kind: 'affine', width: inWidth, scale: Float32Array.from(affine.scale), shift: Float32Array.from(affine.shift) });
+    plan.forEach(({ op, width: inWidth, wAt, bAt }, i) => {
+      switch (op.op) {
+        case 'dense': {
+          const outP = padded(op.size);
+          const realIn = realWidths[i];
+          // W rows beyond the real inputs (padding of the previous layer) stay zero.
+          for (let k = 0; k < realIn; k++) mem.set(op.weight.subarray(k * op.size, (k + 1) * op.size), wAt / 4 + k * outP);
+          mem.set(op.bias, bAt / 4);
+          this.steps.push({ op: 'dense', w: wAt, b: bAt, nIn: inWidth, out: op.size, outP, activation: activationKind(op.activation).f32, alpha: op.alpha });
+          break;
+        }
+        case 'affine':
+          // Folded in float64 by the layer kind, rounded to float32 once here.
+          this.steps.push({ op: 'affine', scale: Float32Array.from(op.scale), shift: Float32Array.from(op.shift) });
+          break;
+        case 'identity':
+          break;
+        default:
+          throw new Error(`SimdRunner: unknown kernel operation ${String(op satisfies never)}`);
       }
-      // dropout: identity at inference.
     });
     this.norm = inputShiftScale(doc.normalise, this.inputs);
   }
@@ -131,10 +150,11 @@ export class SimdRunner implements Runner {
       let width = this.inputs;
       let which = 0;
       for (const step of this.steps) {
-        if (step.kind === 'dense') {
+        if (step.op === 'dense') {
           const to = this.bufAddr[which];
-          this.kernel.dense(from, step.w, step.b, to, n, step.nIn, step.outP, step.relu ? 1 : 0);
-          if (!step.relu && step.activation !== 'linear') activate(mem, to / 4, n, step.outP, step.out, step.activation, step.alpha);
+          const fused = step.activation.fusedInKernel === 'relu';
+          this.kernel.dense(from, step.w, step.b, to, n, step.nIn, step.outP, fused ? 1 : 0);
+          if (!fused) step.activation.forward(mem, to / 4, n, step.outP, step.out, step.alpha);
           from = to;
           width = step.outP;
           which ^= 1;
@@ -170,45 +190,5 @@ export class SimdRunner implements Runner {
    */
   dispose(): void {
     this.disposed = true;
-  }
-}
-
-/** Activations other than ReLU and linear, on the real columns of each row, in float32. */
-function activate(mem: Float32Array, base: number, rows: number, stride: number, cols: number, activation: ActivationName, alpha: number): void {
-  for (let r = 0; r < rows; r++) {
-    const o = base + r * stride;
-    if (activation === 'softmax') {
-      // Subtract the row maximum first so exp never overflows (common practice).
-      let max = -Infinity;
-      for (let c = 0; c < cols; c++) max = Math.max(max, mem[o + c]);
-      let sum = 0;
-      for (let c = 0; c < cols; c++) {
-        const e = Math.exp(mem[o + c] - max);
-        mem[o + c] = e;
-        sum += e;
-      }
-      for (let c = 0; c < cols; c++) mem[o + c] /= sum;
-      continue;
-    }
-    for (let c = 0; c < cols; c++) {
-      const z = mem[o + c];
-      switch (activation) {
-        case 'leaky_relu':
-          mem[o + c] = z < 0 ? alpha * z : z;
-          break;
-        case 'sigmoid':
-          // Two forms so exp only sees non-positive arguments.
-          mem[o + c] = z >= 0 ? 1 / (1 + Math.exp(-z)) : Math.exp(z) / (1 + Math.exp(z));
-          break;
-        case 'tanh':
-          mem[o + c] = Math.tanh(z);
-          break;
-        case 'softplus':
-          mem[o + c] = Math.max(z, 0) + Math.log1p(Math.exp(-Math.abs(z)));
-          break;
-        default:
-          break;
-      }
-    }
   }
 }

@@ -13,17 +13,20 @@
  * slower than its forward product (measured: 0.2-1.7 against 20+ GFLOP/s), which bounds
  * training at about 1-2 thousand rows/s for 784-256-10.
  */
-import { ShapeError } from '../../errors.js';
-import { inputShiftScale, modelWidths, validateModel, type ActivationName, type DenseLayer, type ForwardContext, type ModelDoc } from '../../model/index.js';
+import { EngineRefusal, ShapeError } from '../../errors.js';
+import { activationKind, inputShiftScale, layerKind, modelWidths, validateModel, type ForwardContext, type ModelDoc, type SimdTraining } from '../../model/index.js';
 import { instantiateDenseKernel, padded, type DenseKernel } from './dense-kernel.js';
 
 /** Rows per piece in `evaluate`: bounds kernel memory on large hold-out sets. */
 const EVAL_ROWS = 256;
 
+/** A dense layer's arrays and attributes, read again after every optimiser step. */
+type DenseParams = Extract<SimdTraining, { op: 'dense' }>['layer'];
+
 interface DensePlan {
   readonly kind: 'dense';
   readonly index: number;
-  readonly layer: DenseLayer;
+  readonly layer: DenseParams;
   /** Real input width and its width in kernel memory (padded except for the model input). */
   readonly inReal: number;
   readonly inP: number;
@@ -69,11 +72,28 @@ export interface SimdTrainForward {
  * @example simdTrainBlocker(docWithBatchnorm) // "layers[1] is batchnorm: fast training runs dense and dropout layers only"
  */
 export function simdTrainBlocker(doc: ModelDoc): string | null {
-  const i = doc.layers.findIndex((l) => l.kind !== 'dense' && l.kind !== 'dropout');
-  if (i >= 0) return `layers[${i}] is ${doc.layers[i].kind}: fast training runs dense and dropout layers only`;
-  const last = doc.layers.length - 1;
-  if (last < 0 || doc.layers[last].kind !== 'dense') return `fast training needs a dense last layer; layers[${last}] is ${doc.layers[last]?.kind ?? 'missing'}`;
-  return null;
+  const plan = simdTrainingPlan(doc);
+  if (!(plan instanceof EngineRefusal)) return null;
+  const { layerIndex: i, kind, detail } = plan;
+  return detail === LAST_NOT_DENSE ? `fast training needs a dense last layer; layers[${i}] is ${kind}` : `layers[${i}] is ${kind}: ${detail}`;
+}
+
+const LAST_NOT_DENSE = 'fast training needs a dense last layer';
+
+/** Each layer's training form, from its own kind (the catalogue), or the refusal naming the layer. */
+function simdTrainingPlan(doc: ModelDoc): SimdTraining[] | EngineRefusal {
+  const steps: SimdTraining[] = [];
+  for (const [i, layer] of doc.layers.entries()) {
+    const part = layerKind(layer.kind).simd.training;
+    if (typeof part !== 'function') return new EngineRefusal('fast', i, layer.kind, part.refused);
+    steps.push(part(layer));
+  }
+  const last = steps.length - 1;
+  if (last < 0 || steps[last].op !== 'dense') {
+    const kind = doc.layers[last]?.kind ?? 'missing';
+    return new EngineRefusal('fast', last, kind, LAST_NOT_DENSE);
+  }
+  return steps;
 }
 
 /**
@@ -83,7 +103,7 @@ export function simdTrainBlocker(doc: ModelDoc): string | null {
  * const grads = t.backward(f, dLogits); // per layer [dW, db]
  * // ...optimiser changes doc's arrays...
  * t.refresh();
- * @throws RangeError when the model has a layer kind this path cannot train (batchnorm).
+ * @throws EngineRefusal when the model has a layer this path cannot train (batchnorm), naming it.
  */
 export class SimdTrainer {
   readonly path = 'fast' as const;
@@ -103,17 +123,23 @@ export class SimdTrainer {
     validateModel(doc, '(model)');
     this.preActivation = opts.preActivation;
     this.widths = modelWidths(doc);
-    const blocker = simdTrainBlocker(doc);
-    if (blocker) throw new RangeError(blocker);
+    const steps = simdTrainingPlan(doc);
+    if (steps instanceof EngineRefusal) throw steps;
     const plan: Plan[] = [];
     let inP = doc.inputs;
-    doc.layers.forEach((layer, index) => {
-      if (layer.kind === 'dense') {
-        const outP = padded(layer.size);
-        plan.push({ kind: 'dense', index, layer, inReal: this.widths[index], inP, outP, w: 0, b: 0 });
-        inP = outP;
-      } else if (layer.kind === 'dropout') {
-        plan.push({ kind: 'dropout', index, rate: layer.rate, width: this.widths[index] });
+    steps.forEach((step, index) => {
+      switch (step.op) {
+        case 'dense': {
+          const outP = padded(step.layer.size);
+          plan.push({ kind: 'dense', index, layer: step.layer, inReal: this.widths[index], inP, outP, w: 0, b: 0 });
+          inP = outP;
+          break;
+        }
+        case 'mask':
+          plan.push({ kind: 'dropout', index, rate: step.rate, width: this.widths[index] });
+          break;
+        default:
+          throw new Error(`SimdTrainer: unknown kernel operation ${String(step satisfies never)}`);
       }
     });
     this.plan = plan;
@@ -197,13 +223,15 @@ export class SimdTrainer {
       putRows(mem, this.scratch.a, h, rows, p.inReal, p.inP);
       // ReLU is fused into the kernel's store. Its backward only asks whether z > 0, which is
       // whether y > 0, so the tape keeps y in z's place.
-      const relu = p.layer.activation === 'relu';
+      const act = activationKind(p.layer.activation).f32;
+      const relu = act.fusedInKernel === 'relu';
       k.dense(this.scratch.a, p.w, p.b, this.scratch.out, rows, p.inP, p.outP, relu ? 1 : 0);
       const units = p.layer.size;
       const z = takeRows(mem, this.scratch.out, rows, p.outP, units);
       const logits = this.preActivation && pi === this.plan.length - 1;
       // The loss reads the logits directly, so the last activation is never needed.
-      const y = relu || logits ? z : activate(z, rows, units, p.layer.activation, p.layer.alpha);
+      const y = relu || logits ? z : z.slice();
+      if (y !== z) act.forward(y, 0, rows, units, units, p.layer.alpha);
       tape.z.push(z);
       tape.y.push(y);
       out = logits ? z : y;
@@ -235,7 +263,7 @@ export class SimdTrainer {
       }
       const units = p.layer.size;
       const isLast = pi === this.plan.length - 1;
-      const dz = isLast && this.preActivation ? d : activationBackward(tape.z[pi]!, tape.y[pi]!, d, rows, units, p.layer.activation, p.layer.alpha);
+      const dz = isLast && this.preActivation ? d : activationKind(p.layer.activation).f32.backward(tape.z[pi]!, tape.y[pi]!, d, rows, units, p.layer.alpha);
       // dW = hᵀ · dz: x = hᵀ [inP rows x `rows` inputs], W = dz [rows x outP].
       const h = tape.inputs[pi];
       putTransposed(mem, this.scratch.a, h, rows, p.inReal);
@@ -361,84 +389,4 @@ function takeTransposed(mem: Float32Array, at: number, n: number, rowsP: number,
     for (let r = 0; r < rows; r++) out[r * n + i] = mem[base + i * rowsP + r];
   }
   return out;
-}
-
-/** y = f(z), float32 out. */
-function activate(z: Float32Array, rows: number, cols: number, activation: ActivationName, alpha: number): Float32Array {
-  const y = new Float32Array(z.length);
-  if (activation === 'softmax') {
-    for (let r = 0; r < rows; r++) {
-      const o = r * cols;
-      // Subtract the row maximum first so exp never overflows (common practice).
-      let max = -Infinity;
-      for (let c = 0; c < cols; c++) max = Math.max(max, z[o + c]);
-      let sum = 0;
-      for (let c = 0; c < cols; c++) sum += Math.exp(z[o + c] - max);
-      for (let c = 0; c < cols; c++) y[o + c] = Math.exp(z[o + c] - max) / sum;
-    }
-    return y;
-  }
-  for (let i = 0; i < z.length; i++) {
-    const v = z[i];
-    switch (activation) {
-      case 'relu':
-        y[i] = v > 0 ? v : 0;
-        break;
-      case 'leaky_relu':
-        y[i] = v < 0 ? alpha * v : v;
-        break;
-      case 'sigmoid':
-        y[i] = v >= 0 ? 1 / (1 + Math.exp(-v)) : Math.exp(v) / (1 + Math.exp(v));
-        break;
-      case 'tanh':
-        y[i] = Math.tanh(v);
-        break;
-      case 'softplus':
-        y[i] = Math.max(v, 0) + Math.log1p(Math.exp(-Math.abs(v)));
-        break;
-      default:
-        y[i] = v;
-    }
-  }
-  return y;
-}
-
-/** dL/dz from dL/dy, with z and y = f(z). */
-function activationBackward(z: Float32Array, y: Float32Array, dy: Float32Array, rows: number, cols: number, activation: ActivationName, alpha: number): Float32Array {
-  const dz = new Float32Array(dy.length);
-  if (activation === 'softmax') {
-    // Jacobian-vector product of softmax: dz = y ⊙ (dy - Σ dy·y) per row.
-    for (let r = 0; r < rows; r++) {
-      const o = r * cols;
-      let dot = 0;
-      for (let c = 0; c < cols; c++) dot += dy[o + c] * y[o + c];
-      for (let c = 0; c < cols; c++) dz[o + c] = y[o + c] * (dy[o + c] - dot);
-    }
-    return dz;
-  }
-  for (let i = 0; i < dy.length; i++) {
-    const v = z[i];
-    let g: number;
-    switch (activation) {
-      case 'relu':
-        g = v > 0 ? 1 : 0;
-        break;
-      case 'leaky_relu':
-        g = v < 0 ? alpha : 1;
-        break;
-      case 'sigmoid':
-        g = y[i] * (1 - y[i]);
-        break;
-      case 'tanh':
-        g = 1 - y[i] * y[i];
-        break;
-      case 'softplus':
-        g = v >= 0 ? 1 / (1 + Math.exp(-v)) : Math.exp(v) / (1 + Math.exp(v));
-        break;
-      default:
-        g = 1;
-    }
-    dz[i] = dy[i] * g;
-  }
-  return dz;
 }

@@ -1,9 +1,12 @@
 import * as tf from '@tensorflow/tfjs-core';
+import { pointwiseF32 } from './f32.js';
 import type { ActivationKind } from './kind.js';
 
 /** f(z) = z for z > 0, alpha·z otherwise; keeps a gradient for negative inputs. */
 export const leakyRelu: ActivationKind = {
   name: 'leaky_relu',
+  code: 3,
+  usesAlpha: true,
   init: 'he',
   fused: 'leakyrelu',
   refForward(z, _rows, _cols, alpha) {
@@ -18,4 +21,8 @@ export const leakyRelu: ActivationKind = {
   },
   engineForward: (z, alpha) => tf.leakyRelu(z, alpha),
   engineBackward: (z, _y, dy, alpha) => tf.where(tf.greater(z, 0), dy, tf.mul<tf.Tensor2D>(dy, alpha)),
+  f32: pointwiseF32(
+    (z, alpha) => (z < 0 ? alpha * z : z),
+    (z, _y, alpha) => (z < 0 ? alpha : 1),
+  ),
 };

@@ -1,9 +1,12 @@
 import * as tf from '@tensorflow/tfjs-core';
+import { pointwiseF32 } from './f32.js';
 import type { ActivationKind } from './kind.js';
 
 /** f(z) = z. */
 export const linear: ActivationKind = {
   name: 'linear',
+  code: 1,
+  usesAlpha: false,
   init: 'glorot',
   fused: 'linear',
   refForward: (z) => Float64Array.from(z),
@@ -11,4 +14,9 @@ export const linear: ActivationKind = {
   // A clone, not z itself: callers dispose y and z independently.
   engineForward: (z) => tf.clone(z),
   engineBackward: (_z, _y, dy) => tf.clone(dy),
+  f32: {
+    ...pointwiseF32((z) => z, () => 1),
+    // Nothing to do after the kernel's product.
+    forward: () => undefined,
+  },
 };

@@ -1,9 +1,12 @@
 import * as tf from '@tensorflow/tfjs-core';
+import { pointwiseF32 } from './f32.js';
 import type { ActivationKind } from './kind.js';
 
 /** f(z) = max(z, 0). The derivative at exactly 0 is taken as 0 on both paths. */
 export const relu: ActivationKind = {
   name: 'relu',
+  code: 2,
+  usesAlpha: false,
   init: 'he',
   fused: 'relu',
   refForward(z) {
@@ -18,4 +21,7 @@ export const relu: ActivationKind = {
   },
   engineForward: (z) => tf.relu(z),
   engineBackward: (z, _y, dy) => tf.where(tf.greater(z, 0), dy, tf.zerosLike(dy)),
+  // Fused into the kernel's store. Backward asks only whether z > 0, which is whether y > 0,
+  // so a caller may hand y in z's place.
+  f32: pointwiseF32((z) => (z > 0 ? z : 0), (z) => (z > 0 ? 1 : 0), 'relu'),
 };

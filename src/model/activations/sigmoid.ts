@@ -1,9 +1,12 @@
 import * as tf from '@tensorflow/tfjs-core';
+import { pointwiseF32 } from './f32.js';
 import type { ActivationKind } from './kind.js';
 
 /** The logistic function f(z) = 1 / (1 + exp(-z)). */
 export const sigmoid: ActivationKind = {
   name: 'sigmoid',
+  code: 4,
+  usesAlpha: false,
   init: 'glorot',
   fused: 'sigmoid',
   refForward(z) {
@@ -19,6 +22,10 @@ export const sigmoid: ActivationKind = {
   },
   engineForward: (z) => tf.sigmoid(z),
   engineBackward: (_z, y, dy) => tf.mul(dy, tf.mul(y, tf.sub(1, y))),
+  f32: pointwiseF32(
+    (z) => logistic(z),
+    (_z, y) => y * (1 - y),
+  ),
 };
 
 /**

@@ -1,10 +1,13 @@
 import * as tf from '@tensorflow/tfjs-core';
+import { pointwiseF32 } from './f32.js';
 import type { ActivationKind } from './kind.js';
 import { logistic } from './sigmoid.js';
 
 /** f(z) = log(1 + exp(z)), a smooth ReLU whose derivative is the logistic function. */
 export const softplus: ActivationKind = {
   name: 'softplus',
+  code: 6,
+  usesAlpha: false,
   // Close to ReLU for |z| > a few units, so it takes ReLU's initialisation.
   init: 'he',
   refForward(z) {
@@ -20,4 +23,8 @@ export const softplus: ActivationKind = {
   },
   engineForward: (z) => tf.softplus(z),
   engineBackward: (z, _y, dy) => tf.mul(dy, tf.sigmoid(z)),
+  f32: pointwiseF32(
+    (z) => Math.max(z, 0) + Math.log1p(Math.exp(-Math.abs(z))),
+    (z) => logistic(z),
+  ),
 };

@@ -1,9 +1,12 @@
 import * as tf from '@tensorflow/tfjs-core';
+import { pointwiseF32 } from './f32.js';
 import type { ActivationKind } from './kind.js';
 
 /** Hyperbolic tangent. */
 export const tanh: ActivationKind = {
   name: 'tanh',
+  code: 5,
+  usesAlpha: false,
   init: 'glorot',
   refForward(z) {
     const y = new Float64Array(z.length);
@@ -18,4 +21,8 @@ export const tanh: ActivationKind = {
   },
   engineForward: (z) => tf.tanh(z),
   engineBackward: (_z, y, dy) => tf.mul(dy, tf.sub(1, tf.square(y))),
+  f32: pointwiseF32(
+    (z) => Math.tanh(z),
+    (_z, y) => 1 - y * y,
+  ),
 };

@@ -16,6 +16,16 @@ import { as2D } from './engine-util.js';
 import type { EngineBackward, EngineForward, ForwardContext, LayerKind, Mat64, RefBackward, RefForward } from './kind.js';
 import { mat64 } from './mat64.js';
 
+/**
+ * The one home of the attribute rules, used by validation, the file check and the spec:
+ * epsilon finite and > 0 (it keeps 1/sqrt(var + eps) finite); momentum in [0, 1], where 1 keeps
+ * the running statistics as they are (frozen) and 0 replaces them with each batch's.
+ */
+export const BATCHNORM_RULES = {
+  epsilon: { ok: (v: unknown): v is number => typeof v === 'number' && Number.isFinite(v) && v > 0, rule: 'a finite number > 0' },
+  momentum: { ok: (v: unknown): v is number => typeof v === 'number' && v >= 0 && v <= 1, rule: 'in [0, 1]' },
+} as const;
+
 interface BatchNormSaved {
   readonly mode: 'training' | 'inference';
   readonly xhat: Float64Array;
@@ -170,8 +180,9 @@ function validate(layer: BatchNormLayer, inputWidth: number, where: string): Pro
   }
   const negative = layer.runningVariance.findIndex((v) => v < 0);
   if (negative >= 0) problems.push({ where, message: `runningVariance[${negative}] is ${layer.runningVariance[negative]}; a variance cannot be negative` });
-  if (!(Number.isFinite(layer.epsilon) && layer.epsilon > 0)) problems.push({ where, message: `epsilon must be a finite number > 0, got ${layer.epsilon}` });
-  if (!(layer.momentum >= 0 && layer.momentum <= 1)) problems.push({ where, message: `momentum must be in [0, 1], got ${layer.momentum}` });
+  for (const name of ['epsilon', 'momentum'] as const) {
+    if (!BATCHNORM_RULES[name].ok(layer[name])) problems.push({ where, message: `${name} must be ${BATCHNORM_RULES[name].rule}, got ${layer[name]}` });
+  }
   return problems;
 }
 
@@ -181,7 +192,18 @@ export const batchnorm: LayerKind<BatchNormLayer> = {
   outputWidth: (_layer, inputWidth) => inputWidth,
   tensors,
   trainable: params,
+  clone: (layer) => ({ ...layer, gamma: layer.gamma.slice(), beta: layer.beta.slice(), runningMean: layer.runningMean.slice(), runningVariance: layer.runningVariance.slice() }),
+  // The identity: gamma 1, beta 0, running mean 0, running variance 1.
+  fillEmpty: (layer, width) =>
+    layer.gamma.length === 0
+      ? { ...layer, gamma: new Float32Array(width).fill(1), beta: new Float32Array(width), runningMean: new Float32Array(width), runningVariance: new Float32Array(width).fill(1) }
+      : null,
+  describe: (layer) => `epsilon ${layer.epsilon}, momentum ${layer.momentum}`,
   validate,
   reference: { forward: (layer, x, ctx) => refForward(layer, x, ctx), backward: (layer, saved, dy) => refBackward(layer, saved, dy) },
   engine: { upload: engineUpload, forward: (layer, w, x, ctx) => engineForward(layer, w, x, ctx), backward: (layer, w, s, dy) => engineBackward(layer, w, s, dy) },
+  simd: {
+    inference: (layer) => ({ op: 'affine', ...batchNormAffine(layer) }),
+    training: { refused: 'fast training runs dense and dropout layers only' },
+  },
 };

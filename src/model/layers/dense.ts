@@ -6,12 +6,13 @@
  */
 import * as tf from '@tensorflow/tfjs-core';
 import type { Problem } from '../../errors.js';
-import { activationKind } from '../activations/catalogue.js';
-import { ACTIVATIONS, type DenseLayer, type ParamRef } from '../types.js';
+import { activationKind, activationNames, isActivationName } from '../activations/catalogue.js';
+import type { DenseLayer, ParamRef } from '../types.js';
 import { as2D } from './engine-util.js';
 import type { BackwardOptions, EngineBackward, EngineForward, LayerKind, Mat64, RefBackward, RefForward } from './kind.js';
 import { columnSums64, mat64, matMul64, matMulTransA64, matMulTransB64 } from './mat64.js';
 import { finiteProblems, isPositiveInt } from './checks.js';
+import { initDense } from '../init.js';
 
 interface DenseSaved {
   readonly x: Mat64;
@@ -93,11 +94,13 @@ function validate(layer: DenseLayer, inputWidth: number, where: string): Problem
     problems.push({ where, message: `size must be a positive integer, got ${layer.size}` });
     return problems;
   }
-  if (!(ACTIVATIONS as readonly string[]).includes(layer.activation)) {
-    problems.push({ where, message: `unknown activation "${String(layer.activation)}" (expected one of ${ACTIVATIONS.join(', ')})` });
+  const known = isActivationName(layer.activation);
+  if (!known) {
+    problems.push({ where, message: `unknown activation "${String(layer.activation)}" (expected one of ${activationNames().join(', ')})` });
   }
-  if (!Number.isFinite(layer.alpha) || (layer.activation === 'leaky_relu' && layer.alpha < 0)) {
-    problems.push({ where, message: `alpha must be a finite number${layer.activation === 'leaky_relu' ? ' >= 0' : ''}, got ${layer.alpha}` });
+  const slope = known && activationKind(layer.activation).usesAlpha;
+  if (!Number.isFinite(layer.alpha) || (slope && layer.alpha < 0)) {
+    problems.push({ where, message: `alpha must be a finite number${slope ? ' >= 0' : ''}, got ${layer.alpha}` });
   }
   const wantW = inputWidth * layer.size;
   if (layer.weight.length !== wantW) {
@@ -119,7 +122,15 @@ export const dense: LayerKind<DenseLayer> = {
   outputWidth: (layer) => layer.size,
   tensors: params,
   trainable: params,
+  clone: (layer) => ({ ...layer, weight: layer.weight.slice(), bias: layer.bias.slice() }),
+  // He / Glorot weights from the seeded generator, zero biases; alpha as given.
+  fillEmpty: (layer, inputWidth, rng) => (layer.weight.length === 0 ? { ...initDense(inputWidth, layer.size, layer.activation, rng, layer.alpha), alpha: layer.alpha } : null),
+  describe: (layer) => (isActivationName(layer.activation) && activationKind(layer.activation).usesAlpha ? `${layer.activation} (alpha ${layer.alpha})` : layer.activation),
   validate,
   reference: { forward: (layer, x) => refForward(layer, x), backward: refBackward },
   engine: { upload: engineUpload, forward: (layer, w, x, ctx) => engineForward(layer, w, x, ctx), backward: engineBackward },
+  simd: {
+    inference: (layer) => ({ op: 'dense', weight: layer.weight, bias: layer.bias, size: layer.size, activation: layer.activation, alpha: layer.alpha }),
+    training: (layer) => ({ op: 'dense', layer }),
+  },
 };

@@ -11,6 +11,9 @@ import { as2D } from './engine-util.js';
 import type { LayerKind, Mat64 } from './kind.js';
 import { mat64 } from './mat64.js';
 
+/** The one home of the rate rule: rate 1 would zero everything and make the 1/(1-rate) scale infinite. */
+export const DROPOUT_RATE_RULE = { ok: (v: unknown): v is number => typeof v === 'number' && v >= 0 && v < 1, rule: 'in [0, 1)' } as const;
+
 function refBackward(saved: unknown, dy: Mat64) {
   if (saved === null) return { dx: mat64(dy.rows, dy.cols, Float64Array.from(dy.data)), grads: [] };
   if (!(saved instanceof Float64Array)) throw new Error('dropout backward: saved is not from a dropout reference forward');
@@ -20,8 +23,7 @@ function refBackward(saved: unknown, dy: Mat64) {
 }
 
 function validate(layer: DropoutLayer, _inputWidth: number, where: string): Problem[] {
-  // rate 1 would zero everything and make the 1/(1-rate) scale infinite.
-  return layer.rate >= 0 && layer.rate < 1 ? [] : [{ where, message: `rate must be in [0, 1), got ${layer.rate}` }];
+  return DROPOUT_RATE_RULE.ok(layer.rate) ? [] : [{ where, message: `rate must be ${DROPOUT_RATE_RULE.rule}, got ${layer.rate}` }];
 }
 
 /** The dropout layer kind. */
@@ -30,6 +32,9 @@ export const dropout: LayerKind<DropoutLayer> = {
   outputWidth: (_layer, inputWidth) => inputWidth,
   tensors: () => [],
   trainable: () => [],
+  clone: (layer) => ({ ...layer }),
+  fillEmpty: () => null,
+  describe: (layer) => `rate ${layer.rate}`,
   validate,
   reference: {
     forward(layer, x, ctx, index) {
@@ -53,5 +58,9 @@ export const dropout: LayerKind<DropoutLayer> = {
       const mask = saved[0];
       return { dx: mask ? as2D(tf.mul(dy, mask), 'dropout dx') : tf.clone(dy), grads: [] };
     },
+  },
+  simd: {
+    inference: () => ({ op: 'identity' }),
+    training: (layer) => ({ op: 'mask', rate: layer.rate }),
   },
 };

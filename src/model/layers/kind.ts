@@ -8,7 +8,8 @@
  */
 import type * as tf from '@tensorflow/tfjs-core';
 import type { Problem } from '../../errors.js';
-import type { Layer, ParamRef } from '../types.js';
+import type { SeededRng } from '../rng.js';
+import type { ActivationName, Layer, ParamRef } from '../types.js';
 
 /** A rows x cols float64 matrix, row-major. */
 export interface Mat64 {
@@ -87,6 +88,30 @@ export interface EngineBackward {
   readonly grads: tf.Tensor[];
 }
 
+/**
+ * How the fast engine (our own float32 WebAssembly kernel) runs a layer at inference, in the
+ * few operations it has: a dense product (bias and activation included), a per-feature affine
+ * map y = scale ⊙ x + shift (float64 here, rounded to float32 once), or nothing.
+ */
+export type SimdInference =
+  | { readonly op: 'dense'; readonly weight: Float32Array; readonly bias: Float32Array; readonly size: number; readonly activation: ActivationName; readonly alpha: number }
+  | { readonly op: 'affine'; readonly scale: Float64Array; readonly shift: Float64Array }
+  | { readonly op: 'identity' };
+
+/**
+ * How the fast engine trains a layer: a dense product whose weight and bias it reads from
+ * `layer` (the optimiser changes them in place), or a dropout mask drawn from the context.
+ */
+export type SimdTraining =
+  | { readonly op: 'dense'; readonly layer: { readonly size: number; readonly activation: ActivationName; readonly alpha: number; readonly weight: Float32Array; readonly bias: Float32Array } }
+  | { readonly op: 'mask'; readonly rate: number };
+
+/** A layer kind's part in the fast engine; a null half means that engine refuses it, naming why. */
+export interface SimdPart<L extends Layer> {
+  readonly inference: ((layer: L) => SimdInference) | { readonly refused: string };
+  readonly training: ((layer: L) => SimdTraining) | { readonly refused: string };
+}
+
 export interface LayerKind<L extends Layer = Layer> {
   readonly kind: L['kind'];
   /** Width of the output for a given input width. */
@@ -95,6 +120,15 @@ export interface LayerKind<L extends Layer = Layer> {
   tensors(layer: L, inputWidth: number, index: number): ParamRef[];
   /** Tensors updated by gradient descent, in a fixed order; gradients come back in this order. */
   trainable(layer: L, inputWidth: number, index: number): ParamRef[];
+  /** A deep copy that shares no array with `layer`. */
+  clone(layer: L): L;
+  /**
+   * Starting values for a layer stored without them (a spec for a first tune), or null when it
+   * has its values already (or needs none).
+   */
+  fillEmpty(layer: L, inputWidth: number, rng: SeededRng): L | null;
+  /** Its attributes in a few words, for `tendon about` (e.g. "relu", "rate 0.2"). */
+  describe(layer: L): string;
   /** Problems with attributes and tensor sizes; `where` is e.g. "layers[2] (dense)". */
   validate(layer: L, inputWidth: number, where: string): Problem[];
 
@@ -109,4 +143,7 @@ export interface LayerKind<L extends Layer = Layer> {
     forward(layer: L, weights: tf.Tensor[], x: tf.Tensor2D, ctx: ForwardContext, index: number): EngineForward;
     backward(layer: L, weights: tf.Tensor[], saved: tf.Tensor[], dy: tf.Tensor2D, opts?: BackwardOptions): EngineBackward;
   };
+
+  /** Its part in the fast engine, or why that engine refuses it (at open, naming the layer). */
+  readonly simd: SimdPart<L>;
 }
