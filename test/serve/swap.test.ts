@@ -1,4 +1,6 @@
-import { mkdtempSync, rmSync, writeFileSync } from 'node:fs';
+import { execFileSync } from 'node:child_process';
+import { mkdtempSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
+import { writeFile } from 'node:fs/promises';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { afterAll, describe, expect, it } from 'vitest';
@@ -178,13 +180,22 @@ describe('load shedding and shutdown', () => {
 
   it('an embedded handler under a prefix answers only there; not ready before loading, 503 after close', async () => {
     const { path, a } = await twoModels('prefix');
-    const handler = createRequestHandler({ model: path, prefix: '/ml/', log: () => undefined });
+    // The model is read from a named pipe, so it stays "loading" until the test writes the bytes.
+    const pipe = join(dir, 'prefix-pipe.tendon');
+    execFileSync('mkfifo', [pipe]);
+    const handler = createRequestHandler({ model: pipe, prefix: '/ml/', log: () => undefined });
     const { createServer } = await import('node:http');
     const server = createServer((req, res) => (req.url?.startsWith('/ml/') ? handler(req, res) : res.end('own route')));
     await new Promise<void>((r) => server.listen(0, '127.0.0.1', r));
     const port = (server.address() as { port: number }).port;
-    const early = await call(`http://127.0.0.1:${port}/ml/v1/ready`);
-    expect([200, 503]).toContain(early.status);
+    let early: Awaited<ReturnType<typeof call>>;
+    try {
+      early = await call(`http://127.0.0.1:${port}/ml/v1/ready`);
+    } finally {
+      await writeFile(pipe, readFileSync(path));
+    }
+    expect(early.status).toBe(503);
+    expect(early.json).toEqual({ ready: false, reason: 'the model is still loading' });
     await handler.ready;
     expect((await call(`http://127.0.0.1:${port}/ml/v1/ready`)).status).toBe(200);
     const scored = await postJson(`http://127.0.0.1:${port}/ml/v1/score`, { rows: [LOAF] });
