@@ -53,6 +53,7 @@ describe('the fast training path (src/train/tune.ts on src/engine/fast/fast-trai
     expect(fallback?.hint).toMatch(/dense and dropout/);
     // It did train: the batch loss fell and the running statistics moved.
     expect(res.history).toHaveLength(2);
+    expect(res.history[1].batchLoss).toBeLessThan(res.history[0].batchLoss);
     const bn = res.doc.layers[1];
     expect(bn.kind === 'batchnorm' && [...bn.runningMean].some((m) => Math.abs(m) > 1e-3)).toBe(true);
     // Without an explicit ask, the engine is chosen quietly.
