@@ -16,7 +16,7 @@ import { ModelFileError } from '../../src/errors.js';
 import { decodeModel, encodeModel } from '../../src/format/codec.js';
 import { checksumOf, writeModelFile } from '../../src/format/file.js';
 import type { ModelDoc } from '../../src/model/types.js';
-import { randomFloat32, seededRandom } from '../format/helpers.js';
+import { randomFloat32, seededRandom } from '../fixtures/models.js';
 
 const ROOT = join(import.meta.dirname, '..', '..');
 const CLI = join(ROOT, 'dist', 'cli.js');

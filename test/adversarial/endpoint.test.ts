@@ -15,7 +15,7 @@ import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { startServer, type RunningServer } from '../../src/serve/http.js';
-import { seededRandom } from '../format/helpers.js';
+import { seededRandom } from '../fixtures/models.js';
 import { runCli } from '../cli/run-cli.js';
 
 const HEADERS_TIMEOUT_MS = 1000;

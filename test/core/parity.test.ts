@@ -3,7 +3,7 @@ import { assertParity, compareMatrices, parityReport, randomInputs, withinTolera
 import { EngineSession } from '../../src/engine/index.js';
 import { ParityError } from '../../src/errors.js';
 import { ACTIVATIONS, SeededRng, type ActivationName, type Layer, type ModelDoc, type Normalisation } from '../../src/model/index.js';
-import { docOf, dropoutOf, minmaxOf, randomBatchNorm, randomDense, zscoreOf } from './helpers.js';
+import { docOf, dropoutOf, minmaxOf, randomBatchNorm, randomDense, zscoreOf } from '../fixtures/models.js';
 
 /** A seeded model with the given widths; batchnorm and dropout mixed in between dense layers. */
 function randomModel(widths: number[], activation: ActivationName, norm: 'zscore' | 'minmax' | null, seed: number): ModelDoc {

@@ -6,7 +6,7 @@ import { liveTensorCount } from '../../src/engine/index.js';
 import { writeModelFile } from '../../src/format/index.js';
 import { startServer, type RunningServer } from '../../src/serve/http.js';
 import { openModel, type TendonModel } from '../../src/tendon.js';
-import { BAKERY_FEATURES, BAKERY_LABELS, bakeryDoc } from '../transform/models.js';
+import { BAKERY_FEATURES, BAKERY_LABELS, bakeryDoc } from '../fixtures/models.js';
 import { call, parseExposition, postJson, rawRequest } from './helpers.js';
 
 const dir = mkdtempSync(join(tmpdir(), 'tendon-http-'));

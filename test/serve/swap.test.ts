@@ -9,7 +9,7 @@ import { SeededRng } from '../../src/model/index.js';
 import { createRequestHandler, startServer, type ModelBatchRunner } from '../../src/serve/http.js';
 import { ModelSlot } from '../../src/serve/swap.js';
 import { openModel, type TendonModel } from '../../src/tendon.js';
-import { bakeryDoc, dense, docOf } from '../transform/models.js';
+import { bakeryDoc, docOf, randomDense } from '../fixtures/models.js';
 import { call, postJson, sleep } from './helpers.js';
 
 const dir = mkdtempSync(join(tmpdir(), 'tendon-swap-'));
@@ -105,7 +105,7 @@ describe('hot swap', () => {
     expect(still.status).toBe(200);
     expect(still.json.model).toBe(a.checksum);
     const rng = new SeededRng(1);
-    await writeModelFile(path, docOf(5, [dense(rng, 5, 3, 'softmax')]));
+    await writeModelFile(path, docOf(5, [randomDense(rng, 5, 3, 'softmax')]));
     const widths = await running.handler.reload();
     expect(widths).toMatchObject({ swapped: false });
     expect(logs[1]).toMatch(/it takes 5 inputs and gives 3 outputs; the model being served takes 7 and gives 3/);
