@@ -2,11 +2,12 @@ import { writeFile } from 'node:fs/promises';
 import { UsageError } from '../../errors.js';
 import { readModelFile, writeModelFile } from '../../format/index.js';
 import { renderReport } from '../../train/report.js';
-import { tune as tuneModel, type EpochRecord, type TuneRunOptions } from '../../train/tune.js';
+import { tune as tuneModel, type EpochRecord, type TuneResult, type TuneRunOptions } from '../../train/tune.js';
 import { ensureEngine, useEngine } from '../../engine/index.js';
 import { buildModelFromSpecFile } from './pack.js';
 import { noExtraPositionals, parseArgs, requireFlag, requirePositional } from '../args.js';
-import type { Command } from '../command.js';
+import type { Command, Io } from '../command.js';
+import type { ModelDoc } from '../../model/index.js';
 import { grouped, percent, sci } from '../format.js';
 import { progressLine } from '../progress.js';
 import { loadTrainingData } from '../training-data.js';
@@ -112,38 +113,9 @@ export const tune: Command = {
     });
     bar.clear();
 
-    for (const d of result.diagnostics) {
-      const where = d.layer !== undefined ? ` (layer ${d.layer})` : '';
-      const text = `warning${where}: ${d.message}${d.hint ? ` — hint: ${d.hint}` : ''}`;
-      if (log === 'jsonl') io.out(JSON.stringify({ warning: d.code, layer: d.layer ?? null, epoch: d.epoch ?? null, message: d.message, hint: d.hint }) + '\n');
-      else io.err(text + '\n');
-    }
-    if (f.report) {
-      await writeFile(
-        f.report,
-        renderReport(
-          `tendon tune ${modelPath}`,
-          result.history.map((e) => ({
-            epoch: e.epoch,
-            trainLoss: e.train.loss,
-            holdoutLoss: e.holdout?.loss ?? null,
-            trainAccuracy: e.train.accuracy,
-            holdoutAccuracy: e.holdout?.accuracy ?? null,
-            gradientNorms: e.gradientNorms,
-          })),
-        ),
-      );
-    }
-    if (result.aborted) {
-      if (f['keep-interrupted']) {
-        const partial = `${out}.interrupted`;
-        await writeModelFile(partial, result.doc);
-        io.err(`tendon: interrupted; saved the weights after the last complete batch as ${partial}; ${out} not written\n`);
-      } else {
-        io.err(`tendon: interrupted; nothing saved (${out} not written)\n`);
-      }
-      return 1;
-    }
+    printDiagnostics(result.diagnostics, log, io);
+    if (f.report) await writeSvgReport(f.report, modelPath, result.history);
+    if (result.aborted) return saveInterrupted(out, result.doc, f['keep-interrupted'], io);
     const written = await writeModelFile(out, result.doc);
     const seconds = (performance.now() - started) / 1000;
     const ran = result.path === 'fast' ? 'the fast kernel' : result.path === 'engine' ? `the tfjs ${ensureEngine()} engine` : 'the float64 reference';
@@ -194,4 +166,43 @@ function epochJson(e: EpochRecord) {
     updates: e.updates,
     rowsPerSecond: e.rowsPerSecond,
   };
+}
+
+/** Training warnings: on stderr as text, or as JSON lines among the epoch records. */
+function printDiagnostics(diagnostics: TuneResult['diagnostics'], log: 'text' | 'jsonl', io: Io): void {
+  for (const d of diagnostics) {
+    const where = d.layer !== undefined ? ` (layer ${d.layer})` : '';
+    const text = `warning${where}: ${d.message}${d.hint ? ` — hint: ${d.hint}` : ''}`;
+    if (log === 'jsonl') io.out(JSON.stringify({ warning: d.code, layer: d.layer ?? null, epoch: d.epoch ?? null, message: d.message, hint: d.hint }) + '\n');
+    else io.err(text + '\n');
+  }
+}
+
+async function writeSvgReport(path: string, modelPath: string, history: TuneResult['history']): Promise<void> {
+  await writeFile(
+    path,
+    renderReport(
+      `tendon tune ${modelPath}`,
+      history.map((e) => ({
+        epoch: e.epoch,
+        trainLoss: e.train.loss,
+        holdoutLoss: e.holdout?.loss ?? null,
+        trainAccuracy: e.train.accuracy,
+        holdoutAccuracy: e.holdout?.accuracy ?? null,
+        gradientNorms: e.gradientNorms,
+      })),
+    ),
+  );
+}
+
+/** Ctrl-C: OUT is never written; with --keep-interrupted the weights so far go to OUT.interrupted. Exit code 1. */
+async function saveInterrupted(out: string, doc: ModelDoc, keep: boolean, io: Io): Promise<number> {
+  if (keep) {
+    const partial = `${out}.interrupted`;
+    await writeModelFile(partial, doc);
+    io.err(`tendon: interrupted; saved the weights after the last complete batch as ${partial}; ${out} not written\n`);
+  } else {
+    io.err(`tendon: interrupted; nothing saved (${out} not written)\n`);
+  }
+  return 1;
 }
