@@ -63,7 +63,7 @@ describe('typed errors with a hint, one line on the command line', () => {
     expect(printed(new UsageError('--x', 'bad').withHint('try --y')).err).toBe('tendon: --x: bad (hint: try --y)\n');
   });
 
-  it('a usage error from a command points at that command\'s --help', async () => {
+  it("a usage error from a command points at that command's --help", async () => {
     const r = await runCli('about', 'm.tendon', '--colour');
     expect(r.code).toBe(2);
     expect(r.err).toMatch(/^tendon: --colour: unknown option .*\(hint: tendon about --help lists its options\)\n$/);

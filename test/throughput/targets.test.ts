@@ -6,7 +6,22 @@ import { checkTargets, type SuiteResult, type SuiteRow } from '../../src/bench/s
 const MID = 'mnist 784-512-256-10';
 
 function row(fields: Partial<SuiteRow> & Pick<SuiteRow, 'section' | 'rowsPerSec'>): SuiteRow {
-  return { network: MID, engine: 'fast', workers: 0, batch: 256, gflops: 0, p50Ms: 1, p99Ms: 1, rssMiB: 0, tensors: 0, vsPlainTfjs: Number.NaN, vsReference: Number.NaN, vsNumpy: Number.NaN, note: '', ...fields };
+  return {
+    network: MID,
+    engine: 'fast',
+    workers: 0,
+    batch: 256,
+    gflops: 0,
+    p50Ms: 1,
+    p99Ms: 1,
+    rssMiB: 0,
+    tensors: 0,
+    vsPlainTfjs: Number.NaN,
+    vsReference: Number.NaN,
+    vsNumpy: Number.NaN,
+    note: '',
+    ...fields,
+  };
 }
 
 const timing = (rowsPerSec: number, p50Ms: number): Timing => ({ rowsPerSec, p50Ms, p99Ms: p50Ms, calls: 10, totalMs: 1000 });
@@ -19,7 +34,15 @@ function measured(over: { pool2: number; leakGrowth: number; trainRate: number }
     row({ section: 'pool', workers: 2, rowsPerSec: over.pool2 }),
     row({ section: 'train', network: 'train 784-256-10', batch: 64, rowsPerSec: over.trainRate }),
     // The note says "no change" whatever happened: only the number may decide.
-    row({ section: 'leak', network: 'tabular 7-32-3', engine: 'js', batch: 1, rowsPerSec: 1, tensorGrowth: over.leakGrowth, note: 'tensors 5->5, rss 90->90 MiB' }),
+    row({
+      section: 'leak',
+      network: 'tabular 7-32-3',
+      engine: 'js',
+      batch: 1,
+      rowsPerSec: 1,
+      tensorGrowth: over.leakGrowth,
+      note: 'tensors 5->5, rss 90->90 MiB',
+    }),
   ];
   const baselines = [
     { network: MID, batch: 1, plainTfjs: null, reference: null, numpy: timing(10_000, 0.15) },
