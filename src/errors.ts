@@ -7,8 +7,15 @@ export type ExitCode = 1 | 2;
 
 export abstract class TendonError extends Error {
   abstract readonly exitCode: ExitCode;
+  /** What the user can do about it, in a few words; the CLI prints it after the message. Empty when the message says it all. */
+  hint = '';
   override get name(): string {
     return this.constructor.name;
+  }
+  /** The same error with a hint that fits where it was thrown. */
+  withHint(hint: string): this {
+    this.hint = hint;
+    return this;
   }
 }
 
@@ -45,6 +52,7 @@ export class ShapeError extends TendonError {
       `${context ? context + ': ' : ''}${tensor} has shape [${actual.join(', ')}], expected [${expected.join(', ')}]`,
     );
   }
+  override hint = 'tendon about MODEL shows the features the model takes and the values it gives';
 }
 
 /** A bad row, cell or header in a data file. line and column are 1-based; 0 means "not known". */
@@ -80,6 +88,7 @@ export class TuneConfigError extends TendonError {
   ) {
     super(`tune option ${option}: ${detail}`);
   }
+  override hint = 'tendon tune --help lists each option with its default';
 }
 
 /** The engine and the float64 reference disagree beyond the stated tolerance. */
@@ -95,6 +104,7 @@ export class ParityError extends TendonError {
       `parity broken at ${where}: max abs error ${maxAbsError.toExponential(3)}, max rel error ${maxRelError.toExponential(3)} (tolerance abs ${tolerance.abs}, rel ${tolerance.rel})`,
     );
   }
+  override hint = 'compare with --engine js; if that engine holds, the one you chose computes wrongly here: report it with the model file';
 }
 
 /**
@@ -112,6 +122,7 @@ export class DivergenceError extends TendonError {
   ) {
     super(`training diverged at epoch ${epoch}, batch ${batch}: ${detail} (first non-finite gradient in ${layer}); ${outcome}`);
   }
+  override hint = 'lower the learning rate (--lr) or clip the gradient norm (--clip)';
 }
 
 /** A failure while working that the user did not cause directly (worker died twice, queue full...). */
@@ -133,4 +144,17 @@ export class EngineRefusal extends TendonError {
   ) {
     super(`the ${engine} engine cannot run layers[${layerIndex}] (${kind}): ${detail}`);
   }
+  override hint = 'choose another engine with --engine (auto picks one that runs every layer)';
+}
+
+/** The engine asked for by name cannot run in this process (for 'auto' tendon falls back instead). */
+export class EngineUnavailableError extends TendonError {
+  readonly exitCode = 2;
+  constructor(
+    readonly engine: string,
+    readonly reason: string,
+  ) {
+    super(`the ${engine} engine cannot run here: ${reason}`);
+  }
+  override hint = "use --engine auto, which falls back to the next engine that runs, or name another (fast, wasm, js)";
 }

@@ -47,6 +47,8 @@ export interface SuiteRow {
   readonly vsReference: number;
   readonly vsNumpy: number;
   readonly note: string;
+  /** Leak rows: tfjs tensors after the calls minus before (what the leak target is judged on). */
+  readonly tensorGrowth?: number;
 }
 
 export interface TargetCheck {
@@ -90,59 +92,113 @@ function rss(): number {
   return process.memoryUsage().rss / 2 ** 20;
 }
 
+/** What every section shares: the settings, the rows and notes collected so far, the models. */
+interface SuiteRun {
+  readonly opts: SuiteOptions;
+  readonly quick: boolean;
+  readonly batches: readonly number[];
+  readonly minMs: number;
+  readonly callBudgetMs: number;
+  readonly notes: string[];
+  readonly rows: SuiteRow[];
+  readonly baselines: SuiteResult['baselines'];
+  readonly docs: ReadonlyMap<string, ModelDoc>;
+  readonly numpy: NumpyResult;
+}
+
+type RowFields = Omit<SuiteRow, 'rssMiB' | 'tensors' | 'vsPlainTfjs' | 'vsReference' | 'vsNumpy'>;
+
 /** Run the whole suite; returns every row, the baselines, the target checks and notes. */
 export async function runBenchSuite(opts: SuiteOptions): Promise<SuiteResult> {
   const quick = opts.quick;
   const batches = quick ? [1, 256, 4096] : [1, 16, 256, 1024, 4096];
   const minMs = quick ? 300 : 800;
-  const callBudgetMs = quick ? 1500 : 4000;
   const notes: string[] = [];
-  const rows: SuiteRow[] = [];
-  const log = opts.log;
-
   // numpy first, alone, so its threads do not compete with ours.
-  log('numpy + OpenBLAS baseline...');
-  const numpy: NumpyResult = runNumpyBaseline(
+  opts.log('numpy + OpenBLAS baseline...');
+  const numpy = runNumpyBaseline(
     opts.numpyScript,
     NETWORKS.map((n) => ({ widths: n.widths, batches })),
     minMs,
   );
   if (!numpy.available) notes.push(numpy.note);
-
   const docs = new Map(NETWORKS.map((n) => [n.name, denseStackDoc(n.widths, 7, 'relu', n.last)]));
-  const baselines: SuiteResult['baselines'] = [];
-  const baselineOf = (network: string, batch: number) => baselines.find((b) => b.network === network && b.batch === batch);
+  const run: SuiteRun = { opts, quick, batches, minMs, callBudgetMs: quick ? 1500 : 4000, notes, rows: [], baselines: [], docs, numpy };
 
-  /** Time fn unless one call is predicted to exceed the budget; null when skipped. */
-  const budgeted = async (label: string, predictedRowsPerSec: number | null, batch: number, fn: () => unknown): Promise<Timing | null> => {
-    if (predictedRowsPerSec !== null && (batch / predictedRowsPerSec) * 1000 > callBudgetMs) {
-      notes.push(`${label} at batch ${batch} skipped: one call predicted at ${fmt((batch / predictedRowsPerSec) * 1000, 0)} ms, over the ${callBudgetMs} ms budget`);
-      return null;
-    }
-    return timeCalls(fn, batch, { minMs, minCalls: 2, warmupCalls: 1 });
+  await measureBaselines(run);
+  const engines = await availableEngines(notes);
+  await measureEngines(run, engines);
+  const best = fastestEngine(run.rows, engines);
+  notes.push(`targets judged on the ${best} engine (fastest at ${MID.name}, batch 256)`);
+  await measurePool(run, engines, best);
+  await measureBatcher(run, best);
+  await measureTraining(run, engines);
+  await measureLeaks(run, engines);
+
+  const fallback = engineFallbackReason();
+  if (fallback) notes.push(fallback);
+  const machine: Machine = {
+    cpu: cpus()[0]?.model.trim() ?? 'unknown',
+    cores: availableParallelism(),
+    node: process.version,
+    numpy: numpy.available ? `numpy ${numpy.version} (${numpy.blas})` : 'numpy not available',
   };
+  return { rows: run.rows, baselines: run.baselines, targets: checkTargets(run.rows, run.baselines, best), notes, machine };
+}
 
-  // Baselines on the JS backend (plain tfjs ops, float64 reference), then our engines.
+/** Time fn unless one call is predicted to exceed the budget; null (and a note) when skipped. */
+async function budgeted(run: SuiteRun, label: string, predictedRowsPerSec: number | null, batch: number, fn: () => unknown): Promise<Timing | null> {
+  if (predictedRowsPerSec !== null && (batch / predictedRowsPerSec) * 1000 > run.callBudgetMs) {
+    run.notes.push(`${label} at batch ${batch} skipped: one call predicted at ${fmt((batch / predictedRowsPerSec) * 1000, 0)} ms, over the ${run.callBudgetMs} ms budget`);
+    return null;
+  }
+  return timeCalls(fn, batch, { minMs: run.minMs, minCalls: 2, warmupCalls: 1 });
+}
+
+/** Add a row, with the memory figures now and its ratios to the baselines of the same network and batch. */
+function addRow(run: SuiteRun, r: RowFields): void {
+  const b = run.baselines.find((x) => x.network === r.network && x.batch === r.batch);
+  run.rows.push({
+    ...r,
+    rssMiB: rss(),
+    tensors: tf.memory().numTensors,
+    vsPlainTfjs: b?.plainTfjs ? r.rowsPerSec / b.plainTfjs.rowsPerSec : Number.NaN,
+    vsReference: b?.reference ? r.rowsPerSec / b.reference.rowsPerSec : Number.NaN,
+    vsNumpy: b?.numpy ? r.rowsPerSec / b.numpy.rowsPerSec : Number.NaN,
+  });
+}
+
+function docOf(run: SuiteRun, network: string): ModelDoc {
+  const doc = run.docs.get(network);
+  if (!doc) throw new Error(`bench suite: no model for ${network}`);
+  return doc;
+}
+
+/** Plain tfjs ops and the float64 reference, on the JS backend; numpy's timings were taken first. */
+async function measureBaselines(run: SuiteRun): Promise<void> {
   await useEngine('js');
   for (const net of NETWORKS) {
-    const doc = docs.get(net.name)!;
+    const doc = docOf(run, net.name);
     const plain = plainTfjsForward(doc);
     const ref = referenceRunner(doc);
     let plainRate: number | null = null;
     let refRate: number | null = null;
-    for (const batch of batches) {
-      log(`baselines ${net.name} batch ${batch}`);
+    for (const batch of run.batches) {
+      run.opts.log(`baselines ${net.name} batch ${batch}`);
       const x = seededRows(batch, net.widths[0], batch);
-      const p = await budgeted(`plain tfjs ops (${net.name})`, plainRate, batch, () => plain.run(x, batch));
-      const r = await budgeted(`float64 reference (${net.name})`, refRate, batch, () => ref(x, batch));
+      const p = await budgeted(run, `plain tfjs ops (${net.name})`, plainRate, batch, () => plain.run(x, batch));
+      const r = await budgeted(run, `float64 reference (${net.name})`, refRate, batch, () => ref(x, batch));
       plainRate = p?.rowsPerSec ?? plainRate;
       refRate = r?.rowsPerSec ?? refRate;
-      const np = numpy.available ? numpy.timings.get(numpyKey(net.widths, batch)) ?? null : null;
-      baselines.push({ network: net.name, batch, plainTfjs: p, reference: r, numpy: np });
+      const np = run.numpy.available ? (run.numpy.timings.get(numpyKey(net.widths, batch)) ?? null) : null;
+      run.baselines.push({ network: net.name, batch, plainTfjs: p, reference: r, numpy: np });
     }
     plain.dispose();
   }
+}
 
+/** js always; wasm and fast when this runtime can start them (a note says why not). */
+async function availableEngines(notes: string[]): Promise<SuiteEngine[]> {
   const engines: SuiteEngine[] = ['js'];
   try {
     await useEngine('wasm');
@@ -152,67 +208,67 @@ export async function runBenchSuite(opts: SuiteOptions): Promise<SuiteResult> {
   }
   if (wasmSimdAvailable()) engines.push('fast');
   else notes.push('fast engine (own WebAssembly SIMD kernel) unavailable: this runtime has no WebAssembly SIMD');
+  return engines;
+}
 
-  const row = (r: Omit<SuiteRow, 'rssMiB' | 'tensors' | 'vsPlainTfjs' | 'vsReference' | 'vsNumpy'>, network: string, batch: number): SuiteRow => {
-    const b = baselineOf(network, batch);
-    return {
-      ...r,
-      rssMiB: rss(),
-      tensors: tf.memory().numTensors,
-      vsPlainTfjs: b?.plainTfjs ? r.rowsPerSec / b.plainTfjs.rowsPerSec : Number.NaN,
-      vsReference: b?.reference ? r.rowsPerSec / b.reference.rowsPerSec : Number.NaN,
-      vsNumpy: b?.numpy ? r.rowsPerSec / b.numpy.rowsPerSec : Number.NaN,
-    };
-  };
-
+/** Every engine on every network and batch size, in-process. */
+async function measureEngines(run: SuiteRun, engines: readonly SuiteEngine[]): Promise<void> {
   for (const engine of engines) {
     for (const net of NETWORKS) {
-      const session = await openSuiteRunner(engine, docs.get(net.name)!);
+      const session = await openSuiteRunner(engine, docOf(run, net.name));
       let rate: number | null = null;
-      for (const batch of batches) {
-        log(`engine ${engine} ${net.name} batch ${batch}`);
+      for (const batch of run.batches) {
+        run.opts.log(`engine ${engine} ${net.name} batch ${batch}`);
         const x = seededRows(batch, net.widths[0], batch);
-        const t = await budgeted(`engine ${engine} (${net.name})`, rate, batch, () => session.run(x, batch));
+        const t = await budgeted(run, `engine ${engine} (${net.name})`, rate, batch, () => session.run(x, batch));
         if (!t) continue;
         rate = t.rowsPerSec;
-        rows.push(row({ section: 'engine', network: net.name, engine, workers: 0, batch, rowsPerSec: t.rowsPerSec, gflops: gflops(net.widths, t.rowsPerSec), p50Ms: t.p50Ms, p99Ms: t.p99Ms, note: 'in-process session' }, net.name, batch));
+        const { rowsPerSec, p50Ms, p99Ms } = t;
+        addRow(run, { section: 'engine', network: net.name, engine, workers: 0, batch, rowsPerSec, gflops: gflops(net.widths, rowsPerSec), p50Ms, p99Ms, note: 'in-process session' });
       }
       session.dispose();
     }
   }
-  // The engine the targets are judged on: the fastest at 784-512-256-10, batch 256.
-  const at256 = (e: SuiteEngine) => rows.find((r) => r.section === 'engine' && r.engine === e && r.network === MID.name && r.batch === 256)?.rowsPerSec ?? 0;
-  const best: SuiteEngine = engines.reduce((a, b) => (at256(b) > at256(a) ? b : a));
-  notes.push(`targets judged on the ${best} engine (fastest at ${MID.name}, batch 256)`);
+}
 
-  // Worker pool on the middle network.
-  const poolBatches = quick ? [256] : [256, 4096];
-  const poolEngines: SuiteEngine[] = quick ? [best] : engines;
+/** The engine the targets are judged on: the fastest at the middle network, batch 256. */
+function fastestEngine(rows: readonly SuiteRow[], engines: readonly SuiteEngine[]): SuiteEngine {
+  const at256 = (e: SuiteEngine) => rows.find((r) => r.section === 'engine' && r.engine === e && r.network === MID.name && r.batch === 256)?.rowsPerSec ?? 0;
+  return engines.reduce((a, b) => (at256(b) > at256(a) ? b : a));
+}
+
+/** The worker pool on the middle network, 1 and 2 workers. */
+async function measurePool(run: SuiteRun, engines: readonly SuiteEngine[], best: SuiteEngine): Promise<void> {
+  const poolBatches = run.quick ? [256] : [256, 4096];
+  const poolEngines: readonly SuiteEngine[] = run.quick ? [best] : engines;
   for (const engine of poolEngines) {
     for (const workers of [1, 2]) {
-      log(`pool ${engine} x${workers}`);
-      const pool = await WorkerPool.open(docs.get(MID.name)!, { size: workers, engine, workerScript: opts.workerScript, minShareRows: 16 });
+      run.opts.log(`pool ${engine} x${workers}`);
+      const pool = await WorkerPool.open(docOf(run, MID.name), { size: workers, engine, workerScript: run.opts.workerScript, minShareRows: 16 });
       let rate: number | null = null;
       for (const batch of poolBatches) {
         const x = seededRows(batch, MID.widths[0], batch);
-        const t = await budgeted(`pool ${engine} x${workers}`, rate, batch, () => pool.run(x, batch));
+        const t = await budgeted(run, `pool ${engine} x${workers}`, rate, batch, () => pool.run(x, batch));
         if (!t) continue;
         rate = t.rowsPerSec;
-        rows.push(row({ section: 'pool', network: MID.name, engine, workers, batch, rowsPerSec: t.rowsPerSec, gflops: gflops(MID.widths, t.rowsPerSec), p50Ms: t.p50Ms, p99Ms: t.p99Ms, note: 'worker threads' }, MID.name, batch));
+        const { rowsPerSec, p50Ms, p99Ms } = t;
+        addRow(run, { section: 'pool', network: MID.name, engine, workers, batch, rowsPerSec, gflops: gflops(MID.widths, rowsPerSec), p50Ms, p99Ms, note: 'worker threads' });
       }
       await pool.close();
     }
   }
+}
 
-  // The micro-batcher: concurrent single-row callers, in-process session on the best engine.
+/** The micro-batcher: concurrent single-row callers, in-process session on the best engine. */
+async function measureBatcher(run: SuiteRun, best: SuiteEngine): Promise<void> {
   for (const net of [NETWORKS[0], MID]) {
-    const session = await openSuiteRunner(best, docs.get(net.name)!);
+    const session = await openSuiteRunner(best, docOf(run, net.name));
     const callers = 64;
-    log(`micro-batcher ${net.name}, ${callers} callers`);
+    run.opts.log(`micro-batcher ${net.name}, ${callers} callers`);
     const batcher = new MicroBatcher((x, n) => session.run(x, n), { width: net.widths[0], maxBatchRows: 64, maxWaitMs: 1, maxQueueRows: 4096 });
     const one = seededRows(1, net.widths[0], 3);
     const latencies: number[] = [];
-    const until = performance.now() + minMs * 2;
+    const until = performance.now() + run.minMs * 2;
     const started = performance.now();
     await Promise.all(
       Array.from({ length: callers }, async () => {
@@ -228,113 +284,193 @@ export async function runBenchSuite(opts: SuiteOptions): Promise<SuiteResult> {
     session.dispose();
     latencies.sort((a, b) => a - b);
     const rps = latencies.length / seconds;
-    rows.push(row({ section: 'batcher', network: net.name, engine: best, workers: 0, batch: 1, rowsPerSec: rps, gflops: gflops(net.widths, rps), p50Ms: percentile(latencies, 0.5), p99Ms: percentile(latencies, 0.99), note: `${callers} concurrent single-row callers, max batch 64, max wait 1 ms` }, net.name, 1));
+    const note = `${callers} concurrent single-row callers, max batch 64, max wait 1 ms`;
+    addRow(run, { section: 'batcher', network: net.name, engine: best, workers: 0, batch: 1, rowsPerSec: rps, gflops: gflops(net.widths, rps), p50Ms: percentile(latencies, 0.5), p99Ms: percentile(latencies, 0.99), note });
   }
+}
 
-  // Training: 784-256-10 at batch 64, one epoch, on each tfjs engine (the fast kernel is inference only).
-  const trainWidths = [784, 256, 10];
+const TRAIN_WIDTHS = [784, 256, 10];
+const TRAIN_NETWORK = 'train 784-256-10';
+
+/** Training 784-256-10 at batch 64: one epoch on each tfjs engine, then tune's fast path with SGD and Adam. */
+async function measureTraining(run: SuiteRun, engines: readonly SuiteEngine[]): Promise<void> {
+  // A training step is about 3x the forward multiply-adds (forward, input gradient, weight gradient).
+  const trainRow = (engine: string, rps: number, note: string) =>
+    addRow(run, { section: 'train', network: TRAIN_NETWORK, engine, workers: 0, batch: 64, rowsPerSec: rps, gflops: 3 * gflops(TRAIN_WIDTHS, rps), p50Ms: Number.NaN, p99Ms: Number.NaN, note });
   for (const engine of engines.filter((e): e is EngineName => e !== 'fast')) {
     await useEngine(engine);
-    const n = engine === 'js' ? (quick ? 256 : 1024) : quick ? 1024 : 4096;
-    log(`training ${engine} ${n} rows`);
-    const doc: ModelDoc = denseStackDoc(trainWidths, 3, 'relu', 'softmax');
+    const n = engine === 'js' ? (run.quick ? 256 : 1024) : run.quick ? 1024 : 4096;
+    run.opts.log(`training ${engine} ${n} rows`);
+    const doc: ModelDoc = denseStackDoc(TRAIN_WIDTHS, 3, 'relu', 'softmax');
     const x = seededRows(n, 784, 4);
     const y = Int32Array.from({ length: n }, (_, i) => i % 10);
     const result = await tune(doc, { x, rows: n, y }, { epochs: 1, batch: 64, lr: 0.01, optimizer: 'sgd', seed: 1, path: 'engine' });
-    const rps = result.history[0]?.rowsPerSecond ?? Number.NaN;
-    // A training step is about 3x the forward multiply-adds (forward, input gradient, weight gradient).
-    rows.push(row({ section: 'train', network: 'train 784-256-10', engine, workers: 0, batch: 64, rowsPerSec: rps, gflops: 3 * gflops(trainWidths, rps), p50Ms: Number.NaN, p99Ms: Number.NaN, note: `one epoch of ${n} rows, sgd, steps only` }, 'train 784-256-10', 64));
+    trainRow(engine, result.history[0]?.rowsPerSecond ?? Number.NaN, `one epoch of ${n} rows, sgd, steps only`);
   }
-
-  if (engines.includes('fast')) {
-    // The same epoch through tune on the fast path (SimdTrainer), plain SGD and Adam.
-    const n = quick ? 2048 : 8192;
-    const x = seededRows(n, 784, 4);
-    const y = Int32Array.from({ length: n }, (_, i) => i % 10);
-    for (const optimizer of ['sgd', 'adam'] as const) {
-      log(`training fast ${n} rows, ${optimizer}`);
-      const doc = denseStackDoc(trainWidths, 3, 'relu', 'softmax');
-      const result = await tune(doc, { x, rows: n, y }, { epochs: 2, batch: 64, lr: 0.01, optimizer, seed: 1, path: 'fast' });
-      // The second epoch: the kernel is compiled and warm.
-      const rps = result.history[1]?.rowsPerSecond ?? Number.NaN;
-      rows.push(row({ section: 'train', network: 'train 784-256-10', engine: 'fast', workers: 0, batch: 64, rowsPerSec: rps, gflops: 3 * gflops(trainWidths, rps), p50Ms: Number.NaN, p99Ms: Number.NaN, note: `second epoch of ${n} rows through tune, ${optimizer}, steps only` }, 'train 784-256-10', 64));
-    }
+  if (!engines.includes('fast')) return;
+  // The same epoch through tune on the fast path (SimdTrainer), plain SGD and Adam.
+  const n = run.quick ? 2048 : 8192;
+  const x = seededRows(n, 784, 4);
+  const y = Int32Array.from({ length: n }, (_, i) => i % 10);
+  for (const optimizer of ['sgd', 'adam'] as const) {
+    run.opts.log(`training fast ${n} rows, ${optimizer}`);
+    const doc = denseStackDoc(TRAIN_WIDTHS, 3, 'relu', 'softmax');
+    const result = await tune(doc, { x, rows: n, y }, { epochs: 2, batch: 64, lr: 0.01, optimizer, seed: 1, path: 'fast' });
+    // The second epoch: the kernel is compiled and warm.
+    trainRow('fast', result.history[1]?.rowsPerSecond ?? Number.NaN, `second epoch of ${n} rows through tune, ${optimizer}, steps only`);
   }
+}
 
-  // Leak check: many small calls must leave the tensor count unchanged and rss flat.
+/** Leak check: many small calls must leave the tfjs tensor count unchanged and rss flat (tfjs engines only). */
+async function measureLeaks(run: SuiteRun, engines: readonly SuiteEngine[]): Promise<void> {
   for (const engine of engines.filter((e): e is EngineName => e !== 'fast')) {
-    // The leak check is about tfjs tensors, so it runs on the tfjs engines.
     await useEngine(engine);
-    const calls = quick ? 10_000 : 100_000;
+    const calls = run.quick ? 10_000 : 100_000;
     const net = NETWORKS[0];
-    const session = openRunner(docs.get(net.name)!, engine);
+    const session = openRunner(docOf(run, net.name), engine);
     const x = seededRows(1, net.widths[0], 8);
     for (let i = 0; i < 1000; i++) session.run(x, 1);
     const tensorsBefore = tf.memory().numTensors;
     const rssBefore = rss();
-    log(`leak check: ${calls} calls`);
+    run.opts.log(`leak check: ${calls} calls`);
     const t0 = performance.now();
     for (let i = 0; i < calls; i++) session.run(x, 1);
     const seconds = (performance.now() - t0) / 1000;
     const tensorsAfter = tf.memory().numTensors;
     const rssAfter = rss();
     session.dispose();
-    notes.push(`leak check (${engine}, ${net.name}, ${calls} calls of run): tensors ${tensorsBefore} -> ${tensorsAfter}, rss ${fmt(rssBefore, 1)} -> ${fmt(rssAfter, 1)} MiB`);
-    rows.push(row({ section: 'leak', network: net.name, engine, workers: 0, batch: 1, rowsPerSec: calls / seconds, gflops: gflops(net.widths, calls / seconds), p50Ms: Number.NaN, p99Ms: Number.NaN, note: `tensors ${tensorsBefore}->${tensorsAfter}, rss ${fmt(rssBefore, 0)}->${fmt(rssAfter, 0)} MiB` }, net.name, 1));
+    run.notes.push(`leak check (${engine}, ${net.name}, ${calls} calls of run): tensors ${tensorsBefore} -> ${tensorsAfter}, rss ${fmt(rssBefore, 1)} -> ${fmt(rssAfter, 1)} MiB`);
+    const note = `tensors ${tensorsBefore}->${tensorsAfter}, rss ${fmt(rssBefore, 0)}->${fmt(rssAfter, 0)} MiB`;
+    const rps = calls / seconds;
+    addRow(run, { section: 'leak', network: net.name, engine, workers: 0, batch: 1, rowsPerSec: rps, gflops: gflops(net.widths, rps), p50Ms: Number.NaN, p99Ms: Number.NaN, tensorGrowth: tensorsAfter - tensorsBefore, note });
   }
-
-  const fallback = engineFallbackReason();
-  if (fallback) notes.push(fallback);
-  const machine: Machine = {
-    cpu: cpus()[0]?.model.trim() ?? 'unknown',
-    cores: availableParallelism(),
-    node: process.version,
-    numpy: numpy.available ? `numpy ${numpy.version} (${numpy.blas})` : 'numpy not available',
-  };
-  return { rows, baselines, targets: checkTargets(rows, baselines, best), notes, machine };
 }
 
-function checkTargets(rows: readonly SuiteRow[], baselines: SuiteResult['baselines'], best: SuiteEngine): TargetCheck[] {
-  const engineRows = (batch: number) => rows.filter((r) => r.section === 'engine' && r.network === MID.name && r.batch === batch);
-  const mid256 = engineRows(256).reduce<SuiteRow | undefined>((a, r) => (!a || r.rowsPerSec > a.rowsPerSec ? r : a), undefined);
-  const mid1 = engineRows(1).reduce<SuiteRow | undefined>((a, r) => (!a || r.p50Ms < a.p50Ms ? r : a), undefined);
-  const base1 = baselines.find((b) => b.network === MID.name && b.batch === 1);
-  const numpy256 = baselines.find((b) => b.network === MID.name && b.batch === 256)?.numpy;
-  const poolAt = (workers: number) => rows.find((r) => r.section === 'pool' && r.engine === best && r.workers === workers && r.batch === 256);
-  const pool1 = poolAt(1);
-  const pool2 = poolAt(2);
-  const trainBest = rows.filter((r) => r.section === 'train').reduce<SuiteRow | undefined>((a, r) => (!a || r.rowsPerSec > a.rowsPerSec ? r : a), undefined);
-  const leaks = rows.filter((r) => r.section === 'leak');
-  const out: TargetCheck[] = [];
-  const check = (target: string, value: number | undefined, goal: number, reached: string): TargetCheck => ({
-    target,
-    reached,
-    met: value === undefined || Number.isNaN(value) ? null : value >= goal,
-  });
-  out.push(check(`${MID.name} batch 256, one thread, >= 50% of numpy rows/s`, mid256?.vsNumpy, 0.5, mid256 ? `${mid256.engine}: ${fmt(mid256.rowsPerSec, 0)} rows/s = ${fmt(100 * mid256.vsNumpy, 1)}% of numpy` : 'not measured'));
-  if (numpy256 && pool2) {
-    out.push(check(`${MID.name} batch 256, ${best} on 2 workers, >= 50% of numpy`, pool2.rowsPerSec / numpy256.rowsPerSec, 0.5, `${fmt(pool2.rowsPerSec, 0)} rows/s = ${fmt((100 * pool2.rowsPerSec) / numpy256.rowsPerSec, 1)}%`));
-  }
-  out.push(check(`${MID.name} batch 256, one thread, >= 60x plain tfjs ops on the JS backend`, mid256?.vsPlainTfjs, 60, mid256 ? `${mid256.engine}: ${fmt(mid256.vsPlainTfjs, 1)}x` : 'not measured'));
-  if (pool2 && mid256 && mid256.vsPlainTfjs > 0) {
+/** The figures the targets are judged on, picked out of the rows once. */
+export interface TargetFigures {
+  readonly best: string;
+  /** The fastest engine row at the middle network, batch 256. */
+  readonly mid256: SuiteRow | undefined;
+  /** The engine row with the lowest single-row p50 at the middle network. */
+  readonly mid1: SuiteRow | undefined;
+  readonly numpy1: Timing | null | undefined;
+  readonly numpy256: Timing | null | undefined;
+  readonly pool1: SuiteRow | undefined;
+  readonly pool2: SuiteRow | undefined;
+  readonly trainBest: SuiteRow | undefined;
+  readonly leaks: readonly SuiteRow[];
+}
+
+/**
+ * One target: a number taken from the figures and the bound it must meet. `value` is undefined
+ * (or NaN) when what it needs was not measured; the target is then reported as not judged.
+ */
+interface TargetSpec {
+  readonly name: (f: TargetFigures) => string;
+  readonly value: (f: TargetFigures) => number | undefined;
+  readonly atLeast?: number;
+  readonly atMost?: number;
+  readonly reached: (f: TargetFigures, value: number) => string;
+  /** What `reached` says when the value is missing; default 'not measured'. */
+  readonly unmeasured?: string;
+  /** Left out of the list (not just unjudged) when false. */
+  readonly applies?: (f: TargetFigures) => boolean;
+}
+
+const plainRate = (r: SuiteRow) => r.rowsPerSec / r.vsPlainTfjs;
+
+/** The speed and hygiene targets, as a table. */
+const TARGETS: readonly TargetSpec[] = [
+  {
+    name: () => `${MID.name} batch 256, one thread, >= 50% of numpy rows/s`,
+    value: (f) => f.mid256?.vsNumpy,
+    atLeast: 0.5,
+    reached: (f, v) => `${f.mid256?.engine}: ${fmt(f.mid256?.rowsPerSec ?? Number.NaN, 0)} rows/s = ${fmt(100 * v, 1)}% of numpy`,
+  },
+  {
+    name: (f) => `${MID.name} batch 256, ${f.best} on 2 workers, >= 50% of numpy`,
+    value: (f) => (f.pool2 && f.numpy256 ? f.pool2.rowsPerSec / f.numpy256.rowsPerSec : undefined),
+    atLeast: 0.5,
+    reached: (f, v) => `${fmt(f.pool2?.rowsPerSec ?? Number.NaN, 0)} rows/s = ${fmt(100 * v, 1)}%`,
+    applies: (f) => Boolean(f.numpy256 && f.pool2),
+  },
+  {
+    name: () => `${MID.name} batch 256, one thread, >= 60x plain tfjs ops on the JS backend`,
+    value: (f) => f.mid256?.vsPlainTfjs,
+    atLeast: 60,
+    reached: (f, v) => `${f.mid256?.engine}: ${fmt(v, 1)}x`,
+  },
+  {
     // The same ratio for the runtime on every core: the pool's rows/s over the plain ops' rows/s.
-    const plain = mid256.rowsPerSec / mid256.vsPlainTfjs;
-    out.push(check(`${MID.name} batch 256, ${best} on 2 workers, >= 60x plain tfjs ops`, pool2.rowsPerSec / plain, 60, `${fmt(pool2.rowsPerSec / plain, 1)}x`));
-  }
-  const np1 = base1?.numpy?.p50Ms;
-  out.push({
-    target: `${MID.name} single-row p50 within 2x of numpy`,
-    reached: mid1 && np1 ? `${mid1.engine}: ${fmt(mid1.p50Ms, 3)} ms vs numpy ${fmt(np1, 3)} ms (${fmt(mid1.p50Ms / np1, 2)}x)` : 'not measured',
-    met: mid1 && np1 ? mid1.p50Ms <= 2 * np1 : null,
+    name: (f) => `${MID.name} batch 256, ${f.best} on 2 workers, >= 60x plain tfjs ops`,
+    value: (f) => (f.pool2 && f.mid256 ? f.pool2.rowsPerSec / plainRate(f.mid256) : undefined),
+    atLeast: 60,
+    reached: (_f, v) => `${fmt(v, 1)}x`,
+    applies: (f) => Boolean(f.pool2 && f.mid256 && f.mid256.vsPlainTfjs > 0),
+  },
+  {
+    name: () => `${MID.name} single-row p50 within 2x of numpy`,
+    value: (f) => (f.mid1 && f.numpy1 ? f.mid1.p50Ms / f.numpy1.p50Ms : undefined),
+    atMost: 2,
+    reached: (f, v) => `${f.mid1?.engine}: ${fmt(f.mid1?.p50Ms ?? Number.NaN, 3)} ms vs numpy ${fmt(f.numpy1?.p50Ms ?? Number.NaN, 3)} ms (${fmt(v, 2)}x)`,
+  },
+  {
+    name: (f) => `two workers >= 1.8x one worker at batch 256 (${f.best})`,
+    value: (f) => (f.pool1 && f.pool2 ? f.pool2.rowsPerSec / f.pool1.rowsPerSec : undefined),
+    atLeast: 1.8,
+    reached: (_f, v) => `${fmt(v, 2)}x`,
+  },
+  {
+    name: () => 'training 784-256-10 at batch 64 >= 10 000 rows/s',
+    value: (f) => f.trainBest?.rowsPerSec,
+    atLeast: 10_000,
+    reached: (f, v) => `${f.trainBest?.engine}: ${fmt(v, 0)} rows/s`,
+  },
+  {
+    name: () => 'no tensor growth over the leak check',
+    value: (f) => (f.leaks.length ? Math.max(...f.leaks.map((l) => l.tensorGrowth ?? Number.NaN)) : undefined),
+    atMost: 0,
+    reached: (f) => f.leaks.map((l) => `${l.engine}: ${l.note}`).join('; '),
+    unmeasured: 'not run',
+  },
+];
+
+function bestBy(rows: readonly SuiteRow[], better: (a: SuiteRow, b: SuiteRow) => boolean): SuiteRow | undefined {
+  return rows.reduce<SuiteRow | undefined>((a, r) => (!a || better(r, a) ? r : a), undefined);
+}
+
+function targetFigures(rows: readonly SuiteRow[], baselines: SuiteResult['baselines'], best: string): TargetFigures {
+  const engineRows = (batch: number) => rows.filter((r) => r.section === 'engine' && r.network === MID.name && r.batch === batch);
+  const poolAt = (workers: number) => rows.find((r) => r.section === 'pool' && r.engine === best && r.workers === workers && r.batch === 256);
+  const baselineAt = (batch: number) => baselines.find((b) => b.network === MID.name && b.batch === batch);
+  return {
+    best,
+    mid256: bestBy(engineRows(256), (r, a) => r.rowsPerSec > a.rowsPerSec),
+    mid1: bestBy(engineRows(1), (r, a) => r.p50Ms < a.p50Ms),
+    numpy1: baselineAt(1)?.numpy,
+    numpy256: baselineAt(256)?.numpy,
+    pool1: poolAt(1),
+    pool2: poolAt(2),
+    trainBest: bestBy(
+      rows.filter((r) => r.section === 'train'),
+      (r, a) => r.rowsPerSec > a.rowsPerSec,
+    ),
+    leaks: rows.filter((r) => r.section === 'leak'),
+  };
+}
+
+/**
+ * Judge the targets on the measured numbers.
+ * @example checkTargets(result.rows, result.baselines, 'fast').filter((t) => t.met === false)
+ */
+export function checkTargets(rows: readonly SuiteRow[], baselines: SuiteResult['baselines'], best: string): TargetCheck[] {
+  const f = targetFigures(rows, baselines, best);
+  return TARGETS.filter((t) => t.applies?.(f) ?? true).map((t) => {
+    const value = t.value(f);
+    const measured = value !== undefined && !Number.isNaN(value);
+    const met = !measured ? null : (t.atLeast === undefined || value >= t.atLeast) && (t.atMost === undefined || value <= t.atMost);
+    return { target: t.name(f), reached: measured ? t.reached(f, value) : (t.unmeasured ?? 'not measured'), met };
   });
-  out.push(check(`two workers >= 1.8x one worker at batch 256 (${best})`, pool1 && pool2 ? pool2.rowsPerSec / pool1.rowsPerSec : undefined, 1.8, pool1 && pool2 ? `${fmt(pool2.rowsPerSec / pool1.rowsPerSec, 2)}x` : 'not measured'));
-  out.push(check('training 784-256-10 at batch 64 >= 10 000 rows/s', trainBest?.rowsPerSec, 10_000, trainBest ? `${trainBest.engine}: ${fmt(trainBest.rowsPerSec, 0)} rows/s` : 'not measured'));
-  out.push({
-    target: 'no tensor growth over the leak check',
-    reached: leaks.map((l) => `${l.engine}: ${l.note}`).join('; ') || 'not run',
-    met: leaks.length ? leaks.every((l) => /tensors (\d+)->\1,/.test(l.note)) : null,
-  });
-  return out;
 }
 
 /** The suite's rows as a text table. */

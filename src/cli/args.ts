@@ -1,7 +1,8 @@
 /**
- * A small argument parser: each command declares its flags, and anything undeclared,
- * missing or malformed becomes a UsageError naming the flag.
+ * The argument layer over Node's `util.parseArgs`: each command declares typed flags, and
+ * anything undeclared, missing or malformed becomes a UsageError naming the flag.
  */
+import { parseArgs as nodeParseArgs } from 'node:util';
 import { UsageError } from '../errors.js';
 
 export type FlagKind = 'string' | 'number' | 'integer' | 'boolean';
@@ -30,7 +31,9 @@ export interface Parsed<S extends FlagSpecs> {
 }
 
 /**
- * Parse `argv` (without the command word) against `specs`.
+ * Parse `argv` (without the command word) against `specs`. Node's own `util.parseArgs` splits
+ * the words into options and positionals; this layer gives each flag its declared type and
+ * turns anything undeclared, missing or malformed into a UsageError naming the flag.
  * @example parseArgs(['m.tdn', '--batch', '64'], { batch: { kind: 'integer', help: '' } })
  * @throws UsageError for an unknown flag, a missing value or a value of the wrong kind.
  */
@@ -39,47 +42,52 @@ export function parseArgs<S extends FlagSpecs>(argv: readonly string[], specs: S
   for (const [name, spec] of Object.entries(specs)) {
     values[name] = spec.default ?? (spec.kind === 'boolean' ? false : undefined);
   }
-  const byShort = new Map(
-    Object.entries(specs)
-      .filter(([, s]) => s.short)
-      .map(([name, s]) => [s.short as string, name]),
-  );
   const positionals: string[] = [];
-  for (let i = 0; i < argv.length; i++) {
-    const arg = argv[i];
-    if (arg === '--') {
-      positionals.push(...argv.slice(i + 1));
-      break;
-    }
-    if (!arg.startsWith('-') || arg === '-' || /^-\d/.test(arg)) {
-      positionals.push(arg);
+  const negativeAt = new Set<number>();
+  for (const token of splitWords(argv, specs)) {
+    if (token.kind === 'positional') {
+      positionals.push(token.value);
       continue;
     }
-    const eq = arg.indexOf('=');
-    const rawName = eq >= 0 ? arg.slice(0, eq) : arg;
-    const name = rawName.startsWith('--') ? rawName.slice(2) : byShort.get(rawName.slice(1));
-    if (!name || !(name in specs)) {
-      const known = Object.keys(specs)
-        .map((k) => `--${k}`)
-        .join(', ');
-      throw new UsageError(rawName, `unknown option (known: ${known || 'none'})`);
-    }
-    const spec = specs[name];
-    if (spec.kind === 'boolean') {
-      if (eq >= 0) throw new UsageError(rawName, 'takes no value');
-      values[name] = true;
+    if (token.kind !== 'option') continue;
+    // A word like "-3" is a negative number, not a cluster of one-letter flags.
+    if (/^-\d/.test(argv[token.index])) {
+      if (!negativeAt.has(token.index)) positionals.push(argv[token.index]);
+      negativeAt.add(token.index);
       continue;
     }
-    let raw: string | undefined;
-    if (eq >= 0) raw = arg.slice(eq + 1);
-    else {
-      raw = argv[i + 1];
-      i++;
-    }
-    if (raw === undefined) throw new UsageError(rawName, 'needs a value');
-    values[name] = convert(rawName, spec.kind, raw);
+    values[token.name] = flagValue(token, specs);
   }
   return { flags: values as FlagValues<S>, positionals };
+}
+
+type OptionToken = Extract<ReturnType<typeof splitWords>[number], { kind: 'option' }>;
+
+/** Node's tokenizer, told only which flags take a value; it never throws (strict off). */
+function splitWords(argv: readonly string[], specs: FlagSpecs) {
+  const options: Record<string, { type: 'string' | 'boolean'; short?: string }> = {};
+  for (const [name, spec] of Object.entries(specs)) {
+    options[name] = { type: spec.kind === 'boolean' ? 'boolean' : 'string', ...(spec.short ? { short: spec.short } : {}) };
+  }
+  return nodeParseArgs({ args: [...argv], options, strict: false, allowPositionals: true, tokens: true }).tokens;
+}
+
+function flagValue(token: OptionToken, specs: FlagSpecs): string | number | boolean {
+  const spec = Object.hasOwn(specs, token.name) ? specs[token.name] : undefined;
+  if (!spec) {
+    const known = Object.keys(specs)
+      .map((k) => `--${k}`)
+      .join(', ');
+    throw new UsageError(token.rawName, `unknown option (known: ${known || 'none'})`);
+  }
+  if (spec.kind === 'boolean') {
+    if (token.value !== undefined) throw new UsageError(token.rawName, 'takes no value');
+    return true;
+  }
+  if (token.value === undefined) throw new UsageError(token.rawName, 'needs a value');
+  // Node reads "-o=x" as the value "=x"; we have always read it as "x", like "--out=x".
+  const raw = token.inlineValue && !token.rawName.startsWith('--') ? token.value.replace(/^=/, '') : token.value;
+  return convert(token.rawName, spec.kind, raw);
 }
 
 function convert(flag: string, kind: FlagKind, raw: string): string | number {

@@ -28,14 +28,17 @@ export async function main(argv: readonly string[], io: Io): Promise<number> {
     }
     return await command.run(rest, io);
   } catch (error) {
+    if (error instanceof UsageError && !error.hint) {
+      error.withHint(command ? `tendon ${command.name} --help lists its options` : 'tendon help lists the commands');
+    }
     return report(error, io);
   }
 }
 
-/** One line on stderr; the exit code comes from the error's kind. */
+/** One line on stderr, the message then what to do about it; the exit code comes from the error's kind. */
 export function report(error: unknown, io: Pick<Io, 'err'>): number {
   if (error instanceof TendonError) {
-    io.err(`tendon: ${oneLine(error.message)}\n`);
+    io.err(`tendon: ${oneLine(error.message)}${error.hint ? ` (hint: ${oneLine(error.hint)})` : ''}\n`);
     return error.exitCode;
   }
   const message = error instanceof Error ? error.message : String(error);

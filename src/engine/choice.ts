@@ -5,6 +5,7 @@
  * - 'fast': tendon's own WebAssembly SIMD dense kernel, without tfjs's per-op overhead.
  * 'auto' picks fast, then wasm, then js, and says why when it falls back.
  */
+import { EngineUnavailableError } from '../errors.js';
 import { engineFallbackReason, useEngine, type EngineName } from './backend.js';
 import { wasmSimdAvailable } from './fast/dense-kernel.js';
 
@@ -27,7 +28,7 @@ export interface ResolvedEngine {
 export async function resolveEngine(choice: EngineChoice): Promise<ResolvedEngine> {
   if (choice === 'fast' || choice === 'auto') {
     if (wasmSimdAvailable()) return { engine: 'fast', fallback: null };
-    if (choice === 'fast') throw new Error('the fast engine needs WebAssembly SIMD, which this runtime lacks');
+    if (choice === 'fast') throw new EngineUnavailableError('fast', 'it needs WebAssembly SIMD, which this runtime lacks');
     const engine = await useEngine('auto');
     const why = engineFallbackReason();
     return { engine, fallback: `WebAssembly SIMD unavailable for the fast engine; using ${engine}${why ? ` (${why})` : ''}` };

@@ -35,6 +35,7 @@ export class BusyError extends TendonError {
   ) {
     super(`busy: ${queuedRows} rows queued, ${requestRows} more would pass the limit of ${maxQueueRows} (maxQueueRows)`);
   }
+  override hint = 'retry after a short wait, send fewer rows at once, or raise maxQueueRows';
 }
 
 interface Pending {

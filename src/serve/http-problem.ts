@@ -1,13 +1,17 @@
-/** A request the endpoint refuses: its HTTP status, a message naming what is wrong, extra headers. */
-export class HttpProblem extends Error {
+import { TendonError, type ExitCode } from '../errors.js';
+
+/**
+ * A request the endpoint refuses: its HTTP status, a message naming what is wrong, extra headers.
+ * A 4xx is the client's doing (exit code 2 where a command reports it), a 5xx a failure while working (1).
+ */
+export class HttpProblem extends TendonError {
+  readonly exitCode: ExitCode;
   constructor(
     readonly status: number,
     message: string,
     readonly headers: Readonly<Record<string, string>> = {},
   ) {
     super(message);
-  }
-  override get name(): string {
-    return 'HttpProblem';
+    this.exitCode = status >= 500 ? 1 : 2;
   }
 }

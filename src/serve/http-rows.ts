@@ -79,6 +79,7 @@ function kindOf(v: unknown): string {
 
 /** Client text echoed in a message: short, one line. */
 function printable(s: string): string {
+  // eslint-disable-next-line no-control-regex -- control characters are what this replaces
   const one = s.replace(/[\u0000-\u001f\u007f]/g, '?');
   return one.length > 40 ? `${one.slice(0, 40)}...` : one;
 }

@@ -15,7 +15,7 @@ import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { startServer, type RunningServer } from '../../src/serve/http.js';
-import { seededRandom } from '../format/helpers.js';
+import { seededRandom } from '../fixtures/models.js';
 import { runCli } from '../cli/run-cli.js';
 
 const HEADERS_TIMEOUT_MS = 1000;
@@ -148,7 +148,8 @@ const MALFORMED: [string, () => Promise<RawResult>, number][] = [
   ['JSON nested 30 000 deep', () => rawClient(sendAll(request('POST', '/v1/score', deepNesting))), 400],
   ['NaN spelled in JSON', () => rawClient(sendAll(request('POST', '/v1/score', '{"rows": [[NaN, 1, 2]]}'))), 400],
   ['a number past float32 (1e39)', () => rawClient(sendAll(request('POST', '/v1/score', '{"rows": [[1e39, 1, 2]]}'))), 400],
-  ['a row of the wrong width', () => rawClient(sendAll(request('POST', '/v1/score', '{"rows": [[1, 2]]}'))), 400],
+  ['a row too short', () => rawClient(sendAll(request('POST', '/v1/score', '{"rows": [[1, 2]]}'))), 400],
+  ['a row too long', () => rawClient(sendAll(request('POST', '/v1/score', '{"rows": [[1, 2, 3, 4]]}'))), 400],
   ['an unknown feature name', () => rawClient(sendAll(request('POST', '/v1/score', '{"rows": [{"a": 1, "b": 2, "zz": 3}]}'))), 400],
   ['more rows than one request may carry', () => rawClient(sendAll(request('POST', '/v1/score', JSON.stringify({ rows: Array.from({ length: 101 }, () => [1, 2, 3]) })))), 413],
   ['a wrong method', () => rawClient(sendAll(request('DELETE', '/v1/score', ''))), 405],

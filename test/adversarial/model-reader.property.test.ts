@@ -19,7 +19,7 @@ import { frame, HEADER_BYTES } from '../../src/format/header.js';
 import { encodePayload, payloadSchema, type RawModel, type RawTensor } from '../../src/format/payload.js';
 import { modelProblems } from '../../src/model/validate.js';
 import type { ModelDoc, StorageCodec } from '../../src/model/types.js';
-import { everyKindDoc, tinyDoc } from '../format/helpers.js';
+import { everyKindDoc, tinyDoc } from '../fixtures/models.js';
 import { measure } from './meter.js';
 
 /** Generous: a correct decode of these few-KiB files takes well under a millisecond or two. */

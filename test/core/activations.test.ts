@@ -2,7 +2,7 @@ import * as tf from '@tensorflow/tfjs-core';
 import { afterAll, describe, expect, it } from 'vitest';
 import { TfjsRunner, ensureEngine } from '../../src/engine/index.js';
 import { ACTIVATIONS, activationKind, SeededRng } from '../../src/model/index.js';
-import { denseOf, docOf } from './helpers.js';
+import { denseOf, docOf } from '../fixtures/models.js';
 
 ensureEngine();
 

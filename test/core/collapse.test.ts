@@ -4,7 +4,7 @@ import { withinTolerance } from '../../src/check/index.js';
 import { TfjsRunner } from '../../src/engine/index.js';
 import { SeededRng } from '../../src/model/index.js';
 import { referenceForward, toMat64 } from '../../src/reference/index.js';
-import { denseOf, docOf } from './helpers.js';
+import { denseOf, docOf } from '../fixtures/models.js';
 
 // Common practice: with linear activations in the hidden layer an MLP collapses to one layer,
 // W = W_H·W_O and B = B_H·W_O + B_O. The collapsed weights are computed with ml-matrix, not with

@@ -22,7 +22,8 @@ import {
   type Layer,
   type Mat64,
 } from '../../src/model/index.js';
-import { dropoutOf, randomBatchNorm, trainingContext } from './helpers.js';
+import { trainingContext } from './helpers.js';
+import { dropoutOf, randomBatchNorm } from '../fixtures/models.js';
 
 ensureEngine();
 

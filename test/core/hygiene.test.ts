@@ -2,7 +2,8 @@ import * as tf from '@tensorflow/tfjs-core';
 import { afterAll, describe, expect, it } from 'vitest';
 import { TfjsTrainer } from '../../src/engine/index.js';
 import { SeededRng, type Layer } from '../../src/model/index.js';
-import { docOf, dropoutOf, randomBatchNorm, randomDense, trainingContext, zscoreOf } from './helpers.js';
+import { trainingContext } from './helpers.js';
+import { docOf, dropoutOf, randomBatchNorm, randomDense, zscoreOf } from '../fixtures/models.js';
 
 // Tensor hygiene: tfjs frees memory only on dispose, so every call must leave the live tensor
 // count where it found it (common practice for tfjs code).

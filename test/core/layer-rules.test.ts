@@ -1,8 +1,8 @@
 import { describe, expect, it } from 'vitest';
+import { docOf, denseOf } from '../fixtures/models.js';
 import { decodeModel, encodeModel } from '../../src/format/index.js';
 import { modelProblems } from '../../src/model/index.js';
 import { buildFromSpec } from '../../src/spec/spec.js';
-import { docOf, denseOf } from './helpers.js';
 
 const noFiles = { loadTensorFile: () => Promise.reject(new Error('no files')) };
 

@@ -3,7 +3,7 @@ import { TfjsRunner } from '../../src/engine/index.js';
 import { mat64 } from '../../src/model/index.js';
 import { referenceForward } from '../../src/reference/index.js';
 import { FLOAT32_TOLERANCE } from '../../src/check/index.js';
-import { denseOf, docOf } from './helpers.js';
+import { denseOf, docOf } from '../fixtures/models.js';
 
 // Mazur 2015, "A Step by Step Backpropagation Example": 2-2-2 logistic network.
 // W[i][j] is input i -> unit j, row-major [inputs, units]:

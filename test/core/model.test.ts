@@ -1,7 +1,7 @@
 import { describe, expect, it } from 'vitest';
 import { ModelFileError } from '../../src/errors.js';
 import { fisherYates, initDense, modelWidths, outputWidth, SeededRng, validateModel, type ActivationName, type ModelDoc } from '../../src/model/index.js';
-import { denseOf, docOf, dropoutOf, randomBatchNorm, randomDense } from './helpers.js';
+import { denseOf, docOf, dropoutOf, randomBatchNorm, randomDense } from '../fixtures/models.js';
 
 function problemsOf(doc: ModelDoc): string[] {
   try {

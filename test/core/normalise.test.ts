@@ -3,7 +3,7 @@ import { withinTolerance } from '../../src/check/index.js';
 import { TfjsRunner } from '../../src/engine/index.js';
 import { mat64, type Normalisation } from '../../src/model/index.js';
 import { normalise64 } from '../../src/reference/index.js';
-import { denseOf, docOf } from './helpers.js';
+import { denseOf, docOf } from '../fixtures/models.js';
 
 // Common practice: z-score gives each feature mean 0 and standard deviation 1; min-max maps each
 // feature onto [0, 1]. A feature with zero spread maps to 0 (our documented choice).

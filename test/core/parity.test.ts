@@ -1,9 +1,9 @@
 import { describe, expect, it } from 'vitest';
-import { assertParity, parityReport, randomInputs } from '../../src/check/index.js';
-import { TfjsTrainer } from '../../src/engine/index.js';
+import { assertParity, compareMatrices, parityReport, randomInputs, withinTolerance } from '../../src/check/index.js';
+import { TfjsTrainer, ensureEngine, openRunner, type Runner } from '../../src/engine/index.js';
 import { ParityError } from '../../src/errors.js';
 import { ACTIVATIONS, SeededRng, type ActivationName, type Layer, type ModelDoc, type Normalisation } from '../../src/model/index.js';
-import { docOf, dropoutOf, minmaxOf, randomBatchNorm, randomDense, zscoreOf } from './helpers.js';
+import { docOf, dropoutOf, minmaxOf, randomBatchNorm, randomDense, zscoreOf } from '../fixtures/models.js';
 
 /** A seeded model with the given widths; batchnorm and dropout mixed in between dense layers. */
 function randomModel(widths: number[], activation: ActivationName, norm: 'zscore' | 'minmax' | null, seed: number): ModelDoc {
@@ -62,6 +62,44 @@ describe('parity of the engine with the float64 reference', () => {
     } finally {
       session.dispose();
     }
+  });
+
+  // A NaN compares false with everything, so a comparison that only tracks "the worst ratio so far"
+  // would never see it: an engine answering NaN must fail loudly, not pass quietly.
+  const poisons: [string, (i: number) => number | null][] = [
+    ['NaN everywhere', () => NaN],
+    ['NaN in one element of each layer', (i) => (i === 3 ? NaN : null)],
+  ];
+  it.each(poisons)('an engine answering %s is NOT within tolerance', (_name, poison) => {
+    const doc = randomModel([6, 10, 4], 'tanh', 'zscore', 11);
+    const honest = openRunner(doc, ensureEngine());
+    const nanRunner: Runner = {
+      engine: honest.engine,
+      inputs: honest.inputs,
+      outputs: honest.outputs,
+      chunkRows: honest.chunkRows,
+      run: (x: Float32Array, rows: number) => honest.run(x, rows),
+      runLayers: (x: Float32Array, rows: number) => honest.runLayers(x, rows).map((out) => out.map((v, i) => poison(i) ?? v)),
+      dispose: () => honest.dispose(),
+    };
+    const report = parityReport(doc, randomInputs(doc, 16, 12), 16, { runner: nanRunner });
+    expect(report.pass).toBe(false);
+    for (const layer of report.layers) {
+      expect(layer.pass).toBe(false);
+      expect(layer.maxAbs).toBe(Infinity);
+      expect(layer.worstRow).toBeGreaterThanOrEqual(0);
+    }
+    expect(report.output.pass).toBe(false);
+    expect(() => assertParity(report)).toThrow(ParityError);
+  });
+
+  it('NaN on the reference side only is not within tolerance either; NaN on both sides agrees', () => {
+    const tol = { abs: 1e-4, rel: 1e-4 };
+    expect(compareMatrices([1, 2], [1, NaN], 2, tol).pass).toBe(false);
+    expect(compareMatrices([1, NaN], [1, 2], 2, tol).pass).toBe(false);
+    expect(compareMatrices([1, NaN], [1, NaN], 2, tol).pass).toBe(true);
+    expect(withinTolerance(NaN, 0)).toBe(false);
+    expect(withinTolerance(0, NaN)).toBe(false);
   });
 
   it('a single-output model has no top-class agreement', () => {

@@ -9,13 +9,14 @@
  */
 import * as tf from '@tensorflow/tfjs-core';
 import { afterAll, describe, expect, it } from 'vitest';
+import { docOf, denseOf, randomDense } from '../fixtures/models.js';
 import { parityReport } from '../../src/check/index.js';
 import { SimdTrainer, openRunner, useEngine, wasmSimdAvailable, type RuntimeEngine } from '../../src/engine/index.js';
 import { decodeModel, encodeModel } from '../../src/format/index.js';
 import { SeededRng, isActivationName, mat64, modelFacts, pointwiseF32, registerActivation } from '../../src/model/index.js';
 import { referenceBackwardTape, referenceForward, referenceForwardTrain, toMat64 } from '../../src/reference/index.js';
 import { buildFromSpec } from '../../src/spec/spec.js';
-import { docOf, denseOf, randomDense, trainingContext } from './helpers.js';
+import { trainingContext } from './helpers.js';
 
 const softsign = (z: number): number => z / (1 + Math.abs(z));
 const slope = (z: number): number => 1 / (1 + Math.abs(z)) ** 2;

@@ -3,7 +3,8 @@ import { withinTolerance } from '../../src/check/index.js';
 import { TfjsTrainer } from '../../src/engine/index.js';
 import { layerKind, mat64, modelWidths, SeededRng, type Layer } from '../../src/model/index.js';
 import { referenceBackwardTape, referenceForwardTrain, toMat64 } from '../../src/reference/index.js';
-import { docOf, dropoutOf, minmaxOf, randomBatchNorm, randomDense, trainingContext } from './helpers.js';
+import { trainingContext } from './helpers.js';
+import { docOf, dropoutOf, minmaxOf, randomBatchNorm, randomDense } from '../fixtures/models.js';
 
 // A whole network in training mode: the float64 tape against finite differences (common
 // practice), and the engine's training forward/backward against the tape within float32 tolerance.

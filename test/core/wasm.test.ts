@@ -6,7 +6,8 @@ import { parityReport, randomInputs, withinTolerance } from '../../src/check/ind
 import { TfjsTrainer, engineFallbackReason, useEngine } from '../../src/engine/index.js';
 import { ACTIVATIONS, SeededRng, type Layer } from '../../src/model/index.js';
 import { referenceBackwardTape, referenceForwardTrain, toMat64 } from '../../src/reference/index.js';
-import { denseOf, docOf, dropoutOf, minmaxOf, randomBatchNorm, randomDense, trainingContext, zscoreOf } from './helpers.js';
+import { trainingContext } from './helpers.js';
+import { denseOf, docOf, dropoutOf, minmaxOf, randomBatchNorm, randomDense, zscoreOf } from '../fixtures/models.js';
 
 describe('wasm engine', () => {
   beforeAll(async () => {

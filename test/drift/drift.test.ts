@@ -7,7 +7,7 @@ import { writeModelFile } from '../../src/format/index.js';
 import { SeededRng } from '../../src/model/index.js';
 import { foldModel } from '../../src/transform/index.js';
 import { runCli } from '../cli/run-cli.js';
-import { bakeryDoc, dense, docOf, minmax, BAKERY_FEATURES } from '../transform/models.js';
+import { BAKERY_FEATURES, bakeryDoc, docOf, randomDense, wideMinmaxOf } from '../fixtures/models.js';
 
 const dir = mkdtempSync(join(tmpdir(), 'tendon-drift-'));
 afterAll(() => rmSync(dir, { recursive: true, force: true }));
@@ -79,9 +79,9 @@ describe('DriftMonitor', () => {
 
   it('min-max models: flagged when the incoming mean leaves the seen range; single values outside are counted only', () => {
     const rng = new SeededRng(3);
-    const norm = minmax(rng, 3);
+    const norm = wideMinmaxOf(rng, 3);
     if (norm.method !== 'minmax') throw new Error('minmax');
-    const doc = docOf(3, [dense(rng, 3, 2, 'softmax')], norm);
+    const doc = docOf(3, [randomDense(rng, 3, 2, 'softmax')], norm);
     const drift = DriftMonitor.forModel(doc)!;
     const inside = Float32Array.of(norm.min![0], norm.max![1], (norm.min![2] + norm.max![2]) / 2);
     drift.add(inside, 1);
@@ -115,7 +115,7 @@ describe('DriftMonitor', () => {
     drift.add(bakeryRows(500, 8, { feature: 0, sd: 5 }), 500);
     expect(drift.report().drifted).toEqual(['zone1_temp_c']);
     const rng = new SeededRng(1);
-    expect(DriftMonitor.forModel(docOf(2, [dense(rng, 2, 1, 'linear')]))).toBeNull();
+    expect(DriftMonitor.forModel(docOf(2, [randomDense(rng, 2, 1, 'linear')]))).toBeNull();
   });
 });
 

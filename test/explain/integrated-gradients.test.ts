@@ -7,10 +7,11 @@
  * error well under 1e-6).
  */
 import { describe, expect, it } from 'vitest';
+import { denseOf, docOf, dropoutOf, minmaxOf, randomBatchNorm, randomDense, zscoreOf } from '../fixtures/models.js';
 import { completenessGaps, explainRows, integratedGradients } from '../../src/explain/index.js';
 import { ACTIVATIONS, mat64, SeededRng, type ActivationName, type ModelDoc } from '../../src/model/index.js';
 import { inputGradient, referenceForward } from '../../src/reference/index.js';
-import { denseOf, docOf, dropoutOf, minmaxOf, randomBatchNorm, randomDense, randomMatrix, zscoreOf } from '../core/helpers.js';
+import { randomMatrix } from '../core/helpers.js';
 
 /** 4 inputs -> dense 6 f -> batchnorm -> dropout -> dense 5 f -> dense 3 softmax, seeded. */
 function deepDoc(activation: ActivationName, seed: number, normalise: 'zscore' | 'minmax' = 'zscore'): ModelDoc {

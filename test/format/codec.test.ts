@@ -5,7 +5,8 @@ import { crc32, crcHex } from '../../src/format/crc32.js';
 import { frame, HEADER_BYTES } from '../../src/format/header.js';
 import { DTYPE_CODES, encodePayload, type RawModel } from '../../src/format/payload.js';
 import type { DenseLayer, ModelDoc } from '../../src/model/types.js';
-import { everyKindDoc, randomFloat32, seededRandom, thrown, tinyDoc } from './helpers.js';
+import { thrown } from './helpers.js';
+import { everyKindDoc, randomFloat32, seededRandom, tinyDoc } from '../fixtures/models.js';
 
 function problemsOf(fn: () => unknown): { where: string; message: string }[] {
   const error = thrown(fn);

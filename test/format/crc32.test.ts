@@ -1,7 +1,7 @@
 import { crc32 as zlibCrc32 } from 'node:zlib';
 import { describe, expect, it } from 'vitest';
 import { crc32, crcHex } from '../../src/format/crc32.js';
-import { seededRandom } from './helpers.js';
+import { seededRandom } from '../fixtures/models.js';
 
 const ascii = (s: string) => new TextEncoder().encode(s);
 

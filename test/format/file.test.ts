@@ -6,7 +6,7 @@ import { ModelFileError, RuntimeFailure } from '../../src/errors.js';
 import { decodeModel, encodeModel } from '../../src/format/codec.js';
 import { checksumOf, readModelFile, writeModelFile, type AtomicWriteSteps } from '../../src/format/file.js';
 import type { DenseLayer } from '../../src/model/types.js';
-import { everyKindDoc, tinyDoc } from './helpers.js';
+import { everyKindDoc, tinyDoc } from '../fixtures/models.js';
 
 let dir = '';
 beforeEach(async () => {

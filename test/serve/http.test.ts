@@ -6,7 +6,7 @@ import { liveTensorCount } from '../../src/engine/index.js';
 import { writeModelFile } from '../../src/format/index.js';
 import { startServer, type RunningServer } from '../../src/serve/http.js';
 import { openModel, type TendonModel } from '../../src/tendon.js';
-import { BAKERY_FEATURES, BAKERY_LABELS, bakeryDoc } from '../transform/models.js';
+import { BAKERY_FEATURES, BAKERY_LABELS, bakeryDoc } from '../fixtures/models.js';
 import { call, parseExposition, postJson, rawRequest } from './helpers.js';
 
 const dir = mkdtempSync(join(tmpdir(), 'tendon-http-'));
@@ -123,7 +123,8 @@ describe('bad requests get their status code and a message naming the row and fi
     { name: 'not an object', body: '[[1,2,3,4,5,6,7]]', status: 400, message: /^body: expected an object like \{"rows"/ },
     { name: 'rows missing', body: '{"row": []}', status: 400, message: /^rows: expected an array of rows, got nothing/ },
     { name: 'no rows', body: '{"rows": []}', status: 400, message: /^rows: empty/ },
-    { name: 'wrong width', body: '{"rows": [[1,2,3,4,5,6,7], [1,2,3,4,5,6]]}', status: 400, message: /^rows\[1\]: expected 7 numbers, got 6$/ },
+    { name: 'a row too short', body: '{"rows": [[1,2,3,4,5,6,7], [1,2,3,4,5,6]]}', status: 400, message: /^rows\[1\]: expected 7 numbers, got 6$/ },
+    { name: 'a row too long', body: '{"rows": [[1,2,3,4,5,6,7], [1,2,3,4,5,6,7,8]]}', status: 400, message: /^rows\[1\]: expected 7 numbers, got 8$/ },
     { name: 'non-number', body: '{"rows": [[1,2,3,"wet",5,6,7]]}', status: 400, message: /^rows\[0\]\[3\] \(humidity_pct\): not a number \(got "wet"\)$/ },
     { name: 'null value', body: '{"rows": [[1,2,3,4,null,6,7]]}', status: 400, message: /^rows\[0\]\[4\] \(belt_speed_m_min\): not a number \(got null\)$/ },
     { name: 'overflow', body: '{"rows": [[1,2,3,4,5,6,1e999]]}', status: 400, message: /^rows\[0\]\[6\] \(proof_time_min\): Infinity is not a finite float32 number$/ },

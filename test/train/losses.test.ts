@@ -56,7 +56,7 @@ describe('losses (src/train/losses.ts)', () => {
     expect(even.value).toBeCloseTo(Math.LN2, 14);
   });
 
-  it('binary cross-entropy from logits equals the textbook -(t log p + (1-t) log(1-p)) (definition)', () => {
+  it('binary cross-entropy from logits equals the textbook -(t log p + (1-t) log(1-p)) (common practice: the textbook definition)', () => {
     const z = Float64Array.of(-30, -1, 0.5, 40);
     const t = Float64Array.of(1, 0, 1, 0);
     const r = computeLoss({ name: 'binary_cross_entropy', input: 'logits' }, z, 1, 4, { kind: 'values', values: t });
@@ -74,7 +74,7 @@ describe('losses (src/train/losses.ts)', () => {
     expect(r.grad[0]).toBeCloseTo(0.74136507, 8);
   });
 
-  it('mse averages over rows and outputs (definition)', () => {
+  it('mse averages over rows and outputs (common practice: the mean over every element)', () => {
     const r = computeLoss({ name: 'mse', input: 'outputs' }, Float64Array.of(1, 2, 3, 4), 2, 2, { kind: 'values', values: Float64Array.of(0, 0, 0, 0) });
     expect(r.value).toBe((1 + 4 + 9 + 16) / 4);
     expect([...r.grad]).toEqual([0.5, 1, 1.5, 2]);

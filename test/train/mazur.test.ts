@@ -1,6 +1,6 @@
 import { describe, it, expect } from 'vitest';
 import { gradientsOf, tune } from '../../src/train/tune.js';
-import { mazurDoc } from './fixtures.js';
+import { mazurDoc } from '../fixtures/models.js';
 
 // "A Step by Step Backpropagation Example" (Mazur 2015): values after one plain gradient step, lr 0.5,
 // loss E = sum of 1/2 (t - o)^2, biases held fixed.

@@ -22,7 +22,7 @@ describe('optimisers (src/train/optimisers.ts)', () => {
     }
   });
 
-  it('plain SGD is p - lr g (definition)', () => {
+  it('plain SGD is p - lr g (common practice: the textbook update rule)', () => {
     const p = Float32Array.of(0.5, -0.25);
     makeOptimiser({ name: 'sgd' }).step([{ data: p, decays: false }], [Float64Array.of(2, -4)], 0.125);
     expect([...p]).toEqual([0.25, 0.25]);

@@ -1,15 +1,8 @@
 /** A small seeded generator for invented test data (mulberry32); test-only, so tests never use Math.random. */
+import { seededRandom } from '../fixtures/models.js';
+
 export function seededRng(seed: number): { next(): number } {
-  let a = seed >>> 0;
-  return {
-    next() {
-      a = (a + 0x6d2b79f5) >>> 0;
-      let t = a;
-      t = Math.imul(t ^ (t >>> 15), t | 1);
-      t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-      return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-    },
-  };
+  return { next: seededRandom(seed) };
 }
 
 /** Standard normal draws by Box–Muller. */

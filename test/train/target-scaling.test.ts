@@ -4,6 +4,7 @@
  * them (format 1.1, field 10), and tune fits, keeps or attaches them.
  */
 import { describe, expect, it } from 'vitest';
+import { denseOf, docOf, randomDense, denseSpec } from '../fixtures/models.js';
 import { openRunner, useEngine, wasmSimdAvailable } from '../../src/engine/index.js';
 import { ModelFileError } from '../../src/errors.js';
 import { decodeModel, encodeModel } from '../../src/format/index.js';
@@ -11,8 +12,6 @@ import { SeededRng, attachTargetScaling, foldTargetScaling, validateModel, type 
 import { mat64 } from '../../src/model/index.js';
 import { referenceForward } from '../../src/reference/index.js';
 import { cloneDoc, tune } from '../../src/train/tune.js';
-import { denseOf, docOf, randomDense } from '../core/helpers.js';
-import { denseSpec, modelDoc } from './fixtures.js';
 
 /** 2 inputs -> 1 linear output, W = [[0.5], [-1]], b = [0.25]; answers = z x 10 + 100. */
 function scaledDoc(): ModelDoc {
@@ -93,24 +92,24 @@ describe('tune and target scaling', () => {
 
   it('fits mean and population sd of the training targets for a fresh regression model; scaleTargets false adds none', async () => {
     const d = data(64, 1);
-    const res = await tune(modelDoc(2, [denseSpec(1, 'linear')]), d, { epochs: 1, path: 'reference' });
+    const res = await tune(docOf(2, [denseSpec(1, 'linear')]), d, { epochs: 1, path: 'reference' });
     const mean = d.y.reduce((a, b) => a + b, 0) / 64;
     const sd = Math.sqrt(d.y.reduce((a, b) => a + (b - mean) ** 2, 0) / 64);
     expect(res.doc.targetScaling!.mean[0]).toBeCloseTo(mean, 4);
     expect(res.doc.targetScaling!.std[0]).toBeCloseTo(sd, 4);
-    const off = await tune(modelDoc(2, [denseSpec(1, 'linear')]), d, { epochs: 1, path: 'reference', scaleTargets: false });
+    const off = await tune(docOf(2, [denseSpec(1, 'linear')]), d, { epochs: 1, path: 'reference', scaleTargets: false });
     expect(off.doc.targetScaling ?? null).toBeNull();
   });
 
   it('plain SGD learns the line in target units (hold-out RMSE under 1 against a target sd near 58); raw-target divergence is the diabetes check in test/realdata', async () => {
     const d = data(256, 2);
-    const res = await tune(modelDoc(2, [denseSpec(1, 'linear')]), d, { epochs: 60, batch: 16, optimizer: 'sgd', lr: 0.1, holdout: 0.25, path: 'reference' });
+    const res = await tune(docOf(2, [denseSpec(1, 'linear')]), d, { epochs: 60, batch: 16, optimizer: 'sgd', lr: 0.1, holdout: 0.25, path: 'reference' });
     expect(res.history.at(-1)!.holdout!.rmse!).toBeLessThan(1);
   });
 
   it('a fine-tune keeps the stored scaling exactly', async () => {
     const d = data(64, 3);
-    const first = await tune(modelDoc(2, [denseSpec(1, 'linear')]), d, { epochs: 2, path: 'reference' });
+    const first = await tune(docOf(2, [denseSpec(1, 'linear')]), d, { epochs: 2, path: 'reference' });
     const again = await tune(first.doc, data(64, 4), { epochs: 2, path: 'reference' });
     expect(Array.from(again.doc.targetScaling!.mean)).toEqual(Array.from(first.doc.targetScaling!.mean));
     expect(Array.from(again.doc.targetScaling!.std)).toEqual(Array.from(first.doc.targetScaling!.std));

@@ -5,7 +5,7 @@ import type { DenseLayer, ModelDoc } from '../../src/model/types.js';
 import { referenceForward } from '../../src/reference/index.js';
 import { computeLoss } from '../../src/train/losses.js';
 import { TuneDivergence, gradientsOf, tune } from '../../src/train/tune.js';
-import { denseSpec, emptyZscore, modelDoc } from './fixtures.js';
+import { denseSpec, docOf, emptyZscore } from '../fixtures/models.js';
 import { normals, seededRng } from './seeded.js';
 
 /** Invented, seeded: two Gaussian blobs per class in `features` dimensions. */
@@ -31,7 +31,7 @@ describe('tune loop (src/train/tune.ts)', () => {
   ])('batch %i over 10 rows makes ceil(n/k) = %i updates per epoch (common practice)', async (k, updates) => {
     const data = blobs(10, 3, 2, 1);
     const perEpoch: number[] = [0, 0];
-    const { history } = await tune(modelDoc(3, [denseSpec(2, 'softmax')]), data, { epochs: 2, batch: k, optimizer: 'sgd', lr: 0.1, path: 'reference' }, {
+    const { history } = await tune(docOf(3, [denseSpec(2, 'softmax')]), data, { epochs: 2, batch: k, optimizer: 'sgd', lr: 0.1, path: 'reference' }, {
       onBatch: (p) => perEpoch[p.epoch]++,
     });
     expect(perEpoch).toEqual([updates, updates]);
@@ -41,7 +41,7 @@ describe('tune loop (src/train/tune.ts)', () => {
   it('repeats bit for bit from the seed, with dropout and batch norm, on the engine (common practice)', async () => {
     const data = blobs(60, 4, 3, 2);
     const spec = () =>
-      modelDoc(4, [denseSpec(8, 'relu'), { kind: 'batchnorm', gamma: new Float32Array(0), beta: new Float32Array(0), runningMean: new Float32Array(0), runningVariance: new Float32Array(0), epsilon: 1e-5, momentum: 0.9 }, { kind: 'dropout', rate: 0.3 }, denseSpec(3, 'softmax')]);
+      docOf(4, [denseSpec(8, 'relu'), { kind: 'batchnorm', gamma: new Float32Array(0), beta: new Float32Array(0), runningMean: new Float32Array(0), runningVariance: new Float32Array(0), epsilon: 1e-5, momentum: 0.9 }, { kind: 'dropout', rate: 0.3 }, denseSpec(3, 'softmax')]);
     const opts = { epochs: 3, batch: 8, lr: 0.01, seed: 5, holdout: 0.2 };
     const a = await tune(spec(), data, opts);
     const b = await tune(spec(), data, opts);
@@ -56,7 +56,7 @@ describe('tune loop (src/train/tune.ts)', () => {
 
   it('records a model without a parent file as trained from its origin, in words', async () => {
     const data = blobs(20, 3, 2, 3);
-    const first = await tune(modelDoc(3, [denseSpec(4, 'tanh'), denseSpec(2, 'softmax')], emptyZscore()), data, { epochs: 1, path: 'reference' });
+    const first = await tune(docOf(3, [denseSpec(4, 'tanh'), denseSpec(2, 'softmax')], emptyZscore()), data, { epochs: 1, path: 'reference' });
     const plain = await tune(first.doc, data, { epochs: 1, path: 'reference' });
     expect(plain.doc.provenance.at(-1)).toMatchObject({ action: 'trained', source: 'a model held in memory' });
     const named = await tune(first.doc, data, { epochs: 1, path: 'reference', origin: 'spec bakery-spec.json' });
@@ -65,7 +65,7 @@ describe('tune loop (src/train/tune.ts)', () => {
 
   it('never mutates the input document and records provenance', async () => {
     const data = blobs(20, 3, 2, 3);
-    const first = await tune(modelDoc(3, [denseSpec(4, 'tanh'), denseSpec(2, 'softmax')], emptyZscore()), data, { epochs: 1, path: 'reference' });
+    const first = await tune(docOf(3, [denseSpec(4, 'tanh'), denseSpec(2, 'softmax')], emptyZscore()), data, { epochs: 1, path: 'reference' });
     const parent = first.doc;
     const before = structuredClone(parent);
     const second = await tune(parent, data, { epochs: 2, lr: 0.05, path: 'reference', normalisation: 'continue', parent: { checksum: '0badf00d', source: 'a.tdn' } });
@@ -79,7 +79,7 @@ describe('tune loop (src/train/tune.ts)', () => {
 
   it('fits an empty z-score block from the training rows (Welford; mean agrees with the two-pass mean)', async () => {
     const data = blobs(30, 2, 2, 4);
-    const { doc } = await tune(modelDoc(2, [denseSpec(2, 'softmax')], emptyZscore()), data, { epochs: 1, path: 'reference' });
+    const { doc } = await tune(docOf(2, [denseSpec(2, 'softmax')], emptyZscore()), data, { epochs: 1, path: 'reference' });
     const n = doc.normalise;
     if (n?.method !== 'zscore') throw new Error('normalisation lost');
     let mean0 = 0;
@@ -91,7 +91,7 @@ describe('tune loop (src/train/tune.ts)', () => {
 
   it('frozen layers and tensors get no updates', async () => {
     const data = blobs(20, 3, 2, 6);
-    const start = (await tune(modelDoc(3, [denseSpec(4, 'relu'), denseSpec(2, 'softmax')]), data, { epochs: 1, path: 'reference' })).doc;
+    const start = (await tune(docOf(3, [denseSpec(4, 'relu'), denseSpec(2, 'softmax')]), data, { epochs: 1, path: 'reference' })).doc;
     const { doc } = await tune(start, data, { epochs: 2, lr: 0.1, path: 'reference', freeze: [0], freezeTensors: ['layers[1].bias'] });
     const [a0, a1] = start.layers as DenseLayer[];
     const [b0, b1] = doc.layers as DenseLayer[];
@@ -102,7 +102,7 @@ describe('tune loop (src/train/tune.ts)', () => {
 
   it('the anchor penalty keeps fine-tuned weights closer to the parent', async () => {
     const data = blobs(40, 3, 2, 7);
-    const parent = (await tune(modelDoc(3, [denseSpec(6, 'tanh'), denseSpec(2, 'softmax')]), data, { epochs: 2, path: 'reference' })).doc;
+    const parent = (await tune(docOf(3, [denseSpec(6, 'tanh'), denseSpec(2, 'softmax')]), data, { epochs: 2, path: 'reference' })).doc;
     const shifted = { ...data, y: data.y.map((c) => 1 - c) };
     const distance = (d: ModelDoc) => Math.hypot(...weightsOf(d).map((w, i) => w - weightsOf(parent)[i]));
     const free = await tune(parent, shifted, { epochs: 5, lr: 0.01, path: 'reference', seed: 1 });
@@ -114,7 +114,7 @@ describe('tune loop (src/train/tune.ts)', () => {
   it('replay mixes earlier rows into every batch', async () => {
     const data = blobs(12, 3, 2, 8);
     const rows: number[] = [];
-    await tune(modelDoc(3, [denseSpec(2, 'softmax')]), data, { epochs: 1, batch: 4, path: 'reference', replay: blobs(5, 3, 2, 9), replayPerBatch: 2 }, { onBatch: (p) => rows.push(p.rows) });
+    await tune(docOf(3, [denseSpec(2, 'softmax')]), data, { epochs: 1, batch: 4, path: 'reference', replay: blobs(5, 3, 2, 9), replayPerBatch: 2 }, { onBatch: (p) => rows.push(p.rows) });
     expect(rows).toEqual([6, 6, 6]);
   });
 
@@ -124,7 +124,7 @@ describe('tune loop (src/train/tune.ts)', () => {
     const make = (rows: number) => ({ x: Float32Array.from(normals(rng, rows * 3)), rows, y: Float32Array.from(normals(rng, rows)) });
     const train = make(16);
     const hold = make(16);
-    const res = await tune(modelDoc(3, [denseSpec(32, 'tanh'), denseSpec(1, 'linear')]), train, {
+    const res = await tune(docOf(3, [denseSpec(32, 'tanh'), denseSpec(1, 'linear')]), train, {
       epochs: 200, batch: 16, lr: 0.03, path: 'reference', holdoutData: hold, stopAfter: 5,
     });
     expect(res.stoppedEarly).toBe(true);
@@ -144,7 +144,7 @@ describe('tune loop (src/train/tune.ts)', () => {
     const data = { x: Float32Array.from(normals(rng, 40, 0, 10)), rows: 20, y: Float32Array.from(normals(rng, 20, 0, 100)) };
     let caught: unknown;
     try {
-      await tune(modelDoc(2, [denseSpec(8, 'linear'), denseSpec(1, 'linear')]), data, { epochs: 50, batch: 20, optimizer: 'sgd', lr: 1e6, path: 'reference' });
+      await tune(docOf(2, [denseSpec(8, 'linear'), denseSpec(1, 'linear')]), data, { epochs: 50, batch: 20, optimizer: 'sgd', lr: 1e6, path: 'reference' });
     } catch (e) {
       caught = e;
     }
@@ -157,7 +157,7 @@ describe('tune loop (src/train/tune.ts)', () => {
   it('stops after the current batch when aborted', async () => {
     const controller = new AbortController();
     let batches = 0;
-    const res = await tune(modelDoc(3, [denseSpec(2, 'softmax')]), blobs(40, 3, 2, 12), { epochs: 3, batch: 4, path: 'reference' }, {
+    const res = await tune(docOf(3, [denseSpec(2, 'softmax')]), blobs(40, 3, 2, 12), { epochs: 3, batch: 4, path: 'reference' }, {
       signal: controller.signal,
       onBatch: () => {
         if (++batches === 3) controller.abort();
@@ -170,8 +170,8 @@ describe('tune loop (src/train/tune.ts)', () => {
 
   it('refuses a class the model does not know with a DataError naming the row', async () => {
     const data = { x: new Float32Array(6), rows: 3, y: Int32Array.of(0, 1, 5) };
-    await expect(tune(modelDoc(2, [denseSpec(2, 'softmax')]), data, { path: 'reference' })).rejects.toThrow(DataError);
-    await expect(tune(modelDoc(2, [denseSpec(2, 'softmax')]), data, { path: 'reference' })).rejects.toThrow(/:3: class 5/);
+    await expect(tune(docOf(2, [denseSpec(2, 'softmax')]), data, { path: 'reference' })).rejects.toThrow(DataError);
+    await expect(tune(docOf(2, [denseSpec(2, 'softmax')]), data, { path: 'reference' })).rejects.toThrow(/:3: class 5/);
   });
 
   it('network gradients match central finite differences in float64 for every loss (common practice)', async () => {
@@ -184,7 +184,7 @@ describe('tune loop (src/train/tune.ts)', () => {
       ['tanh', 'half_sse', normals(rng, 10), 2],
     ] as const;
     for (const [activation, loss, y, outs] of cases) {
-      const doc = (await tune(modelDoc(3, [denseSpec(4, 'softplus'), denseSpec(outs, activation)]), { x, rows: 5, y }, { epochs: 1, lr: 1e-9, path: 'reference', loss })).doc;
+      const doc = (await tune(docOf(3, [denseSpec(4, 'softplus'), denseSpec(outs, activation)]), { x, rows: 5, y }, { epochs: 1, lr: 1e-9, path: 'reference', loss })).doc;
       const { grads } = gradientsOf(doc, x, y, { rows: 5, loss });
       const w = (doc.layers[0] as DenseLayer).weight;
       for (const k of [0, 5, 11]) {

@@ -2,7 +2,7 @@ import { describe, expect, it } from 'vitest';
 import { FLOAT32_TOLERANCE, randomInputs } from '../../src/check/index.js';
 import { SeededRng, type DenseLayer, type ModelDoc } from '../../src/model/index.js';
 import { compareOutputs, foldModel } from '../../src/transform/index.js';
-import { batchNorm, bakeryDoc, dense, docOf, minmax, zscore } from './models.js';
+import { bakeryDoc, docOf, randomBatchNorm, randomDense, wideMinmaxOf, wideZscoreOf } from '../fixtures/models.js';
 
 function parity(original: ModelDoc, folded: ModelDoc, rows = 512, seed = 3) {
   return compareOutputs(original, folded, randomInputs(original, rows, seed), rows, FLOAT32_TOLERANCE);
@@ -65,7 +65,7 @@ describe('foldModel', () => {
 
   it('min-max normalisation, batch norm after a linear layer and a chain of linear layers collapse to one layer', () => {
     const rng = new SeededRng(11);
-    const doc = docOf(5, [dense(rng, 5, 8, 'linear'), batchNorm(rng, 8), dense(rng, 8, 6, 'linear'), dense(rng, 6, 2, 'sigmoid')], minmax(rng, 5));
+    const doc = docOf(5, [randomDense(rng, 5, 8, 'linear'), randomBatchNorm(rng, 8), randomDense(rng, 8, 6, 'linear'), randomDense(rng, 6, 2, 'sigmoid')], wideMinmaxOf(rng, 5));
     const { doc: folded, steps } = foldModel(doc);
     expect(folded.layers).toHaveLength(1);
     expect(steps.find((s) => s.step === 'batchnorm')?.reason).toMatch(/before it/);
@@ -76,7 +76,7 @@ describe('foldModel', () => {
 
   it('batch norm after a ReLU layer folds into the dense layer after it; answers within float32 tolerance', () => {
     const rng = new SeededRng(5);
-    const doc = docOf(6, [dense(rng, 6, 12, 'relu'), batchNorm(rng, 12), { kind: 'dropout', rate: 0.3 }, dense(rng, 12, 4, 'tanh')], zscore(rng, 6));
+    const doc = docOf(6, [randomDense(rng, 6, 12, 'relu'), randomBatchNorm(rng, 12), { kind: 'dropout', rate: 0.3 }, randomDense(rng, 12, 4, 'tanh')], wideZscoreOf(rng, 6));
     const { doc: folded, steps } = foldModel(doc);
     expect(folded.layers.map((l) => l.kind)).toEqual(['dense', 'dense']);
     expect(steps.find((s) => s.step === 'batchnorm')).toMatchObject({ folded: true, layers: [1] });
@@ -85,10 +85,10 @@ describe('foldModel', () => {
 
   it('leaves what it cannot fold exactly, and says why: a final batch norm after ReLU, a widening linear pair, a zero-range feature', () => {
     const rng = new SeededRng(9);
-    const norm = zscore(rng, 10);
+    const norm = wideZscoreOf(rng, 10);
     if (norm.method !== 'zscore' || !norm.std) throw new Error('zscore statistics expected');
     norm.std[4] = 0;
-    const doc = docOf(10, [dense(rng, 10, 2, 'linear'), dense(rng, 2, 10, 'relu'), batchNorm(rng, 10)], norm);
+    const doc = docOf(10, [randomDense(rng, 10, 2, 'linear'), randomDense(rng, 2, 10, 'relu'), randomBatchNorm(rng, 10)], norm);
     const { doc: folded, steps } = foldModel(doc);
     expect(folded.layers).toHaveLength(3);
     expect(folded.normalise).not.toBeNull();
@@ -106,8 +106,8 @@ describe('foldModel', () => {
     const rng = new SeededRng(21);
     const doc = docOf(
       16,
-      [dense(rng, 16, 64, 'linear'), dense(rng, 64, 32, 'leaky_relu'), batchNorm(rng, 32), { kind: 'dropout', rate: 0.2 }, dense(rng, 32, 32, 'linear'), batchNorm(rng, 32), dense(rng, 32, 10, 'softmax')],
-      zscore(rng, 16),
+      [randomDense(rng, 16, 64, 'linear'), randomDense(rng, 64, 32, 'leaky_relu'), randomBatchNorm(rng, 32), { kind: 'dropout', rate: 0.2 }, randomDense(rng, 32, 32, 'linear'), randomBatchNorm(rng, 32), randomDense(rng, 32, 10, 'softmax')],
+      wideZscoreOf(rng, 16),
     );
     const { doc: folded } = foldModel(doc);
     expect(folded.layers.length).toBeLessThan(doc.layers.length);

@@ -7,7 +7,7 @@ import { SeededRng, type DenseLayer, type ModelDoc } from '../../src/model/index
 import { compareMatrices } from '../../src/check/index.js';
 import { SHRINK_TOLERANCE, costVerdict, denseWeightBytes, foldModel, shrinkModel, storageCost } from '../../src/transform/index.js';
 import { runCli } from '../cli/run-cli.js';
-import { bakeryDoc, batchNorm, dense, docOf, zscore } from './models.js';
+import { bakeryDoc, docOf, randomBatchNorm, randomDense, wideZscoreOf } from '../fixtures/models.js';
 
 const dir = mkdtempSync(join(tmpdir(), 'tendon-shrink-'));
 afterAll(() => rmSync(dir, { recursive: true, force: true }));
@@ -15,7 +15,7 @@ afterAll(() => rmSync(dir, { recursive: true, force: true }));
 /** Weight-dominated, so file sizes show the codec: 64-256-256-10. */
 function wideDoc(): ModelDoc {
   const rng = new SeededRng(4);
-  return docOf(64, [dense(rng, 64, 256, 'relu'), dense(rng, 256, 256, 'relu'), dense(rng, 256, 10, 'softmax')], zscore(rng, 64));
+  return docOf(64, [randomDense(rng, 64, 256, 'relu'), randomDense(rng, 256, 256, 'relu'), randomDense(rng, 256, 10, 'softmax')], wideZscoreOf(rng, 64));
 }
 
 function weights(doc: ModelDoc): DenseLayer[] {
@@ -147,7 +147,7 @@ describe('tendon shrink, fold, check --against, about --costs', () => {
   it('about counts the weights training changes apart from the batchnorm running statistics it holds fixed', async () => {
     const rng = new SeededRng(5);
     const path = join(dir, 'with-batchnorm.tendon');
-    await writeModelFile(path, docOf(2, [dense(rng, 2, 3, 'relu'), batchNorm(rng, 3), dense(rng, 3, 1, 'sigmoid')]));
+    await writeModelFile(path, docOf(2, [randomDense(rng, 2, 3, 'relu'), randomBatchNorm(rng, 3), randomDense(rng, 3, 1, 'sigmoid')]));
     const shown = await runCli('about', path);
     expect(shown.code).toBe(0);
     // Learned: 2x3 + 3, gamma 3 + beta 3, 3x1 + 1 = 19; fixed: running mean 3 + running variance 3 = 6.

@@ -1,11 +1,12 @@
 import { DivergenceError, UsageError } from '../../errors.js';
 import { readModelFile, writeModelFile } from '../../format/index.js';
 import { CALIBRATION_CAUTION, ECE_BINS, type TemperatureFit } from '../../train/calibration.js';
-import { tune as tuneModel, TuneDivergence, type EpochRecord, type TuneRunOptions } from '../../train/tune.js';
+import { tune as tuneModel, TuneDivergence, type EpochRecord, type TuneResult, type TuneRunOptions } from '../../train/tune.js';
 import { ensureEngine, useEngine } from '../../engine/index.js';
 import { buildModelFromSpecFile } from './pack.js';
 import { noExtraPositionals, parseArgs, requireFlag, requirePositional } from '../args.js';
-import type { Command } from '../command.js';
+import type { Command, Io } from '../command.js';
+import type { ModelDoc } from '../../model/index.js';
 import { grouped, percent, sci } from '../format.js';
 import { progressLine } from '../progress.js';
 import { reportFormat, writeTuneReport } from '../report-files.js';
@@ -136,24 +137,9 @@ export const tune: Command = {
     });
     bar.clear();
 
-    for (const d of result.diagnostics) {
-      const where = d.layer !== undefined ? ` (layer ${d.layer})` : '';
-      const text = `warning${where}: ${d.message}${d.hint ? ` — hint: ${d.hint}` : ''}`;
-      // Epochs are counted from 1 wherever the command line shows them.
-      if (log === 'jsonl') io.out(JSON.stringify({ warning: d.code, layer: d.layer ?? null, epoch: d.epoch === undefined ? null : d.epoch + 1, message: d.message, hint: d.hint }) + '\n');
-      else io.err(text + '\n');
-    }
+    printDiagnostics(result.diagnostics, log, io);
     if (f.report) await writeTuneReport(f.report, modelPath, result, result.calibration ? [calibrationText(result.calibration)] : []);
-    if (result.aborted) {
-      if (f['keep-interrupted']) {
-        const partial = `${out}.interrupted`;
-        await writeModelFile(partial, result.doc);
-        io.err(`tendon: interrupted; saved the weights after the last complete batch as ${partial}; ${out} not written\n`);
-      } else {
-        io.err(`tendon: interrupted; nothing saved (${out} not written)\n`);
-      }
-      return 1;
-    }
+    if (result.aborted) return saveInterrupted(out, result.doc, f['keep-interrupted'], io);
     const written = await writeModelFile(out, result.doc);
     const seconds = (performance.now() - started) / 1000;
     const ran = result.path === 'fast' ? 'the fast kernel' : result.path === 'engine' ? `the tfjs ${ensureEngine()} engine` : 'the float64 reference';
@@ -230,4 +216,27 @@ function epochJson(e: EpochRecord) {
     updates: e.updates,
     rowsPerSecond: e.rowsPerSecond,
   };
+}
+
+/** Training warnings: on stderr as text, or as JSON lines among the epoch records. */
+function printDiagnostics(diagnostics: TuneResult['diagnostics'], log: 'text' | 'jsonl', io: Io): void {
+  for (const d of diagnostics) {
+    const where = d.layer !== undefined ? ` (layer ${d.layer})` : '';
+    const text = `warning${where}: ${d.message}${d.hint ? ` — hint: ${d.hint}` : ''}`;
+    // Epochs are counted from 1 wherever the command line shows them.
+    if (log === 'jsonl') io.out(JSON.stringify({ warning: d.code, layer: d.layer ?? null, epoch: d.epoch === undefined ? null : d.epoch + 1, message: d.message, hint: d.hint }) + '\n');
+    else io.err(text + '\n');
+  }
+}
+
+/** Ctrl-C: OUT is never written; with --keep-interrupted the weights so far go to OUT.interrupted. Exit code 1. */
+async function saveInterrupted(out: string, doc: ModelDoc, keep: boolean, io: Io): Promise<number> {
+  if (keep) {
+    const partial = `${out}.interrupted`;
+    await writeModelFile(partial, doc);
+    io.err(`tendon: interrupted; saved the weights after the last complete batch as ${partial}; ${out} not written\n`);
+  } else {
+    io.err(`tendon: interrupted; nothing saved (${out} not written)\n`);
+  }
+  return 1;
 }
