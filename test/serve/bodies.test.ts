@@ -50,7 +50,7 @@ describe('NPY bodies written by NumPy', () => {
   it('a float32 [5, 7] array is answered in JSON exactly as the same rows sent as JSON', async () => {
     const res = await post(fixture('loaves-f4.npy'), 'application/x-npy');
     expect(res.status).toBe(200);
-    const answer = await res.json();
+    const answer = (await res.json()) as any;
     const json = await postJson(url('/v1/score'), { rows: loaves(5) });
     expect(answer).toEqual(json.json);
     expect(answer.outputs).toEqual(expectedOutputs(loaves(5)));
@@ -72,7 +72,7 @@ describe('NPY bodies written by NumPy', () => {
   it('format version 2.0 (u32 header length) is read too', async () => {
     const res = await post(fixture('loaves-f4-v2.npy'), 'application/x-npy');
     expect(res.status).toBe(200);
-    expect((await res.json()).outputs).toEqual(expectedOutputs(loaves(3)));
+    expect(((await res.json()) as any).outputs).toEqual(expectedOutputs(loaves(3)));
   });
 });
 
@@ -90,7 +90,7 @@ describe('CSV bodies', () => {
   it('without a header the columns are the model inputs in order; answered in JSON by default', async () => {
     const res = await post(loaves(3).map((r) => r.join(',')).join('\n') + '\n', 'text/csv');
     expect(res.status).toBe(200);
-    expect((await res.json()).outputs).toEqual(expectedOutputs(loaves(3)));
+    expect(((await res.json()) as any).outputs).toEqual(expectedOutputs(loaves(3)));
   });
 });
 
@@ -150,7 +150,7 @@ describe('refusals: each with its status and a message naming what is wrong', ()
   it.each(REFUSALS)('%s', async (_, send, status, message) => {
     const res = await send();
     expect(res.status).toBe(status);
-    const body = await res.json();
+    const body = (await res.json()) as any;
     expect(body.error.status).toBe(status);
     expect(body.error.message).toMatch(message);
     if (status === 415) expect(res.headers.get('accept-post')).toBe('application/json, application/x-npy, text/csv');
@@ -189,7 +189,7 @@ describe('bodies that lie about their length, beside a well-behaved client', () 
       const failures: string[] = [];
       for (let i = 0; i < 20; i++) {
         const res = await post(fixture('loaves-f4.npy'), 'application/x-npy');
-        const answer = await res.json();
+        const answer = (await res.json()) as any;
         if (res.status !== 200 || JSON.stringify(answer.outputs) !== JSON.stringify(expectedOutputs(loaves(5)))) failures.push(`${res.status}`);
       }
       return failures;
