@@ -15,7 +15,7 @@ export default defineConfig([
     target: 'node20',
   },
   {
-    entry: { cli: 'src/cli/bin.ts', worker: 'src/engine/worker-entry.ts' },
+    entry: { cli: 'src/cli/bin.ts', worker: 'src/engine/worker-entry.ts', 'parse-worker': 'src/serve/parse-worker.ts' },
     format: ['esm'],
     sourcemap: true,
     target: 'node20',

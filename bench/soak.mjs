@@ -1,13 +1,16 @@
-// Soak: concurrent clients against `tendon serve` on loopback for a bounded time, with a hot
+// Soak: concurrent clients against `tendon serve` on loopback for a bounded time (JSON, NPY and
+// CSV clients mixed), then the wire comparison (bench/wire.mjs: the same load generator against
+// a bare hand-written server and tendon serve with JSON and NPY), with a hot
 // swap (a re-packed model written over the served file) and a fine-tune in the background whose
 // output is renamed over the served file when it finishes. Prints and appends to
 // bench/RESULTS.md: requests, rows, errors (must be 0), p50/p99 latency, server memory, swaps.
 //
 //   npm run soak                     # 60 s
 //   npm run soak -- --seconds 300 --clients 16
+//   npm run soak -- --seconds 20 --wire-seconds 3 --wire-rounds 3   (--no-wire skips the comparison)
 //
 // Stops by itself: after --seconds, or --max-requests answers, whichever comes first; a hard
-// deadline of seconds + 120 s ends the process whatever happens.
+// deadline of seconds + 120 s (plus the wire comparison's budget) ends the process whatever happens.
 import { spawn } from 'node:child_process';
 import { mkdtemp, readFile, rename, rm, writeFile } from 'node:fs/promises';
 import { cpus, tmpdir } from 'node:os';
@@ -35,7 +38,7 @@ const MAX_REQUESTS = option('max-requests', 2_000_000);
 const hardStop = setTimeout(() => {
   console.error('soak: hard deadline passed; stopping');
   process.exit(1);
-}, (SECONDS + 120) * 1000);
+}, (SECONDS + 120 + (process.argv.includes('--no-wire') ? 0 : option('wire-seconds', 4) * option('wire-rounds', 2) * 3 + 240)) * 1000);
 hardStop.unref();
 
 /** mulberry32: seeded uniform numbers in [0, 1), so every run sends the same rows. */
@@ -134,15 +137,52 @@ async function main() {
   const tensorsStart = await tensorsOf();
   const sampler = setInterval(async () => samples.push((await memoryOf(server.pid)).rss), 1000);
 
+  /** An NPY float32 [rows, 7] body (NEP 1, format 1.0, data on a 64-byte boundary). */
+  const npyBody = (rowsOf) => {
+    const dict = `{'descr': '<f4', 'fortran_order': False, 'shape': (${rowsOf.length}, ${FEATURES.length}), }`;
+    const total = Math.ceil((10 + dict.length + 1) / 64) * 64;
+    const head = Buffer.alloc(total, 0x20);
+    Buffer.from([0x93, 0x4e, 0x55, 0x4d, 0x50, 0x59, 1, 0]).copy(head);
+    head.writeUInt16LE(total - 10, 8);
+    head.write(dict, 10, 'latin1');
+    head[total - 1] = 0x0a;
+    return Buffer.concat([head, Buffer.from(Float32Array.from(rowsOf.flat()).buffer)]);
+  };
+  // Each client speaks one body type: JSON, NPY (answered NPY) or CSV (answered CSV), mixed.
+  const KINDS = ['json', 'npy', 'csv'];
+  const request = (kind, rowsOf) => {
+    if (kind === 'npy') return { headers: { 'content-type': 'application/x-npy', accept: 'application/x-npy' }, body: npyBody(rowsOf) };
+    if (kind === 'csv') return { headers: { 'content-type': 'text/csv', accept: 'text/csv' }, body: [FEATURES.join(','), ...rowsOf.map((r) => r.join(','))].join('\n') };
+    return { headers: { 'content-type': 'application/json' }, body: JSON.stringify({ rows: rowsOf }) };
+  };
+  /** Outputs per row and the model that answered, from any answer type. */
+  const answerOf = async (kind, res) => {
+    if (kind === 'npy') {
+      const bytes = Buffer.from(await res.arrayBuffer());
+      const data = bytes.subarray(10 + bytes.readUInt16LE(8));
+      const values = new Float32Array(data.buffer.slice(data.byteOffset, data.byteOffset + data.byteLength));
+      return { model: res.headers.get('tendon-model'), outputs: Array.from({ length: values.length / 3 }, (_, r) => Array.from(values.subarray(r * 3, r * 3 + 3))), text: '' };
+    }
+    if (kind === 'csv') {
+      const text = await res.text();
+      const [header, ...lines] = text.trimEnd().split('\n');
+      return { model: res.headers.get('tendon-model'), outputs: header === LABELS.join(',') ? lines.map((l) => l.split(',').map(Number)) : null, text };
+    }
+    const answer = await res.json();
+    return { model: answer.model, outputs: answer.outputs, text: JSON.stringify(answer) };
+  };
+
+  const byKind = { json: 0, npy: 0, csv: 0 };
   async function client(seed) {
     const r = seeded(seed);
+    const kind = KINDS[seed % KINDS.length];
     while (performance.now() < deadline && requests < MAX_REQUESTS) {
       const n = 1 + Math.floor(r() * 16);
-      const body = JSON.stringify({ rows: Array.from({ length: n }, () => rowOf(r)) });
+      const { headers, body } = request(kind, Array.from({ length: n }, () => rowOf(r)));
       const t0 = performance.now();
       try {
-        const res = await fetch(`${url}/v1/score`, { method: 'POST', headers: { 'content-type': 'application/json' }, body });
-        const answer = await res.json();
+        const res = await fetch(`${url}/v1/score`, { method: 'POST', headers, body });
+        const answer = await answerOf(kind, res);
         latencies.push(performance.now() - t0);
         requests++;
         const sane =
@@ -151,14 +191,15 @@ async function main() {
           answer.outputs.length === n &&
           // Softmax rows sum to 1 (common practice); float32 rounding allows a little.
           answer.outputs.every((o) => o.length === 3 && o.every(Number.isFinite) && Math.abs(o[0] + o[1] + o[2] - 1) < 1e-5);
-        if (!sane) errors.push(`${res.status} ${JSON.stringify(answer).slice(0, 120)}`);
+        if (!sane) errors.push(`${kind} ${res.status} ${answer.text.slice(0, 120)}`);
         else {
           rows += n;
+          byKind[kind]++;
           checksums.set(answer.model, (checksums.get(answer.model) ?? 0) + 1);
         }
       } catch (error) {
         requests++;
-        errors.push(String(error));
+        errors.push(`${kind} ${String(error)}`);
       }
     }
   }
@@ -221,6 +262,7 @@ async function main() {
   console.log(
     [
       `requests served   ${requests.toLocaleString('en-US')} (${rows.toLocaleString('en-US')} rows) in ${elapsed.toFixed(1)} s, ${(requests / elapsed).toFixed(0)} req/s`,
+      `by body type      ${KINDS.map((k) => `${k} ${byKind[k]}`).join(', ')} requests answered right`,
       `errors            ${errors.length}${errors.length ? ` (first: ${errors[0]})` : ''}`,
       `latency           p50 ${figures.p50.toFixed(2)} ms, p99 ${figures.p99.toFixed(2)} ms`,
       `server memory     rss ${mib(figures.rssStart)} MiB at start, ${mib(figures.rssWarm)} MiB after warm-up, ${mib(figures.rssEnd)} MiB at end, peak ${mib(figures.rssPeak)} MiB`,
@@ -231,7 +273,16 @@ async function main() {
 
   await recordRow(`| ${date} | ${machine} | ${process.version} | ${elapsed.toFixed(0)} | ${CLIENTS} | ${requests} | ${rows} | ${errors.length} | ${figures.p50.toFixed(2)} | ${figures.p99.toFixed(2)} | ${mib(figures.rssStart)} | ${mib(figures.rssWarm)} | ${mib(figures.rssEnd)} | ${mib(figures.rssPeak)} | ${swaps} | ${checksums.size} | ${tensorsStart} | ${tensorsEnd} |`);
   console.log(`added a row to the soak table in ${RESULTS}`);
-  process.exitCode = errors.length === 0 && tensorsEnd === tensorsStart ? 0 : 1;
+  let wireOk = true;
+  if (!process.argv.includes('--no-wire')) {
+    // The wire comparison, same load generator for every server (bench/wire.mjs); it appends its own rows.
+    console.log('\nwire: bare node:http server vs tendon serve (JSON, NPY), same load generator');
+    wireOk = await new Promise((resolve) => {
+      const child = spawn(process.execPath, [join(HERE, 'wire.mjs'), '--seconds', String(option('wire-seconds', 4)), '--rounds', String(option('wire-rounds', 2))], { stdio: 'inherit' });
+      child.once('exit', (code) => resolve(code === 0));
+    });
+  }
+  process.exitCode = errors.length === 0 && tensorsEnd === tensorsStart && wireOk ? 0 : 1;
 }
 
 /**

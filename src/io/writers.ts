@@ -141,6 +141,6 @@ function jsonlRowMaker(columns: readonly string[], rows: 'objects' | 'arrays'): 
 }
 
 /** RFC 4180: quote a name holding a comma, quote or line break (and keep edge spaces visible). */
-function csvQuote(name: string): string {
+export function csvQuote(name: string): string {
   return /[",\r\n]|^\s|\s$/.test(name) ? `"${name.replace(/"/g, '""')}"` : name;
 }

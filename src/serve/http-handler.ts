@@ -10,12 +10,17 @@ import { RuntimeFailure } from '../errors.js';
 import { liveTensorCount } from '../engine/index.js';
 import { openModel, type TendonModel } from '../tendon.js';
 import { BusyError, type BatcherOptions, type MicroBatcher } from './batcher.js';
+import { bearerChallenge, type Authorize } from './http-access.js';
 import { readBody } from './http-body.js';
 import { EXPLAIN_MAX_ROWS, explainRequest } from './http-explain.js';
+import { csvAnswer } from './http-csv.js';
+import { ACCEPTED_TYPES, BODY_TYPES, answerFormatOf, bodyFormatOf } from './http-formats.js';
+import { encodeNpyAnswer } from './http-npy.js';
+import { parseRequestBody } from './http-parse.js';
 import { HttpProblem } from './http-problem.js';
 import { METHODS, ROUTES, pathOf, printablePath, send, sendJson } from './http-routes.js';
-import { parseScoreBody } from './http-rows.js';
-import { GENERATIONS_KEPT, scoreAnswer, slotBatcher, type Generation, type ModelBatchRunner } from './http-score.js';
+import { GENERATIONS_KEPT, outputNames, scoreAnswer, slotBatcher, splitGeneration, type Generation, type ModelBatchRunner } from './http-score.js';
+import { ParsePool, parseWorkerScript } from './parse-pool.js';
 import { PooledRunner, workerCount, type WorkerCount } from './http-pool.js';
 import { METRICS_CONTENT_TYPE, ServiceCounters } from './metrics.js';
 import { ModelSlot, type SwapOutcome } from './swap.js';
@@ -43,12 +48,19 @@ export interface RequestHandlerOptions {
   readonly workers?: WorkerCount;
   /** The built worker script (dist/worker.js) when `workers` is above 1; default: the one beside the pool module. */
   readonly workerScript?: string | URL;
+  /** The built parse thread script (dist/parse-worker.js); default: beside `workerScript`, else beside this module. */
+  readonly parseWorkerScript?: string | URL;
   /** Drift counters against the model's normalisation statistics: threshold in sd, or false. Default { k: 3 }. */
   readonly drift?: { readonly k?: number } | false;
   /** Reload when the model file changes (a file model only). Default false; `tendon serve` turns it on. */
   readonly watch?: boolean | { readonly debounceMs: number };
   /** Seconds a client is asked to wait in Retry-After when the queue is full. Default 1. */
   readonly retryAfterSeconds?: number;
+  /**
+   * Who may call: false (or a rejection) is answered 401 with WWW-Authenticate. The liveness and
+   * readiness routes never ask. Default: everyone. `bearerToken(secret)` checks a bearer token.
+   */
+  readonly authorize?: Authorize;
   /** One line per event (swap, refusal, internal error). Default: stderr. */
   readonly log?: (line: string) => void;
 }
@@ -84,6 +96,10 @@ export function createRequestHandler(options: RequestHandlerOptions): TendonRequ
   const size = workerCount(options.workers);
   if (size > 1 && options.runBatch) throw new RuntimeFailure(`createRequestHandler: runBatch cannot be combined with workers = ${size}; the workers run the batches`);
   const pools = size > 1 ? new PooledRunner({ size, workerScript: options.workerScript, log }) : null;
+  // With worker threads, JSON and CSV bodies are parsed on threads of their own too.
+  const parseScript = size > 1 ? parseWorkerScript(options.parseWorkerScript, options.workerScript) : null;
+  if (size > 1 && !parseScript) log('tendon serve: no parse-worker.js beside the worker script; request bodies are parsed on the main thread');
+  const parsers = parseScript ? new ParsePool(size, parseScript) : null;
   const runBatch: ModelBatchRunner = options.runBatch ?? pools?.run ?? ((model, x, rows) => model.run(x, rows));
 
   let slot: ModelSlot | null = null;
@@ -143,12 +159,23 @@ export function createRequestHandler(options: RequestHandlerOptions): TendonRequ
 
   const maxRows = Math.min(options.maxRowsPerRequest ?? 10_000, options.batcher?.maxQueueRows ?? 4096);
 
-  async function score(req: IncomingMessage): Promise<{ status: number; body: unknown; rows: number }> {
+  interface ScoreReply {
+    readonly rows: number;
+    readonly body: string | Buffer;
+    readonly type: string;
+    readonly headers: Record<string, string>;
+  }
+
+  async function score(req: IncomingMessage): Promise<ScoreReply> {
     if (closing) throw new HttpProblem(503, 'shutting down; no new requests are taken', { 'retry-after': retryAfter, connection: 'close' });
     const model = slot?.current;
     if (!slot || !batcher || !model) throw notLoaded();
-    const text = (await readBody(req, bodyLimit)).toString('utf8');
-    const { rows, x } = parseScoreBody(text, { inputs: model.inputs, features: model.features, maxRows });
+    const format = bodyFormatOf(req);
+    const answerFormat = answerFormatOf(req);
+    const bytes = await readBody(req, bodyLimit);
+    const shape = { inputs: model.inputs, features: model.features, maxRows };
+    // NPY is a copy of bytes either way; text formats go to the parse threads when there are some.
+    const { rows, x } = parsers && format !== 'npy' ? await parsers.parse(format, bytes, shape) : parseRequestBody(format, bytes, shape);
     let y: Float32Array;
     try {
       y = await batcher.submit(x);
@@ -156,13 +183,21 @@ export function createRequestHandler(options: RequestHandlerOptions): TendonRequ
       if (error instanceof BusyError) throw new HttpProblem(503, error.message, { 'retry-after': retryAfter });
       throw error;
     }
-    const { generation, body } = scoreAnswer(y, rows, generations);
+    const generation = y[y.length / rows - 1]!;
     // Drift counts rows scored by the model now served, not by one swapped out meanwhile.
     if (drift && generation === slot.generation) {
       drift.add(x, rows);
       counters.drift = drift.report();
     }
-    return { status: 200, body, rows };
+    if (answerFormat === 'json') {
+      return { rows, body: JSON.stringify(scoreAnswer(y, rows, generations).body) + '\n', type: `${BODY_TYPES.json}; charset=utf-8`, headers: {} };
+    }
+    const split = splitGeneration(y, rows);
+    const facts = generations.get(generation);
+    // The answer has no room for the model's checksum in its body, so it rides in a header.
+    const headers: Record<string, string> = facts?.checksum ? { 'tendon-model': facts.checksum } : {};
+    if (answerFormat === 'npy') return { rows, body: encodeNpyAnswer(split.outputs, rows, split.width), type: BODY_TYPES.npy, headers };
+    return { rows, body: csvAnswer(split.outputs, rows, outputNames(facts?.labels ?? null, split.width)), type: `${BODY_TYPES.csv}; charset=utf-8`, headers };
   }
 
   function about(): unknown {
@@ -172,7 +207,7 @@ export function createRequestHandler(options: RequestHandlerOptions): TendonRequ
       model.source && model.checksum && model.fileBytes !== null
         ? { path: model.source, checksum: model.checksum, bytes: model.fileBytes, version: model.formatVersion ?? '' }
         : null;
-    return modelFacts(model.doc, file);
+    return { ...modelFacts(model.doc, file), accepts: ACCEPTED_TYPES };
   }
 
   async function route(req: IncomingMessage, res: ServerResponse, path: string): Promise<{ status: number; rows: number }> {
@@ -182,8 +217,10 @@ export function createRequestHandler(options: RequestHandlerOptions): TendonRequ
     switch (path) {
       case ROUTES.score: {
         const answer = await score(req);
-        sendJson(res, answer.status, answer.body, closing ? { connection: 'close' } : {});
-        return answer;
+        const body = typeof answer.body === 'string' ? Buffer.from(answer.body, 'utf8') : answer.body;
+        res.writeHead(200, { ...answer.headers, ...(closing ? { connection: 'close' } : {}), 'content-type': answer.type, 'content-length': String(body.length), 'cache-control': 'no-store', vary: 'accept' });
+        res.end(body);
+        return { status: 200, rows: answer.rows };
       }
       case ROUTES.explain: {
         if (closing) throw new HttpProblem(503, 'shutting down; no new requests are taken', { 'retry-after': retryAfter, connection: 'close' });
@@ -231,7 +268,21 @@ export function createRequestHandler(options: RequestHandlerOptions): TendonRequ
       const path = pathOf(req.url, prefix);
       if (path !== null && path in METHODS) label = prefix + path;
       if (path === null) throw new HttpProblem(404, `no route ${printablePath(req.url ?? '')}`);
-      route(req, res, path).then((r) => finish(r.status, r.rows), fail);
+      // Probes stay open, so an orchestrator needs no secret to see the process is up.
+      const open = !options.authorize || path === ROUTES.alive || path === ROUTES.ready;
+      const allowed = open ? Promise.resolve(true) : Promise.resolve().then(() => options.authorize!(req));
+      allowed
+        .then(
+          (ok) => {
+            if (!ok) throw new HttpProblem(401, 'a valid bearer token is required (Authorization: Bearer TOKEN)', { 'www-authenticate': bearerChallenge(req) });
+          },
+          (error: unknown) => {
+            log(`tendon serve: authorize failed on ${printablePath(req.url ?? '')}: ${error instanceof Error ? error.message : String(error)}`);
+            throw new HttpProblem(401, 'the request could not be authorized', { 'www-authenticate': bearerChallenge(req) });
+          },
+        )
+        .then(() => route(req, res, path))
+        .then((r) => finish(r.status, r.rows), fail);
     } catch (error) {
       fail(error);
     }
@@ -255,6 +306,7 @@ export function createRequestHandler(options: RequestHandlerOptions): TendonRequ
           await batcher?.close();
           await slot?.close();
           await pools?.close();
+          await parsers?.close();
         });
       return closed;
     },

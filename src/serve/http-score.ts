@@ -46,6 +46,22 @@ function withGeneration(y: Float32Array, rows: number, generation: number): Floa
   return out;
 }
 
+/**
+ * The outputs of a batcher answer without the generation column, and that generation.
+ * @example splitGeneration(Float32Array.of(0.2, 0.8, 1), 1) // { generation: 1, width: 2, outputs: Float32Array [0.2, 0.8] }
+ */
+export function splitGeneration(y: Float32Array, rows: number): { generation: number; width: number; outputs: Float32Array } {
+  const width = y.length / rows - 1;
+  const outputs = new Float32Array(rows * width);
+  for (let r = 0; r < rows; r++) outputs.set(y.subarray(r * (width + 1), r * (width + 1) + width), r * width);
+  return { generation: y[width]!, width, outputs };
+}
+
+/** Output names for a CSV answer: the model's labels, else output_0, output_1, ... */
+export function outputNames(labels: readonly string[] | null, width: number): readonly string[] {
+  return labels && labels.length === width ? labels : Array.from({ length: width }, (_, i) => `output_${i}`);
+}
+
 function argmax(row: readonly number[]): number {
   let best = 0;
   for (let j = 1; j < row.length; j++) if (row[j] > row[best]) best = j;

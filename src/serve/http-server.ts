@@ -5,6 +5,8 @@
  */
 import { createServer, type Server } from 'node:http';
 import type { AddressInfo } from 'node:net';
+import { UsageError } from '../errors.js';
+import { isLoopbackHost } from './http-access.js';
 import { createRequestHandler, type RequestHandlerOptions, type TendonRequestHandler } from './http-handler.js';
 
 export interface ServerOptions extends Omit<RequestHandlerOptions, 'model'> {
@@ -13,6 +15,11 @@ export interface ServerOptions extends Omit<RequestHandlerOptions, 'model'> {
   readonly port?: number;
   /** Default 127.0.0.1: loopback only, until the caller decides otherwise. */
   readonly host?: string;
+  /**
+   * Serve a host other than loopback without `authorize`. Default false: such a server refuses
+   * to start, since anyone who can reach the port could score and read the model's facts.
+   */
+  readonly open?: boolean;
   /** Longest a graceful close waits for open connections after the queue has drained. Default 5000 ms. */
   readonly closeTimeoutMs?: number;
   /** Longest wait for a request's headers (a client that connects and sends nothing). Default 10 000 ms. */
@@ -44,9 +51,17 @@ export interface RunningServer {
  * const running = await startServer({ modelPath: 'bakery.tendon', port: 0 });
  * console.log(running.url); // http://127.0.0.1:40123
  * await running.close();
- * @throws ModelFileError when the model file cannot be used.
+ * @throws ModelFileError when the model file cannot be used; UsageError for a host other than
+ *   loopback with neither `authorize` nor `open`.
  */
 export async function startServer(options: ServerOptions): Promise<RunningServer> {
+  const host = options.host ?? '127.0.0.1';
+  if (!isLoopbackHost(host) && !options.authorize && !options.open) {
+    throw new UsageError(
+      '--host',
+      `${host} is not a loopback address, so other machines could call the endpoint: give a bearer token (--token-file FILE, or the authorize option) or say --open (open: true) to serve without one`,
+    );
+  }
   const handler = createRequestHandler({ ...options, model: options.modelPath });
   await handler.ready;
   const headersTimeout = options.headersTimeoutMs ?? 10_000;
@@ -56,7 +71,6 @@ export async function startServer(options: ServerOptions): Promise<RunningServer
   // A client that opens a connection and never sends must not hold the process.
   server.requestTimeout = options.requestTimeoutMs ?? 30_000;
   server.headersTimeout = headersTimeout;
-  const host = options.host ?? '127.0.0.1';
   try {
     await new Promise<void>((resolve, reject) => {
       server.once('error', reject);

@@ -31,3 +31,20 @@ export function workerScript(): string {
   bundled = out;
   return out;
 }
+
+let bundledParser: string | null = null;
+
+/** The parse thread script, bundled from the sources like the worker entry (or dist/parse-worker.js with TENDON_TEST_WORKER=dist). */
+export function parseWorkerScript(): string {
+  if (process.env.TENDON_TEST_WORKER === 'dist') return join(root, 'dist', 'parse-worker.js');
+  if (bundledParser) return bundledParser;
+  const out = join(root, 'node_modules', '.cache', 'tendon-test', `parse-worker-${process.pid}.js`);
+  mkdirSync(dirname(out), { recursive: true });
+  execFileSync(
+    join(root, 'node_modules', '.bin', 'esbuild'),
+    ['src/serve/parse-worker.ts', '--bundle', '--platform=node', '--format=esm', '--target=node20', '--packages=external', `--outfile=${out}`, '--log-level=warning'],
+    { cwd: root },
+  );
+  bundledParser = out;
+  return out;
+}

@@ -13,13 +13,14 @@ const flags = {
   output: { kind: 'string', short: 'o', help: 'where to write the scores: .csv, .jsonl or .npy' },
   batch: { kind: 'integer', help: 'rows read and scored at a time (bounds memory)', default: 4096 },
   engine: { kind: 'string', help: 'auto, fast, wasm or js', default: 'auto' },
+  shard: { kind: 'string', help: 'K/N: score only the K-th (1-based) of N contiguous row ranges, for one task of an indexed batch job' },
   drift: { kind: 'boolean', help: 'after scoring, print per-feature drift against the model\'s normalisation statistics to stderr' },
 } as const;
 
 export const score: Command = {
   name: 'score',
   summary: 'score a data file with a model, streaming, one output row per input row',
-  usage: 'tendon score MODEL --input FILE --output FILE [--batch N] [--engine js|wasm|auto] [--drift]',
+  usage: 'tendon score MODEL --input FILE --output FILE [--batch N] [--engine js|wasm|auto] [--shard K/N] [--drift]',
   flags,
   async run(argv, io) {
     const { flags: f, positionals } = parseArgs(argv, flags);
@@ -29,6 +30,7 @@ export const score: Command = {
     const output = requireFlag(f.output, 'output');
     const batch = f.batch ?? 4096;
     if (batch < 1) throw new UsageError('--batch', `must be at least 1, got ${batch}`);
+    const shard = f.shard === undefined ? null : parseShard(f.shard);
     const model = await openModel(path, { engine: parseEngine(f.engine), chunkRows: Math.min(batch, 4096) });
     try {
       const drift = f.drift ? DriftMonitor.forModel(model.doc) : null;
@@ -36,8 +38,18 @@ export const score: Command = {
       const writer = await openTableWriter(output, outputColumns(model.doc, model.outputs));
       let rows = 0;
       const started = performance.now();
+      let part = '';
       try {
-        for await (const chunk of inputChunks(model.doc, input, batch)) {
+        let chunks = inputChunks(model.doc, input, batch);
+        if (shard) {
+          // The row count decides the ranges, so a first pass counts the rows.
+          let total = 0;
+          for await (const chunk of inputChunks(model.doc, input, batch)) total += chunk.rows;
+          const range = shardRange(shard, total);
+          part = ` (part ${shard.k} of ${shard.n}: rows ${range.start + 1}..${range.end} of ${grouped(total)})`;
+          chunks = rowRange(chunks, range.start, range.end);
+        }
+        for await (const chunk of chunks) {
           await writer.write(chunk.rows, model.run(chunk.x, chunk.rows));
           drift?.add(chunk.x, chunk.rows);
           rows += chunk.rows;
@@ -48,7 +60,7 @@ export const score: Command = {
         throw error;
       }
       const seconds = (performance.now() - started) / 1000;
-      io.err(`scored ${grouped(rows)} rows into ${output} in ${seconds.toFixed(2)} s on the ${model.engine} engine\n`);
+      io.err(`scored ${grouped(rows)} rows${part} into ${output} in ${seconds.toFixed(2)} s on the ${model.engine} engine\n`);
       if (drift) io.err(describeDrift(drift.report()));
       return 0;
     } finally {
@@ -56,3 +68,46 @@ export const score: Command = {
     }
   },
 };
+
+/** A shard K of N, 1-based. */
+interface Shard {
+  readonly k: number;
+  readonly n: number;
+}
+
+/** '--shard 2/5' -> { k: 2, n: 5 }; anything else is a usage error. */
+function parseShard(text: string): Shard {
+  const m = /^(\d+)\/(\d+)$/.exec(text.trim());
+  if (!m) throw new UsageError('--shard', `expected K/N such as 2/5 (part K of N, counted from 1), got ${JSON.stringify(text)}`);
+  const k = Number(m[1]);
+  const n = Number(m[2]);
+  if (!Number.isSafeInteger(n) || n < 1) throw new UsageError('--shard', `N must be at least 1, got ${m[2]}`);
+  if (!Number.isSafeInteger(k) || k < 1 || k > n) throw new UsageError('--shard', `K must be 1 to ${n} (parts are counted from 1), got ${m[1]}`);
+  return { k, n };
+}
+
+/**
+ * Rows [start, end) of part K of N over `total` rows: contiguous, in order, covering every row
+ * once, sizes differing by at most one (the first floor((K-1)·total/N) rows belong to earlier parts).
+ * @example shardRange({ k: 2, n: 3 }, 10) // { start: 3, end: 6 }
+ */
+export function shardRange(shard: Shard, total: number): { start: number; end: number } {
+  return { start: Math.floor(((shard.k - 1) * total) / shard.n), end: Math.floor((shard.k * total) / shard.n) };
+}
+
+/** The rows [start, end) of a chunk stream, cut at chunk edges; stops reading past `end`. */
+async function* rowRange(
+  chunks: AsyncGenerator<{ rows: number; x: Float32Array; firstLine: number }>,
+  start: number,
+  end: number,
+): AsyncGenerator<{ rows: number; x: Float32Array; firstLine: number }> {
+  let at = 0;
+  for await (const chunk of chunks) {
+    const width = chunk.x.length / chunk.rows;
+    const from = Math.max(start, at) - at;
+    const to = Math.min(end, at + chunk.rows) - at;
+    if (to > from) yield { rows: to - from, x: chunk.x.subarray(from * width, to * width), firstLine: chunk.firstLine + from };
+    at += chunk.rows;
+    if (at >= end) break;
+  }
+}

@@ -1,5 +1,6 @@
+import { readFile } from 'node:fs/promises';
 import { UsageError } from '../../errors.js';
-import { ROUTES, startServer, workerCount, type WorkerCount } from '../../serve/http.js';
+import { ACCEPTED_TYPES, ROUTES, bearerToken, isLoopbackHost, startServer, workerCount, type WorkerCount } from '../../serve/http.js';
 import { noExtraPositionals, parseArgs, requirePositional } from '../args.js';
 import type { Command } from '../command.js';
 
@@ -13,12 +14,14 @@ const flags = {
   'drift-k': { kind: 'number', help: 'drift counters flag a feature whose mean moved more than this many sd', default: 3 },
   workers: { kind: 'string', help: "worker threads that run batches: 1 runs them in the main thread; 0 or 'auto' one per core", default: '1' },
   'no-watch': { kind: 'boolean', help: 'do not reload when the model file changes (SIGHUP still reloads)' },
+  'token-file': { kind: 'string', help: 'a file holding the bearer token clients must send (Authorization: Bearer TOKEN); alive and ready stay open' },
+  open: { kind: 'boolean', help: 'serve a host other than loopback without a token (only behind your own access control)' },
 } as const;
 
 export const serve: Command = {
   name: 'serve',
   summary: 'serve a model over HTTP on loopback: score, about, alive, ready and counters routes; hot swap on file change or SIGHUP',
-  usage: 'tendon serve MODEL [--port P] [--host H] [--body-limit BYTES] [--batch-rows N] [--wait-ms MS] [--queue-rows N] [--drift-k K] [--workers N|auto] [--no-watch]',
+  usage: 'tendon serve MODEL [--port P] [--host H] [--body-limit BYTES] [--batch-rows N] [--wait-ms MS] [--queue-rows N] [--drift-k K] [--workers N|auto] [--no-watch] [--token-file FILE | --open]',
   flags,
   async run(argv, io) {
     const { flags: f, positionals } = parseArgs(argv, flags);
@@ -33,10 +36,18 @@ export const serve: Command = {
     const waitMs = f['wait-ms'] ?? 2;
     if (!(waitMs >= 0)) throw new UsageError('--wait-ms', `must be 0 or more, got ${waitMs}`);
     const workers = parseWorkers(f.workers ?? '1');
+    const host = f.host ?? '127.0.0.1';
+    if (f['token-file'] !== undefined && f.open) throw new UsageError('--open', 'cannot be combined with --token-file; choose one');
+    const token = f['token-file'] !== undefined ? await readToken(f['token-file']) : null;
+    if (!isLoopbackHost(host) && !token && !f.open) {
+      throw new UsageError('--host', `${host} is not a loopback address, so other machines could call the endpoint: give --token-file FILE (clients send Authorization: Bearer TOKEN), or --open to serve without a token`);
+    }
     const running = await startServer({
       modelPath,
       port,
-      host: f.host,
+      host,
+      authorize: token ? bearerToken(token) : undefined,
+      open: f.open ?? false,
       bodyLimitBytes: positive('body-limit', f['body-limit']),
       batcher: { maxBatchRows: positive('batch-rows', f['batch-rows']), maxWaitMs: waitMs, maxQueueRows: positive('queue-rows', f['queue-rows']) },
       drift: { k: positive('drift-k', f['drift-k']) },
@@ -49,7 +60,8 @@ export const serve: Command = {
     io.out(
       `serving ${modelPath} (checksum ${model?.checksum}) on ${running.url}` +
         (threads > 1 ? ` with ${threads} worker threads on the ${model?.engine} engine\n` : '\n') +
-        `routes: POST ${ROUTES.score}, GET ${ROUTES.about}, ${ROUTES.alive}, ${ROUTES.ready}, ${ROUTES.counters}\n` +
+        `routes: POST ${ROUTES.score} (${ACCEPTED_TYPES.join(', ')}), GET ${ROUTES.about}, ${ROUTES.alive}, ${ROUTES.ready}, ${ROUTES.counters}\n` +
+        (token ? `clients must send the bearer token from ${f['token-file']}; ${ROUTES.alive} and ${ROUTES.ready} stay open\n` : '') +
         `SIGHUP reloads the model file; SIGTERM or Ctrl-C stops after answering what is queued\n`,
     );
     const reload = () => void running.handler.reload();
@@ -71,6 +83,21 @@ export const serve: Command = {
     return 0;
   },
 };
+
+/** The token from --token-file: the file's text without surrounding whitespace; it is never printed. */
+async function readToken(path: string): Promise<string> {
+  let text: string;
+  try {
+    text = await readFile(path, 'utf8');
+  } catch (error) {
+    const code = (error as { code?: unknown } | null)?.code;
+    throw new UsageError('--token-file', `${path}: ${code === 'ENOENT' ? 'no such file' : code === 'EACCES' ? 'permission denied' : 'cannot be read'}`);
+  }
+  const token = text.trim();
+  if (token === '') throw new UsageError('--token-file', `${path} is empty; put the token in it`);
+  if (/\s/.test(token)) throw new UsageError('--token-file', `${path} holds more than one word; a bearer token is one word (no spaces or line breaks)`);
+  return token;
+}
 
 /** '--workers auto' or a whole number >= 0 (0 also means one per core). */
 function parseWorkers(text: string): WorkerCount {
