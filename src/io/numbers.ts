@@ -14,6 +14,22 @@ const DECIMAL = /^[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?$/;
  * @example parseNumberCell('0x10') // undefined
  */
 export function parseNumberCell(cell: string): number | undefined {
+  // Fast path for the common cell: short, plain digits with at most one point ("0", "12.5").
+  const n = cell.length;
+  if (n > 0 && n < 16) {
+    let point = 0;
+    let digits = 0;
+    for (let i = 0; i < n; i++) {
+      const c = cell.charCodeAt(i);
+      if (c >= 48 && c <= 57) digits++;
+      else if (c === 46) point++;
+      else {
+        digits = -1;
+        break;
+      }
+    }
+    if (digits > 0 && point <= 1) return Number(cell);
+  }
   const text = cell.trim();
   if (!DECIMAL.test(text)) return undefined;
   const value = Number(text);

@@ -1,5 +1,5 @@
 import { describe, expect, it } from 'vitest';
-import { openCsvTable } from '../../src/io/csv.js';
+import { openCsvTable, sniffSeparator } from '../../src/io/csv.js';
 import { CsvTokenizer } from '../../src/io/csv-tokenizer.js';
 import { readTable, selectColumns } from '../../src/io/index.js';
 import { captureDataError, seededRandom, tempFolder } from './helpers.js';
@@ -227,5 +227,41 @@ describe('CSV tables', () => {
     await table.close();
     expect(seen).toBe(300);
     expect(table.bytesRead).toBeLessThan(table.bytesTotal);
+  });
+});
+
+describe('CSV separators, unnamed and skipped columns', () => {
+  it.each([
+    ['a,b;c\n', ','],
+    ['a;b;c\n1,5;2;3\n', ';'],
+    ['a\tb\tc\n', '\t'],
+    ['"x;y"\t"z,w"\n', '\t'],
+    ['single\n', ','],
+  ])('sniffs %j as %j (comma, else semicolon, else tab, from the first line outside quotes)', (text, sep) => {
+    expect(sniffSeparator(text)).toBe(sep);
+  });
+
+  it('reads a semicolon file with quoted cells the same as the comma file', async () => {
+    const comma = await readTable(file('c.csv', 'a,b,note\n1,2,"x, y"\n3,4,z\n'), { textColumns: ['note'] });
+    const semi = await readTable(file('s.csv', 'a;b;note\n1;2;"x; y"\n3;4;z\n'), { textColumns: ['note'] });
+    expect(Array.from(semi.data)).toEqual(Array.from(comma.data));
+    expect(semi.text.get(2)).toEqual(['x; y', 'z']);
+  });
+
+  it('reads a .tsv file with tabs even when the header holds a comma', async () => {
+    const t = await readTable(file('t.tsv', 'a, b\tc\n1\t2\n'));
+    expect([t.columns, Array.from(t.data)]).toEqual([['a, b', 'c'], [1, 2]]);
+  });
+
+  it('never parses skipped columns nor unnamed ones: blanks and words there are fine, NaN in their slots', async () => {
+    const t = await readTable(file('k.csv', ',a,label,b,\n0,1,,2,\nrow,3,good,4,\n'), { skipColumns: ['label'] });
+    expect(t.columns).toEqual(['', 'a', 'label', 'b', '']);
+    expect(Array.from(t.data).map((v) => (Number.isNaN(v) ? null : v))).toEqual([null, 1, null, 2, null, null, 3, null, 4, null]);
+  });
+
+  it('refuses 1e39 at the cell (past float32, IEEE 754 binary32) but reads 3.4e38', async () => {
+    const e = await captureDataError(() => readTable(file('o.csv', 'a,b\n3.4e38,1\n-1e39,2\n')));
+    expect([e.line, e.column]).toEqual([3, 1]);
+    expect(e.detail).toBe('cell "-1e39" in column "a" is out of the float32 range (largest finite: 3.4028235e38)');
   });
 });

@@ -74,3 +74,14 @@ describe('JSONL tables (one JSON value per line, RFC 8259 values)', () => {
     expect(last).toBe(999 * 999);
   });
 });
+
+describe('JSONL keys that are not read', () => {
+  it('reads class cells given as numbers as their text, and skips a column whose key comes and goes', async () => {
+    const t = await readTable(file('k.jsonl', '{"x": 1, "y": 2, "note": "a"}\n{"x": 3, "y": 1.0}\n{"x": 5, "y": 0, "note": {"deep": [1]}, "id": 9}\n'), {
+      textColumns: ['y'],
+      skipColumns: ['note'],
+    });
+    expect(t.text.get(1)).toEqual(['2', '1', '0']);
+    expect(Array.from(t.data).map((v) => (Number.isNaN(v) ? null : v))).toEqual([1, null, null, 3, null, null, 5, null, null]);
+  });
+});
