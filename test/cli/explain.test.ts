@@ -169,6 +169,6 @@ describe('tune --calibrate without hold-out rows', () => {
   it('is a usage error, exit 2, one line', async () => {
     const r = await runCli('tune', model, '--data', join(dir, 'iris.csv'), '--target', 'species', '-o', join(dir, 'z.tendon'), '--calibrate');
     expect(r.code).toBe(2);
-    expect(r.err.trim()).toBe('tendon: --calibrate: needs hold-out rows to fit the temperature on: add --holdout FRACTION or --holdout-file FILE');
+    expect(r.err.trim()).toBe('tendon: --calibrate: needs hold-out rows to fit the temperature on: add --holdout FRACTION or --holdout-file FILE (hint: tendon tune --help lists its options)');
   });
 });

@@ -200,7 +200,7 @@ describe('real files through tune, score, about and shrink (python3-sklearn data
     const spec = writeSpec('wine-opts.json', specOf(13, [8], 3, 'softmax', ['class_0', 'class_1', 'class_2']));
     const r = await runCli('tune', spec, '--data', csv, '--target', 'cultivar', '-o', join(dir, 'wine-opts.tendon'), '--stop-after', '3');
     expect(r.code).toBe(2);
-    expect(r.err.trim()).toBe('tendon: --stop-after: early stopping needs hold-out rows (--holdout or --holdout-file)');
+    expect(r.err.trim()).toBe('tendon: --stop-after: early stopping needs hold-out rows (--holdout or --holdout-file) (hint: tendon tune --help lists its options)');
     const decay = await runCli('tune', spec, '--data', csv, '--target', 'cultivar', '-o', join(dir, 'wine-opts.tendon'), '--weight-decay', '-1');
     expect(decay.code).toBe(2);
     expect(decay.err).toMatch(/^tendon: --weight-decay: must be in/);
@@ -217,7 +217,7 @@ describe('real files through tune, score, about and shrink (python3-sklearn data
     });
     const r = await runCli('tune', spec, '--data', csv, '--target', 'species', '-o', join(dir, 'iris-frozen.tendon'), '--freeze', '0,2', '--log', 'text');
     expect(r.code).toBe(2);
-    expect(r.err.trim()).toBe('tendon: --freeze: every layer with weights (0, 2) is frozen: nothing would train');
+    expect(r.err.trim()).toBe('tendon: --freeze: every layer with weights (0, 2) is frozen: nothing would train (hint: tendon tune --help lists its options)');
     expect(existsSync(join(dir, 'iris-frozen.tendon'))).toBe(false);
   });
 
