@@ -313,7 +313,7 @@ describe('content checks report every problem at once', () => {
           w.dtype = DTYPE_CODES.i8;
           w.data = w.data.subarray(0, 12);
           w.scales = [0.5, 0.25, bad, 1];
-        }, 'layers[0].dense.weight.scales', /1 zero, negative or non-finite scale value \(first at element 2/] as const,
+        }, 'layers[0].dense.weight.scales', /1 zero, negative or non-finite scale value \(first at element 2/] as [string, (r: RawModel) => void, string, RegExp],
     ),
   ])('%s', (_name, edit, where, message) => {
     const file = crafted(everyKindDoc(), edit);

@@ -223,7 +223,7 @@ function activate(mem: Float32Array, base: number, rows: number, stride: number,
 }
 
 /** (x - shift) * scale per feature, folded in float64 like the engine's; null when unfitted. */
-function foldNormalisation(n: Normalisation | null, inputs: number): { shift: Float32Array; scale: Float32Array } | null {
+export function foldNormalisation(n: Normalisation | null, inputs: number): { shift: Float32Array; scale: Float32Array } | null {
   if (!n) return null;
   const centre = n.method === 'zscore' ? n.mean : n.min;
   const spreadOf = n.method === 'zscore' ? (c: number) => (n.std ? n.std[c] : Number.NaN) : (c: number) => (n.max && centre ? n.max[c] - centre[c] : Number.NaN);

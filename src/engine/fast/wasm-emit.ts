@@ -204,6 +204,12 @@ export class Code {
   i32x4Splat(): this {
     return this.simd(0x11);
   }
+  i8x16Splat(): this {
+    return this.simd(0x0f);
+  }
+  i16x8Splat(): this {
+    return this.simd(0x10);
+  }
   f32x4ExtractLane(lane: number): this {
     return this.simd(0x1f, lane);
   }
@@ -269,6 +275,17 @@ export class Code {
    */
   i32x4RelaxedDotI8x16I7x16AddS(): this {
     return this.simd(0x113);
+  }
+  /**
+   * i16x8.relaxed_dot_i8x16_i7x16_s (relaxed SIMD, 0xfd 0x112): lane j = a[2j]·b[2j] + a[2j+1]·b[2j+1],
+   * with the same condition on b as the i32 form above.
+   */
+  i16x8RelaxedDotI8x16I7x16S(): this {
+    return this.simd(0x112);
+  }
+  /** i32x4.extadd_pairwise_i16x8_s: lane j = a[2j] + a[2j+1], widened. */
+  i32x4ExtaddPairwiseI16x8S(): this {
+    return this.simd(0x7e);
   }
 }
 

@@ -118,11 +118,11 @@ export function quantiseFunction(arith: Int8Arith): FunctionDef {
       c.i16x8NarrowI32x4S().set(HI);
       if (arith === 'relaxed') {
         // Saturating narrow to [0, 255], then the 127 cap.
-        c.get(DP).get(LO).get(HI).i8x16NarrowI16x8U().i32(127).i32x4Splat().i8x16MinU().v128Store(0);
+        c.get(DP).get(LO).get(HI).i8x16NarrowI16x8U().i32(127).i8x16Splat().i8x16MinU().v128Store(0);
         c.get(DP).i32(16).add().set(DP);
       } else {
         for (const [half, at] of [[LO, 0], [HI, 16]] as const) {
-          c.get(DP).get(half).i32(127).i32x4Splat().i16x8MinS().v128Zero().i16x8MaxS().v128Store(at);
+          c.get(DP).get(half).i32(127).i16x8Splat().i16x8MinS().v128Zero().i16x8MaxS().v128Store(at);
         }
         c.get(DP).i32(32).add().set(DP);
       }
@@ -173,7 +173,7 @@ export function denseInt8Function(arith: Int8Arith, tileRows = TILE_ROWS, colVec
           c.get(XP[t]).load32Splat(0).set(S);
           for (let v = 0; v < colVectors; v++) {
             const acc = ACC[t * colVectors + v];
-            c.get(WV[v]).get(S).get(acc).i32x4RelaxedDotI8x16I7x16AddS().set(acc);
+            c.get(acc).get(WV[v]).get(S).i16x8RelaxedDotI8x16I7x16S().i32x4ExtaddPairwiseI16x8S().i32x4Add().set(acc);
           }
         }
       } else {
@@ -344,7 +344,7 @@ export function quantiseRowPlain(x: ArrayLike<number>): { codes: Uint8Array; sca
   if (scale === 0) scale = 1;
   const inv = Math.fround(1 / scale);
   const zeroF = roundHalfEven(Math.fround(-mn * inv));
-  const zero = Number.isNaN(zeroF) ? 0 : zeroF;
+  const zero = Number.isNaN(zeroF) ? 0 : zeroF + 0; // + 0: an integer register has no -0
   const codes = new Uint8Array(x.length);
   for (let i = 0; i < x.length; i++) {
     const q = roundHalfEven(Math.fround(x[i] * inv));
@@ -389,13 +389,15 @@ export function denseInt8RowPlain(
 let relaxedDot: boolean | null = null;
 
 /**
- * Whether i32x4.relaxed_dot_i8x16_i7x16_add_s validates here. Node 20's V8 has relaxed SIMD behind
- * a flag, switched on first (process-wide); validating a tiny module alone decides.
+ * Whether the relaxed i8 dot validates here and gives the right answers. Node 20's V8 has relaxed
+ * SIMD behind a flag, switched on first (process-wide).
  */
 export function relaxedDotAvailable(): boolean {
   if (relaxedDot !== null) return relaxedDot;
-  const probe = new Code().get(0).get(1).get(2).i32x4RelaxedDotI8x16I7x16AddS();
-  const bytes = moduleBytes(1, [{ name: 'probe', params: [V128, V128, V128], results: [V128], locals: [], code: probe }]);
+  // probe(at): the relaxed step on the vectors at at, at + 16 and accumulator at + 32, stored at at + 48.
+  const code = new Code().get(0).get(0).v128Load(32).get(0).v128Load(0).get(0).v128Load(16);
+  code.i16x8RelaxedDotI8x16I7x16S().i32x4ExtaddPairwiseI16x8S().i32x4Add().v128Store(48);
+  const bytes = moduleBytes(1, [{ name: 'probe', params: [I32], locals: [], code }]);
   const validate = (): boolean => {
     try {
       return wasmApi().validate(bytes);
@@ -410,8 +412,34 @@ export function relaxedDotAvailable(): boolean {
       // No such flag here: the i16 dot serves.
     }
   }
-  relaxedDot = validate();
+  relaxedDot = validate() && knownAnswer(bytes);
   return relaxedDot;
+}
+
+/** The relaxed step gives the exact sums on extreme and mixed codes (a wrong lowering is refused, not trusted). */
+function knownAnswer(bytes: Uint8Array): boolean {
+  try {
+    const wasm = wasmApi();
+    const e = new wasm.Instance(new wasm.Module(bytes), {}).exports;
+    const memory = e.memory as { buffer: ArrayBuffer };
+    const probe = e.probe as (at: number) => void;
+    const a = Int8Array.from({ length: 16 }, (_, i) => [-128, 127, -5, 100, -128, -128, 127, 127][i % 8]);
+    const b = Uint8Array.from({ length: 16 }, (_, i) => [127, 127, 64, 1, 127, 127, 127, 127, 0, 3][i % 10]);
+    const c = Int32Array.of(1000, -7, 0, 2 ** 30);
+    new Int8Array(memory.buffer).set(a, 0);
+    new Uint8Array(memory.buffer).set(b, 16);
+    new Int32Array(memory.buffer).set(c, 8);
+    probe(0);
+    const got = new Int32Array(memory.buffer, 48, 4);
+    for (let j = 0; j < 4; j++) {
+      let want = c[j];
+      for (let i = 0; i < 4; i++) want += a[4 * j + i] * b[4 * j + i];
+      if (got[j] !== want) return false;
+    }
+    return true;
+  } catch {
+    return false;
+  }
 }
 
 /** Whether the standard i32x4.dot_i16x8_s validates (any runtime with fixed-width SIMD). */
@@ -432,6 +460,6 @@ export function bestInt8Arith(): Int8Arith | null {
 
 /** What users see for each arithmetic. */
 export const INT8_KERNEL_NAMES: Readonly<Record<Int8Arith, string>> = {
-  relaxed: 'int8 relaxed dot (i32x4.relaxed_dot_i8x16_i7x16_add_s)',
+  relaxed: 'int8 relaxed dot (i16x8.relaxed_dot_i8x16_i7x16_s)',
   i16: 'int8 via i16 dot (i32x4.dot_i16x8_s)',
 };
