@@ -7,15 +7,19 @@ export * from './model/types.js';
 export { validateModel, modelWidths, outputWidth, SeededRng } from './model/index.js';
 export { encodeModel, decodeModel, readModelFile, writeModelFile, crc32 } from './format/index.js';
 export {
-  EngineSession,
-  FastSession,
-  FastTrainSession,
+  openRunner,
+  TfjsRunner,
+  TfjsTrainer,
+  SimdRunner,
+  SimdTrainer,
   useEngine,
   resolveEngine,
   engineFallbackReason,
   wasmSimdAvailable,
   liveTensorCount,
   ENGINE_CHOICES,
+  type Runner,
+  type RunnerOptions,
   type EngineName,
   type EngineChoice,
   type RuntimeEngine,

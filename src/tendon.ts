@@ -4,7 +4,7 @@
  */
 import * as tf from '@tensorflow/tfjs-core';
 import { parityReport, randomInputs, type ParityReport } from './check/index.js';
-import { EngineSession, FastSession, ensureEngine, resolveEngine, type EngineChoice, type RuntimeEngine } from './engine/index.js';
+import { TfjsRunner, ensureEngine, openRunner, resolveEngine, type EngineChoice, type Runner, type RuntimeEngine } from './engine/index.js';
 import { DataError, ShapeError } from './errors.js';
 import { readModelFile, writeModelFile } from './format/index.js';
 import type { ModelDoc } from './model/index.js';
@@ -61,7 +61,7 @@ export async function openModel(path: string, options: OpenOptions = {}): Promis
  * @throws ModelFileError when the document is inconsistent.
  */
 export async function modelFromDocument(doc: ModelDoc, options: OpenOptions = {}): Promise<TendonModel> {
-  // The session validates the document (once) as it is made.
+  // The runner validates the document (once) as it is opened.
   const engine = await chooseEngine(options.engine);
   return new TendonModel(doc, engine, { source: null, checksum: null, bytes: null, formatVersion: null, chunkRows: options.chunkRows });
 }
@@ -75,8 +75,8 @@ interface ModelOrigin {
 }
 
 export class TendonModel {
-  /** What runs the model: a tfjs session (js or wasm) or tendon's own kernel (fast). */
-  readonly session: EngineSession | FastSession;
+  /** What runs the model: a tfjs runner (js or wasm) or tendon's own kernel (fast). */
+  readonly runner: Runner;
   /** Where the model was read from, or null for a document made in memory. */
   readonly source: string | null;
   /** CRC-32 of the file's payload (8 hex digits), or null for a document made in memory. */
@@ -92,7 +92,7 @@ export class TendonModel {
     origin: ModelOrigin,
   ) {
     const options = { chunkRows: origin.chunkRows, source: origin.source ?? '(document)' };
-    this.session = engine === 'fast' ? new FastSession(doc, options) : new EngineSession(doc, options);
+    this.runner = openRunner(doc, engine, options);
     this.source = origin.source;
     this.checksum = origin.checksum;
     this.fileBytes = origin.bytes;
@@ -100,13 +100,13 @@ export class TendonModel {
   }
 
   get engine(): RuntimeEngine {
-    return this.session.engine;
+    return this.runner.engine;
   }
   get inputs(): number {
     return this.doc.inputs;
   }
   get outputs(): number {
-    return this.session.outputs;
+    return this.runner.outputs;
   }
   get features(): readonly string[] | null {
     return this.doc.features;
@@ -130,20 +130,20 @@ export class TendonModel {
   run(batch: readonly (readonly number[])[] | Float32Array | tf.Tensor2D, rows?: number): number[][] | Float32Array | tf.Tensor2D {
     if (batch instanceof tf.Tensor) {
       if (batch.rank !== 2) throw new ShapeError('input tensor', ['rows', this.inputs], batch.shape, 'run');
-      if (this.session instanceof EngineSession) return this.session.runTensor(batch);
+      if (this.runner instanceof TfjsRunner) return this.runner.runTensor(batch);
       if (batch.shape[1] !== this.inputs) throw new ShapeError('input tensor', ['rows', this.inputs], batch.shape, 'run');
       const rowsIn = batch.shape[0];
-      return tf.tensor2d(this.session.run(Float32Array.from(batch.dataSync()), rowsIn), [rowsIn, this.outputs]);
+      return tf.tensor2d(this.runner.run(Float32Array.from(batch.dataSync()), rowsIn), [rowsIn, this.outputs]);
     }
     if (batch instanceof Float32Array) {
       const n = rows ?? batch.length / this.inputs;
       if (!Number.isInteger(n) || n < 0 || batch.length !== n * this.inputs) {
         throw new ShapeError('input', [n, this.inputs], [batch.length], 'run (Float32Array holds rows x inputs values)');
       }
-      return this.session.run(batch, n);
+      return this.runner.run(batch, n);
     }
     const packed = packRows(batch, this.inputs);
-    const out = this.session.run(packed, batch.length);
+    const out = this.runner.run(packed, batch.length);
     const width = this.outputs;
     return Array.from({ length: batch.length }, (_, r) => Array.from(out.subarray(r * width, (r + 1) * width)));
   }
@@ -156,7 +156,7 @@ export class TendonModel {
   check(input?: { x: Float32Array; rows: number }, seed = 1): ParityReport {
     const rows = input?.rows ?? 256;
     const x = input?.x ?? randomInputs(this.doc, rows, seed);
-    return parityReport(this.doc, x, rows, { session: this.session });
+    return parityReport(this.doc, x, rows, { runner: this.runner });
   }
 
   /**
@@ -169,7 +169,7 @@ export class TendonModel {
 
   /** Free the engine's tensors. */
   dispose(): void {
-    this.session.dispose();
+    this.runner.dispose();
   }
 }
 

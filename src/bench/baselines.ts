@@ -17,8 +17,8 @@ export function plainTfjsForward(doc: ModelDoc): { run(x: Float32Array, rows: nu
   if (dense.length !== doc.layers.length) throw new RangeError('plainTfjsForward: dense layers only');
   let width = doc.inputs;
   const weights = dense.map((layer) => {
-    const w = tf.tensor2d(layer.weight, [width, layer.units]);
-    width = layer.units;
+    const w = tf.tensor2d(layer.weight, [width, layer.size]);
+    width = layer.size;
     return { w, b: tf.tensor1d(layer.bias), activation: layer.activation };
   });
   return {

@@ -3,8 +3,7 @@
  * `benchModel` for a user's own model (the CLI's bench command calls it).
  */
 import * as tf from '@tensorflow/tfjs-core';
-import { EngineSession, useEngine, type EngineName } from '../engine/index.js';
-import { FastSession } from '../engine/fast/fast-session.js';
+import { openRunner, useEngine, type EngineName } from '../engine/index.js';
 import { modelWidths, type ModelDoc } from '../model/index.js';
 import { multiplyAddsPerRow, seededRows } from './models.js';
 
@@ -112,12 +111,12 @@ export async function benchModel(doc: ModelDoc, options: BenchModelOptions = {})
   const wanted = options.engine ?? 'auto';
   const engine = wanted === 'fast' ? 'fast' : await useEngine(wanted);
   const widths = modelWidths(doc);
-  const session = engine === 'fast' ? new FastSession(doc) : new EngineSession(doc);
+  const runner = openRunner(doc, engine);
   const out: BenchRow[] = [];
   try {
     for (const batch of batches) {
-      const x = seededRows(batch, session.inputs, (options.seed ?? 1) + batch);
-      const t = await timeCalls(() => session.run(x, batch), batch, { minMs: options.minMs ?? 1000 });
+      const x = seededRows(batch, runner.inputs, (options.seed ?? 1) + batch);
+      const t = await timeCalls(() => runner.run(x, batch), batch, { minMs: options.minMs ?? 1000 });
       out.push({
         engine,
         batch,
@@ -131,7 +130,7 @@ export async function benchModel(doc: ModelDoc, options: BenchModelOptions = {})
       });
     }
   } finally {
-    if (session instanceof EngineSession) session.dispose();
+    runner.dispose();
   }
   return out;
 }

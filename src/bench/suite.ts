@@ -8,8 +8,7 @@
  */
 import { cpus, availableParallelism } from 'node:os';
 import * as tf from '@tensorflow/tfjs-core';
-import { EngineSession, engineFallbackReason, useEngine, type EngineName } from '../engine/index.js';
-import { FastSession } from '../engine/fast/fast-session.js';
+import { engineFallbackReason, openRunner, useEngine, type EngineName, type Runner } from '../engine/index.js';
 import { wasmSimdAvailable } from '../engine/fast/dense-kernel.js';
 import type { ModelDoc } from '../model/index.js';
 import { MicroBatcher } from '../serve/batcher.js';
@@ -81,14 +80,10 @@ const MID = NETWORKS[1];
 /** The tfjs engines and our own kernel ('fast'). */
 type SuiteEngine = EngineName | 'fast';
 
-/** A session on an engine; tfjs engines switch the process backend first. */
-async function openSession(engine: SuiteEngine, doc: ModelDoc): Promise<{ run(x: Float32Array, rows: number): Float32Array; dispose(): void }> {
-  if (engine === 'fast') {
-    const fast = new FastSession(doc);
-    return { run: (x, rows) => fast.run(x, rows), dispose: () => undefined };
-  }
-  await useEngine(engine);
-  return new EngineSession(doc);
+/** A runner on an engine; tfjs engines switch the process backend first. */
+async function openSuiteRunner(engine: SuiteEngine, doc: ModelDoc): Promise<Runner> {
+  if (engine !== 'fast') await useEngine(engine);
+  return openRunner(doc, engine);
 }
 
 function rss(): number {
@@ -172,7 +167,7 @@ export async function runBenchSuite(opts: SuiteOptions): Promise<SuiteResult> {
 
   for (const engine of engines) {
     for (const net of NETWORKS) {
-      const session = await openSession(engine, docs.get(net.name)!);
+      const session = await openSuiteRunner(engine, docs.get(net.name)!);
       let rate: number | null = null;
       for (const batch of batches) {
         log(`engine ${engine} ${net.name} batch ${batch}`);
@@ -211,7 +206,7 @@ export async function runBenchSuite(opts: SuiteOptions): Promise<SuiteResult> {
 
   // The micro-batcher: concurrent single-row callers, in-process session on the best engine.
   for (const net of [NETWORKS[0], MID]) {
-    const session = await openSession(best, docs.get(net.name)!);
+    const session = await openSuiteRunner(best, docs.get(net.name)!);
     const callers = 64;
     log(`micro-batcher ${net.name}, ${callers} callers`);
     const batcher = new MicroBatcher((x, n) => session.run(x, n), { width: net.widths[0], maxBatchRows: 64, maxWaitMs: 1, maxQueueRows: 4096 });
@@ -252,7 +247,7 @@ export async function runBenchSuite(opts: SuiteOptions): Promise<SuiteResult> {
   }
 
   if (engines.includes('fast')) {
-    // The same epoch through tune on the fast path (FastTrainSession), plain SGD and Adam.
+    // The same epoch through tune on the fast path (SimdTrainer), plain SGD and Adam.
     const n = quick ? 2048 : 8192;
     const x = seededRows(n, 784, 4);
     const y = Int32Array.from({ length: n }, (_, i) => i % 10);
@@ -272,7 +267,7 @@ export async function runBenchSuite(opts: SuiteOptions): Promise<SuiteResult> {
     await useEngine(engine);
     const calls = quick ? 10_000 : 100_000;
     const net = NETWORKS[0];
-    const session = new EngineSession(docs.get(net.name)!);
+    const session = openRunner(docs.get(net.name)!, engine);
     const x = seededRows(1, net.widths[0], 8);
     for (let i = 0; i < 1000; i++) session.run(x, 1);
     const tensorsBefore = tf.memory().numTensors;

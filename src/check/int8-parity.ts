@@ -6,7 +6,8 @@
 import { modelWidths, type ModelDoc } from '../model/index.js';
 import { normalise64, referenceForward, toMat64 } from '../reference/index.js';
 import { topClassAgreement } from './compare.js';
-import type { LayerParity, LayerRunner, OutputParity, ParityReport } from './parity.js';
+import type { Runner } from '../engine/index.js';
+import type { LayerParity, OutputParity, ParityReport } from './parity.js';
 import { FLOAT32_TOLERANCE, INT8_LIPSCHITZ, int8Allowed, int8RoundingVariance, relativeError } from './tolerance.js';
 
 /**
@@ -14,7 +15,7 @@ import { FLOAT32_TOLERANCE, INT8_LIPSCHITZ, int8Allowed, int8RoundingVariance, r
  * The report's `tolerance.abs` is the widest per-element allowance met anywhere.
  * @example int8ParityReport(doc, randomInputs(doc, 256, 1), 256, new Int8Session(doc)).pass
  */
-export function int8ParityReport(doc: ModelDoc, x: Float32Array, rows: number, session: LayerRunner): ParityReport {
+export function int8ParityReport(doc: ModelDoc, x: Float32Array, rows: number, session: Pick<Runner, 'runLayers'>): ParityReport {
   const widths = modelWidths(doc);
   const engineLayers = session.runLayers(x, rows);
   const ref = referenceForward(doc, toMat64(x, rows, doc.inputs), { keepLayers: true });

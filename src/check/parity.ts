@@ -2,7 +2,7 @@
  * Parity: the engine (float32, tfjs) against the reference (float64, plain loops) on the same
  * raw inputs, layer by layer and at the output. This module is the one place that sees both.
  */
-import { EngineSession } from '../engine/index.js';
+import { ensureEngine, openRunner, type Runner } from '../engine/index.js';
 import { ParityError } from '../errors.js';
 import { modelWidths, SeededRng, type ModelDoc } from '../model/index.js';
 import { referenceForward, toMat64 } from '../reference/index.js';
@@ -27,15 +27,9 @@ export interface ParityReport {
   readonly pass: boolean;
 }
 
-/** Anything that can run a model layer by layer: an EngineSession (js or wasm) or a FastSession. */
-export interface LayerRunner {
-  runLayers(x: Float32Array, rows: number): Float32Array[];
-  dispose(): void;
-}
-
 export interface ParityOptions {
-  /** Compare this runner (e.g. a session on the wasm or fast engine) instead of a fresh js/wasm session. */
-  readonly session?: LayerRunner;
+  /** Compare this runner (e.g. one on the wasm or fast engine) instead of a fresh one on the process's tfjs engine. */
+  readonly runner?: Runner;
   readonly tolerance?: Tolerance;
 }
 
@@ -45,9 +39,9 @@ export interface ParityOptions {
  */
 export function parityReport(doc: ModelDoc, x: Float32Array, rows: number, opts: ParityOptions = {}): ParityReport {
   const tolerance = opts.tolerance ?? FLOAT32_TOLERANCE;
-  const session: LayerRunner = opts.session ?? new EngineSession(doc);
+  const runner = opts.runner ?? openRunner(doc, ensureEngine());
   try {
-    const engineLayers = session.runLayers(x, rows);
+    const engineLayers = runner.runLayers(x, rows);
     const ref = referenceForward(doc, toMat64(x, rows, doc.inputs), { keepLayers: true });
     const refLayers = ref.layers ?? [];
     const widths = modelWidths(doc);
@@ -65,7 +59,7 @@ export function parityReport(doc: ModelDoc, x: Float32Array, rows: number, opts:
     };
     return { layers, output, tolerance, pass: output.pass && layers.every((l) => l.pass) };
   } finally {
-    if (!opts.session) session.dispose();
+    if (!opts.runner) runner.dispose();
   }
 }
 

@@ -12,7 +12,7 @@ import { unusedColumns } from './model-input.js';
 export function isClassifier(doc: ModelDoc): boolean {
   const last = [...doc.layers].reverse().find((l) => l.kind === 'dense');
   if (!last || last.kind !== 'dense') return false;
-  return last.activation === 'softmax' || (last.activation === 'sigmoid' && last.units === 1);
+  return last.activation === 'softmax' || (last.activation === 'sigmoid' && last.size === 1);
 }
 
 /**

@@ -86,7 +86,7 @@ export async function runDemo(opts: DemoOptions): Promise<DemoOutcome> {
 
   // 2. Train at the first site.
   const t0 = performance.now();
-  const trained = await tune(fresh, asData(firstTrain), { ...common(opts.seed), epochs: 40, holdout: 0.2, stopAfter: 8 }, { signal: opts.signal });
+  const trained = await tune(fresh, asData(firstTrain), { ...common(opts.seed), epochs: 40, holdout: 0.2, stopAfter: 8, origin: 'a fresh model built in memory by the demo' }, { signal: opts.signal });
   const seconds = (performance.now() - t0) / 1000;
   const firstPath = join(dir, 'bakery-northgate.tendon');
   await writeModelFile(firstPath, trained.doc);
@@ -165,7 +165,7 @@ export async function runDemo(opts: DemoOptions): Promise<DemoOutcome> {
     say('');
     say('Invented data: these numbers show the runtime at work, not anything about real ovens.');
     say('Try it yourself:');
-    say(`  npx tendon show ${firstPath}`);
+    say(`  npx tendon about ${firstPath}`);
     say(`  npx tendon check ${firstPath}`);
     say(`  npx tendon tune ${firstPath} --data ${join(dir, 'riverside-loaves.csv')} --target quality --anchor 0.05 --replay ${join(dir, 'northgate-loaves.csv')} --holdout 0.2 --epochs 20 -o ${join(dir, 'mine.tendon')}`);
     return { dir, firstSiteAccuracy: firstAcc, parityPass: parity.pass, table };

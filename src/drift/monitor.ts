@@ -142,7 +142,7 @@ export class DriftMonitor {
 }
 
 /**
- * The report as a table for people (what `tendon run --drift` prints to stderr).
+ * The report as a table for people (what `tendon score --drift` prints to stderr).
  * @example describeDrift(monitor.report())
  */
 export function describeDrift(report: DriftReport): string {

@@ -1,7 +1,7 @@
 /**
  * Engine choice. tfjs keeps ONE global backend per process: choosing an engine switches every
  * tensor op in this process, and tensors made under one backend must not be used under another.
- * Choose once at start-up, before any EngineSession exists.
+ * Choose once at start-up, before any runner exists.
  *
  * - 'js':   @tensorflow/tfjs-backend-cpu, plain JavaScript kernels; always available.
  * - 'wasm': @tensorflow/tfjs-backend-wasm, loaded on demand; in Node it finds its .wasm binary in

@@ -17,9 +17,8 @@
  */
 import { ModelFileError, ShapeError } from '../errors.js';
 import { quantiseColumns, storedCodesOf, type Int8Matrix } from '../format/int8.js';
-import { activationKind, modelWidths, validateModel, type ActivationName, type ModelDoc } from '../model/index.js';
-import { denseFunction, relaxedMaddAvailable, wasmApi } from './fast/dense-kernel.js';
-import { foldNormalisation } from './fast/fast-session.js';
+import { activationKind, batchNormAffine, inputShiftScale, modelWidths, validateModel, type ActivationName, type ModelDoc } from '../model/index.js';
+import { denseFunction, padded, relaxedMaddAvailable, wasmApi } from './fast/dense-kernel.js';
 import { Code, I32, moduleBytes, type FunctionDef } from './fast/wasm-emit.js';
 import { affineFunction, CODE_BYTES, columnSums, denseInt8Function, MAX_INT8_INPUTS, packInt8Weights, quantiseFunction, type Int8Arith } from './int8/kernels.js';
 import { ThreadTeam } from './threads.js';
@@ -36,9 +35,8 @@ export interface SharedSessionOptions {
   readonly source?: string;
 }
 
-/** Every activation width is padded to this many floats (the kernels' widest store, and 4 · 4 inputs per integer group). */
-const PAD = 16;
-const padded = (n: number): number => Math.ceil(n / PAD) * PAD;
+// Every activation width is padded like the fast engine's (16 floats: the kernels' widest store,
+// and whole groups of 4 inputs for the integer dot products).
 const align = (n: number): number => Math.ceil(n / 64) * 64;
 
 /** One JavaScript pass between segments: an activation on a layer's real columns. */
@@ -102,7 +100,7 @@ export class SharedSession {
       | { kind: 'dense'; k: number; outP: number; out: number; relu: boolean; w: number; b: number; cs: number; ws: number; activation: ActivationName; alpha: number }
       | { kind: 'affine'; scale: number; shift: number; width: number };
     const steps: Step[] = [];
-    const norm = foldNormalisation(doc.normalise, this.inputs);
+    const norm = inputShiftScale(doc.normalise, this.inputs);
     if (norm) {
       const shift = new Float32Array(this.inP);
       const scale = new Float32Array(this.inP);
@@ -116,14 +114,14 @@ export class SharedSession {
     doc.layers.forEach((layer, index) => {
       if (layer.kind === 'dense') {
         const realIn = widths[index];
-        const outP = padded(layer.units);
+        const outP = padded(layer.size);
         const relu = layer.activation === 'relu';
         const bias = new Float32Array(outP);
         bias.set(layer.bias);
         if (!integer) {
           const w = new Float32Array(width * outP);
-          for (let k = 0; k < realIn; k++) w.set(layer.weight.subarray(k * layer.units, (k + 1) * layer.units), k * outP);
-          steps.push({ kind: 'dense', k: width, outP, out: layer.units, relu, w: place(f32Bytes(w)), b: place(f32Bytes(bias)), cs: -1, ws: -1, activation: layer.activation, alpha: layer.alpha });
+          for (let k = 0; k < realIn; k++) w.set(layer.weight.subarray(k * layer.size, (k + 1) * layer.size), k * outP);
+          steps.push({ kind: 'dense', k: width, outP, out: layer.size, relu, w: place(f32Bytes(w)), b: place(f32Bytes(bias)), cs: -1, ws: -1, activation: layer.activation, alpha: layer.alpha });
         } else {
           if (width > MAX_INT8_INPUTS) {
             problems.push({
@@ -132,18 +130,18 @@ export class SharedSession {
             });
             return;
           }
-          const stored = storedCodesOf(layer.weight, realIn, layer.units);
-          const m: Int8Matrix = stored ?? quantiseColumns(layer.weight, realIn, layer.units);
+          const stored = storedCodesOf(layer.weight, realIn, layer.size);
+          const m: Int8Matrix = stored ?? quantiseColumns(layer.weight, realIn, layer.size);
           this.codes.push(stored ? 'stored' : 'quantised at open');
           const ws = new Float32Array(outP);
           ws.set(m.scales);
-          const packed = packInt8Weights(m.codes, realIn, layer.units, width, outP, opts.arith);
-          const sums = columnSums(m.codes, realIn, layer.units, outP);
+          const packed = packInt8Weights(m.codes, realIn, layer.size, width, outP, opts.arith);
+          const sums = columnSums(m.codes, realIn, layer.size, outP);
           steps.push({
             kind: 'dense',
             k: width,
             outP,
-            out: layer.units,
+            out: layer.size,
             relu,
             w: place(packed),
             b: place(f32Bytes(bias)),
@@ -157,13 +155,11 @@ export class SharedSession {
         maxWidth = Math.max(maxWidth, width);
       } else if (layer.kind === 'batchnorm') {
         // Inference form folded in float64 like the fast engine: y = x · scale + shift.
+        const folded = batchNormAffine(layer);
         const scale = new Float32Array(width);
         const shift = new Float32Array(width);
-        for (let c = 0; c < layer.gamma.length; c++) {
-          const s = layer.gamma[c] / Math.sqrt(layer.runningVariance[c] + layer.epsilon);
-          scale[c] = s;
-          shift[c] = layer.beta[c] - layer.runningMean[c] * s;
-        }
+        scale.set(folded.scale);
+        shift.set(folded.shift);
         steps.push({ kind: 'affine', scale: place(f32Bytes(scale)), shift: place(f32Bytes(shift)), width });
       }
       // dropout: identity at inference.

@@ -1,6 +1,6 @@
 /**
  * The worker-thread side of the serving pool (built to dist/worker.js). Each worker opens the
- * model from the encoded bytes it is given, keeps one EngineSession for its lifetime, and runs
+ * model from the encoded bytes it is given, keeps one runner for its lifetime, and runs
  * the row shares the pool sends it. Inputs and outputs travel as transferred ArrayBuffers.
  *
  * The message shapes live in worker-protocol.ts, shared with src/serve/pool.ts.
@@ -9,8 +9,7 @@ import { parentPort, workerData } from 'node:worker_threads';
 import { TendonError } from '../errors.js';
 import { decodeModel } from '../format/index.js';
 import { useEngine } from './backend.js';
-import { EngineSession } from './session.js';
-import { FastSession } from './fast/fast-session.js';
+import { openRunner, type Runner } from './runner.js';
 import { isWorkerSetup, type FromWorker, type ToWorker } from './worker-protocol.js';
 
 /** Exit code a worker uses when a test asks it to die; distinct from crashes and normal ends. */
@@ -29,15 +28,11 @@ async function main(): Promise<void> {
   const send = (message: FromWorker, transfer: ArrayBuffer[] = []): void => port.postMessage(message, transfer);
 
   let crashNextRun = setup.crashEveryRun;
-  let session: EngineSession | FastSession;
+  let runner: Runner;
   try {
     const { doc } = decodeModel(setup.model, setup.source);
-    if (setup.engine === 'fast') {
-      session = new FastSession(doc, { source: setup.source });
-    } else {
-      await useEngine(setup.engine);
-      session = new EngineSession(doc, { source: setup.source });
-    }
+    const engine = setup.engine === 'fast' ? 'fast' : await useEngine(setup.engine);
+    runner = openRunner(doc, engine, { source: setup.source });
   } catch (error) {
     send({ kind: 'open-failed', ...describe(error) });
     return;
@@ -50,9 +45,9 @@ async function main(): Promise<void> {
     }
     if (crashNextRun) process.exit(TEST_CRASH_EXIT);
     try {
-      const x = new Float32Array(message.data, 0, message.rows * session.inputs);
-      const y = session.run(x, message.rows);
-      // Always copy before transfer: the output is small (rows x outputs), and a session that
+      const x = new Float32Array(message.data, 0, message.rows * runner.inputs);
+      const y = runner.run(x, message.rows);
+      // Always copy before transfer: the output is small (rows x outputs), and a runner that
       // reuses its output buffer must never have it detached under it.
       const data = y.slice().buffer;
       send({ kind: 'done', id: message.id, data }, [data]);
@@ -60,7 +55,7 @@ async function main(): Promise<void> {
       send({ kind: 'failed', id: message.id, ...describe(error) });
     }
   });
-  send({ kind: 'ready', engine: session.engine, inputs: session.inputs, outputs: session.outputs });
+  send({ kind: 'ready', engine: runner.engine, inputs: runner.inputs, outputs: runner.outputs });
 }
 
 void main();

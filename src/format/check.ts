@@ -2,7 +2,7 @@
  * Payload objects -> ModelDoc, checking everything on the way and collecting every problem.
  * Problems name the payload field they are about, e.g. "layers[1].dense.weight".
  *
- * The running width is tracked through the layers (dense: its units; batchnorm and dropout:
+ * The running width is tracked through the layers (dense: its size; batchnorm and dropout:
  * unchanged) so each layer's incoming width is checked here too, and the file check needs
  * nothing from the model layer.
  */
@@ -41,8 +41,8 @@ interface Width {
 
 function checkDense(raw: RawDense, where: string, width: Width, problems: Problem[]): DenseLayer | null {
   const before = problems.length;
-  const unitsOk = Number.isInteger(raw.units) && raw.units >= 1;
-  if (!unitsOk) problems.push({ where: `${where}.units`, message: `units must be at least 1, got ${raw.units}` });
+  const sizeOk = Number.isInteger(raw.size) && raw.size >= 1;
+  if (!sizeOk) problems.push({ where: `${where}.size`, message: `size must be at least 1, got ${raw.size}` });
 
   const activation = ACTIVATION_BY_CODE.get(raw.activation);
   if (activation === undefined) {
@@ -57,10 +57,10 @@ function checkDense(raw: RawDense, where: string, width: Width, problems: Proble
   const weight = decodeTensor(raw.weight, `${where}.weight`, problems);
   if (weight) {
     if (weight.shape.length !== 2) {
-      problems.push({ where: `${where}.weight`, message: `must be 2-D [inputs, units], got shape ${formatShape(weight.shape)}` });
+      problems.push({ where: `${where}.weight`, message: `must be 2-D [inputs, size], got shape ${formatShape(weight.shape)}` });
     } else {
-      if (unitsOk && weight.shape[1] !== raw.units) {
-        problems.push({ where: `${where}.weight`, message: `shape ${formatShape(weight.shape)} has ${weight.shape[1]} columns, but units is ${raw.units}` });
+      if (sizeOk && weight.shape[1] !== raw.size) {
+        problems.push({ where: `${where}.weight`, message: `shape ${formatShape(weight.shape)} has ${weight.shape[1]} columns, but size is ${raw.size}` });
       }
       if (width.value !== null && weight.shape[0] !== width.value) {
         problems.push({
@@ -71,15 +71,15 @@ function checkDense(raw: RawDense, where: string, width: Width, problems: Proble
     }
   }
   const bias = decodeTensor(raw.bias, `${where}.bias`, problems);
-  if (bias && unitsOk && (bias.shape.length !== 1 || bias.shape[0] !== raw.units)) {
-    problems.push({ where: `${where}.bias`, message: `shape ${formatShape(bias.shape)}, expected [${raw.units}] (units)` });
+  if (bias && sizeOk && (bias.shape.length !== 1 || bias.shape[0] !== raw.size)) {
+    problems.push({ where: `${where}.bias`, message: `shape ${formatShape(bias.shape)}, expected [${raw.size}] (size)` });
   }
 
   // Keep checking later layers against the width this one declares, even if it is broken.
-  width.value = unitsOk ? raw.units : weight && weight.shape.length === 2 ? weight.shape[1] : null;
+  width.value = sizeOk ? raw.size : weight && weight.shape.length === 2 ? weight.shape[1] : null;
   width.from = `${where.replace(/\.dense$/, '')} (dense)`;
   if (problems.length > before || !weight || !bias || activation === undefined) return null;
-  return { kind: 'dense', units: raw.units, activation, alpha: raw.alpha, weight: weight.data, bias: bias.data };
+  return { kind: 'dense', size: raw.size, activation, alpha: raw.alpha, weight: weight.data, bias: bias.data };
 }
 
 const BATCHNORM_VECTORS = ['gamma', 'beta', 'running_mean', 'running_variance'] as const;

@@ -39,9 +39,9 @@ function encodeLayer(layer: Layer, index: number, storage: StorageCodec, problem
   const where = `layers[${index}].${layer.kind}`;
   switch (layer.kind) {
     case 'dense': {
-      const rows = layer.units > 0 ? layer.weight.length / layer.units : NaN;
+      const rows = layer.size > 0 ? layer.weight.length / layer.size : NaN;
       if (!Number.isInteger(rows)) {
-        problems.push({ where: `${where}.weight`, message: `${layer.weight.length} values do not divide into ${layer.units} units` });
+        problems.push({ where: `${where}.weight`, message: `${layer.weight.length} values do not divide into ${layer.size} columns (size)` });
       }
       const activation: number | undefined = ACTIVATION_CODES[layer.activation];
       if (activation === undefined) {
@@ -49,10 +49,10 @@ function encodeLayer(layer: Layer, index: number, storage: StorageCodec, problem
       }
       return {
         dense: {
-          units: layer.units,
+          size: layer.size,
           activation: activation ?? 0,
           alpha: layer.alpha,
-          weight: Number.isInteger(rows) ? tensorOrProblems(layer.weight, [rows, layer.units], storage, `${where}.weight`, problems) : null,
+          weight: Number.isInteger(rows) ? tensorOrProblems(layer.weight, [rows, layer.size], storage, `${where}.weight`, problems) : null,
           bias: tensorOrProblems(layer.bias, [layer.bias.length], 'f32', `${where}.bias`, problems),
         },
       };
@@ -108,7 +108,7 @@ export function toPayload(doc: ModelDoc, problems: Problem[]): RawModel {
 /**
  * Encode a model document as file bytes (16-byte header + protobuf payload).
  * Throws ModelFileError (naming `label`) when a tensor cannot be stored faithfully: non-finite
- * values, values beyond the float16 range with f16 storage, or a weight that does not fit units.
+ * values, values beyond the float16 range with f16 storage, or a weight that does not fit size.
  *
  * @example
  * const bytes = encodeModel(doc);

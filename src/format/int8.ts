@@ -1,6 +1,6 @@
 /**
  * Symmetric per-column int8 quantisation of a row-major [rows, cols] float32 matrix.
- * For dense weights W[inputs, units] a column is one output unit, so each unit keeps its own
+ * For dense weights W[inputs, size] a column is one output unit, so each unit keeps its own
  * range. scale_c = maxabs_c / 127 (stored as float32), q = round(x / scale_c) clamped to
  * [-127, 127] (-128 is never written, so the code is symmetric), value = q * scale_c.
  * The round trip error is at most scale_c / 2 per element (plus float32 rounding).

@@ -32,7 +32,7 @@ export interface RawTensor {
 }
 
 export interface RawDense {
-  units: number;
+  size: number;
   activation: number;
   alpha: number;
   weight: RawTensor | null;

@@ -70,15 +70,15 @@ enum Activation {
   ACTIVATION_SOFTMAX = 7;
 }
 
-// y = activation(x . W + b), W of shape [inputs, units].
+// y = activation(x . W + b), W of shape [inputs, size].
 message DenseParams {
-  uint32 units = 1;
+  uint32 size = 1;
   Activation activation = 2;
   // Slope for negative inputs; read by leaky ReLU only.
   double alpha = 3;
-  // Shape [in_width, units]; F32, F16 or I8.
+  // Shape [in_width, size]; F32, F16 or I8.
   Tensor weight = 4;
-  // Shape [units].
+  // Shape [size].
   Tensor bias = 5;
 }
 
@@ -133,7 +133,7 @@ message LineageStep {
   string checksum = 1;
   // Where the parent was read from, as given.
   string source = 2;
-  // What was done to it, e.g. "tune".
+  // What was done to it, worded to read "ACTION from SOURCE", e.g. "fine-tuned".
   string action = 3;
   // ISO 8601 time.
   string at = 4;

@@ -1,5 +1,5 @@
 /**
- * The facts about a model that `tendon show` prints and the HTTP endpoint's description route
+ * The facts about a model that `tendon about` prints and the HTTP endpoint's description route
  * serves: layers, shapes, parameter counts, normalisation, metadata, provenance.
  */
 import { layerKind } from './layers/catalogue.js';
@@ -23,7 +23,7 @@ export interface ModelFacts {
   extra: Record<string, string>;
 }
 
-/** The facts `show` prints; also served by the HTTP endpoint's description route. */
+/** The facts `tendon about` prints; also served by the HTTP endpoint's description route. */
 export function modelFacts(doc: ModelDoc, file: { path: string; checksum: string; bytes: number; version: string } | null): ModelFacts {
   const widths = modelWidths(doc);
   const layers = doc.layers.map((layer, i) => {

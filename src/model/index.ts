@@ -14,8 +14,10 @@ export type {
   Rng,
 } from './layers/kind.js';
 export { isLayerKindName, layerKind } from './layers/catalogue.js';
+export { batchNormAffine } from './layers/batchnorm.js';
 export { mat64, matMul64 } from './layers/mat64.js';
 export { SeededRng, fisherYates } from './rng.js';
 export { DEFAULT_LEAKY_ALPHA, initDense } from './init.js';
 export { modelProblems, modelWidths, outputWidth, validateModel } from './validate.js';
 export { modelFacts, type ModelFacts } from './facts.js';
+export { inputAffine, inputShiftScale, type InputAffine } from './input-affine.js';

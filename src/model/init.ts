@@ -21,5 +21,5 @@ export function initDense(inputs: number, units: number, activation: ActivationN
   const sd = Math.sqrt(variance);
   const weight = new Float32Array(inputs * units);
   for (let i = 0; i < weight.length; i++) weight[i] = rng.normal() * sd;
-  return { kind: 'dense', units, activation, alpha, weight, bias: new Float32Array(units) };
+  return { kind: 'dense', size: units, activation, alpha, weight, bias: new Float32Array(units) };
 }

@@ -19,13 +19,13 @@ export type StorageCodec = (typeof STORAGE_CODECS)[number];
 export interface DenseLayer {
   readonly kind: 'dense';
   /** Number of outputs. */
-  units: number;
+  size: number;
   activation: ActivationName;
   /** Slope for negative inputs; used by leaky_relu only. */
   alpha: number;
-  /** [inputs, units], row-major. */
+  /** [inputs, size], row-major. */
   weight: Float32Array;
-  /** [units]. */
+  /** [size]. */
   bias: Float32Array;
 }
 
@@ -74,9 +74,9 @@ export type Normalisation =
 export interface Provenance {
   /** CRC-32 of the parent file's payload, as 8 lowercase hex digits. */
   checksum: string;
-  /** Where the parent was read from, as given. */
+  /** Where the parent came from, in words: its path as given, "spec PATH", "a model held in memory". */
   source: string;
-  /** What was done to it: "tune", "shrink f16", "fold". */
+  /** What was done to it, worded to read "ACTION from SOURCE": "trained", "fine-tuned", "shrunk to f16", "folded". */
   action: string;
   /** ISO 8601 time. */
   at: string;

@@ -1,6 +1,5 @@
 /** The model's input normalisation in float64. */
-import type { Mat64, Normalisation } from '../model/index.js';
-import { mat64 } from '../model/index.js';
+import { inputAffine, mat64, type Mat64, type Normalisation } from '../model/index.js';
 
 /**
  * Raw features to what the first layer sees:
@@ -11,9 +10,9 @@ import { mat64 } from '../model/index.js';
  * @example normalise64({ method: 'minmax', min, max, count }, x)
  */
 export function normalise64(n: Normalisation | null, x: Mat64): Mat64 {
-  const centre = n ? (n.method === 'zscore' ? n.mean : n.min) : null;
-  const spread = n ? (n.method === 'zscore' ? n.std : rangeOf(n.min, n.max)) : null;
-  if (!centre || !spread) return mat64(x.rows, x.cols, Float64Array.from(x.data));
+  const affine = inputAffine(n);
+  if (!affine) return mat64(x.rows, x.cols, Float64Array.from(x.data));
+  const { centre, spread } = affine;
   const y = new Float64Array(x.data.length);
   for (let r = 0; r < x.rows; r++) {
     for (let c = 0; c < x.cols; c++) {
@@ -22,9 +21,4 @@ export function normalise64(n: Normalisation | null, x: Mat64): Mat64 {
     }
   }
   return mat64(x.rows, x.cols, y);
-}
-
-function rangeOf(min: Float64Array | null, max: Float64Array | null): Float64Array | null {
-  if (!min || !max) return null;
-  return max.map((hi, c) => hi - min[c]);
 }

@@ -4,7 +4,7 @@
  *
  * Routes (under an optional prefix):
  *   POST /v1/score     {"rows": [[...], ...]} or {"rows": [{"feature": value, ...}]} -> outputs
- *   GET  /v1/about     the model's facts (what `tendon show --json` prints)
+ *   GET  /v1/about     the model's facts (what `tendon about --json` prints)
  *   GET  /v1/alive     the process answers
  *   GET  /v1/ready     a model is loaded and the endpoint is not shutting down
  *   GET  /v1/counters  Prometheus text exposition format

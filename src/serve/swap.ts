@@ -117,7 +117,7 @@ export class ModelSlot {
     if (!path) return refuse('no model file to reload from');
     let model: TendonModel;
     try {
-      model = await openModel(path, { chunkRows: this.entry.model.session.chunkRows });
+      model = await openModel(path, { chunkRows: this.entry.model.runner.chunkRows });
     } catch (error) {
       return refuse(error instanceof TendonError ? error.message : `cannot load: ${error instanceof Error ? error.message : String(error)}`);
     }

@@ -243,12 +243,12 @@ async function buildLayer(
     bias = new Float32Array(units);
   }
   if (!weight || !bias) return { layer: placeholder(units), outputWidth: units };
-  return { layer: { kind: 'dense', units, activation: act, alpha, weight, bias }, outputWidth: units };
+  return { layer: { kind: 'dense', size: units, activation: act, alpha, weight, bias }, outputWidth: units };
 }
 
 /** Stands in for a layer with problems so later layers are still checked against its width. */
 function placeholder(units: number): Layer {
-  return { kind: 'dense', units, activation: 'linear', alpha: 0, weight: new Float32Array(0), bias: new Float32Array(units) };
+  return { kind: 'dense', size: units, activation: 'linear', alpha: 0, weight: new Float32Array(0), bias: new Float32Array(units) };
 }
 
 async function loadTensor(

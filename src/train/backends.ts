@@ -8,8 +8,7 @@
  * All hand back the last layer's pre-activation (the logits) when the loss wants it, so
  * softmax + cross-entropy gets the stable `p - t` gradient straight into the last dense layer.
  */
-import { EngineSession, type EngineTape } from '../engine/index.js';
-import { FastTrainSession, type FastTape } from '../engine/fast/fast-train.js';
+import { SimdTrainer, TfjsTrainer, type SimdTape, type TfjsTape } from '../engine/index.js';
 import { mat64, type BatchStats, type ForwardContext, type ModelDoc } from '../model/index.js';
 import { referenceBackwardTape, referenceForward, referenceForwardTrain, toMat64, type ReferenceTapeEntry } from '../reference/index.js';
 
@@ -22,7 +21,7 @@ export interface TrainForward {
   readonly out: Float32Array | Float64Array;
   /** Per layer: batchnorm batch statistics, null elsewhere. */
   readonly stats: readonly (BatchStats | null)[];
-  readonly tape: EngineTape | FastTape | readonly ReferenceTapeEntry[];
+  readonly tape: TfjsTape | SimdTape | readonly ReferenceTapeEntry[];
 }
 
 export interface TrainBackend {
@@ -57,13 +56,13 @@ const REFERENCE_EVAL_ROWS = 1024;
  * the last dense layer's logits.
  *
  * @example const b = makeBackend('fast', work, true); const f = b.forwardTrain(x, rows, ctx);
- * @throws RangeError for 'fast' when the model has a layer it cannot train (see fastTrainBlocker).
+ * @throws RangeError for 'fast' when the model has a layer it cannot train (see simdTrainBlocker).
  */
 export function makeBackend(path: TrainPath, doc: ModelDoc, preActivation: boolean): TrainBackend {
   const view = logitsView(doc, preActivation);
   const outputs = (): number => {
     let w = doc.inputs;
-    for (const l of doc.layers) if (l.kind === 'dense') w = l.units;
+    for (const l of doc.layers) if (l.kind === 'dense') w = l.size;
     return w;
   };
   if (path === 'reference') {
@@ -104,17 +103,17 @@ export function makeBackend(path: TrainPath, doc: ModelDoc, preActivation: boole
   }
 
   if (path === 'fast') {
-    const fast = new FastTrainSession(doc, { preActivation });
+    const fast = new SimdTrainer(doc, { preActivation });
     return {
       path,
       forwardTrain(x, rows, ctx) {
         return fast.forwardTrain(x, rows, ctx);
       },
       backward(f, dOut) {
-        return fast.backward({ rows: f.rows, out: f.out as Float32Array, stats: [], tape: f.tape as FastTape }, dOut);
+        return fast.backward({ rows: f.rows, out: f.out as Float32Array, stats: [], tape: f.tape as SimdTape }, dOut);
       },
       discard(f) {
-        (f.tape as FastTape).disposed = true;
+        (f.tape as SimdTape).disposed = true;
       },
       refresh(layers) {
         fast.refresh(layers);
@@ -126,8 +125,8 @@ export function makeBackend(path: TrainPath, doc: ModelDoc, preActivation: boole
     };
   }
 
-  const session = new EngineSession(doc);
-  const evalSession = preActivation ? new EngineSession(view) : session;
+  const session = new TfjsTrainer(doc);
+  const evalSession = preActivation ? new TfjsTrainer(view) : session;
   let evalStale = false;
   return {
     path,
@@ -141,10 +140,10 @@ export function makeBackend(path: TrainPath, doc: ModelDoc, preActivation: boole
       return { rows, out, stats: f.stats, tape: f.tape };
     },
     backward(f, dOut) {
-      return session.backward(f.tape as EngineTape, Float32Array.from(dOut), { dyIsPreActivation: preActivation }).grads;
+      return session.backward(f.tape as TfjsTape, Float32Array.from(dOut), { dyIsPreActivation: preActivation }).grads;
     },
     discard(f) {
-      session.disposeTape(f.tape as EngineTape);
+      session.disposeTape(f.tape as TfjsTape);
     },
     refresh(layers) {
       if (layers === undefined) session.refreshWeights();

@@ -47,7 +47,7 @@ export interface TuneOptions {
   /** Updates of linear warm-up. Default 0. */
   warmup?: number;
   /** Clip the global gradient norm to this value; unset for no clipping. */
-  clipNorm?: number;
+  clip?: number;
   /** Seed of every random choice in the run (init of unset weights, shuffles, masks, split). Default 0. */
   seed?: number;
   /** Fraction of the rows held out, in (0, 1). Ignored when `holdoutData` is given. */
@@ -79,7 +79,7 @@ export interface ResolvedTuneOptions {
   readonly optimiser: OptimiserSpec;
   readonly decay: WeightDecay | null;
   readonly schedule: Schedule;
-  readonly clipNorm: number | null;
+  readonly clip: number | null;
   readonly seed: number;
   readonly holdout: { readonly kind: 'none' } | { readonly kind: 'fraction'; readonly fraction: number } | { readonly kind: 'data'; readonly data: TuneData };
   readonly stopAfter: number | null;
@@ -164,7 +164,7 @@ export function resolveTuneOptions(opts: TuneOptions, doc: ModelDoc): ResolvedTu
         ? { shape: { kind: 'cosine', floor: inRange('floor', opts.floor, 0, 0, lr, false, false) }, warmupSteps }
         : { shape: { kind: 'constant' }, warmupSteps };
 
-  const clipNorm = opts.clipNorm === undefined ? null : inRange('clipNorm', opts.clipNorm, 0, 0, Infinity, true, true);
+  const clip = opts.clip === undefined ? null : inRange('clip', opts.clip, 0, 0, Infinity, true, true);
 
   const seed = opts.seed ?? 0;
   if (!Number.isInteger(seed)) throw new TuneConfigError('seed', `must be a whole number, got ${seed}`);
@@ -214,7 +214,7 @@ export function resolveTuneOptions(opts: TuneOptions, doc: ModelDoc): ResolvedTu
     optimiser,
     decay,
     schedule,
-    clipNorm,
+    clip,
     seed,
     holdout,
     stopAfter,

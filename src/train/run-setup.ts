@@ -7,7 +7,7 @@ import { TuneConfigError } from '../errors.js';
 import { encodeModel, checksumOf } from '../format/index.js';
 import { SeededRng, initDense, layerKind, type ActivationName, type ForwardContext, type ModelDoc } from '../model/index.js';
 import { wasmSimdAvailable } from '../engine/fast/dense-kernel.js';
-import { fastTrainBlocker } from '../engine/fast/fast-train.js';
+import { simdTrainBlocker } from '../engine/fast/simd-trainer.js';
 import { TRAIN_PATHS, type TrainPath } from './backends.js';
 import type { TuneData } from './config.js';
 import { rawInputs, type Diagnostic } from './diagnostics.js';
@@ -33,7 +33,7 @@ export function streams(seed: number) {
 export function choosePath(asked: TrainPath | undefined, doc: ModelDoc): { path: TrainPath; fallback: Diagnostic | null } {
   if (asked === 'engine' || asked === 'reference') return { path: asked, fallback: null };
   const simd = wasmSimdAvailable();
-  const blocker = simd ? fastTrainBlocker(doc) : 'this runtime lacks WebAssembly SIMD';
+  const blocker = simd ? simdTrainBlocker(doc) : 'this runtime lacks WebAssembly SIMD';
   if (blocker === null) return { path: 'fast', fallback: null };
   if (asked === undefined) return { path: 'engine', fallback: null };
   return {
@@ -56,7 +56,7 @@ export function initialiseEmpty(doc: ModelDoc, rng: SeededRng): void {
   let width = doc.inputs;
   doc.layers.forEach((layer, i) => {
     if (layer.kind === 'dense' && layer.weight.length === 0) {
-      const fresh = initDense(width, layer.units, layer.activation, rng, layer.alpha);
+      const fresh = initDense(width, layer.size, layer.activation, rng, layer.alpha);
       doc.layers[i] = { ...fresh, alpha: layer.alpha };
     } else if (layer.kind === 'batchnorm' && layer.gamma.length === 0) {
       doc.layers[i] = {
@@ -106,11 +106,22 @@ export function trainingContext(rng: SeededRng): ForwardContext {
   };
 }
 
-/** The file `doc` came from: as given, else its own checksum; null for a spec without weights. */
-export function parentProvenance(doc: ModelDoc, given: { checksum: string; source: string } | undefined): { checksum: string; source: string } | null {
-  if (given) return given;
+/** Default words for where the starting weights came from when neither a parent file nor an origin is given. */
+const HELD_IN_MEMORY = 'a model held in memory';
+
+/**
+ * The provenance step a tune adds, worded to read "ACTION from SOURCE": fine-tuned from the parent
+ * file when there is one, else trained from `origin` (a spec, a model built in memory) with the
+ * starting weights' own checksum; null for a spec without weights.
+ */
+export function tuneProvenance(
+  doc: ModelDoc,
+  parent: { checksum: string; source: string } | undefined,
+  origin: string | undefined,
+): { checksum: string; source: string; action: string } | null {
+  if (parent) return { checksum: parent.checksum, source: parent.source, action: 'fine-tuned' };
   try {
-    return { checksum: checksumOf(encodeModel(doc)), source: '(memory)' };
+    return { checksum: checksumOf(encodeModel(doc)), source: origin || HELD_IN_MEMORY, action: 'trained' };
   } catch {
     // A spec without weights cannot be encoded: it has no parent file to name.
     return null;

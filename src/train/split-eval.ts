@@ -57,7 +57,7 @@ export function evaluateSplit(
     const layers = backend.evaluate(data.x.subarray(start * doc.inputs, (start + n) * doc.inputs), n);
     for (const i of reluLayers) {
       const l = doc.layers[i];
-      if (l.kind === 'dense') relu.observe(i, layers[i], n, l.units);
+      if (l.kind === 'dense') relu.observe(i, layers[i], n, l.size);
     }
     const out = Float64Array.from(layers[layers.length - 1]);
     outAll.set(out, start * outputs);

@@ -56,8 +56,13 @@ export interface TuneRunOptions extends TuneOptions {
    * 'engine' with an 'engine_fallback' diagnostic.
    */
   path?: TrainPath;
-  /** The parent file, for provenance; computed from the document when not given. */
+  /** The parent file, for provenance ("fine-tuned from SOURCE"). */
   parent?: { checksum: string; source: string };
+  /**
+   * Without a parent file: where the starting weights came from, in words, for provenance
+   * ("trained from ORIGIN", e.g. "spec bakery-spec.json"); default "a model held in memory".
+   */
+  origin?: string;
 }
 
 export interface TuneResult {

@@ -24,7 +24,7 @@ import { firstBrokenSlot, firstNonFiniteLayer, layerLabel, layerSquaredNorms } f
 import { computeLoss, lossFor } from './losses.js';
 import { makeOptimiser } from './optimisers.js';
 import { anchorStarts, changedLayers, slotsOf, stepGradients, updateRunningStatistics } from './param-slots.js';
-import { checkPath, choosePath, initialiseEmpty, outputActivation, parentProvenance, prepareNormalisation, streams, trainingContext } from './run-setup.js';
+import { checkPath, choosePath, initialiseEmpty, outputActivation, prepareNormalisation, streams, trainingContext, tuneProvenance } from './run-setup.js';
 import { rateAt } from './schedule.js';
 import { epochBatches } from './shuffle.js';
 import { evaluateSplit, hiddenReluLayers } from './split-eval.js';
@@ -74,7 +74,7 @@ export async function tune(doc: ModelDoc, data: TuneData, options: TuneRunOption
   const slots = slotsOf(work, opts);
   const anchorStart = anchorStarts(slots, opts.anchor);
   const optimiser = makeOptimiser(opts.optimiser, opts.decay);
-  const gradientsChange = anchorStart !== null || opts.clipNorm !== null;
+  const gradientsChange = anchorStart !== null || opts.clip !== null;
   const arrays = mutableArrays(work);
   const lastGood = snapshot(arrays);
   let best: Float32Array[] | null = null;
@@ -121,7 +121,7 @@ export async function tune(doc: ModelDoc, data: TuneData, options: TuneRunOption
 
         // Anchor, clipping, then the optimiser step at the scheduled rate.
         const { grads: flat, anchorPenalty } = stepGradients(slots, grads, gradientsChange, anchorStart, opts.anchor);
-        if (opts.clipNorm !== null) clipGlobalNorm(flat, opts.clipNorm);
+        if (opts.clip !== null) clipGlobalNorm(flat, opts.clip);
         lr = rateAt(opts.schedule, opts.lr, { epoch, step, totalSteps });
         snapshot(arrays, lastGood);
         optimiser.step(slots, flat, lr);
@@ -195,8 +195,8 @@ export async function tune(doc: ModelDoc, data: TuneData, options: TuneRunOption
     backend.dispose();
   }
 
-  const parent = parentProvenance(doc, options.parent);
-  if (parent) work.provenance.push({ checksum: parent.checksum, source: parent.source, action: 'tune', at: new Date().toISOString() });
+  const lineage = tuneProvenance(doc, options.parent, options.origin);
+  if (lineage) work.provenance.push({ ...lineage, at: new Date().toISOString() });
   return { doc: work, history, diagnostics: log.list, stoppedEarly, bestEpoch, aborted, loss: spec, path };
 }
 

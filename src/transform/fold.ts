@@ -14,7 +14,7 @@
  * The arithmetic runs in float64 on the float32 weights and is rounded to float32 once, at the end.
  */
 import { checksumOf, encodeModel } from '../format/index.js';
-import { validateModel, type ActivationName, type BatchNormLayer, type Layer, type ModelDoc, type Normalisation } from '../model/index.js';
+import { batchNormAffine, inputAffine, validateModel, type ActivationName, type Layer, type ModelDoc, type Normalisation } from '../model/index.js';
 
 export type FoldStepName = 'dropout' | 'batchnorm' | 'normalisation' | 'linear-collapse';
 
@@ -47,7 +47,7 @@ interface WorkDense {
   readonly kind: 'dense';
   readonly origin: number[];
   inputs: number;
-  units: number;
+  size: number;
   activation: ActivationName;
   alpha: number;
   weight: Float64Array;
@@ -92,7 +92,7 @@ export function foldModel(doc: ModelDoc, options: FoldOptions = {}): FoldResult 
   }
   work = collapseLinear(work, steps);
 
-  const parent = options.parent ?? { checksum: checksumOf(encodeModel(doc)), source: doc.meta.name || '(document)' };
+  const parent = options.parent ?? { checksum: checksumOf(encodeModel(doc)), source: doc.meta.name ? `${doc.meta.name}, held in memory` : 'a model held in memory' };
   const folded: ModelDoc = {
     inputs: doc.inputs,
     features: doc.features ? [...doc.features] : null,
@@ -100,7 +100,7 @@ export function foldModel(doc: ModelDoc, options: FoldOptions = {}): FoldResult 
     normalise: normalise ? copyNormalisation(normalise) : null,
     layers: work.map(fromWork),
     meta: { ...doc.meta, extra },
-    provenance: [...doc.provenance, { checksum: parent.checksum, source: parent.source, action: 'fold', at: options.at ?? new Date().toISOString() }],
+    provenance: [...doc.provenance, { checksum: parent.checksum, source: parent.source, action: 'folded', at: options.at ?? new Date().toISOString() }],
     storage: doc.storage,
   };
   validateModel(folded, '(folded model)');
@@ -115,13 +115,13 @@ function toWork(doc: ModelDoc): Work[] {
         kind: 'dense',
         origin: [i],
         inputs: width,
-        units: layer.units,
+        size: layer.size,
         activation: layer.activation,
         alpha: layer.alpha,
         weight: Float64Array.from(layer.weight),
         bias: Float64Array.from(layer.bias),
       };
-      width = layer.units;
+      width = layer.size;
       return w;
     }
     return { kind: layer.kind, origin: [i], layer, width };
@@ -131,12 +131,12 @@ function toWork(doc: ModelDoc): Work[] {
 function fromWork(w: Work): Layer {
   if (w.kind !== 'dense') return w.layer;
   // The one rounding to float32 of every folded value.
-  return { kind: 'dense', units: w.units, activation: w.activation, alpha: w.alpha, weight: Float32Array.from(w.weight), bias: Float32Array.from(w.bias) };
+  return { kind: 'dense', size: w.size, activation: w.activation, alpha: w.alpha, weight: Float32Array.from(w.weight), bias: Float32Array.from(w.bias) };
 }
 
 /** Per-feature u = a ⊙ x + c absorbed by the dense layer that reads u. */
 function absorbBefore(dense: WorkDense, a: ArrayLike<number>, c: ArrayLike<number>): void {
-  const { inputs, units, weight, bias } = dense;
+  const { inputs, size: units, weight, bias } = dense;
   for (let k = 0; k < inputs; k++) {
     for (let j = 0; j < units; j++) {
       const w = weight[k * units + j];
@@ -148,21 +148,9 @@ function absorbBefore(dense: WorkDense, a: ArrayLike<number>, c: ArrayLike<numbe
 
 /** Per-unit a ⊙ y + c applied after a linear dense layer, absorbed into that layer. */
 function absorbAfter(dense: WorkDense, a: ArrayLike<number>, c: ArrayLike<number>): void {
-  const { inputs, units, weight, bias } = dense;
+  const { inputs, size: units, weight, bias } = dense;
   for (let k = 0; k < inputs; k++) for (let j = 0; j < units; j++) weight[k * units + j] *= a[j];
   for (let j = 0; j < units; j++) bias[j] = a[j] * bias[j] + c[j];
-}
-
-/** Batch normalisation at inference (Ioffe and Szegedy, 2015) as a per-feature affine map. */
-function batchNormAffine(bn: BatchNormLayer): { a: Float64Array; c: Float64Array } {
-  const n = bn.gamma.length;
-  const a = new Float64Array(n);
-  const c = new Float64Array(n);
-  for (let i = 0; i < n; i++) {
-    a[i] = bn.gamma[i] / Math.sqrt(bn.runningVariance[i] + bn.epsilon);
-    c[i] = bn.beta[i] - a[i] * bn.runningMean[i];
-  }
-  return { a, c };
 }
 
 function foldBatchNorms(work: Work[], steps: FoldStep[]): Work[] {
@@ -173,7 +161,8 @@ function foldBatchNorms(work: Work[], steps: FoldStep[]): Work[] {
       out.push(w);
       continue;
     }
-    const { a, c } = batchNormAffine(w.layer);
+    // Batch normalisation at inference (Ioffe and Szegedy, 2015) as a per-feature affine map.
+    const { scale: a, shift: c } = batchNormAffine(w.layer);
     const before = out[out.length - 1];
     const after = work[i + 1];
     if (before?.kind === 'dense' && before.activation === 'linear') {
@@ -198,11 +187,11 @@ function foldBatchNorms(work: Work[], steps: FoldStep[]): Work[] {
 function foldNormalisation(work: Work[], norm: Normalisation | null): { step: FoldStep } {
   const step = (folded: boolean, reason: string): { step: FoldStep } => ({ step: { step: 'normalisation', layers: [], folded, reason } });
   if (!norm) return step(false, 'the model has no input normalisation');
-  const centre = norm.method === 'zscore' ? norm.mean : norm.min;
-  const spread = norm.method === 'zscore' ? norm.std : norm.max && norm.min ? norm.max.map((hi, k) => hi - norm.min![k]) : null;
-  if (!centre || !spread) return step(false, `the ${norm.method} statistics are not fitted yet (a first tune fits them)`);
+  const affine = inputAffine(norm);
+  if (!affine) return step(false, `the ${norm.method} statistics are not fitted yet (a first tune fits them)`);
   const first = work[0];
   if (first?.kind !== 'dense') return step(false, `the first remaining layer is ${first ? first.kind : 'missing'}, not dense`);
+  const { centre, spread } = affine;
   const flat = spread.findIndex((s) => s === 0);
   if (flat >= 0) {
     // Kept rather than zeroing the weight row: a later tune that continues the statistics
@@ -220,15 +209,15 @@ function collapseLinear(work: Work[], steps: FoldStep[]): Work[] {
   for (const w of work) {
     const prev = out[out.length - 1];
     if (w.kind === 'dense' && prev?.kind === 'dense' && prev.activation === 'linear') {
-      const pairParams = prev.inputs * prev.units + prev.units + w.inputs * w.units + w.units;
-      const productParams = prev.inputs * w.units + w.units;
+      const pairParams = prev.inputs * prev.size + prev.size + w.inputs * w.size + w.size;
+      const productParams = prev.inputs * w.size + w.size;
       const layers = [...prev.origin, ...w.origin];
       if (productParams > pairParams) {
         steps.push({
           step: 'linear-collapse',
           layers,
           folded: false,
-          reason: `the product would hold ${productParams} parameters, more than the pair's ${pairParams} (a ${prev.units}-unit bottleneck)`,
+          reason: `the product would hold ${productParams} parameters, more than the pair's ${pairParams} (a ${prev.size}-unit bottleneck)`,
         });
         out.push(w);
         continue;
@@ -245,8 +234,8 @@ function collapseLinear(work: Work[], steps: FoldStep[]): Work[] {
 /** W = W1·W2, b = b1·W2 + b2; the result takes the second layer's activation. */
 function multiply(first: WorkDense, second: WorkDense): WorkDense {
   const n = first.inputs;
-  const m = first.units;
-  const p = second.units;
+  const m = first.size;
+  const p = second.size;
   const weight = new Float64Array(n * p);
   for (let i = 0; i < n; i++) {
     for (let k = 0; k < m; k++) {
@@ -261,7 +250,7 @@ function multiply(first: WorkDense, second: WorkDense): WorkDense {
     kind: 'dense',
     origin: [...first.origin, ...second.origin],
     inputs: n,
-    units: p,
+    size: p,
     activation: second.activation,
     alpha: second.alpha,
     weight,

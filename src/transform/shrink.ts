@@ -24,11 +24,11 @@ export interface ShrinkOptions {
  * @throws ModelFileError when a weight cannot be stored with the codec (beyond the float16 range).
  */
 export function shrinkModel(doc: ModelDoc, codec: StorageCodec, options: ShrinkOptions = {}): ModelDoc {
-  const parent = options.parent ?? { checksum: checksumOf(encodeModel(doc)), source: doc.meta.name || '(document)' };
+  const parent = options.parent ?? { checksum: checksumOf(encodeModel(doc)), source: doc.meta.name ? `${doc.meta.name}, held in memory` : 'a model held in memory' };
   const marked: ModelDoc = {
     ...doc,
     storage: codec,
-    provenance: [...doc.provenance, { checksum: parent.checksum, source: parent.source, action: `shrink ${codec}`, at: options.at ?? new Date().toISOString() }],
+    provenance: [...doc.provenance, { checksum: parent.checksum, source: parent.source, action: `shrunk to ${codec}`, at: options.at ?? new Date().toISOString() }],
   };
   return decodeModel(encodeModel(marked, `(model shrunk to ${codec})`), `(model shrunk to ${codec})`).doc;
 }
@@ -75,7 +75,7 @@ export function denseWeightBytes(doc: ModelDoc, codec: StorageCodec): number {
   for (const layer of doc.layers) {
     if (layer.kind !== 'dense') continue;
     const values = layer.weight.length;
-    total += codec === 'f32' ? 4 * values : codec === 'f16' ? 2 * values : values + 4 * layer.units;
+    total += codec === 'f32' ? 4 * values : codec === 'f16' ? 2 * values : values + 4 * layer.size;
   }
   return total;
 }

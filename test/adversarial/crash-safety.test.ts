@@ -27,7 +27,7 @@ function bigDoc(seed: number, hidden = 600): ModelDoc {
   const random = seededRandom(seed);
   const dense = (inputs: number, units: number, activation: 'relu' | 'softmax') => ({
     kind: 'dense' as const,
-    units,
+    size: units,
     activation,
     alpha: 0,
     weight: randomFloat32(random, inputs * units, 0.05),
@@ -211,7 +211,7 @@ describe('SIGKILL during tendon tune', () => {
       } else {
         // Complete and new: a tuned child of the input, as the provenance records.
         const tuned = decodeModel(await readFile(out), out).doc;
-        expect(tuned.provenance.at(-1)).toMatchObject({ checksum: inputSum, action: 'tune' });
+        expect(tuned.provenance.at(-1)).toMatchObject({ checksum: inputSum, action: 'fine-tuned' });
         outcomes.tuned++;
       }
       expect(sameBytes(await readFile(input), inputBytes)).toBe(true);

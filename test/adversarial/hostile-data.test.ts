@@ -1,5 +1,5 @@
 /**
- * Hostile data files through the CLI (`tendon run` and `tendon tune`, in-process through the
+ * Hostile data files through the CLI (`tendon score` and `tendon tune`, in-process through the
  * same `main` the executable calls). Each file either gets the one-line error
  * `tendon: FILE[:LINE[:COLUMN]]: what` and exit 2, or is read correctly, checked by number.
  *
@@ -137,7 +137,7 @@ const JSONL_CASES: [string, () => string, Outcome][] = [
 
 async function scoreFile(path: string): Promise<{ code: number; err: string; out: string; scores: number[] }> {
   const output = join(dir, `scores-${counter++}.csv`);
-  const r = await runCli('run', model, '--input', path, '--output', output, '--engine', 'js');
+  const r = await runCli('score', model, '--input', path, '--output', output, '--engine', 'js');
   if (r.code !== 0) return { ...r, scores: [] };
   const lines = (await readFile(output, 'utf8')).trim().split('\n');
   expect(lines[0]).toBe('y');
@@ -156,7 +156,7 @@ async function expectOutcome(path: string, outcome: Outcome): Promise<void> {
   }
 }
 
-describe('tendon run on hostile CSV files', () => {
+describe('tendon score on hostile CSV files', () => {
   it.each(CSV_CASES)('%s', async (_name, content, outcome) => {
     const path = await dataFile(content());
     const started = performance.now();
@@ -166,7 +166,7 @@ describe('tendon run on hostile CSV files', () => {
   });
 });
 
-describe('tendon run on hostile JSONL files', () => {
+describe('tendon score on hostile JSONL files', () => {
   it.each(JSONL_CASES)('%s', async (_name, content, outcome) => {
     await expectOutcome(await dataFile(content(), 'jsonl'), outcome);
   });

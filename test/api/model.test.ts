@@ -17,8 +17,8 @@ function mazurDoc(): ModelDoc {
     labels: ['o1', 'o2'],
     normalise: null,
     layers: [
-      { kind: 'dense', units: 2, activation: 'sigmoid', alpha: 0, weight: Float32Array.of(0.15, 0.25, 0.2, 0.3), bias: Float32Array.of(0.35, 0.35) },
-      { kind: 'dense', units: 2, activation: 'sigmoid', alpha: 0, weight: Float32Array.of(0.4, 0.5, 0.45, 0.55), bias: Float32Array.of(0.6, 0.6) },
+      { kind: 'dense', size: 2, activation: 'sigmoid', alpha: 0, weight: Float32Array.of(0.15, 0.25, 0.2, 0.3), bias: Float32Array.of(0.35, 0.35) },
+      { kind: 'dense', size: 2, activation: 'sigmoid', alpha: 0, weight: Float32Array.of(0.4, 0.5, 0.45, 0.55), bias: Float32Array.of(0.6, 0.6) },
     ],
     meta: { name: 'mazur', description: '', created: '2026-01-01T00:00:00.000Z', extra: {} },
     provenance: [],

@@ -1,5 +1,5 @@
 /**
- * The CLI contract, end to end in-process: pack / show / run / check on a model built from
+ * The CLI contract, end to end in-process: pack / about / score / check on a model built from
  * .npy files that NumPy wrote (test/fixtures/cli/make-mazur-npy.py), one-line errors and exit codes.
  */
 import { mkdtemp, readFile, writeFile, copyFile } from 'node:fs/promises';
@@ -23,12 +23,12 @@ beforeAll(async () => {
   expect(packed.code).toBe(0);
 });
 
-describe('tendon pack / show / run / check on NumPy-written tensors', () => {
-  it('run reproduces the forward pass of Mazur 2015 (out_o1 = 0.75136507, out_o2 = 0.772928465)', async () => {
+describe('tendon pack / about / score / check on NumPy-written tensors', () => {
+  it('score reproduces the forward pass of Mazur 2015 (out_o1 = 0.75136507, out_o2 = 0.772928465)', async () => {
     const input = join(dir, 'in.csv');
     const output = join(dir, 'out.csv');
     await writeFile(input, 'i2,i1\n0.10,0.05\n0.10,0.05\n');
-    const r = await runCli('run', model, '--input', input, '--output', output, '--engine', 'js');
+    const r = await runCli('score', model, '--input', input, '--output', output, '--engine', 'js');
     expect(r.code).toBe(0);
     const lines = (await readFile(output, 'utf8')).trim().split('\n');
     expect(lines[0]).toBe('o1,o2');
@@ -39,32 +39,34 @@ describe('tendon pack / show / run / check on NumPy-written tensors', () => {
     expect(o2).toBeCloseTo(0.772928465, 6);
   });
 
-  it('run ignores columns the model does not read, even when they are not numbers (IDs, labels)', async () => {
+  it('score ignores columns the model does not read, even when they are not numbers (IDs, labels)', async () => {
     const input = join(dir, 'extra.csv');
     const output = join(dir, 'extra-out.csv');
     await writeFile(input, 'loaf,i2,note,i1\nA-17,0.10,"crust, dark",0.05\n');
-    const r = await runCli('run', model, '--input', input, '--output', output, '--engine', 'js');
+    const r = await runCli('score', model, '--input', input, '--output', output, '--engine', 'js');
     expect(r.code).toBe(0);
     const [o1] = (await readFile(output, 'utf8')).trim().split('\n')[1].split(',').map(Number);
     expect(o1).toBeCloseTo(0.75136507, 6); // Mazur 2015
   });
 
-  it('run writes .jsonl and .npy outputs with one row per input row', async () => {
+  it('score writes .jsonl and .npy outputs with one row per input row', async () => {
     const input = join(dir, 'in.jsonl');
     await writeFile(input, '{"i1": 0.05, "i2": 0.10}\n[0.05, 0.10]\n'.split('\n')[0] + '\n{"i1": 0.05, "i2": 0.10}\n');
     const out = join(dir, 'out.jsonl');
-    expect((await runCli('run', model, '-i', input, '-o', out, '--engine', 'js')).code).toBe(0);
+    expect((await runCli('score', model, '-i', input, '-o', out, '--engine', 'js')).code).toBe(0);
     const rows = (await readFile(out, 'utf8')).trim().split('\n').map((l) => JSON.parse(l));
     expect(rows).toHaveLength(2);
     expect(rows[0].o1).toBeCloseTo(0.75136507, 6);
   });
 
-  it('show names layers, shapes, parameter count and checksum; --json is machine-readable', async () => {
-    const text = await runCli('show', model);
+  it('about names layers, shapes, parameter count and checksum; --json is machine-readable', async () => {
+    const text = await runCli('about', model);
     expect(text.code).toBe(0);
     expect(text.out).toContain('sigmoid');
     expect(text.out).toMatch(/checksum [0-9a-f]{8}/);
-    const json = JSON.parse((await runCli('show', model, '--json')).out);
+    // 2x2 weights + 2 biases per layer, two layers; no batchnorm, so nothing held fixed.
+    expect(text.out).toMatch(/^12 weights to learn$/m);
+    const json = JSON.parse((await runCli('about', model, '--json')).out);
     // 2x2 weights + 2 biases, twice.
     expect(json.parameters).toBe(12);
     expect(json.layers.map((l: { tensors: { shape: number[] }[] }) => l.tensors[0].shape)).toEqual([[2, 2], [2, 2]]);
@@ -104,10 +106,10 @@ describe('tendon check when float32 cannot keep up', () => {
 describe('one-line errors and exit codes', () => {
   const cases: [string, () => string[], RegExp, number][] = [
     ['unknown command', () => ['frobnicate'], /unknown command "frobnicate"/, 2],
-    ['unknown flag', () => ['show', model, '--colour'], /--colour: unknown option/, 2],
+    ['unknown flag', () => ['about', model, '--colour'], /--colour: unknown option/, 2],
     ['missing -o', () => ['pack', join(dir, 'mazur-spec.json')], /--out: is required/, 2],
-    ['model file missing', () => ['show', join(dir, 'nope.tendon')], /nope\.tendon/, 2],
-    ['bad number flag', () => ['run', model, '-i', 'x.csv', '-o', 'y.csv', '--batch', 'ten'], /--batch: expected a number/, 2],
+    ['model file missing', () => ['about', join(dir, 'nope.tendon')], /nope\.tendon/, 2],
+    ['bad number flag', () => ['score', model, '-i', 'x.csv', '-o', 'y.csv', '--batch', 'ten'], /--batch: expected a number/, 2],
   ];
   it.each(cases)('%s', async (_name, argv, pattern, code) => {
     const r = await runCli(...argv());
@@ -122,7 +124,7 @@ describe('one-line errors and exit codes', () => {
     bytes[bytes.length - 3] ^= 0xff;
     const bad = join(dir, 'corrupt.tendon');
     await writeFile(bad, bytes);
-    const r = await runCli('show', bad);
+    const r = await runCli('about', bad);
     expect(r.code).toBe(2);
     expect(r.err).toMatch(/corrupt\.tendon/);
     expect(r.err.toLowerCase()).toMatch(/crc|checksum/);
@@ -132,7 +134,7 @@ describe('one-line errors and exit codes', () => {
     const bytes = await readFile(model);
     const bad = join(dir, 'short.tendon');
     await writeFile(bad, bytes.subarray(0, 40));
-    const r = await runCli('run', bad, '-i', 'x.csv', '-o', join(dir, 'y.csv'));
+    const r = await runCli('score', bad, '-i', 'x.csv', '-o', join(dir, 'y.csv'));
     expect(r.code).toBe(2);
     expect(r.err.trim().split('\n')).toHaveLength(1);
   });
@@ -141,7 +143,7 @@ describe('one-line errors and exit codes', () => {
     const input = join(dir, 'bad.csv');
     await writeFile(input, 'i1,i2\n0.05,0.10\n0.05,abc\n');
     const output = join(dir, 'bad-out.csv');
-    const r = await runCli('run', model, '-i', input, '-o', output, '--engine', 'js');
+    const r = await runCli('score', model, '-i', input, '-o', output, '--engine', 'js');
     expect(r.code).toBe(2);
     expect(r.err).toMatch(/bad\.csv:3:2/);
     await expect(readFile(output)).rejects.toThrow();

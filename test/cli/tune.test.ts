@@ -56,6 +56,8 @@ describe('tendon tune', () => {
     expect(svg).not.toMatch(/https?:\/\/(?!www\.w3\.org)/);
     const saved = await readModelFile(out);
     expect(saved.doc.normalise?.method).toBe('zscore');
+    // No parent file: the provenance names the spec the starting weights were built from.
+    expect(saved.doc.provenance.at(-1)).toMatchObject({ action: 'trained', source: `spec ${join(dir, 'iris-spec.json')}` });
     expect(saved.doc.normalise?.count).toBeGreaterThan(0);
   });
 
@@ -69,7 +71,8 @@ describe('tendon tune', () => {
     const parentRead = await readModelFile(parent);
     const child = await readModelFile(out);
     const last = child.doc.provenance[child.doc.provenance.length - 1];
-    expect(last.action).toBe('tune');
+    expect(last.action).toBe('fine-tuned');
+    expect(last.source).toBe(parent);
     expect(last.checksum).toBe(parentRead.checksum);
     // Layer 0 was frozen: its weights are unchanged.
     const l0p = parentRead.doc.layers[0];

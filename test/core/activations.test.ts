@@ -1,6 +1,6 @@
 import * as tf from '@tensorflow/tfjs-core';
 import { afterAll, describe, expect, it } from 'vitest';
-import { EngineSession, ensureEngine } from '../../src/engine/index.js';
+import { TfjsRunner, ensureEngine } from '../../src/engine/index.js';
 import { ACTIVATIONS, activationKind, SeededRng } from '../../src/model/index.js';
 import { denseOf, docOf } from './helpers.js';
 
@@ -75,7 +75,7 @@ describe('activation derivatives', () => {
 describe('IEEE 754 binary32 storage', () => {
   const n = 8;
   const identity = Array.from({ length: n * n }, (_, i) => (i % (n + 1) === 0 ? 1 : 0));
-  const session = new EngineSession(docOf(n, [denseOf(identity, new Array(n).fill(0), 'linear')]));
+  const session = new TfjsRunner(docOf(n, [denseOf(identity, new Array(n).fill(0), 'linear')]));
   afterAll(() => session.dispose());
 
   it('an identity dense layer returns Math.fround of each input (IEEE 754-2008 binary32)', () => {

@@ -1,7 +1,7 @@
 import { Matrix } from 'ml-matrix';
 import { afterAll, describe, expect, it } from 'vitest';
 import { withinTolerance } from '../../src/check/index.js';
-import { EngineSession } from '../../src/engine/index.js';
+import { TfjsRunner } from '../../src/engine/index.js';
 import { SeededRng } from '../../src/model/index.js';
 import { referenceForward, toMat64 } from '../../src/reference/index.js';
 import { denseOf, docOf } from './helpers.js';
@@ -25,8 +25,8 @@ describe.each(['linear', 'tanh'] as const)('collapse of a linear hidden layer (o
   const twoLayer = docOf(nIn, [denseOf(wH, bH, 'linear'), denseOf(wO, bO, outAct)]);
   const oneLayer = docOf(nIn, [denseOf(W.to1DArray(), B.to1DArray(), outAct)]);
   const x = Float32Array.from({ length: 40 * nIn }, () => rng.normal());
-  const two = new EngineSession(twoLayer);
-  const one = new EngineSession(oneLayer);
+  const two = new TfjsRunner(twoLayer);
+  const one = new TfjsRunner(oneLayer);
   afterAll(() => {
     two.dispose();
     one.dispose();

@@ -56,7 +56,7 @@ function quantisedMatrix(rng: SeededRng, rows: number, cols: number): Mat64 {
 
 function quantisedDense(rng: SeededRng, inputs: number, units: number, activation: ActivationName): Layer {
   const q = (n: number, s: number) => Float32Array.from({ length: n }, () => quantise(s * rng.normal()));
-  return { kind: 'dense', units, activation, alpha: 0.1, weight: q(inputs * units, 0.8), bias: q(units, 0.3) };
+  return { kind: 'dense', size: units, activation, alpha: 0.1, weight: q(inputs * units, 0.8), bias: q(units, 0.3) };
 }
 
 /** Loss sum(out ⊙ G); its gradient with respect to out is G. */

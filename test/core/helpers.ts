@@ -16,7 +16,7 @@ export function docOf(inputs: number, layers: Layer[], normalise: Normalisation 
 }
 
 export function denseOf(weight: number[], bias: number[], activation: ActivationName, alpha = 0.01): DenseLayer {
-  return { kind: 'dense', units: bias.length, activation, alpha, weight: Float32Array.from(weight), bias: Float32Array.from(bias) };
+  return { kind: 'dense', size: bias.length, activation, alpha, weight: Float32Array.from(weight), bias: Float32Array.from(bias) };
 }
 
 /** A dense layer with seeded random weights AND biases (init leaves biases at zero). */

@@ -1,6 +1,6 @@
 import * as tf from '@tensorflow/tfjs-core';
 import { afterAll, describe, expect, it } from 'vitest';
-import { EngineSession } from '../../src/engine/index.js';
+import { TfjsTrainer } from '../../src/engine/index.js';
 import { SeededRng, type Layer } from '../../src/model/index.js';
 import { docOf, dropoutOf, randomBatchNorm, randomDense, trainingContext, zscoreOf } from './helpers.js';
 
@@ -9,7 +9,7 @@ import { docOf, dropoutOf, randomBatchNorm, randomDense, trainingContext, zscore
 const rng = new SeededRng(11);
 const layers: Layer[] = [randomDense(rng, 6, 16, 'relu'), randomBatchNorm(rng, 16), dropoutOf(0.25), randomDense(rng, 16, 4, 'softmax')];
 const doc = docOf(6, layers, zscoreOf(rng, 6));
-const session = new EngineSession(doc, { chunkRows: 4096 });
+const session = new TfjsTrainer(doc, { chunkRows: 4096 });
 afterAll(() => session.dispose());
 
 const inputs = (rows: number) => Float32Array.from({ length: rows * 6 }, () => rng.normal());
@@ -25,7 +25,7 @@ describe('tensor hygiene', () => {
 
   it('a run larger than chunkRows equals running in one go, and frees everything', () => {
     const x = inputs(10_000);
-    const whole = new EngineSession(doc, { chunkRows: 10_000 });
+    const whole = new TfjsTrainer(doc, { chunkRows: 10_000 });
     try {
       const before = tf.memory().numTensors;
       const chunked = session.run(x, 10_000);
@@ -66,7 +66,7 @@ describe('tensor hygiene', () => {
     session.refreshWeights();
     session.refreshWeights(0);
     expect(tf.memory().numTensors).toBe(before);
-    const extra = new EngineSession(doc);
+    const extra = new TfjsTrainer(doc);
     expect(tf.memory().numTensors).toBeGreaterThan(before);
     extra.dispose();
     expect(tf.memory().numTensors).toBe(before);

@@ -1,5 +1,5 @@
 import { afterAll, describe, expect, it } from 'vitest';
-import { EngineSession } from '../../src/engine/index.js';
+import { TfjsRunner } from '../../src/engine/index.js';
 import { mat64 } from '../../src/model/index.js';
 import { referenceForward } from '../../src/reference/index.js';
 import { FLOAT32_TOLERANCE } from '../../src/check/index.js';
@@ -22,7 +22,7 @@ function eTotal(out: ArrayLike<number>): number {
 }
 
 describe('Mazur 2015 worked example, forward pass', () => {
-  const session = new EngineSession(doc);
+  const session = new TfjsRunner(doc);
   afterAll(() => session.dispose());
 
   it('reference matches out_h1, out_h2, out_o1, out_o2 and E_total to 8 digits (Mazur 2015)', () => {

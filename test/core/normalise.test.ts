@@ -1,6 +1,6 @@
 import { afterAll, describe, expect, it } from 'vitest';
 import { withinTolerance } from '../../src/check/index.js';
-import { EngineSession } from '../../src/engine/index.js';
+import { TfjsRunner } from '../../src/engine/index.js';
 import { mat64, type Normalisation } from '../../src/model/index.js';
 import { normalise64 } from '../../src/reference/index.js';
 import { denseOf, docOf } from './helpers.js';
@@ -25,7 +25,7 @@ describe.each([
   ['zscore', zscore],
   ['minmax', minmax],
 ] as const)('%s normalisation', (method, norm) => {
-  const session = new EngineSession(docOf(3, [identity], norm));
+  const session = new TfjsRunner(docOf(3, [identity], norm));
   afterAll(() => session.dispose());
   const ref = normalise64(norm, mat64(rows, 3, Float64Array.from(x))).data;
 
@@ -60,7 +60,7 @@ describe.each([
 it('an unfitted block (null statistics) passes features through', () => {
   const pending: Normalisation = { method: 'zscore', mean: null, std: null, m2: null, count: 0 };
   expect(Array.from(normalise64(pending, mat64(1, 3, Float64Array.of(1, 2, 3))).data)).toEqual([1, 2, 3]);
-  const session = new EngineSession(docOf(3, [identity], pending));
+  const session = new TfjsRunner(docOf(3, [identity], pending));
   expect(Array.from(session.run(Float32Array.of(1, 2, 3), 1))).toEqual([1, 2, 3]);
   session.dispose();
 });

@@ -1,6 +1,6 @@
 import { describe, expect, it } from 'vitest';
 import { assertParity, parityReport, randomInputs } from '../../src/check/index.js';
-import { EngineSession } from '../../src/engine/index.js';
+import { TfjsTrainer } from '../../src/engine/index.js';
 import { ParityError } from '../../src/errors.js';
 import { ACTIVATIONS, SeededRng, type ActivationName, type Layer, type ModelDoc, type Normalisation } from '../../src/model/index.js';
 import { docOf, dropoutOf, minmaxOf, randomBatchNorm, randomDense, zscoreOf } from './helpers.js';
@@ -46,15 +46,15 @@ describe('parity of the engine with the float64 reference', () => {
   it('fails when one engine weight is corrupted after upload (the check can fail)', () => {
     const doc = randomModel([20, 64, 64, 5], 'relu', 'zscore', 7);
     const tampered: ModelDoc = { ...doc, layers: doc.layers.map((l) => (l.kind === 'dense' ? { ...l, weight: l.weight.slice() } : l)) };
-    const session = new EngineSession(tampered);
+    const session = new TfjsTrainer(tampered);
     try {
       const x = randomInputs(doc, 64, 8);
-      expect(parityReport(doc, x, 64, { session }).pass).toBe(true);
+      expect(parityReport(doc, x, 64, { runner: session }).pass).toBe(true);
       const firstDense = tampered.layers[0];
       if (firstDense.kind !== 'dense') throw new Error('unreachable');
       firstDense.weight[5] += 0.05; // input 0 -> unit 5
       session.refreshWeights(0);
-      const report = parityReport(doc, x, 64, { session });
+      const report = parityReport(doc, x, 64, { runner: session });
       expect(report.pass).toBe(false);
       expect(report.layers[0].pass).toBe(false);
       expect(report.layers[0].worstCol).toBe(5);

@@ -1,6 +1,6 @@
 import { afterAll, describe, expect, it } from 'vitest';
 import { withinTolerance } from '../../src/check/index.js';
-import { EngineSession } from '../../src/engine/index.js';
+import { TfjsTrainer } from '../../src/engine/index.js';
 import { layerKind, mat64, modelWidths, SeededRng, type Layer } from '../../src/model/index.js';
 import { referenceBackwardTape, referenceForwardTrain, toMat64 } from '../../src/reference/index.js';
 import { docOf, dropoutOf, minmaxOf, randomBatchNorm, randomDense, trainingContext } from './helpers.js';
@@ -23,7 +23,7 @@ function crossEntropy(): number {
 }
 
 describe('training passes over a whole network', () => {
-  const session = new EngineSession(doc);
+  const session = new TfjsTrainer(doc);
   afterAll(() => session.dispose());
 
   const f = referenceForwardTrain(doc, toMat64(x, rows, 5), ctx);

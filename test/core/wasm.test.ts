@@ -3,7 +3,7 @@
 import * as tf from '@tensorflow/tfjs-core';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { parityReport, randomInputs, withinTolerance } from '../../src/check/index.js';
-import { EngineSession, engineFallbackReason, useEngine } from '../../src/engine/index.js';
+import { TfjsTrainer, engineFallbackReason, useEngine } from '../../src/engine/index.js';
 import { ACTIVATIONS, SeededRng, type Layer } from '../../src/model/index.js';
 import { referenceBackwardTape, referenceForwardTrain, toMat64 } from '../../src/reference/index.js';
 import { denseOf, docOf, dropoutOf, minmaxOf, randomBatchNorm, randomDense, trainingContext, zscoreOf } from './helpers.js';
@@ -22,7 +22,7 @@ describe('wasm engine', () => {
 
   it('Mazur 2015 worked example forward pass on wasm (Mazur 2015)', () => {
     const doc = docOf(2, [denseOf([0.15, 0.25, 0.2, 0.3], [0.35, 0.35], 'sigmoid'), denseOf([0.4, 0.5, 0.45, 0.55], [0.6, 0.6], 'sigmoid')]);
-    const session = new EngineSession(doc);
+    const session = new TfjsTrainer(doc);
     const y = session.run(Float32Array.of(0.05, 0.1), 1);
     session.dispose();
     expect(Math.abs(y[0] - 0.75136507)).toBeLessThan(1e-6);
@@ -41,7 +41,7 @@ describe('wasm engine', () => {
   it('training forward and backward on wasm agree with the float64 tape, and free their tensors', () => {
     const rng = new SeededRng(77);
     const doc = docOf(4, [randomDense(rng, 4, 6, 'relu'), randomBatchNorm(rng, 6), dropoutOf(0.5), randomDense(rng, 6, 2, 'linear')]);
-    const session = new EngineSession(doc);
+    const session = new TfjsTrainer(doc);
     const before = tf.memory().numTensors;
     const x = Float32Array.from({ length: 20 }, () => rng.normal());
     const dy = Float32Array.from({ length: 10 }, () => rng.normal());
@@ -59,7 +59,7 @@ describe('wasm engine', () => {
   });
 
   it('a session refuses to run after the process switched backend', async () => {
-    const session = new EngineSession(docOf(1, [denseOf([1], [0], 'linear')]));
+    const session = new TfjsTrainer(docOf(1, [denseOf([1], [0], 'linear')]));
     await useEngine('js');
     try {
       expect(() => session.run(Float32Array.of(1), 1)).toThrow(/backend 'wasm'.*now runs 'cpu'/);

@@ -103,7 +103,7 @@ describe('DriftMonitor', () => {
   });
 });
 
-describe('tendon run --drift', () => {
+describe('tendon score --drift', () => {
   it('prints a per-feature drift table to stderr after scoring and keeps exit code 0', async () => {
     const model = join(dir, 'bakery.tendon');
     await writeModelFile(model, bakeryDoc(1));
@@ -113,13 +113,13 @@ describe('tendon run --drift', () => {
     const input = join(dir, 'loaves.csv');
     writeFileSync(input, lines.join('\n') + '\n');
     const out = join(dir, 'scores.csv');
-    const r = await runCli('run', model, '--input', input, '--output', out, '--drift');
+    const r = await runCli('score', model, '--input', input, '--output', out, '--drift');
     expect(r.code, r.err).toBe(0);
     expect(r.err).toMatch(/drift: 300 rows against the model's zscore statistics/);
     const zone2 = r.err.split('\n').find((l) => l.startsWith('zone2_temp_c'))!;
     expect(zone2).toMatch(/mean moved (3\.[89]|4\.[01]) sd/);
     expect(r.err).toMatch(/1 feature has drifted \(zone2_temp_c\)/);
-    const plain = await runCli('run', model, '--input', input, '--output', out);
+    const plain = await runCli('score', model, '--input', input, '--output', out);
     expect(plain.err).not.toMatch(/drift:/);
   });
 });

@@ -76,7 +76,7 @@ describe('encode / decode round trip', () => {
       const other = back.layers[i] as DenseLayer;
       if (layer.kind !== 'dense') return;
       expect(other.bias).toEqual(layer.bias);
-      const cols = layer.units;
+      const cols = layer.size;
       const rows = layer.weight.length / cols;
       for (let c = 0; c < cols; c++) {
         let maxAbs = 0;
@@ -94,7 +94,7 @@ describe('encode / decode round trip', () => {
     const wide = (storage: 'f32' | 'f16' | 'i8'): ModelDoc => ({
       ...tinyDoc(),
       inputs: 64,
-      layers: [{ kind: 'dense', units: 64, activation: 'relu', alpha: 0, weight: randomFloat32(random, 64 * 64), bias: new Float32Array(64) }],
+      layers: [{ kind: 'dense', size: 64, activation: 'relu', alpha: 0, weight: randomFloat32(random, 64 * 64), bias: new Float32Array(64) }],
       storage,
     });
     const sizes = (['f32', 'f16', 'i8'] as const).map((storage) => encodeModel(wide(storage)).length);
@@ -259,7 +259,7 @@ describe('content checks report every problem at once', () => {
       raw.layers[0].dense!.activation = 42; // unknown activation
       raw.layers[1].batchnorm!.epsilon = 0; // epsilon <= 0
       raw.layers[2].dropout!.rate = 1; // outside [0, 1)
-      raw.layers[3].dense!.bias!.shape = [4]; // 4 != units 5 (and 16 bytes fit [4])
+      raw.layers[3].dense!.bias!.shape = [4]; // 4 != size 5 (and 16 bytes fit [4])
       raw.layers[3].dense!.bias!.data = raw.layers[3].dense!.bias!.data.subarray(0, 16);
       raw.zscore!.std[1] = -1; // std <= 0
       raw.feature_names.pop(); // 2 names for 3 inputs
@@ -281,7 +281,7 @@ describe('content checks report every problem at once', () => {
   it.each<[string, (raw: RawModel) => void, string, RegExp]>([
     ['unknown dtype code', (r) => void (r.layers[0].dense!.weight!.dtype = 9), 'layers[0].dense.weight', /unknown dtype code 9/],
     ['weight not 2-D', (r) => void (r.layers[0].dense!.weight!.shape = [12]), 'layers[0].dense.weight', /2-D/],
-    ['weight columns != units', (r) => void (r.layers[0].dense!.weight!.shape = [6, 2]), 'layers[0].dense.weight', /units is 4/],
+    ['weight columns != size', (r) => void (r.layers[0].dense!.weight!.shape = [6, 2]), 'layers[0].dense.weight', /size is 4/],
     ['weight rows != incoming width', (r) => {
       const w = r.layers[3].dense!.weight!;
       w.shape = [2, 5];

@@ -29,7 +29,7 @@ function randomFloat64(random: () => number, n: number, lo: number, hi: number):
 function dense(random: () => number, inWidth: number, units: number, activation: ActivationName, alpha = 0): Layer {
   return {
     kind: 'dense',
-    units,
+    size: units,
     activation,
     alpha,
     weight: randomFloat32(random, inWidth * units),

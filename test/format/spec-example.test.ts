@@ -36,7 +36,7 @@ describe('FORMAT.md worked example', () => {
     expect(doc.inputs).toBe(2);
     expect(doc.meta.name).toBe('tiny');
     expect(doc.layers).toEqual([
-      { kind: 'dense', units: 1, activation: 'sigmoid', alpha: 0, weight: new Float32Array([0.5, -1]), bias: new Float32Array([0.25]) },
+      { kind: 'dense', size: 1, activation: 'sigmoid', alpha: 0, weight: new Float32Array([0.5, -1]), bias: new Float32Array([0.25]) },
     ]);
   });
 });

@@ -3,7 +3,7 @@
 // seeded inputs, threads against one thread, and the refusals.
 import { describe, expect, it } from 'vitest';
 import { int8ParityReport, randomInputs, topClassAgreement } from '../../src/check/index.js';
-import { FastSession } from '../../src/engine/fast/fast-session.js';
+import { SimdRunner } from '../../src/engine/fast/simd-runner.js';
 import { Int8Session } from '../../src/engine/int8/int8-session.js';
 import { i16DotAvailable, MAX_INT8_INPUTS, relaxedDotAvailable, type Int8Arith } from '../../src/engine/int8/kernels.js';
 import { SharedSession } from '../../src/engine/shared-session.js';
@@ -61,7 +61,7 @@ describe.each(ARITHS)('Int8Session (%s)', (arith) => {
     const rng = new SeededRng(21);
     const parent = docOf(64, [randomDense(rng, 64, 128, 'relu'), randomDense(rng, 128, 64, 'relu'), randomDense(rng, 64, 10, 'softmax')], zscoreOf(rng, 64));
     const x = randomInputs(parent, 512, 5);
-    const fast = new FastSession(parent).run(x, 512);
+    const fast = new SimdRunner(parent).run(x, 512);
     const session = new Int8Session(i8Of(parent), { arith });
     const y = session.run(x, 512);
     session.dispose();
@@ -98,7 +98,7 @@ describe('shared-memory sessions', () => {
     await two.ready();
     const a = one.run(x, 200);
     const b = two.run(x, 200);
-    const fast = new FastSession(doc).run(x, 200);
+    const fast = new SimdRunner(doc).run(x, 200);
     one.dispose();
     two.dispose();
     expect(Buffer.from(b.buffer).equals(Buffer.from(a.buffer))).toBe(true);
@@ -116,7 +116,7 @@ describe('shared-memory sessions', () => {
 describe('refusals', () => {
   it(`a layer wider than ${MAX_INT8_INPUTS} inputs is refused by name with a typed error (32-bit sums could overflow)`, () => {
     const inputs = MAX_INT8_INPUTS + 1;
-    const doc = docOf(inputs, [{ kind: 'dense', units: 1, activation: 'linear', alpha: 0, weight: new Float32Array(inputs), bias: new Float32Array(1) }]);
+    const doc = docOf(inputs, [{ kind: 'dense', size: 1, activation: 'linear', alpha: 0, weight: new Float32Array(inputs), bias: new Float32Array(1) }]);
     let error: unknown = null;
     try {
       new Int8Session(doc);

@@ -137,7 +137,7 @@ describe('examples/bakery-spec.json', () => {
     const io = { out: (t: string) => void (text += t), err: (t: string) => void (text += t), interactive: false, signal: new AbortController().signal };
     expect(await main(['pack', join(root, 'examples/bakery-spec.json'), '-o', out, '--seed', '7'], io)).toBe(0);
     text = '';
-    expect(await main(['show', out, '--json'], io)).toBe(0);
+    expect(await main(['about', out, '--json'], io)).toBe(0);
     const facts = JSON.parse(text);
     expect(facts.inputs).toBe(7);
     expect(facts.labels).toEqual(['under', 'good', 'over']);

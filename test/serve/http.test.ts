@@ -70,7 +70,7 @@ describe('the endpoint on loopback (a real HTTP client: fetch)', () => {
     });
   });
 
-  it('GET /v1/about gives the show facts; /v1/alive and /v1/ready answer 200', async () => {
+  it('GET /v1/about gives the `tendon about` facts; /v1/alive and /v1/ready answer 200', async () => {
     const about = await call(url('/v1/about'));
     expect(about.status).toBe(200);
     expect(about.json).toMatchObject({ inputs: 7, outputs: 3, features: BAKERY_FEATURES, labels: BAKERY_LABELS, storage: 'f32' });

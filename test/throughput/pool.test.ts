@@ -1,6 +1,6 @@
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { WorkerPool } from '../../src/serve/pool.js';
-import { EngineSession, useEngine } from '../../src/engine/index.js';
+import { TfjsRunner, useEngine } from '../../src/engine/index.js';
 import { encodeModel } from '../../src/format/index.js';
 import { referenceForward, toMat64 } from '../../src/reference/index.js';
 import { ModelFileError, RuntimeFailure } from '../../src/errors.js';
@@ -9,12 +9,12 @@ import { workerScript } from './worker-script.js';
 
 const doc = denseStackDoc([20, 64, 32, 5], 11, 'relu', 'softmax');
 let script: string;
-let session: EngineSession;
+let session: TfjsRunner;
 
 beforeAll(async () => {
   script = workerScript();
   await useEngine('js');
-  session = new EngineSession(doc);
+  session = new TfjsRunner(doc);
 });
 
 afterAll(() => session.dispose());

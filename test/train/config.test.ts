@@ -9,8 +9,8 @@ const doc: ModelDoc = {
   labels: null,
   normalise: null,
   layers: [
-    { kind: 'dense', units: 2, activation: 'relu', alpha: 0, weight: new Float32Array(4), bias: new Float32Array(2) },
-    { kind: 'dense', units: 2, activation: 'softmax', alpha: 0, weight: new Float32Array(4), bias: new Float32Array(2) },
+    { kind: 'dense', size: 2, activation: 'relu', alpha: 0, weight: new Float32Array(4), bias: new Float32Array(2) },
+    { kind: 'dense', size: 2, activation: 'softmax', alpha: 0, weight: new Float32Array(4), bias: new Float32Array(2) },
   ],
   meta: { name: 't', description: '', created: '2026-01-01T00:00:00Z', extra: {} },
   provenance: [],
@@ -38,7 +38,7 @@ describe('tune options (src/train/config.ts)', () => {
     ['unknown schedule', { schedule: 'cyclic' }, 'schedule'],
     ['stopAfter without hold-out', { stopAfter: 3 }, 'stopAfter'],
     ['bad tensor name', { freezeTensors: ['layers[0].kernel!'] }, 'freezeTensors'],
-    ['clipNorm 0', { clipNorm: 0 }, 'clipNorm'],
+    ['clip 0', { clip: 0 }, 'clip'],
     ['replay fraction', { replay: { x: new Float32Array(2), rows: 1, y: Int32Array.of(0) }, replayPerBatch: 1.5 }, 'replayPerBatch'],
     ['replay wrong width', { replay: { x: new Float32Array(3), rows: 1, y: Int32Array.of(0) } }, 'replay'],
   ])('refuses %s up front, naming the option', (_name, opts, option) => {

@@ -5,7 +5,7 @@ import { normals, seededRng } from './seeded.js';
 
 const dense = (activation: DenseLayer['activation']): DenseLayer => ({
   kind: 'dense',
-  units: 1,
+  size: 1,
   activation,
   alpha: 0,
   weight: new Float32Array(1),

@@ -37,7 +37,7 @@ function relativeGap(a: readonly number[], b: readonly number[]): number {
 
 const batchnorm = (): Layer => ({ kind: 'batchnorm', gamma: new Float32Array(0), beta: new Float32Array(0), runningMean: new Float32Array(0), runningVariance: new Float32Array(0), epsilon: 1e-5, momentum: 0.9 });
 
-describe('the fast training path (src/train/tune.ts on src/engine/fast/fast-train.ts)', () => {
+describe('the fast training path (src/train/tune.ts on src/engine/fast/simd-trainer.ts)', () => {
   it('is the default for a dense model when WebAssembly SIMD is there, and the tfjs engine otherwise', async () => {
     const res = await tune(modelDoc(3, [denseSpec(4, 'relu'), { kind: 'dropout', rate: 0.2 }, denseSpec(2, 'softmax')]), blobs(20, 3, 2, 1), { epochs: 1 });
     expect(res.path).toBe(wasmSimdAvailable() ? 'fast' : 'engine');
@@ -83,7 +83,7 @@ describe('the fast training path (src/train/tune.ts on src/engine/fast/fast-trai
   // The whole loop against the float64 reference path: the same seeded masks, shuffles and
   // replay rows, so float32 rounding is the only difference (from memory: float32 keeps ~7 digits).
   const wholeRuns: [string, TuneRunOptions][] = [
-    ['momentum (Nesterov), decoupled decay, clipping, anchor, a frozen tensor', { optimizer: 'momentum', nesterov: true, lr: 0.05, weightDecay: 0.01, clipNorm: 0.5, anchor: 0.1, freezeTensors: ['layers[3].bias'] }],
+    ['momentum (Nesterov), decoupled decay, clipping, anchor, a frozen tensor', { optimizer: 'momentum', nesterov: true, lr: 0.05, weightDecay: 0.01, clip: 0.5, anchor: 0.1, freezeTensors: ['layers[3].bias'] }],
     ['Adam, l2 decay, a frozen layer, replay', { optimizer: 'adam', lr: 0.01, weightDecay: 0.001, decayMode: 'l2', freeze: [0], replayPerBatch: 0.5 }],
   ];
   it.each(wholeRuns)('agrees with the float64 reference path through a whole run: %s', async (_name, extra) => {
@@ -137,8 +137,8 @@ describe('the fast training path (src/train/tune.ts on src/engine/fast/fast-trai
 
   it('a float32 overflow stops the run, names the top layer whose gradient is not finite and keeps the last good weights', async () => {
     const doc = modelDoc(2, [
-      { kind: 'dense', units: 3, activation: 'relu', alpha: 0, weight: new Float32Array(6).fill(3e38), bias: new Float32Array(3) },
-      { kind: 'dense', units: 2, activation: 'softmax', alpha: 0, weight: Float32Array.of(1, -1, 1, -1, 1, -1), bias: new Float32Array(2) },
+      { kind: 'dense', size: 3, activation: 'relu', alpha: 0, weight: new Float32Array(6).fill(3e38), bias: new Float32Array(3) },
+      { kind: 'dense', size: 2, activation: 'softmax', alpha: 0, weight: Float32Array.of(1, -1, 1, -1, 1, -1), bias: new Float32Array(2) },
     ]);
     // Inputs of 10 push 3e38 * 10 past float32's largest value (about 3.4e38, IEEE 754).
     const data = { x: Float32Array.of(10, 10, 10, 10), rows: 2, y: Int32Array.of(0, 1) };

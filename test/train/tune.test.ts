@@ -54,6 +54,15 @@ describe('tune loop (src/train/tune.ts)', () => {
     expect(bn.kind === 'batchnorm' && [...bn.runningMean].some((m) => Math.abs(m) > 1e-3)).toBe(true);
   });
 
+  it('records a model without a parent file as trained from its origin, in words', async () => {
+    const data = blobs(20, 3, 2, 3);
+    const first = await tune(modelDoc(3, [denseSpec(4, 'tanh'), denseSpec(2, 'softmax')], emptyZscore()), data, { epochs: 1, path: 'reference' });
+    const plain = await tune(first.doc, data, { epochs: 1, path: 'reference' });
+    expect(plain.doc.provenance.at(-1)).toMatchObject({ action: 'trained', source: 'a model held in memory' });
+    const named = await tune(first.doc, data, { epochs: 1, path: 'reference', origin: 'spec bakery-spec.json' });
+    expect(named.doc.provenance.at(-1)).toMatchObject({ action: 'trained', source: 'spec bakery-spec.json' });
+  });
+
   it('never mutates the input document and records provenance', async () => {
     const data = blobs(20, 3, 2, 3);
     const first = await tune(modelDoc(3, [denseSpec(4, 'tanh'), denseSpec(2, 'softmax')], emptyZscore()), data, { epochs: 1, path: 'reference' });
@@ -62,7 +71,7 @@ describe('tune loop (src/train/tune.ts)', () => {
     const second = await tune(parent, data, { epochs: 2, lr: 0.05, path: 'reference', normalisation: 'continue', parent: { checksum: '0badf00d', source: 'a.tdn' } });
     expect(parent).toEqual(before);
     expect(weightsOf(second.doc)).not.toEqual(weightsOf(parent));
-    expect(second.doc.provenance.at(-1)).toMatchObject({ checksum: '0badf00d', source: 'a.tdn', action: 'tune' });
+    expect(second.doc.provenance.at(-1)).toMatchObject({ checksum: '0badf00d', source: 'a.tdn', action: 'fine-tuned' });
     // The unfitted block was fitted from the rows; 'continue' then counted the rows again.
     expect(parent.normalise?.count).toBe(20);
     expect(second.doc.normalise?.count).toBe(40);

@@ -19,8 +19,8 @@ describe('foldModel', () => {
     // W1 = [[1, 2], [3, 4]], b1 = [1, 1]; W2 = [[1], [1]], b2 = [0.5]
     // W1·W2 = [[3], [7]]; b1·W2 + b2 = 1 + 1 + 0.5 = 2.5
     const doc = docOf(2, [
-      { kind: 'dense', units: 2, activation: 'linear', alpha: 0, weight: Float32Array.of(1, 2, 3, 4), bias: Float32Array.of(1, 1) },
-      { kind: 'dense', units: 1, activation: 'sigmoid', alpha: 0, weight: Float32Array.of(1, 1), bias: Float32Array.of(0.5) },
+      { kind: 'dense', size: 2, activation: 'linear', alpha: 0, weight: Float32Array.of(1, 2, 3, 4), bias: Float32Array.of(1, 1) },
+      { kind: 'dense', size: 1, activation: 'sigmoid', alpha: 0, weight: Float32Array.of(1, 1), bias: Float32Array.of(0.5) },
     ]);
     const { doc: folded, steps } = foldModel(doc);
     expect(folded.layers).toHaveLength(1);
@@ -36,7 +36,7 @@ describe('foldModel', () => {
     // feature 1: gamma 1, beta 0, mean -2, var 0.24, eps 1 -> a = 1 / sqrt(1.24), c = 2 / sqrt(1.24)
     const doc = docOf(2, [
       { kind: 'batchnorm', gamma: Float32Array.of(2, 1), beta: Float32Array.of(0.5, 0), runningMean: Float32Array.of(1, -2), runningVariance: Float32Array.of(3, 0.24), epsilon: 1, momentum: 0.9 },
-      { kind: 'dense', units: 2, activation: 'relu', alpha: 0, weight: Float32Array.of(1, 0, 0, 1), bias: Float32Array.of(0, 0) },
+      { kind: 'dense', size: 2, activation: 'relu', alpha: 0, weight: Float32Array.of(1, 0, 0, 1), bias: Float32Array.of(0, 0) },
     ]);
     const { doc: folded } = foldModel(doc);
     const d = denseAt(folded, 0);
@@ -57,7 +57,7 @@ describe('foldModel', () => {
     expect(c.maxAbs).toBeLessThan(1e-5);
     expect(c.pass).toBe(true);
     expect(c.topClassAgreement).toBe(1);
-    expect(folded.provenance.at(-1)?.action).toBe('fold');
+    expect(folded.provenance.at(-1)?.action).toBe('folded');
     // The input document is untouched.
     expect(doc.layers).toHaveLength(3);
     expect(doc.normalise).not.toBeNull();

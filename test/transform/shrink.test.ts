@@ -6,7 +6,7 @@ import { writeModelFile } from '../../src/format/index.js';
 import { SeededRng, type DenseLayer, type ModelDoc } from '../../src/model/index.js';
 import { SHRINK_TOLERANCE, denseWeightBytes, foldModel, shrinkModel, storageCost } from '../../src/transform/index.js';
 import { runCli } from '../cli/run-cli.js';
-import { bakeryDoc, dense, docOf, zscore } from './models.js';
+import { bakeryDoc, batchNorm, dense, docOf, zscore } from './models.js';
 
 const dir = mkdtempSync(join(tmpdir(), 'tendon-shrink-'));
 afterAll(() => rmSync(dir, { recursive: true, force: true }));
@@ -26,7 +26,7 @@ describe('shrinkModel', () => {
     const doc = wideDoc();
     const small = shrinkModel(doc, 'f16');
     expect(small.storage).toBe('f16');
-    expect(small.provenance.at(-1)?.action).toBe('shrink f16');
+    expect(small.provenance.at(-1)?.action).toBe('shrunk to f16');
     weights(doc).forEach((layer, i) => {
       const after = weights(small)[i].weight;
       let changed = 0;
@@ -44,10 +44,10 @@ describe('shrinkModel', () => {
   it('i8 keeps each weight within half a step of its column scale maxabs/127 (symmetric per-column quantisation, common practice)', () => {
     const doc = wideDoc();
     const small = shrinkModel(doc, 'i8');
-    expect(small.provenance.at(-1)?.action).toBe('shrink i8');
+    expect(small.provenance.at(-1)?.action).toBe('shrunk to i8');
     weights(doc).forEach((layer, i) => {
       const after = weights(small)[i].weight;
-      const cols = layer.units;
+      const cols = layer.size;
       const maxAbs = new Float64Array(cols);
       layer.weight.forEach((w, k) => (maxAbs[k % cols] = Math.max(maxAbs[k % cols], Math.abs(w))));
       let worstError = 0;
@@ -90,7 +90,7 @@ describe('storageCost', () => {
   });
 });
 
-describe('tendon shrink, fold, check --against, show --costs', () => {
+describe('tendon shrink, fold, check --against, about --costs', () => {
   it('shrunken f16 and i8 files are smaller and pass check --against their parent; a damaged one fails with exit 1', async () => {
     const parent = join(dir, 'wide.tendon');
     await writeModelFile(parent, wideDoc());
@@ -130,17 +130,27 @@ describe('tendon shrink, fold, check --against, show --costs', () => {
     expect(foldModel(bakeryDoc(3)).doc.layers).toHaveLength(2);
   });
 
-  it('show --costs lists the size and parity cost of each storage choice', async () => {
-    const parent = join(dir, 'bakery-show.tendon');
+  it('about --costs lists the size and parity cost of each storage choice', async () => {
+    const parent = join(dir, 'bakery-about.tendon');
     await writeModelFile(parent, bakeryDoc(3));
-    const shown = await runCli('show', parent, '--costs');
+    const shown = await runCli('about', parent, '--costs');
     expect(shown.code).toBe(0);
     const lines = shown.out.split('\n');
     for (const codec of ['f32', 'f16', 'i8']) expect(lines.some((l) => l.startsWith(codec + ' '))).toBe(true);
-    const json = await runCli('show', parent, '--costs', '--json');
+    const json = await runCli('about', parent, '--costs', '--json');
     const facts = JSON.parse(json.out);
     expect(facts.storageCosts.map((c: { codec: string }) => c.codec)).toEqual(['f32', 'f16', 'i8']);
     expect(facts.storageCosts[0].fileBytes).toBe(statSync(parent).size);
+  });
+
+  it('about counts the weights training changes apart from the batchnorm running statistics it holds fixed', async () => {
+    const rng = new SeededRng(5);
+    const path = join(dir, 'with-batchnorm.tendon');
+    await writeModelFile(path, docOf(2, [dense(rng, 2, 3, 'relu'), batchNorm(rng, 3), dense(rng, 3, 1, 'sigmoid')]));
+    const shown = await runCli('about', path);
+    expect(shown.code).toBe(0);
+    // Learned: 2x3 + 3, gamma 3 + beta 3, 3x1 + 1 = 19; fixed: running mean 3 + running variance 3 = 6.
+    expect(shown.out).toMatch(/^19 weights to learn, 6 held fixed \(batchnorm running statistics\)$/m);
   });
 
   it('usage errors name the flag', async () => {

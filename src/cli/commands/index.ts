@@ -7,8 +7,8 @@ import { serve } from './serve.js';
 import { shrink } from './shrink.js';
 import { demo } from './demo.js';
 import { pack } from './pack.js';
-import { run } from './run.js';
-import { show } from './show.js';
+import { score } from './score.js';
+import { about } from './about.js';
 import { tune } from './tune.js';
 
-export const commands: readonly Command[] = [demo, pack, show, run, check, tune, bench, shrink, fold, serve];
+export const commands: readonly Command[] = [demo, pack, about, score, check, tune, bench, shrink, fold, serve];

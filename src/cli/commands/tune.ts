@@ -79,7 +79,7 @@ export const tune: Command = {
       weightDecay: f['weight-decay'],
       schedule: f.schedule,
       warmup: f.warmup,
-      clipNorm: f.clip,
+      clip: f.clip,
       seed: f.seed,
       holdout: f.holdout,
       holdoutData,
@@ -91,6 +91,7 @@ export const tune: Command = {
       normalisation: f.normalisation,
       loss: f.loss,
       parent: parent ? { checksum: parent.checksum, source: modelPath } : undefined,
+      origin: parent ? undefined : `spec ${modelPath}`,
       path,
     };
 
@@ -163,11 +164,11 @@ function parseIndices(text: string): number[] {
 
 function epochText(e: EpochRecord): string {
   const parts = [`epoch ${String(e.epoch + 1).padStart(3)}`, `loss ${sci(e.train.loss)}`];
-  if (e.train.accuracy !== null) parts.push(`acc ${percent(e.train.accuracy)}`);
+  if (e.train.accuracy !== null) parts.push(`accuracy ${percent(e.train.accuracy)}`);
   if (e.train.rmse !== null) parts.push(`rmse ${sci(e.train.rmse)}`);
   if (e.holdout) {
     parts.push(`| hold-out loss ${sci(e.holdout.loss)}`);
-    if (e.holdout.accuracy !== null) parts.push(`acc ${percent(e.holdout.accuracy)}`);
+    if (e.holdout.accuracy !== null) parts.push(`accuracy ${percent(e.holdout.accuracy)}`);
     if (e.holdout.rmse !== null) parts.push(`rmse ${sci(e.holdout.rmse)} mae ${sci(e.holdout.mae ?? NaN)}`);
   }
   const norms = Object.entries(e.gradientNorms).map(([layer, n]) => `${layer}:${sci(n)}`);

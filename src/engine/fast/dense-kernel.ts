@@ -32,6 +32,11 @@ const KB = 256;
  */
 const TILE_ROWS = 4;
 
+/** Output columns are padded with zeros to a multiple of this many floats (the kernel's widest tile). */
+export const PAD = 16;
+/** n rounded up to a multiple of PAD. */
+export const padded = (n: number): number => Math.ceil(n / PAD) * PAD;
+
 export interface KernelOptions {
   /** Accumulate with f32x4.relaxed_madd (default: when the runtime validates it; true where it does not throws). */
   readonly fused?: boolean;

@@ -104,6 +104,22 @@ function refBackward(layer: BatchNormLayer, saved: unknown, dy: Mat64): RefBackw
   return { dx: mat64(rows, cols, dx), grads: [dgamma, dbeta] };
 }
 
+/**
+ * The inference form as one per-feature affine map in float64, y = scale ⊙ x + shift:
+ * scale = gamma / sqrt(runningVariance + eps), shift = beta - scale ⊙ runningMean.
+ * What the fast engine runs and what folding moves into a neighbouring dense layer.
+ */
+export function batchNormAffine(layer: BatchNormLayer): { scale: Float64Array; shift: Float64Array } {
+  const n = layer.gamma.length;
+  const scale = new Float64Array(n);
+  const shift = new Float64Array(n);
+  for (let c = 0; c < n; c++) {
+    scale[c] = layer.gamma[c] / Math.sqrt(layer.runningVariance[c] + layer.epsilon);
+    shift[c] = layer.beta[c] - layer.runningMean[c] * scale[c];
+  }
+  return { scale, shift };
+}
+
 function engineUpload(layer: BatchNormLayer): tf.Tensor[] {
   // 1/sqrt(var + eps) in float64 once, rounded to float32 once.
   const invStd = new Float32Array(layer.runningVariance.length);

@@ -1,5 +1,5 @@
 /**
- * Dense layer: y = f(x·W + b), W [inputs, units] row-major, b [units].
+ * Dense layer: y = f(x·W + b), W [inputs, size] row-major, b [size].
  * Trainable: [weight, bias]. Reference `saved` is { x, z, y }; engine `saved` is [x, z, y]
  * (training mode only), so backward can start from dL/dy or, for a caller that already has it,
  * from dL/dz (`dyIsPreActivation`).
@@ -21,13 +21,13 @@ interface DenseSaved {
 
 function params(layer: DenseLayer, inputWidth: number, index: number): ParamRef[] {
   return [
-    { name: `layers[${index}].weight`, shape: [inputWidth, layer.units], data: layer.weight },
-    { name: `layers[${index}].bias`, shape: [layer.units], data: layer.bias },
+    { name: `layers[${index}].weight`, shape: [inputWidth, layer.size], data: layer.weight },
+    { name: `layers[${index}].bias`, shape: [layer.size], data: layer.bias },
   ];
 }
 
 function refForward(layer: DenseLayer, x: Mat64): RefForward {
-  const units = layer.units;
+  const units = layer.size;
   const z = matMul64(x.data, x.rows, x.cols, layer.weight, units);
   for (let r = 0; r < x.rows; r++) {
     const o = r * units;
@@ -45,7 +45,7 @@ function isDenseSaved(s: unknown): s is DenseSaved {
 function refBackward(layer: DenseLayer, saved: unknown, dy: Mat64, opts?: BackwardOptions): RefBackward {
   if (!isDenseSaved(saved)) throw new Error('dense backward: saved is not from a dense reference forward');
   const { x, z, y } = saved;
-  const units = layer.units;
+  const units = layer.size;
   const dz = opts?.dyIsPreActivation
     ? dy.data
     : activationKind(layer.activation).refBackward(z, y, dy.data, x.rows, units, layer.alpha);
@@ -56,10 +56,10 @@ function refBackward(layer: DenseLayer, saved: unknown, dy: Mat64, opts?: Backwa
 }
 
 function engineUpload(layer: DenseLayer): tf.Tensor[] {
-  const inputs = layer.weight.length / layer.units;
+  const inputs = layer.weight.length / layer.size;
   // slice(): the CPU backend keeps the array it is given, so without a copy later edits to
   // the document's weights would leak into the engine without a refresh.
-  return [tf.tensor2d(layer.weight.slice(), [inputs, layer.units]), tf.tensor1d(layer.bias.slice())];
+  return [tf.tensor2d(layer.weight.slice(), [inputs, layer.size]), tf.tensor1d(layer.bias.slice())];
 }
 
 function engineForward(layer: DenseLayer, weights: tf.Tensor[], x: tf.Tensor2D, ctx: { training: boolean }): EngineForward {
@@ -89,8 +89,8 @@ function engineBackward(layer: DenseLayer, weights: tf.Tensor[], saved: tf.Tenso
 
 function validate(layer: DenseLayer, inputWidth: number, where: string): Problem[] {
   const problems: Problem[] = [];
-  if (!isPositiveInt(layer.units)) {
-    problems.push({ where, message: `units must be a positive integer, got ${layer.units}` });
+  if (!isPositiveInt(layer.size)) {
+    problems.push({ where, message: `size must be a positive integer, got ${layer.size}` });
     return problems;
   }
   if (!(ACTIVATIONS as readonly string[]).includes(layer.activation)) {
@@ -99,14 +99,14 @@ function validate(layer: DenseLayer, inputWidth: number, where: string): Problem
   if (!Number.isFinite(layer.alpha) || (layer.activation === 'leaky_relu' && layer.alpha < 0)) {
     problems.push({ where, message: `alpha must be a finite number${layer.activation === 'leaky_relu' ? ' >= 0' : ''}, got ${layer.alpha}` });
   }
-  const wantW = inputWidth * layer.units;
+  const wantW = inputWidth * layer.size;
   if (layer.weight.length !== wantW) {
-    problems.push({ where, message: `weight has ${layer.weight.length} values, expected [${inputWidth}, ${layer.units}] = ${wantW}` });
+    problems.push({ where, message: `weight has ${layer.weight.length} values, expected [${inputWidth}, ${layer.size}] = ${wantW}` });
   } else {
     problems.push(...finiteProblems(layer.weight, 'weight', where));
   }
-  if (layer.bias.length !== layer.units) {
-    problems.push({ where, message: `bias has ${layer.bias.length} values, expected [${layer.units}]` });
+  if (layer.bias.length !== layer.size) {
+    problems.push({ where, message: `bias has ${layer.bias.length} values, expected [${layer.size}]` });
   } else {
     problems.push(...finiteProblems(layer.bias, 'bias', where));
   }
@@ -116,7 +116,7 @@ function validate(layer: DenseLayer, inputWidth: number, where: string): Problem
 /** The dense layer kind. */
 export const dense: LayerKind<DenseLayer> = {
   kind: 'dense',
-  outputWidth: (layer) => layer.units,
+  outputWidth: (layer) => layer.size,
   tensors: params,
   trainable: params,
   validate,

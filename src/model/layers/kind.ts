@@ -91,7 +91,7 @@ export interface LayerKind<L extends Layer = Layer> {
   readonly kind: L['kind'];
   /** Width of the output for a given input width. */
   outputWidth(layer: L, inputWidth: number): number;
-  /** Every stored tensor of the layer with its shape (for the file, `show`, validation). */
+  /** Every stored tensor of the layer with its shape (for the file, `tendon about`, validation). */
   tensors(layer: L, inputWidth: number, index: number): ParamRef[];
   /** Tensors updated by gradient descent, in a fixed order; gradients come back in this order. */
   trainable(layer: L, inputWidth: number, index: number): ParamRef[];

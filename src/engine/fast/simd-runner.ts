@@ -9,18 +9,15 @@
  * backend's matrix product. Parity with the float64 reference is held in the tests.
  */
 import { ShapeError } from '../../errors.js';
-import { modelWidths, validateModel, type ActivationName, type Layer, type ModelDoc, type Normalisation } from '../../model/index.js';
-import { instantiateDenseKernel, type DenseKernel, type KernelOptions } from './dense-kernel.js';
-
-/** Columns are padded to this many floats (the kernel's widest tile). */
-const PAD = 16;
-const padded = (n: number): number => Math.ceil(n / PAD) * PAD;
+import { batchNormAffine, inputShiftScale, modelWidths, validateModel, type ActivationName, type Layer, type ModelDoc } from '../../model/index.js';
+import type { Runner } from '../runner.js';
+import { instantiateDenseKernel, padded, type DenseKernel, type KernelOptions } from './dense-kernel.js';
 
 type Step =
   | { readonly kind: 'dense'; readonly w: number; readonly b: number; readonly nIn: number; readonly out: number; readonly outP: number; readonly relu: boolean; readonly activation: ActivationName; readonly alpha: number }
   | { readonly kind: 'affine'; readonly width: number; readonly scale: Float32Array; readonly shift: Float32Array };
 
-export interface FastSessionOptions {
+export interface SimdRunnerOptions {
   /** Rows per kernel pass; bounds the activation buffers. Default 256. */
   readonly chunkRows?: number;
   /** Names the model in validation errors. */
@@ -30,12 +27,13 @@ export interface FastSessionOptions {
 }
 
 /**
+ * The `fast` engine's runner.
  * @example
- * const fast = new FastSession(doc);
+ * const fast = new SimdRunner(doc); // or openRunner(doc, 'fast')
  * const y = fast.run(features, rows); // Float32Array rows x outputs, owned by the caller
  * @throws ModelFileError when the document is not usable; Error when WebAssembly SIMD is missing.
  */
-export class FastSession {
+export class SimdRunner implements Runner {
   readonly engine = 'fast' as const;
   readonly inputs: number;
   readonly outputs: number;
@@ -51,7 +49,7 @@ export class FastSession {
 
   constructor(
     readonly doc: ModelDoc,
-    opts: FastSessionOptions = {},
+    opts: SimdRunnerOptions = {},
   ) {
     validateModel(doc, opts.source ?? '(model)');
     const widths = modelWidths(doc);
@@ -67,7 +65,7 @@ export class FastSession {
     let maxWidth = 0;
     for (const layer of doc.layers) {
       if (layer.kind === 'dense') {
-        const outP = padded(layer.units);
+        const outP = padded(layer.size);
         plan.push({ layer, width, wAt: bytes, bAt: bytes + width * outP * 4 });
         bytes += (width * outP + outP) * 4;
         width = outP;
@@ -89,27 +87,20 @@ export class FastSession {
     const realWidths = widths.slice(0, -1);
     plan.forEach(({ layer, width: inWidth, wAt, bAt }, i) => {
       if (layer.kind === 'dense') {
-        const outP = padded(layer.units);
+        const outP = padded(layer.size);
         const realIn = realWidths[i];
         // W rows beyond the real inputs (padding of the previous layer) stay zero.
-        for (let k = 0; k < realIn; k++) mem.set(layer.weight.subarray(k * layer.units, (k + 1) * layer.units), wAt / 4 + k * outP);
+        for (let k = 0; k < realIn; k++) mem.set(layer.weight.subarray(k * layer.size, (k + 1) * layer.size), wAt / 4 + k * outP);
         mem.set(layer.bias, bAt / 4);
-        this.steps.push({ kind: 'dense', w: wAt, b: bAt, nIn: inWidth, out: layer.units, outP, relu: layer.activation === 'relu', activation: layer.activation, alpha: layer.alpha });
+        this.steps.push({ kind: 'dense', w: wAt, b: bAt, nIn: inWidth, out: layer.size, outP, relu: layer.activation === 'relu', activation: layer.activation, alpha: layer.alpha });
       } else if (layer.kind === 'batchnorm') {
-        // Inference form folded in float64: y = x * scale + shift, scale = gamma / sqrt(var + eps).
-        const n = layer.gamma.length;
-        const scale = new Float32Array(n);
-        const shift = new Float32Array(n);
-        for (let c = 0; c < n; c++) {
-          const s = layer.gamma[c] / Math.sqrt(layer.runningVariance[c] + layer.epsilon);
-          scale[c] = s;
-          shift[c] = layer.beta[c] - layer.runningMean[c] * s;
-        }
-        this.steps.push({ kind: 'affine', width: inWidth, scale, shift });
+        // Inference form folded in float64 and rounded once: y = x * scale + shift.
+        const affine = batchNormAffine(layer);
+        this.steps.push({ kind: 'affine', width: inWidth, scale: Float32Array.from(affine.scale), shift: Float32Array.from(affine.shift) });
       }
       // dropout: identity at inference.
     });
-    this.norm = foldNormalisation(doc.normalise, this.inputs);
+    this.norm = inputShiftScale(doc.normalise, this.inputs);
   }
 
   /**
@@ -117,9 +108,9 @@ export class FastSession {
    * @throws ShapeError when data does not hold rows x inputs values.
    */
   run(data: Float32Array, rows: number): Float32Array {
-    if (this.disposed) throw new Error('FastSession.run: this session was disposed');
+    if (this.disposed) throw new Error('SimdRunner.run: this runner was disposed');
     if (!(Number.isInteger(rows) && rows >= 0) || data.length !== rows * this.inputs) {
-      throw new ShapeError('input', [`${rows} x ${this.inputs} = ${rows * this.inputs} values`], [data.length], 'FastSession.run');
+      throw new ShapeError('input', [`${rows} x ${this.inputs} = ${rows * this.inputs} values`], [data.length], 'SimdRunner.run');
     }
     const out = new Float32Array(rows * this.outputs);
     // The memory never grows, so this view stays valid.
@@ -169,13 +160,13 @@ export class FastSession {
     return this.doc.layers.map((_, i) => {
       if (i === this.doc.layers.length - 1) return this.run(data, rows);
       const prefix: ModelDoc = { ...this.doc, layers: this.doc.layers.slice(0, i + 1), labels: null };
-      return new FastSession(prefix, { chunkRows: this.chunkRows, kernel: this.kernelOptions }).run(data, rows);
+      return new SimdRunner(prefix, { chunkRows: this.chunkRows, kernel: this.kernelOptions }).run(data, rows);
     });
   }
 
   /**
-   * Mark the session finished. The kernel's memory goes with the session object; refusing later
-   * calls keeps the contract the same as EngineSession's (use after dispose is a bug to surface).
+   * Mark the runner finished. The kernel's memory goes with the runner object; refusing later
+   * calls keeps the contract the same as TfjsRunner's (use after dispose is a bug to surface).
    */
   dispose(): void {
     this.disposed = true;
@@ -220,21 +211,4 @@ function activate(mem: Float32Array, base: number, rows: number, stride: number,
       }
     }
   }
-}
-
-/** (x - shift) * scale per feature, folded in float64 like the engine's; null when unfitted. */
-export function foldNormalisation(n: Normalisation | null, inputs: number): { shift: Float32Array; scale: Float32Array } | null {
-  if (!n) return null;
-  const centre = n.method === 'zscore' ? n.mean : n.min;
-  const spreadOf = n.method === 'zscore' ? (c: number) => (n.std ? n.std[c] : Number.NaN) : (c: number) => (n.max && centre ? n.max[c] - centre[c] : Number.NaN);
-  if (!centre || (n.method === 'zscore' ? !n.std : !n.max)) return null;
-  const shift = new Float32Array(inputs);
-  const scale = new Float32Array(inputs);
-  for (let c = 0; c < inputs; c++) {
-    const spread = spreadOf(c);
-    shift[c] = centre[c];
-    // Zero spread maps the feature to 0, as the reference path does.
-    scale[c] = spread === 0 ? 0 : 1 / spread;
-  }
-  return { shift, scale };
 }

@@ -14,13 +14,11 @@
  * training at about 1-2 thousand rows/s for 784-256-10.
  */
 import { ShapeError } from '../../errors.js';
-import { modelWidths, validateModel, type ActivationName, type DenseLayer, type ForwardContext, type ModelDoc, type Normalisation } from '../../model/index.js';
-import { instantiateDenseKernel, type DenseKernel } from './dense-kernel.js';
+import { inputShiftScale, modelWidths, validateModel, type ActivationName, type DenseLayer, type ForwardContext, type ModelDoc } from '../../model/index.js';
+import { instantiateDenseKernel, padded, type DenseKernel } from './dense-kernel.js';
 
-const PAD = 16;
 /** Rows per piece in `evaluate`: bounds kernel memory on large hold-out sets. */
 const EVAL_ROWS = 256;
-const padded = (n: number): number => Math.ceil(n / PAD) * PAD;
 
 interface DensePlan {
   readonly kind: 'dense';
@@ -45,7 +43,7 @@ interface DropoutPlan {
 type Plan = DensePlan | DropoutPlan;
 
 /** What backward needs from one forward. Arrays are compact (real widths), row-major. */
-export interface FastTape {
+export interface SimdTape {
   readonly rows: number;
   /** Per layer: its input h. */
   readonly inputs: Float32Array[];
@@ -57,20 +55,20 @@ export interface FastTape {
   disposed: boolean;
 }
 
-export interface FastTrainForward {
+export interface SimdTrainForward {
   readonly rows: number;
   /** Logits (pre-activation of the last dense layer) when `preActivation`, else outputs. */
   readonly out: Float32Array;
   /** No batch statistics: batch normalisation is not supported here. */
   readonly stats: null[];
-  readonly tape: FastTape;
+  readonly tape: SimdTape;
 }
 
 /**
  * Why this path cannot train `doc`, as one line naming the layer; null when it can.
- * @example fastTrainBlocker(docWithBatchnorm) // "layers[1] is batchnorm: fast training runs dense and dropout layers only"
+ * @example simdTrainBlocker(docWithBatchnorm) // "layers[1] is batchnorm: fast training runs dense and dropout layers only"
  */
-export function fastTrainBlocker(doc: ModelDoc): string | null {
+export function simdTrainBlocker(doc: ModelDoc): string | null {
   const i = doc.layers.findIndex((l) => l.kind !== 'dense' && l.kind !== 'dropout');
   if (i >= 0) return `layers[${i}] is ${doc.layers[i].kind}: fast training runs dense and dropout layers only`;
   const last = doc.layers.length - 1;
@@ -80,14 +78,14 @@ export function fastTrainBlocker(doc: ModelDoc): string | null {
 
 /**
  * @example
- * const t = new FastTrainSession(doc, { preActivation: true });
+ * const t = new SimdTrainer(doc, { preActivation: true });
  * const f = t.forwardTrain(x, 64, ctx);
  * const grads = t.backward(f, dLogits); // per layer [dW, db]
  * // ...optimiser changes doc's arrays...
  * t.refresh();
  * @throws RangeError when the model has a layer kind this path cannot train (batchnorm).
  */
-export class FastTrainSession {
+export class SimdTrainer {
   readonly path = 'fast' as const;
   private readonly plan: Plan[];
   private readonly widths: readonly number[];
@@ -105,13 +103,13 @@ export class FastTrainSession {
     validateModel(doc, '(model)');
     this.preActivation = opts.preActivation;
     this.widths = modelWidths(doc);
-    const blocker = fastTrainBlocker(doc);
+    const blocker = simdTrainBlocker(doc);
     if (blocker) throw new RangeError(blocker);
     const plan: Plan[] = [];
     let inP = doc.inputs;
     doc.layers.forEach((layer, index) => {
       if (layer.kind === 'dense') {
-        const outP = padded(layer.units);
+        const outP = padded(layer.size);
         plan.push({ kind: 'dense', index, layer, inReal: this.widths[index], inP, outP, w: 0, b: 0 });
         inP = outP;
       } else if (layer.kind === 'dropout') {
@@ -119,7 +117,7 @@ export class FastTrainSession {
       }
     });
     this.plan = plan;
-    this.norm = foldNormalisation(doc.normalise, doc.inputs);
+    this.norm = inputShiftScale(doc.normalise, doc.inputs);
   }
 
   get inputs(): number {
@@ -131,9 +129,9 @@ export class FastTrainSession {
   }
 
   /** A training forward: dropout masks from ctx; the tape keeps what backward needs. */
-  forwardTrain(x: Float32Array | Float64Array, rows: number, ctx: ForwardContext): FastTrainForward {
+  forwardTrain(x: Float32Array | Float64Array, rows: number, ctx: ForwardContext): SimdTrainForward {
     if (!(Number.isInteger(rows) && rows > 0) || x.length < rows * this.inputs) {
-      throw new ShapeError('input', [`${rows} x ${this.inputs}`], [x.length], 'FastTrainSession.forwardTrain');
+      throw new ShapeError('input', [`${rows} x ${this.inputs}`], [x.length], 'SimdTrainer.forwardTrain');
     }
     const { tape, out } = this.pass(x, rows, ctx);
     return { rows, out, stats: this.doc.layers.map(() => null), tape };
@@ -147,7 +145,7 @@ export class FastTrainSession {
    */
   evaluate(x: Float32Array | Float64Array, rows: number): Float32Array[] {
     if (!(Number.isInteger(rows) && rows >= 0) || x.length < rows * this.inputs) {
-      throw new ShapeError('input', [`${rows} x ${this.inputs}`], [x.length], 'FastTrainSession.evaluate');
+      throw new ShapeError('input', [`${rows} x ${this.inputs}`], [x.length], 'SimdTrainer.evaluate');
     }
     const outs = this.doc.layers.map((_, i) => new Float32Array(rows * this.widths[i + 1]));
     for (let start = 0; start < rows; start += EVAL_ROWS) {
@@ -164,10 +162,10 @@ export class FastTrainSession {
   }
 
   /** One forward; `ctx` null is inference (no dropout). */
-  private pass(x: Float32Array | Float64Array, rows: number, ctx: ForwardContext | null): { tape: FastTape; out: Float32Array } {
+  private pass(x: Float32Array | Float64Array, rows: number, ctx: ForwardContext | null): { tape: SimdTape; out: Float32Array } {
     const k = this.ensureCapacity(rows);
     const mem = new Float32Array(k.memory.buffer);
-    const tape: FastTape = { rows, inputs: [], z: [], y: [], masks: [], disposed: false };
+    const tape: SimdTape = { rows, inputs: [], z: [], y: [], masks: [], disposed: false };
     const f = this.inputs;
     let h: Float32Array = x instanceof Float32Array ? x.slice(0, rows * f) : Float32Array.from(x.subarray(0, rows * f));
     if (this.norm) {
@@ -201,7 +199,7 @@ export class FastTrainSession {
       // whether y > 0, so the tape keeps y in z's place.
       const relu = p.layer.activation === 'relu';
       k.dense(this.scratch.a, p.w, p.b, this.scratch.out, rows, p.inP, p.outP, relu ? 1 : 0);
-      const units = p.layer.units;
+      const units = p.layer.size;
       const z = takeRows(mem, this.scratch.out, rows, p.outP, units);
       const logits = this.preActivation && pi === this.plan.length - 1;
       // The loss reads the logits directly, so the last activation is never needed.
@@ -218,11 +216,11 @@ export class FastTrainSession {
    * Gradients per layer ([dW, db] for dense, [] for dropout) from dLoss/dOut, where Out is what
    * forwardTrain returned (the logits when preActivation). Frees the tape.
    */
-  backward(f: FastTrainForward, dOut: Float32Array | Float64Array): Float32Array[][] {
+  backward(f: SimdTrainForward, dOut: Float32Array | Float64Array): Float32Array[][] {
     const tape = f.tape;
-    if (tape.disposed) throw new Error('FastTrainSession.backward: this tape was already used or disposed');
+    if (tape.disposed) throw new Error('SimdTrainer.backward: this tape was already used or disposed');
     const rows = tape.rows;
-    if (dOut.length !== rows * this.outputs) throw new ShapeError('dLoss/dOut', [rows, this.outputs], [dOut.length], 'FastTrainSession.backward');
+    if (dOut.length !== rows * this.outputs) throw new ShapeError('dLoss/dOut', [rows, this.outputs], [dOut.length], 'SimdTrainer.backward');
     const k = this.ensureCapacity(rows);
     const mem = new Float32Array(k.memory.buffer);
     const grads: Float32Array[][] = new Array(this.plan.length);
@@ -235,7 +233,7 @@ export class FastTrainSession {
         grads[pi] = [];
         continue;
       }
-      const units = p.layer.units;
+      const units = p.layer.size;
       const isLast = pi === this.plan.length - 1;
       const dz = isLast && this.preActivation ? d : activationBackward(tape.z[pi]!, tape.y[pi]!, d, rows, units, p.layer.activation, p.layer.alpha);
       // dW = hᵀ · dz: x = hᵀ [inP rows x `rows` inputs], W = dz [rows x outP].
@@ -264,7 +262,7 @@ export class FastTrainSession {
   }
 
   /** Free a tape without backward. */
-  discard(f: FastTrainForward): void {
+  discard(f: SimdTrainForward): void {
     f.tape.disposed = true;
   }
 
@@ -273,13 +271,13 @@ export class FastTrainSession {
    * `layers`, or (when omitted) every layer and the input normalisation.
    */
   refresh(layers?: Iterable<number>): void {
-    if (layers === undefined) this.norm = foldNormalisation(this.doc.normalise, this.inputs);
+    if (layers === undefined) this.norm = inputShiftScale(this.doc.normalise, this.inputs);
     if (!this.kernel) return;
     const wanted = layers === undefined ? null : new Set(layers);
     const mem = new Float32Array(this.kernel.memory.buffer);
     for (const p of this.plan) {
       if (p.kind !== 'dense' || (wanted && !wanted.has(p.index))) continue;
-      const units = p.layer.units;
+      const units = p.layer.size;
       if (units === p.outP) mem.set(p.layer.weight, p.w / 4);
       else for (let r = 0; r < p.inReal; r++) mem.set(p.layer.weight.subarray(r * units, (r + 1) * units), p.w / 4 + r * p.outP);
       mem.set(p.layer.bias, p.b / 4);
@@ -443,21 +441,4 @@ function activationBackward(z: Float32Array, y: Float32Array, dy: Float32Array, 
     dz[i] = dy[i] * g;
   }
   return dz;
-}
-
-/** (x - shift) * scale per feature, folded in float64; null when there is none or it is unfitted. */
-function foldNormalisation(n: Normalisation | null, inputs: number): { shift: Float32Array; scale: Float32Array } | null {
-  if (!n) return null;
-  const centre = n.method === 'zscore' ? n.mean : n.min;
-  if (!centre) return null;
-  const spread = n.method === 'zscore' ? n.std : n.max ? n.max.map((hi, c) => hi - centre[c]) : null;
-  if (!spread) return null;
-  const shift = new Float32Array(inputs);
-  const scale = new Float32Array(inputs);
-  for (let c = 0; c < inputs; c++) {
-    shift[c] = centre[c];
-    // Zero spread maps the feature to 0, as the reference path does.
-    scale[c] = spread[c] === 0 ? 0 : 1 / spread[c];
-  }
-  return { shift, scale };
 }

@@ -16,10 +16,10 @@ const flags = {
   drift: { kind: 'boolean', help: 'after scoring, print per-feature drift against the model\'s normalisation statistics to stderr' },
 } as const;
 
-export const run: Command = {
-  name: 'run',
+export const score: Command = {
+  name: 'score',
   summary: 'score a data file with a model, streaming, one output row per input row',
-  usage: 'tendon run MODEL --input FILE --output FILE [--batch N] [--engine js|wasm|auto] [--drift]',
+  usage: 'tendon score MODEL --input FILE --output FILE [--batch N] [--engine js|wasm|auto] [--drift]',
   flags,
   async run(argv, io) {
     const { flags: f, positionals } = parseArgs(argv, flags);
@@ -32,7 +32,7 @@ export const run: Command = {
     const model = await openModel(path, { engine: parseEngine(f.engine), chunkRows: Math.min(batch, 4096) });
     try {
       const drift = f.drift ? DriftMonitor.forModel(model.doc) : null;
-      if (f.drift && !drift) io.err('tendon run: --drift: the model has no fitted normalisation statistics to compare with\n');
+      if (f.drift && !drift) io.err('tendon score: --drift: the model has no fitted normalisation statistics to compare with\n');
       const writer = await openTableWriter(output, outputColumns(model.doc, model.outputs));
       let rows = 0;
       const started = performance.now();

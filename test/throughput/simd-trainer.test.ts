@@ -1,5 +1,5 @@
 import { describe, expect, it } from 'vitest';
-import { FastTrainSession, fastTrainBlocker } from '../../src/engine/fast/fast-train.js';
+import { SimdTrainer, simdTrainBlocker } from '../../src/engine/fast/simd-trainer.js';
 import { referenceBackwardTape, referenceForward, referenceForwardTrain, toMat64 } from '../../src/reference/index.js';
 import { SeededRng, mat64, type ActivationName, type ForwardContext, type ModelDoc } from '../../src/model/index.js';
 import { ACTIVATIONS } from '../../src/model/types.js';
@@ -35,7 +35,7 @@ function relativeGap(a: Float32Array, b: Float64Array): number {
 
 function compare(doc: ModelDoc, rows: number, preActivation: boolean, seed: number): void {
   const x = seededRows(rows, doc.inputs, seed);
-  const fast = new FastTrainSession(doc, { preActivation });
+  const fast = new SimdTrainer(doc, { preActivation });
   const f = fast.forwardTrain(x, rows, fixedMasks(seed));
   const ref = referenceForwardTrain(doc, toMat64(x, rows, doc.inputs), fixedMasks(seed));
   const refOut = preActivation ? ref.z!.data : ref.y.data;
@@ -49,7 +49,7 @@ function compare(doc: ModelDoc, rows: number, preActivation: boolean, seed: numb
   });
 }
 
-describe('FastTrainSession (own kernel) gradients against the float64 reference backward', () => {
+describe('SimdTrainer (own kernel) gradients against the float64 reference backward', () => {
   it.each([
     ['relu', 'softmax', true],
     ['tanh', 'linear', false],
@@ -77,7 +77,7 @@ describe('FastTrainSession (own kernel) gradients against the float64 reference 
     const doc: ModelDoc = { ...base, layers: [base.layers[0]!, { kind: 'dropout', rate: 0.5 }, base.layers[1]!] };
     const rows = 300; // more than one evaluation piece
     const x = seededRows(rows, 9, 16);
-    const got = new FastTrainSession(doc, { preActivation: true }).evaluate(x, rows);
+    const got = new SimdTrainer(doc, { preActivation: true }).evaluate(x, rows);
     const last = base.layers[1]!;
     if (last.kind !== 'dense') throw new Error('dense expected');
     const logitsView: ModelDoc = { ...doc, layers: [doc.layers[0]!, doc.layers[1]!, { ...last, activation: 'linear' }] };
@@ -90,7 +90,7 @@ describe('FastTrainSession (own kernel) gradients against the float64 reference 
 
   it('refresh(layers) copies only the named layers; refresh() also takes a changed normalisation', () => {
     const doc = denseStackDoc([3, 16, 2], 17);
-    const fast = new FastTrainSession(doc, { preActivation: false });
+    const fast = new SimdTrainer(doc, { preActivation: false });
     const x = seededRows(1, 3, 18);
     const before = fast.evaluate(x, 1)[1]!.slice();
     const [first, last] = doc.layers;
@@ -107,10 +107,10 @@ describe('FastTrainSession (own kernel) gradients against the float64 reference 
     expect(relativeGap(fast.evaluate(x, 1)[1]!, want)).toBeLessThan(1e-6);
   });
 
-  it('fastTrainBlocker names what the path cannot train, null for dense and dropout stacks', () => {
+  it('simdTrainBlocker names what the path cannot train, null for dense and dropout stacks', () => {
     const doc = denseStackDoc([4, 8, 2], 1);
-    expect(fastTrainBlocker({ ...doc, layers: [doc.layers[0]!, { kind: 'dropout', rate: 0.1 }, doc.layers[1]!] })).toBeNull();
-    expect(fastTrainBlocker({ ...doc, layers: [doc.layers[0]!, { kind: 'dropout', rate: 0.1 }] })).toMatch(/dense last layer; layers\[1\] is dropout/);
+    expect(simdTrainBlocker({ ...doc, layers: [doc.layers[0]!, { kind: 'dropout', rate: 0.1 }, doc.layers[1]!] })).toBeNull();
+    expect(simdTrainBlocker({ ...doc, layers: [doc.layers[0]!, { kind: 'dropout', rate: 0.1 }] })).toMatch(/dense last layer; layers\[1\] is dropout/);
   });
 
   it('784-256-10 at batch 64 with dropout and z-score input normalisation', () => {
@@ -126,7 +126,7 @@ describe('FastTrainSession (own kernel) gradients against the float64 reference 
 
   it('refresh() makes a change to the document weights visible', () => {
     const doc = denseStackDoc([5, 16, 3], 1);
-    const fast = new FastTrainSession(doc, { preActivation: true });
+    const fast = new SimdTrainer(doc, { preActivation: true });
     const x = seededRows(2, 5, 1);
     const noMasks = fixedMasks(1);
     const before = fast.forwardTrain(x, 2, noMasks).out.slice();
@@ -142,6 +142,6 @@ describe('FastTrainSession (own kernel) gradients against the float64 reference 
   it('refuses batch normalisation with a RangeError naming the layer', () => {
     const doc = denseStackDoc([4, 8, 2], 1);
     const bn = { kind: 'batchnorm' as const, gamma: new Float32Array(8).fill(1), beta: new Float32Array(8), runningMean: new Float32Array(8), runningVariance: new Float32Array(8).fill(1), epsilon: 1e-3, momentum: 0.9 };
-    expect(() => new FastTrainSession({ ...doc, layers: [doc.layers[0]!, bn, doc.layers[1]!] }, { preActivation: true })).toThrow(/layers\[1\] is batchnorm/);
+    expect(() => new SimdTrainer({ ...doc, layers: [doc.layers[0]!, bn, doc.layers[1]!] }, { preActivation: true })).toThrow(/layers\[1\] is batchnorm/);
   });
 });

@@ -1,5 +1,5 @@
 import { describe, expect, it } from 'vitest';
-import { FastSession } from '../../src/engine/fast/fast-session.js';
+import { SimdRunner } from '../../src/engine/fast/simd-runner.js';
 import { instantiateDenseKernel, relaxedMaddAvailable } from '../../src/engine/fast/dense-kernel.js';
 import { referenceForward, toMat64 } from '../../src/reference/index.js';
 import { SeededRng, type ActivationName, type BatchNormLayer, type ModelDoc } from '../../src/model/index.js';
@@ -9,7 +9,7 @@ import { ShapeError } from '../../src/errors.js';
 /** Worst absolute error against the float64 reference path. */
 function worstAgainstReference(doc: ModelDoc, rows: number, seed: number, chunkRows?: number): number {
   const x = seededRows(rows, doc.inputs, seed);
-  const y = new FastSession(doc, { chunkRows }).run(x, rows);
+  const y = new SimdRunner(doc, { chunkRows }).run(x, rows);
   const ref = referenceForward(doc, toMat64(x, rows, doc.inputs)).y.data;
   expect(y.length).toBe(ref.length);
   let worst = 0;
@@ -20,7 +20,7 @@ function worstAgainstReference(doc: ModelDoc, rows: number, seed: number, chunkR
 // float32 against float64: a few ulps of float32 per accumulated product (common practice).
 const TOL = 2e-5;
 
-describe('FastSession (own WebAssembly SIMD dense kernel)', () => {
+describe('SimdRunner (own WebAssembly SIMD dense kernel)', () => {
   // Both accumulation forms: plain multiply then add, and f32x4.relaxed_madd where it validates.
   const forms = [false, ...(relaxedMaddAvailable() ? [true] : [])];
   it.each(forms.flatMap((fused) => [5, 300].map((nIn) => [fused, nIn] as const)))(
@@ -98,14 +98,14 @@ describe('FastSession (own WebAssembly SIMD dense kernel)', () => {
   });
 
   it('refuses input that is not rows x inputs with a ShapeError', () => {
-    const fast = new FastSession(denseStackDoc([4, 8, 2], 1));
+    const fast = new SimdRunner(denseStackDoc([4, 8, 2], 1));
     expect(() => fast.run(new Float32Array(7), 2)).toThrow(ShapeError);
   });
 
   it.each(forms)('gives a row the same bits whatever else shares its batch (4-row tiles and single rows sum alike; fused %s)', (fused) => {
     for (const widths of [[7, 32, 16, 3], [513, 40, 3], [784, 64, 10]]) {
       const doc = denseStackDoc(widths, 3);
-      const fast = new FastSession(doc, { kernel: { fused } });
+      const fast = new SimdRunner(doc, { kernel: { fused } });
       const rows = 11; // two 4-row tiles and three single rows
       const x = seededRows(rows, doc.inputs, 5);
       const together = fast.run(x, rows);
@@ -118,14 +118,14 @@ describe('FastSession (own WebAssembly SIMD dense kernel)', () => {
   });
 
   it('refuses to run after dispose, like the tfjs sessions', () => {
-    const fast = new FastSession(denseStackDoc([4, 8, 2], 1));
+    const fast = new SimdRunner(denseStackDoc([4, 8, 2], 1));
     fast.dispose();
     expect(() => fast.run(new Float32Array(4), 1)).toThrow(/disposed/);
   });
 
   it('reports each layer\'s output for the parity check, the last equal to run', () => {
     const doc = denseStackDoc([6, 12, 5, 3], 2);
-    const fast = new FastSession(doc);
+    const fast = new SimdRunner(doc);
     const x = seededRows(9, 6, 3);
     const layers = fast.runLayers(x, 9);
     expect(layers.map((l) => l.length)).toEqual([9 * 12, 9 * 5, 9 * 3]);

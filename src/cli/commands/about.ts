@@ -10,10 +10,10 @@ const flags = {
   costs: { kind: 'boolean', help: 'also measure the size and parity cost of each storage choice (f32, f16, i8)' },
 } as const;
 
-export const show: Command = {
-  name: 'show',
+export const about: Command = {
+  name: 'about',
   summary: 'describe a model file: layers, shapes, parameters, normalisation, metadata, checksum, provenance',
-  usage: 'tendon show MODEL [--json] [--costs]',
+  usage: 'tendon about MODEL [--json] [--costs]',
   flags,
   async run(argv, io) {
     const { flags: f, positionals } = parseArgs(argv, flags);
@@ -26,6 +26,13 @@ export const show: Command = {
     return 0;
   },
 };
+
+/** The table's footer: values training changes, and stored values it leaves alone (batchnorm running statistics). */
+function learnedAndFixed(f: ModelFacts): string {
+  const stored = f.layers.reduce((n, l) => n + l.tensors.reduce((m, t) => m + t.shape.reduce((a, b) => a * b, 1), 0), 0);
+  const fixed = stored - f.parameters;
+  return `${grouped(f.parameters)} weights to learn` + (fixed > 0 ? `, ${grouped(fixed)} held fixed (batchnorm running statistics)` : '');
+}
 
 function describe(f: ModelFacts): string {
   const lines: string[] = [];
@@ -53,10 +60,10 @@ function describe(f: ModelFacts): string {
       ]),
     ).trimEnd(),
   );
-  lines.push(`trainable parameters ${grouped(f.parameters)}`);
+  lines.push(learnedAndFixed(f));
   if (f.provenance.length > 0) {
     lines.push('', 'provenance:');
-    for (const p of f.provenance) lines.push(`  ${p.at}  ${p.action}  from ${p.source} (checksum ${p.checksum})`);
+    for (const p of f.provenance) lines.push(`  ${p.at}  ${p.action} from ${p.source} (checksum ${p.checksum})`);
   }
   const extra = Object.entries(f.extra);
   if (extra.length > 0) lines.push('', ...extra.map(([k, v]) => `${k}: ${v}`));
