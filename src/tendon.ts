@@ -3,8 +3,8 @@
  * format, the engine and the parity check together; each of those can also be used alone.
  */
 import * as tf from '@tensorflow/tfjs-core';
-import { parityReport, randomInputs, type ParityReport } from './check/index.js';
-import { TfjsRunner, ensureEngine, openRunner, resolveEngine, type EngineChoice, type Runner, type RuntimeEngine } from './engine/index.js';
+import { int8ParityReport, parityReport, randomInputs, type ParityReport } from './check/index.js';
+import { Int8Session, TfjsRunner, ensureEngine, kernelDescription, openRunner, resolveEngine, type EngineChoice, type Runner, type RuntimeEngine } from './engine/index.js';
 import { DataError, ShapeError } from './errors.js';
 import { readModelFile, writeModelFile } from './format/index.js';
 import type { ModelDoc } from './model/index.js';
@@ -28,10 +28,18 @@ export function engineFallback(): string | null {
   return lastFallback;
 }
 
-async function chooseEngine(choice: EngineChoice | undefined): Promise<RuntimeEngine> {
-  const resolved = await resolveEngine(choice ?? 'auto');
+/** What the last 'auto' choice decided from the model itself (int8 for an i8-stored model), as one line; null otherwise. */
+let lastNote: string | null = null;
+
+export function engineNote(): string | null {
+  return lastNote;
+}
+
+async function chooseEngine(choice: EngineChoice | undefined, doc: ModelDoc): Promise<RuntimeEngine> {
+  const resolved = await resolveEngine(choice ?? 'auto', doc);
   lastFallback = resolved.fallback;
-  if (resolved.engine === 'fast') ensureEngine(); // tfjs still serves tensor input and training
+  lastNote = resolved.note ?? null;
+  if (resolved.engine === 'fast' || resolved.engine === 'int8') ensureEngine(); // tfjs still serves tensor input and training
   return resolved.engine;
 }
 
@@ -45,7 +53,7 @@ async function chooseEngine(choice: EngineChoice | undefined): Promise<RuntimeEn
  */
 export async function openModel(path: string, options: OpenOptions = {}): Promise<TendonModel> {
   const read = await readModelFile(path);
-  const engine = await chooseEngine(options.engine);
+  const engine = await chooseEngine(options.engine, read.doc);
   return new TendonModel(read.doc, engine, {
     source: path,
     checksum: read.checksum,
@@ -62,7 +70,7 @@ export async function openModel(path: string, options: OpenOptions = {}): Promis
  */
 export async function modelFromDocument(doc: ModelDoc, options: OpenOptions = {}): Promise<TendonModel> {
   // The runner validates the document (once) as it is opened.
-  const engine = await chooseEngine(options.engine);
+  const engine = await chooseEngine(options.engine, doc);
   return new TendonModel(doc, engine, { source: null, checksum: null, bytes: null, formatVersion: null, chunkRows: options.chunkRows });
 }
 
@@ -101,6 +109,10 @@ export class TendonModel {
 
   get engine(): RuntimeEngine {
     return this.runner.engine;
+  }
+  /** Which kernel runs the model, in words. */
+  get kernel(): string {
+    return this.runner instanceof Int8Session ? this.runner.kernel : kernelDescription(this.runner.engine);
   }
   get inputs(): number {
     return this.doc.inputs;
@@ -156,6 +168,8 @@ export class TendonModel {
   check(input?: { x: Float32Array; rows: number }, seed = 1): ParityReport {
     const rows = input?.rows ?? 256;
     const x = input?.x ?? randomInputs(this.doc, rows, seed);
+    // The integer engine is held to the tolerance its quantisation steps allow (check/tolerance.ts).
+    if (this.runner instanceof Int8Session) return int8ParityReport(this.doc, x, rows, this.runner);
     return parityReport(this.doc, x, rows, { runner: this.runner });
   }
 

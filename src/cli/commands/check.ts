@@ -13,7 +13,7 @@ const flags = {
   input: { kind: 'string', short: 'i', help: 'rows to check on (.csv, .jsonl, .npy); default: seeded random rows' },
   rows: { kind: 'integer', help: 'random rows when no --input is given', default: 256 },
   seed: { kind: 'integer', help: 'seed for the random rows', default: 1 },
-  engine: { kind: 'string', help: 'auto, fast, wasm or js', default: 'auto' },
+  engine: { kind: 'string', help: 'auto, fast, int8, wasm or js', default: 'auto' },
   json: { kind: 'boolean', help: 'print the report as JSON' },
   against: { kind: 'string', help: 'judge MODEL against its parent file instead (both on the float64 reference path; tolerance by MODEL\'s storage)' },
 } as const;
@@ -24,7 +24,7 @@ const MAX_CHECK_ROWS = 100_000;
 export const check: Command = {
   name: 'check',
   summary: 'prove the engine against the float64 reference, per layer and at the output (exit 1 if a tolerance breaks)',
-  usage: 'tendon check MODEL [--input FILE] [--rows N] [--json] [--engine js|wasm|auto] [--against PARENT]',
+  usage: 'tendon check MODEL [--input FILE] [--rows N] [--json] [--engine js|wasm|fast|int8|auto] [--against PARENT]',
   flags,
   async run(argv, io) {
     const { flags: f, positionals } = parseArgs(argv, flags);
@@ -37,8 +37,8 @@ export const check: Command = {
     try {
       const input = f.input ? await readInput(model, f.input) : undefined;
       const report = model.check(input ?? { x: randomInputs(model.doc, rows, f.seed ?? 1), rows });
-      if (f.json) io.out(JSON.stringify({ model: path, engine: model.engine, ...report }, null, 2) + '\n');
-      else io.out(describeParity(report, `${path} on the ${model.engine} engine, ${report.output.rows} rows${f.input ? ` from ${f.input}` : ' (seeded random)'}`));
+      if (f.json) io.out(JSON.stringify({ model: path, engine: model.engine, kernel: model.kernel, ...report }, null, 2) + '\n');
+      else io.out(describeParity(report, `${path} on the ${model.engine} engine (${model.kernel}), ${report.output.rows} rows${f.input ? ` from ${f.input}` : ' (seeded random)'}`));
       return report.pass ? 0 : 1;
     } finally {
       model.dispose();

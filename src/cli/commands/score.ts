@@ -12,14 +12,14 @@ const flags = {
   input: { kind: 'string', short: 'i', help: 'rows to score: .csv, .jsonl or .npy (2-D)' },
   output: { kind: 'string', short: 'o', help: 'where to write the scores: .csv, .jsonl or .npy' },
   batch: { kind: 'integer', help: 'rows read and scored at a time (bounds memory)', default: 4096 },
-  engine: { kind: 'string', help: 'auto, fast, wasm or js', default: 'auto' },
+  engine: { kind: 'string', help: 'auto, fast, int8, wasm or js', default: 'auto' },
   drift: { kind: 'boolean', help: 'after scoring, print per-feature drift against the model\'s normalisation statistics to stderr' },
 } as const;
 
 export const score: Command = {
   name: 'score',
   summary: 'score a data file with a model, streaming, one output row per input row',
-  usage: 'tendon score MODEL --input FILE --output FILE [--batch N] [--engine js|wasm|auto] [--drift]',
+  usage: 'tendon score MODEL --input FILE --output FILE [--batch N] [--engine js|wasm|fast|int8|auto] [--drift]',
   flags,
   async run(argv, io) {
     const { flags: f, positionals } = parseArgs(argv, flags);
@@ -48,7 +48,7 @@ export const score: Command = {
         throw error;
       }
       const seconds = (performance.now() - started) / 1000;
-      io.err(`scored ${grouped(rows)} rows into ${output} in ${seconds.toFixed(2)} s on the ${model.engine} engine\n`);
+      io.err(`scored ${grouped(rows)} rows into ${output} in ${seconds.toFixed(2)} s on the ${model.engine} engine (${model.kernel})\n`);
       if (drift) io.err(describeDrift(drift.report()));
       return 0;
     } finally {

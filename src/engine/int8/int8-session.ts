@@ -8,6 +8,7 @@
  * other rows it was batched with (a service would answer the same row differently under load).
  */
 import type { ModelDoc } from '../../model/index.js';
+import type { Runner } from '../runner.js';
 import { SharedSession } from '../shared-session.js';
 import { bestInt8Arith, INT8_KERNEL_NAMES, type Int8Arith } from './kernels.js';
 
@@ -31,7 +32,7 @@ export interface Int8SessionOptions {
  * @throws ModelFileError when the document is not usable or a layer is too wide for 32-bit sums;
  *   Error when this runtime has no WebAssembly SIMD.
  */
-export class Int8Session {
+export class Int8Session implements Runner {
   readonly engine = 'int8' as const;
   readonly inputs: number;
   readonly outputs: number;
