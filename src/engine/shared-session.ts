@@ -14,6 +14,11 @@
  *
  * A row's answer never depends on the other rows of its chunk or on the thread that ran it: each
  * row goes through the same instructions, and integer sums have no order.
+ *
+ * Memory per thread: the activation buffers are reused layer after layer with each layer's own
+ * row stride, so a thread's rows live in its own region of each buffer, starting at
+ * row0 · (the widest row): threads at different layers never touch each other's bytes. The input
+ * and the per-row scales keep one stride and stay in plain row order.
  */
 import { ModelFileError, ShapeError } from '../errors.js';
 import { quantiseColumns, storedCodesOf, type Int8Matrix } from '../format/int8.js';
@@ -21,7 +26,7 @@ import { activationKind, batchNormAffine, inputShiftScale, modelWidths, validate
 import { denseFunction, padded, relaxedMaddAvailable, wasmApi } from './fast/dense-kernel.js';
 import { Code, I32, moduleBytes, type FunctionDef } from './fast/wasm-emit.js';
 import { affineFunction, CODE_BYTES, columnSums, denseInt8Function, MAX_INT8_INPUTS, packInt8Weights, quantiseFunction, type Int8Arith } from './int8/kernels.js';
-import { ThreadTeam } from './threads.js';
+import { ThreadTeam, type Share } from './threads.js';
 
 export type SharedArith = 'f32' | Int8Arith;
 
@@ -41,7 +46,9 @@ const align = (n: number): number => Math.ceil(n / 64) * 64;
 
 /** One JavaScript pass between segments: an activation on a layer's real columns. */
 interface ActivationPass {
+  /** Start of the buffer; each share's rows start at at + row0 · region. */
   readonly at: number;
+  readonly region: number;
   readonly stride: number;
   readonly cols: number;
   readonly activation: ActivationName;
@@ -64,7 +71,7 @@ export class SharedSession {
   private readonly team: ThreadTeam | null;
   private readonly inP: number;
   private readonly xAt: number;
-  private readonly out: { at: number; stride: number };
+  private readonly out: { at: number; stride: number; region: number };
   private disposed = false;
 
   constructor(
@@ -169,6 +176,9 @@ export class SharedSession {
     const chunk = this.chunkRows;
     this.xAt = top;
     top = align(top + chunk * this.inP * 4);
+    // Bytes of one row's region in the activation and code buffers (see the header).
+    const region = maxWidth * 4;
+    const qRegion = maxWidth * codeBytes;
     const bufAt = [top, align(top + chunk * maxWidth * 4)];
     top = align(bufAt[1] + chunk * maxWidth * 4);
     const qAt = top;
@@ -189,8 +199,12 @@ export class SharedSession {
     const segments: Code[] = [new Code()];
     this.passes = [];
     const ROW0 = 0, ROWS = 1;
-    /** Push base + row0 · stride. */
+    /** Push base + row0 · stride (the input and the per-row scales: plain row order). */
     const rowAddr = (c: Code, base: number, stride: number): Code => c.i32(base).get(ROW0).i32(stride).mul().add();
+    /** Push the start of this thread's region of an activation or code buffer. */
+    const regionAddr = (c: Code, base: number, bytes: number): Code => c.i32(base).get(ROW0).i32(bytes).mul().add();
+    /** The current activation: the input (plain rows) or a buffer (regions). */
+    const at = (c: Code, base: number, stride: number): Code => (base === this.xAt ? rowAddr(c, base, stride * 4) : regionAddr(c, base, region));
     let from = this.xAt;
     let fromStride = this.inP;
     let which = 0;
@@ -199,32 +213,32 @@ export class SharedSession {
       if (step.kind === 'normalise') {
         rowAddr(c, this.xAt, this.inP * 4).i32(this.inP * 4).get(ROWS).i32(this.inP).i32(step.scale).i32(step.shift).call(NORMALISE);
       } else if (step.kind === 'affine') {
-        rowAddr(c, from, fromStride * 4).i32(fromStride * 4).get(ROWS).i32(step.width).i32(step.scale).i32(step.shift).call(AFFINE);
+        at(c, from, fromStride).i32(fromStride * 4).get(ROWS).i32(step.width).i32(step.scale).i32(step.shift).call(AFFINE);
       } else {
         const to = bufAt[which];
         if (opts.arith === 'f32') {
-          rowAddr(c, from, step.k * 4).i32(step.w).i32(step.b);
-          rowAddr(c, to, step.outP * 4).get(ROWS).i32(step.k).i32(step.outP).i32(step.relu ? 1 : 0).call(DENSE);
+          at(c, from, step.k).i32(step.w).i32(step.b);
+          regionAddr(c, to, region).get(ROWS).i32(step.k).i32(step.outP).i32(step.relu ? 1 : 0).call(DENSE);
         } else {
           const qStride = step.k * codeBytes;
-          rowAddr(c, from, step.k * 4).i32(step.k * 4).get(ROWS).i32(step.k);
-          rowAddr(c, qAt, qStride).i32(qStride);
+          at(c, from, step.k).i32(step.k * 4).get(ROWS).i32(step.k);
+          regionAddr(c, qAt, qRegion).i32(qStride);
           rowAddr(c, pAt, 8).call(QUANTISE);
-          rowAddr(c, qAt, qStride).i32(qStride);
+          regionAddr(c, qAt, qRegion).i32(qStride);
           rowAddr(c, pAt, 8).i32(step.w).i32(step.cs).i32(step.ws).i32(step.b);
-          rowAddr(c, to, step.outP * 4).i32(step.outP * 4).get(ROWS).i32(step.k / 4).i32(step.outP).i32(step.relu ? 1 : 0).call(DENSE);
+          regionAddr(c, to, region).i32(step.outP * 4).get(ROWS).i32(step.k / 4).i32(step.outP).i32(step.relu ? 1 : 0).call(DENSE);
         }
         from = to;
         fromStride = step.outP;
         which ^= 1;
         if (!step.relu && step.activation !== 'linear') {
-          this.passes.push({ at: to, stride: step.outP, cols: step.out, activation: step.activation, alpha: step.alpha });
+          this.passes.push({ at: to, region, stride: step.outP, cols: step.out, activation: step.activation, alpha: step.alpha });
           segments.push(new Code());
         }
       }
     }
     this.passes.push(null);
-    this.out = { at: from, stride: fromStride };
+    this.out = { at: from, stride: fromStride, region: from === this.xAt ? fromStride * 4 : region };
     const segmentDefs: FunctionDef[] = segments.map((code, i) => ({ name: `seg${i}`, params: [I32, I32], locals: [], code }));
     const bytes = moduleBytes(pages, [...kernels, ...segmentDefs], { sharedMemory: true });
 
@@ -272,17 +286,20 @@ export class SharedSession {
       // The one copy of the rows: into the shared input region (padding columns stay zero).
       if (this.inP === f) mem.set(data.subarray(start * f, (start + n) * f), xAt);
       else for (let r = 0; r < n; r++) mem.set(data.subarray((start + r) * f, (start + r + 1) * f), xAt + r * this.inP);
+      // One split per chunk: every segment, pass and the output copy agree on where rows live.
+      const shares: readonly Share[] = this.team ? this.team.split(n) : [{ row0: 0, rows: n }];
       this.segmentFns.forEach((segment, s) => {
-        if (this.team) this.team.run(s, n, segment);
+        if (this.team) this.team.run(s, shares, segment);
         else segment(0, n);
         const pass = this.passes[s];
-        if (pass) activate(mem, pass, n);
+        if (pass) for (const share of shares) activate(mem, pass, share);
       });
-      const { at, stride } = this.out;
-      const base = at / 4;
+      const { at, stride, region } = this.out;
       const cols = this.outputs;
-      if (stride === cols) out.set(mem.subarray(base, base + n * cols), start * cols);
-      else for (let r = 0; r < n; r++) out.set(mem.subarray(base + r * stride, base + r * stride + cols), (start + r) * cols);
+      for (const share of shares) {
+        const base = (at + share.row0 * region) / 4;
+        for (let r = 0; r < share.rows; r++) out.set(mem.subarray(base + r * stride, base + r * stride + cols), (start + share.row0 + r) * cols);
+      }
     }
     return out;
   }
@@ -294,11 +311,12 @@ export class SharedSession {
   }
 }
 
-/** An activation on the real columns of each row, through the catalogue's float64 forward, stored as float32. */
-function activate(mem: Float32Array, pass: ActivationPass, rows: number): void {
+/** An activation on the real columns of a share's rows, through the catalogue's float64 forward, stored as float32. */
+function activate(mem: Float32Array, pass: ActivationPass, share: Share): void {
   const kind = activationKind(pass.activation);
+  const rows = share.rows;
   const z = new Float64Array(rows * pass.cols);
-  const base = pass.at / 4;
+  const base = (pass.at + share.row0 * pass.region) / 4;
   for (let r = 0; r < rows; r++) for (let c = 0; c < pass.cols; c++) z[r * pass.cols + c] = mem[base + r * pass.stride + c];
   const y = kind.refForward(z, rows, pass.cols, pass.alpha);
   for (let r = 0; r < rows; r++) for (let c = 0; c < pass.cols; c++) mem[base + r * pass.stride + c] = y[r * pass.cols + c];

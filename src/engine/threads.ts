@@ -26,9 +26,10 @@ const ctl = new Int32Array(control);
 const exportsOf = new WebAssembly.Instance(module, { env: { memory } }).exports;
 const fns = names.map((n) => exportsOf[n]);
 const at = ${TASKS} + index * ${TASK_WORDS};
+// Read the generation before saying ready: a task posted right after is then never missed.
+let seen = Atomics.load(ctl, ${GEN});
 Atomics.add(ctl, ${READY}, 1);
 parentPort.postMessage('ready');
-let seen = Atomics.load(ctl, ${GEN});
 for (;;) {
   Atomics.wait(ctl, ${GEN}, seen);
   const gen = Atomics.load(ctl, ${GEN});
@@ -48,6 +49,12 @@ for (;;) {
 }
 `;
 
+/** A thread's rows: [row0, row0 + rows). */
+export interface Share {
+  readonly row0: number;
+  readonly rows: number;
+}
+
 /** Rows are handed out in multiples of this (the kernels' row tile), so shares run whole tiles. */
 const SHARE_QUANTUM = 4;
 
@@ -55,7 +62,7 @@ const SHARE_QUANTUM = 4;
  * @example
  * const team = new ThreadTeam(module, memory, ['seg0'], 2);
  * await team.ready();
- * team.run(0, rows, (row0, n) => exports.seg0(row0, n));
+ * team.run(0, team.split(rows), (row0, n) => exports.seg0(row0, n));
  * team.close();
  */
 export class ThreadTeam {
@@ -98,36 +105,44 @@ export class ThreadTeam {
   }
 
   /**
-   * Run function `fn` over rows [0, rows): helpers take the later shares, the caller the first
-   * (through `own`, in this thread), and the call returns when all are done.
+   * How rows [0, rows) are shared out right now: the caller's share first, then one per helper
+   * (empty shares dropped), each a multiple of the row tile but the last.
+   */
+  split(rows: number): Share[] {
+    const threads = this.threads;
+    const size = Math.ceil(rows / threads / SHARE_QUANTUM) * SHARE_QUANTUM;
+    const shares: Share[] = [];
+    for (let row0 = 0; row0 < rows; row0 += size) shares.push({ row0, rows: Math.min(size, rows - row0) });
+    return shares.length ? shares : [{ row0: 0, rows: 0 }];
+  }
+
+  /**
+   * Run function `fn` over `shares` (from `split`): the caller takes the first (through `own`, in
+   * this thread), helpers the others, and the call returns when all are done.
    * @throws RuntimeFailure when a helper's share trapped.
    */
-  run(fn: number, rows: number, own: (row0: number, rows: number) => void): void {
+  run(fn: number, shares: readonly Share[], own: (row0: number, rows: number) => void): void {
     if (this.closed) throw new RuntimeFailure('thread team: used after close');
-    const helpers = this.threads - 1;
-    const share = Math.ceil(rows / (helpers + 1) / SHARE_QUANTUM) * SHARE_QUANTUM;
-    if (helpers === 0 || rows <= share) {
-      own(0, rows);
+    if (shares.length - 1 > this.workers.length) throw new RuntimeFailure(`thread team: ${shares.length} shares for ${this.workers.length + 1} threads`);
+    if (shares.length === 1) {
+      own(shares[0].row0, shares[0].rows);
       return;
     }
-    let next = share;
-    let used = 0;
-    for (let h = 0; h < helpers; h++) {
+    const used = shares.length - 1;
+    for (let h = 0; h < used; h++) {
       const at = TASKS + h * TASK_WORDS;
-      const n = Math.max(0, Math.min(share, rows - next));
       this.ctl[at] = fn;
-      this.ctl[at + 1] = next;
-      this.ctl[at + 2] = n;
-      if (n > 0) used++;
-      next += n;
+      this.ctl[at + 1] = shares[h + 1].row0;
+      this.ctl[at + 2] = shares[h + 1].rows;
     }
+    for (let h = used; h < this.workers.length; h++) this.ctl[TASKS + h * TASK_WORDS + 2] = 0;
     Atomics.store(this.ctl, DONE, 0);
     Atomics.store(this.ctl, FAILED, 0);
     Atomics.add(this.ctl, GEN, 1);
     Atomics.notify(this.ctl, GEN);
     let ownError: unknown = null;
     try {
-      own(0, share);
+      own(shares[0].row0, shares[0].rows);
     } catch (error) {
       ownError = error;
     }
