@@ -53,7 +53,7 @@ export async function resolveEngine(choice: EngineChoice, doc?: ModelDoc): Promi
 
 /**
  * Which kernel an engine runs here, in words (what `about`, `check` and `bench` print).
- * @example kernelDescription('int8') // "int8 relaxed dot (i16x8.relaxed_dot_i8x16_i7x16_s)"
+ * @example kernelDescription('int8') // "relaxed i8 dot, i16x8.relaxed_dot_i8x16_i7x16_s"
  */
 export function kernelDescription(engine: RuntimeEngine): string {
   if (engine === 'int8') {

@@ -1,4 +1,4 @@
-import { randomInputs, type ParityReport } from '../../check/index.js';
+import { INT8_SIGMAS, randomInputs, type ParityReport } from '../../check/index.js';
 import { UsageError } from '../../errors.js';
 import { readModelFile } from '../../format/index.js';
 import { compareOutputs, SHRINK_TOLERANCE, type OutputComparison } from '../../transform/index.js';
@@ -38,7 +38,7 @@ export const check: Command = {
       const input = f.input ? await readInput(model, f.input) : undefined;
       const report = model.check(input ?? { x: randomInputs(model.doc, rows, f.seed ?? 1), rows });
       if (f.json) io.out(JSON.stringify({ model: path, engine: model.engine, kernel: model.kernel, ...report }, null, 2) + '\n');
-      else io.out(describeParity(report, `${path} on the ${model.engine} engine (${model.kernel}), ${report.output.rows} rows${f.input ? ` from ${f.input}` : ' (seeded random)'}`));
+      else io.out(describeParity(report, `${path} on the ${model.engine} engine (${model.kernel}), ${report.output.rows} rows${f.input ? ` from ${f.input}` : ' (seeded random, not representative of real inputs)'}`, model.engine === 'int8'));
       return report.pass ? 0 : 1;
     } finally {
       model.dispose();
@@ -65,7 +65,7 @@ async function readInput(model: Pick<TendonModel, 'doc' | 'inputs'>, file: strin
 }
 
 /** The parity report as a table people can read. */
-export function describeParity(report: ParityReport, title: string): string {
+export function describeParity(report: ParityReport, title: string, integer = false): string {
   const rows = report.layers.map((l) => [
     String(l.index),
     l.kind,
@@ -77,7 +77,9 @@ export function describeParity(report: ParityReport, title: string): string {
   const agreement = report.output.topClassAgreement;
   return (
     `parity: ${title}\n` +
-    `float32 engine vs float64 reference; tolerance abs ${report.tolerance.abs}, rel ${report.tolerance.rel}\n\n` +
+    (integer
+      ? `int8 engine vs float64 reference on the stored weights; each element within ${INT8_SIGMAS} deviations of its activation quantisation (widest allowance ${sci(report.tolerance.abs)}) plus float32 tolerance\n\n`
+      : `float32 engine vs float64 reference; tolerance abs ${report.tolerance.abs}, rel ${report.tolerance.rel}\n\n`) +
     textTable(['#', 'layer', 'max abs err', 'max rel err', 'verdict'], rows) +
     (agreement === null ? '' : `top class agrees on ${percent(agreement, 2)} of rows\n`) +
     `${report.pass ? 'PASS' : 'FAIL'}: ${report.pass ? 'every layer within tolerance' : 'a tolerance is broken'}\n`

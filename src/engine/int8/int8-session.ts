@@ -28,7 +28,7 @@ export interface Int8SessionOptions {
  * const s = new Int8Session(doc, { threads: 2 });
  * await s.ready();
  * const y = s.run(features, rows); // Float32Array rows x outputs
- * s.kernel // "int8 relaxed dot (i32x4.relaxed_dot_i8x16_i7x16_add_s)"
+ * s.kernel // "relaxed i8 dot, i16x8.relaxed_dot_i8x16_i7x16_s"
  * @throws ModelFileError when the document is not usable or a layer is too wide for 32-bit sums;
  *   Error when this runtime has no WebAssembly SIMD.
  */

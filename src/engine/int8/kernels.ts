@@ -460,6 +460,6 @@ export function bestInt8Arith(): Int8Arith | null {
 
 /** What users see for each arithmetic. */
 export const INT8_KERNEL_NAMES: Readonly<Record<Int8Arith, string>> = {
-  relaxed: 'int8 relaxed dot (i16x8.relaxed_dot_i8x16_i7x16_s)',
-  i16: 'int8 via i16 dot (i32x4.dot_i16x8_s)',
+  relaxed: 'relaxed i8 dot, i16x8.relaxed_dot_i8x16_i7x16_s',
+  i16: 'i16 dot, i32x4.dot_i16x8_s',
 };
