@@ -19,6 +19,8 @@ export interface OpenOptions {
   readonly engine?: EngineChoice;
   /** Most rows sent through the engine at once; bounds peak memory. */
   readonly chunkRows?: number;
+  /** Threads sharing each call's rows, the caller included (the int8 engine; others run on one). Default 1. */
+  readonly threads?: number;
 }
 
 /** Why the last 'auto' choice fell back from the fast engine, as one line; null when it did not. */
@@ -60,6 +62,7 @@ export async function openModel(path: string, options: OpenOptions = {}): Promis
     bytes: read.bytes,
     formatVersion: `${read.version.major}.${read.version.minor}`,
     chunkRows: options.chunkRows,
+    threads: options.threads,
   });
 }
 
@@ -71,7 +74,7 @@ export async function openModel(path: string, options: OpenOptions = {}): Promis
 export async function modelFromDocument(doc: ModelDoc, options: OpenOptions = {}): Promise<TendonModel> {
   // The runner validates the document (once) as it is opened.
   const engine = await chooseEngine(options.engine, doc);
-  return new TendonModel(doc, engine, { source: null, checksum: null, bytes: null, formatVersion: null, chunkRows: options.chunkRows });
+  return new TendonModel(doc, engine, { source: null, checksum: null, bytes: null, formatVersion: null, chunkRows: options.chunkRows, threads: options.threads });
 }
 
 interface ModelOrigin {
@@ -80,6 +83,7 @@ interface ModelOrigin {
   readonly bytes: number | null;
   readonly formatVersion: string | null;
   readonly chunkRows?: number;
+  readonly threads?: number;
 }
 
 export class TendonModel {
@@ -99,7 +103,7 @@ export class TendonModel {
     engine: RuntimeEngine,
     origin: ModelOrigin,
   ) {
-    const options = { chunkRows: origin.chunkRows, source: origin.source ?? '(document)' };
+    const options = { chunkRows: origin.chunkRows, source: origin.source ?? '(document)', threads: origin.threads };
     this.runner = openRunner(doc, engine, options);
     this.source = origin.source;
     this.checksum = origin.checksum;

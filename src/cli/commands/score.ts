@@ -1,3 +1,4 @@
+import { availableParallelism } from 'node:os';
 import { UsageError } from '../../errors.js';
 import { openTableWriter } from '../../io/index.js';
 import { DriftMonitor, describeDrift } from '../../drift/index.js';
@@ -29,7 +30,8 @@ export const score: Command = {
     const output = requireFlag(f.output, 'output');
     const batch = f.batch ?? 4096;
     if (batch < 1) throw new UsageError('--batch', `must be at least 1, got ${batch}`);
-    const model = await openModel(path, { engine: parseEngine(f.engine), chunkRows: Math.min(batch, 4096) });
+    // Every core: the int8 engine splits each batch's rows across threads (the others run on one).
+    const model = await openModel(path, { engine: parseEngine(f.engine), chunkRows: Math.min(batch, 4096), threads: availableParallelism() });
     try {
       const drift = f.drift ? DriftMonitor.forModel(model.doc) : null;
       if (f.drift && !drift) io.err('tendon score: --drift: the model has no fitted normalisation statistics to compare with\n');
