@@ -1,6 +1,7 @@
 """numpy + OpenBLAS baseline for the tendon bench: the same dense shapes, float32, ReLU hidden
 layers, per-call latency. Reads a JSON job on stdin, prints one JSON document on stdout:
-{"numpy": version, "blas": name, "results": [{"widths", "batch", "rowsPerSec", "p50Ms", "p99Ms", "calls"}]}.
+{"numpy": version, "blas": name, "kernels": OpenBLAS core name or "unknown",
+ "results": [{"widths", "batch", "rowsPerSec", "p50Ms", "p99Ms", "calls"}]}.
 Weights are seeded random values: only the shapes matter for timing."""
 import json
 import math
@@ -21,6 +22,32 @@ def blas_name():
         return info["Build Dependencies"]["blas"]["name"]
     except Exception:  # older numpy has no dict mode
         return "unknown"
+
+
+def blas_kernels():
+    """The kernel set OpenBLAS chose at load time (e.g. SkylakeX = its AVX-512 kernels), from
+    threadpoolctl when installed, else by asking the loaded library itself; "unknown" otherwise."""
+    try:
+        import threadpoolctl
+        for lib in threadpoolctl.threadpool_info():
+            if lib.get("internal_api") == "openblas":
+                return lib.get("architecture") or "unknown"
+    except Exception:
+        pass
+    try:
+        import ctypes
+        with open("/proc/self/maps") as maps:
+            paths = {line.split()[-1] for line in maps if "openblas" in line.lower()}
+        for path in paths:
+            lib = ctypes.CDLL(path)
+            for name in ("openblas_get_corename", "scipy_openblas_get_corename64_", "openblas_get_corename64_", "scipy_openblas_get_corename"):
+                fn = getattr(lib, name, None)
+                if fn is not None:
+                    fn.restype = ctypes.c_char_p
+                    return fn().decode()
+    except Exception:
+        pass
+    return "unknown"
 
 
 def main():
@@ -60,7 +87,7 @@ def main():
             lat.sort()
             results.append({"widths": widths, "batch": batch, "rowsPerSec": batch * len(lat) / total,
                             "p50Ms": nearest_rank(lat, 0.5), "p99Ms": nearest_rank(lat, 0.99), "calls": len(lat)})
-    json.dump({"numpy": np.__version__, "blas": blas_name(), "results": results}, sys.stdout)
+    json.dump({"numpy": np.__version__, "blas": blas_name(), "kernels": blas_kernels(), "results": results}, sys.stdout)
 
 
 if __name__ == "__main__":

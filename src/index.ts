@@ -1,7 +1,7 @@
 /**
  * tendon's public API. Re-exports only: each piece lives in its own module.
  */
-export { openModel, modelFromDocument, engineFallback, TendonModel, type OpenOptions } from './tendon.js';
+export { openModel, modelFromDocument, engineFallback, engineNote, TendonModel, type OpenOptions } from './tendon.js';
 export * from './errors.js';
 export * from './model/types.js';
 export { validateModel, modelWidths, outputWidth, SeededRng, withTemperatureFolded } from './model/index.js';

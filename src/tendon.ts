@@ -3,8 +3,8 @@
  * format, the engine and the parity check together; each of those can also be used alone.
  */
 import * as tf from '@tensorflow/tfjs-core';
-import { parityReport, randomInputs, type ParityReport } from './check/index.js';
-import { TfjsRunner, ensureEngine, openRunner, resolveEngine, type EngineChoice, type Runner, type RuntimeEngine } from './engine/index.js';
+import { int8ParityReport, parityReport, randomInputs, type ParityReport } from './check/index.js';
+import { Int8Session, TfjsRunner, ensureEngine, kernelDescription, openRunner, resolveEngine, type EngineChoice, type Runner, type RuntimeEngine } from './engine/index.js';
 import { DataError, ShapeError } from './errors.js';
 import { readModelFile, writeModelFile } from './format/index.js';
 import type { ModelDoc } from './model/index.js';
@@ -19,6 +19,8 @@ export interface OpenOptions {
   readonly engine?: EngineChoice;
   /** Most rows sent through the engine at once; bounds peak memory. */
   readonly chunkRows?: number;
+  /** Threads sharing each call's rows, the caller included (the int8 engine; others run on one). Default 1. */
+  readonly threads?: number;
 }
 
 /** Why the last 'auto' choice fell back from the fast engine, as one line; null when it did not. */
@@ -28,10 +30,18 @@ export function engineFallback(): string | null {
   return lastFallback;
 }
 
-async function chooseEngine(choice: EngineChoice | undefined): Promise<RuntimeEngine> {
-  const resolved = await resolveEngine(choice ?? 'auto');
+/** What the last 'auto' choice decided from the model itself (int8 for an i8-stored model), as one line; null otherwise. */
+let lastNote: string | null = null;
+
+export function engineNote(): string | null {
+  return lastNote;
+}
+
+async function chooseEngine(choice: EngineChoice | undefined, doc: ModelDoc): Promise<RuntimeEngine> {
+  const resolved = await resolveEngine(choice ?? 'auto', doc);
   lastFallback = resolved.fallback;
-  if (resolved.engine === 'fast') ensureEngine(); // tfjs still serves tensor input and training
+  lastNote = resolved.note ?? null;
+  if (resolved.engine === 'fast' || resolved.engine === 'int8') ensureEngine(); // tfjs still serves tensor input and training
   return resolved.engine;
 }
 
@@ -45,13 +55,14 @@ async function chooseEngine(choice: EngineChoice | undefined): Promise<RuntimeEn
  */
 export async function openModel(path: string, options: OpenOptions = {}): Promise<TendonModel> {
   const read = await readModelFile(path);
-  const engine = await chooseEngine(options.engine);
+  const engine = await chooseEngine(options.engine, read.doc);
   return new TendonModel(read.doc, engine, {
     source: path,
     checksum: read.checksum,
     bytes: read.bytes,
     formatVersion: `${read.version.major}.${read.version.minor}`,
     chunkRows: options.chunkRows,
+    threads: options.threads,
   });
 }
 
@@ -62,8 +73,8 @@ export async function openModel(path: string, options: OpenOptions = {}): Promis
  */
 export async function modelFromDocument(doc: ModelDoc, options: OpenOptions = {}): Promise<TendonModel> {
   // The runner validates the document (once) as it is opened.
-  const engine = await chooseEngine(options.engine);
-  return new TendonModel(doc, engine, { source: null, checksum: null, bytes: null, formatVersion: null, chunkRows: options.chunkRows });
+  const engine = await chooseEngine(options.engine, doc);
+  return new TendonModel(doc, engine, { source: null, checksum: null, bytes: null, formatVersion: null, chunkRows: options.chunkRows, threads: options.threads });
 }
 
 interface ModelOrigin {
@@ -72,6 +83,7 @@ interface ModelOrigin {
   readonly bytes: number | null;
   readonly formatVersion: string | null;
   readonly chunkRows?: number;
+  readonly threads?: number;
 }
 
 export class TendonModel {
@@ -91,7 +103,7 @@ export class TendonModel {
     engine: RuntimeEngine,
     origin: ModelOrigin,
   ) {
-    const options = { chunkRows: origin.chunkRows, source: origin.source ?? '(document)' };
+    const options = { chunkRows: origin.chunkRows, source: origin.source ?? '(document)', threads: origin.threads };
     this.runner = openRunner(doc, engine, options);
     this.source = origin.source;
     this.checksum = origin.checksum;
@@ -101,6 +113,10 @@ export class TendonModel {
 
   get engine(): RuntimeEngine {
     return this.runner.engine;
+  }
+  /** Which kernel runs the model, in words. */
+  get kernel(): string {
+    return this.runner instanceof Int8Session ? this.runner.kernel : kernelDescription(this.runner.engine);
   }
   get inputs(): number {
     return this.doc.inputs;
@@ -156,6 +172,8 @@ export class TendonModel {
   check(input?: { x: Float32Array; rows: number }, seed = 1): ParityReport {
     const rows = input?.rows ?? 256;
     const x = input?.x ?? randomInputs(this.doc, rows, seed);
+    // The integer engine is held to the tolerance its quantisation steps allow (check/tolerance.ts).
+    if (this.runner instanceof Int8Session) return int8ParityReport(this.doc, x, rows, this.runner);
     return parityReport(this.doc, x, rows, { runner: this.runner });
   }
 

@@ -51,7 +51,19 @@ export interface NumpyCase {
   readonly batches: readonly number[];
 }
 
-export type NumpyResult = { readonly available: true; readonly version: string; readonly blas: string; readonly timings: Map<string, Timing> } | { readonly available: false; readonly note: string };
+export type NumpyResult =
+  | {
+      readonly available: true;
+      readonly version: string;
+      readonly blas: string;
+      /** Best of one thread and all threads, per case. */
+      readonly timings: Map<string, Timing>;
+      /** With OpenBLAS on every core (its default), per case. */
+      readonly allThreads: Map<string, Timing>;
+      /** The kernel set OpenBLAS chose (e.g. SkylakeX), or "unknown". */
+      readonly kernels: string;
+    }
+  | { readonly available: false; readonly note: string };
 
 /** Key of a numpy timing: widths and batch. */
 export function numpyKey(widths: readonly number[], batch: number): string {
@@ -70,31 +82,40 @@ export function runNumpyBaseline(script: string, cases: readonly NumpyCase[], mi
     return { available: false, note: `numpy column skipped: python3 -c "import numpy" failed (${probe.error?.message ?? probe.stderr.trim().split('\n').pop()})` };
   }
   const timings = new Map<string, Timing>();
+  const allThreads = new Map<string, Timing>();
   let version = '';
   let blas = '';
+  let kernels = 'unknown';
   for (const threads of ['1', '']) {
     const env = { ...process.env };
     if (threads) env.OPENBLAS_NUM_THREADS = threads;
     else delete env.OPENBLAS_NUM_THREADS;
+    // As a user's numpy runs: no pinned core type (which would force, say, the AVX2 kernels on an
+    // AVX-512 machine) and no cache-size override.
+    delete env.OPENBLAS_CORETYPE;
+    delete env.OPENBLAS_L2_SIZE;
     const child = spawnSync('python3', [script], { input: JSON.stringify({ minMs, cases }), encoding: 'utf8', maxBuffer: 16 * 2 ** 20, env });
     if (child.status !== 0) return { available: false, note: `numpy column skipped: ${script} failed (${child.stderr.trim().split('\n').pop()})` };
     const parsed: unknown = JSON.parse(child.stdout);
     const doc = parsed as NumpyOutput;
     version = doc.numpy;
     blas = doc.blas;
+    kernels = doc.kernels ?? 'unknown';
     for (const r of doc.results) {
       const key = numpyKey(r.widths, r.batch);
+      if (!threads) allThreads.set(key, { calls: r.calls, totalMs: (r.calls * r.batch * 1000) / r.rowsPerSec, rowsPerSec: r.rowsPerSec, p50Ms: r.p50Ms, p99Ms: r.p99Ms });
       const seen = timings.get(key);
       if (seen && seen.rowsPerSec >= r.rowsPerSec) continue;
       timings.set(key, { calls: r.calls, totalMs: (r.calls * r.batch * 1000) / r.rowsPerSec, rowsPerSec: r.rowsPerSec, p50Ms: r.p50Ms, p99Ms: r.p99Ms });
     }
   }
-  return { available: true, version, blas: `${blas}, best of 1 thread and all threads`, timings };
+  return { available: true, version, blas: `${blas} (${kernels} kernels), best of 1 thread and all threads`, timings, allThreads, kernels };
 }
 
 interface NumpyOutput {
   numpy: string;
   blas: string;
+  kernels?: string;
   results: { widths: number[]; batch: number; rowsPerSec: number; p50Ms: number; p99Ms: number; calls: number }[];
 }
 

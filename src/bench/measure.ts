@@ -73,7 +73,7 @@ export function gflops(widths: readonly number[], rowsPerSec: number): number {
 }
 
 export interface BenchRow {
-  readonly engine: EngineName | 'fast';
+  readonly engine: EngineName | 'fast' | 'int8';
   readonly batch: number;
   readonly rowsPerSec: number;
   readonly gflops: number;
@@ -90,7 +90,7 @@ export interface BenchModelOptions {
   /** Rows per call to measure. Default [1, 32, 256, 1024]. */
   readonly batches?: readonly number[];
   /** Engine to measure: a tfjs engine ('auto' = wasm, else js) or 'fast' (own SIMD kernel). Default 'auto'. */
-  readonly engine?: EngineName | 'auto' | 'fast';
+  readonly engine?: EngineName | 'auto' | 'fast' | 'int8';
   /** Measuring time per batch size. Default 1000 ms. */
   readonly minMs?: number;
   /** Seed of the invented input rows. Default 1. */
@@ -109,7 +109,7 @@ export async function benchModel(doc: ModelDoc, options: BenchModelOptions = {})
   const batches = options.batches ?? [1, 32, 256, 1024];
   for (const b of batches) if (!Number.isInteger(b) || b < 1) throw new RangeError(`benchModel: batch sizes must be positive integers, got ${b}`);
   const wanted = options.engine ?? 'auto';
-  const engine = wanted === 'fast' ? 'fast' : await useEngine(wanted);
+  const engine = wanted === 'fast' || wanted === 'int8' ? wanted : await useEngine(wanted);
   const widths = modelWidths(doc);
   const runner = openRunner(doc, engine);
   const out: BenchRow[] = [];

@@ -6,9 +6,11 @@
  * Calls that would take longer than a per-call budget (the plain JS paths on big batches) are
  * skipped with a note, predicted from the throughput measured at the previous batch size.
  */
+import { readFileSync } from 'node:fs';
 import { cpus, availableParallelism } from 'node:os';
 import * as tf from '@tensorflow/tfjs-core';
-import { engineFallbackReason, openRunner, useEngine, type EngineName, type Runner } from '../engine/index.js';
+import { bestInt8Arith, engineFallbackReason, Int8Session, kernelDescription, openRunner, SharedSession, useEngine, type EngineName, type Runner } from '../engine/index.js';
+import { decodeModel, encodeModel } from '../format/index.js';
 import { wasmSimdAvailable } from '../engine/fast/dense-kernel.js';
 import type { ModelDoc } from '../model/index.js';
 import { MicroBatcher } from '../serve/batcher.js';
@@ -30,7 +32,7 @@ export interface SuiteOptions {
 }
 
 export interface SuiteRow {
-  readonly section: 'engine' | 'pool' | 'batcher' | 'train' | 'leak';
+  readonly section: 'engine' | 'threads' | 'pool' | 'batcher' | 'train' | 'leak';
   readonly network: string;
   /** 'js' | 'wasm', or a baseline's name for reference rows. */
   readonly engine: string;
@@ -62,6 +64,8 @@ export interface Machine {
   readonly cores: number;
   readonly node: string;
   readonly numpy: string;
+  /** The CPU's vector extensions that matter here (from /proc/cpuinfo), or "unknown". */
+  readonly vector: string;
 }
 
 export interface SuiteResult {
@@ -128,6 +132,7 @@ export async function runBenchSuite(opts: SuiteOptions): Promise<SuiteResult> {
   await measureBaselines(run);
   const engines = await availableEngines(notes);
   await measureEngines(run, engines);
+  await measureThreads(run);
   const best = fastestEngine(run.rows, engines);
   notes.push(`targets judged on the ${best} engine (fastest at ${MID.name}, batch 256)`);
   await measurePool(run, engines, best);
@@ -142,8 +147,11 @@ export async function runBenchSuite(opts: SuiteOptions): Promise<SuiteResult> {
     cores: availableParallelism(),
     node: process.version,
     numpy: numpy.available ? `numpy ${numpy.version} (${numpy.blas})` : 'numpy not available',
+    vector: vectorFeatures(),
   };
-  return { rows: run.rows, baselines: run.baselines, targets: checkTargets(run.rows, run.baselines, best), notes, machine };
+  const numpyAll256 = numpy.available ? (numpy.allThreads.get(numpyKey(MID.widths, 256)) ?? null) : null;
+  const targets = [...checkTargets(run.rows, run.baselines, best), ...threadTargets(run.rows, run.baselines, numpyAll256)];
+  return { rows: run.rows, baselines: run.baselines, targets, notes, machine };
 }
 
 /** Time fn unless one call is predicted to exceed the budget; null (and a note) when skipped. */
@@ -229,6 +237,32 @@ async function measureEngines(run: SuiteRun, engines: readonly SuiteEngine[]): P
       session.dispose();
     }
   }
+}
+
+/** Shared-memory threads on the middle network at batch 256: float32 and int8, one and two threads; int8 on single rows. */
+async function measureThreads(run: SuiteRun): Promise<void> {
+  const int8Arith = bestInt8Arith();
+  if (int8Arith !== null) {
+    const f32Doc = docOf(run, MID.name);
+    const i8Doc = decodeModel(encodeModel({ ...f32Doc, storage: 'i8' }), '(benchmark model stored as i8)').doc;
+    const cases: { name: string; threads: number; batch: number; open: (threads: number) => { run(x: Float32Array, n: number): Float32Array; ready(): Promise<void>; dispose(): void } }[] = [];
+    for (const threads of [1, 2]) {
+      cases.push({ name: 'fast', threads, batch: 256, open: (t) => new SharedSession(f32Doc, { arith: 'f32', threads: t }) });
+      cases.push({ name: 'int8', threads, batch: 256, open: (t) => new Int8Session(i8Doc, { threads: t }) });
+    }
+    cases.push({ name: 'int8', threads: 1, batch: 1, open: (t) => new Int8Session(i8Doc, { threads: t }) });
+    for (const c of cases) {
+      run.opts.log(`threads ${c.name} x${c.threads} batch ${c.batch}`);
+      const session = c.open(c.threads);
+      await session.ready();
+      const x = seededRows(c.batch, MID.widths[0], c.batch);
+      const t = await budgeted(run, `threads ${c.name} x${c.threads}`, null, c.batch, () => session.run(x, c.batch));
+      session.dispose();
+      if (!t) continue;
+      const kernel = c.name === 'int8' ? kernelDescription('int8') : kernelDescription('fast');
+      addRow(run, { section: 'threads', network: MID.name, engine: c.name, workers: c.threads, batch: c.batch, rowsPerSec: t.rowsPerSec, gflops: gflops(MID.widths, t.rowsPerSec), p50Ms: t.p50Ms, p99Ms: t.p99Ms, note: `${kernel}; shared memory, ${c.threads} thread${c.threads > 1 ? 's' : ''}` });
+    }
+  } else run.notes.push('int8 and shared-memory thread rows skipped: this runtime has no WebAssembly SIMD');
 }
 
 /** The engine the targets are judged on: the fastest at the middle network, batch 256. */
@@ -344,6 +378,42 @@ async function measureLeaks(run: SuiteRun, engines: readonly SuiteEngine[]): Pro
     const rps = calls / seconds;
     addRow(run, { section: 'leak', network: net.name, engine, workers: 0, batch: 1, rowsPerSec: rps, gflops: gflops(net.widths, rps), p50Ms: Number.NaN, p99Ms: Number.NaN, tensorGrowth: tensorsAfter - tensorsBefore, note });
   }
+}
+
+/** avx2 / avx512f / avx512_vnni / avx_vnni and the like, as /proc/cpuinfo lists them; "unknown" elsewhere. */
+function vectorFeatures(): string {
+  try {
+    const flags = /^flags\s*:(.*)$/m.exec(readFileSync('/proc/cpuinfo', 'utf8'))?.[1].trim().split(/\s+/) ?? [];
+    const wanted = flags.filter((f) => /^(sse4_2|avx|avx2|fma|avx512f|avx512bw|avx512vl|avx512_vnni|avx_vnni|amx_int8)$/.test(f));
+    return wanted.length ? wanted.join(' ') : 'unknown';
+  } catch {
+    return 'unknown';
+  }
+}
+
+/** The integer engine's and the shared-memory threads' targets, all ratios within this run. */
+function threadTargets(rows: readonly SuiteRow[], baselines: SuiteResult['baselines'], numpyAll256: Timing | null): TargetCheck[] {
+  const at = (engine: string, threads: number, batch: number) => rows.find((r) => r.section === 'threads' && r.engine === engine && r.workers === threads && r.batch === batch);
+  const fastEngine256 = rows.find((r) => r.section === 'engine' && r.engine === 'fast' && r.network === MID.name && r.batch === 256);
+  const f1 = at('fast', 1, 256);
+  const f2 = at('fast', 2, 256);
+  const i1 = at('int8', 1, 256);
+  const i2 = at('int8', 2, 256);
+  const i1row = at('int8', 1, 1);
+  const np1 = baselines.find((b) => b.network === MID.name && b.batch === 1)?.numpy?.p50Ms;
+  const ratio = (a: SuiteRow | undefined, b: { rowsPerSec: number } | undefined | null) => (a && b ? a.rowsPerSec / b.rowsPerSec : undefined);
+  const check = (target: string, value: number | undefined, goal: number): TargetCheck => ({ target, reached: value === undefined ? 'not measured' : `${fmt(value, 2)}x`, met: value === undefined ? null : value >= goal });
+  return [
+    check(`${MID.name} batch 256: int8 on one thread >= 2.2x the fast engine on one thread`, ratio(i1, fastEngine256), 2.2),
+    check(`${MID.name} batch 256: float32 on 2 shared-memory threads >= 1.8x one thread`, ratio(f2, f1), 1.8),
+    check(`${MID.name} batch 256: int8 on 2 threads >= 1.0x numpy + OpenBLAS on every core`, ratio(i2, numpyAll256), 1.0),
+    check(`${MID.name} batch 256: int8 on 2 threads >= 1.8x int8 on one thread`, ratio(i2, i1), 1.8),
+    {
+      target: `${MID.name} single-row p50: int8 <= numpy`,
+      reached: i1row && np1 ? `${fmt(i1row.p50Ms, 3)} ms vs numpy ${fmt(np1, 3)} ms` : 'not measured',
+      met: i1row && np1 ? i1row.p50Ms <= np1 : null,
+    },
+  ];
 }
 
 /** The figures the targets are judged on, picked out of the rows once. */
@@ -496,7 +566,7 @@ export function formatSuite(result: SuiteResult): string {
   const baseBody = result.baselines.map((b) => [b.network, String(b.batch), fmt(b.plainTfjs?.rowsPerSec ?? Number.NaN, 0), fmt(b.reference?.rowsPerSec ?? Number.NaN, 0), fmt(b.numpy?.rowsPerSec ?? Number.NaN, 0), fmt(b.numpy?.p50Ms ?? Number.NaN, 3)]);
   const targets = result.targets.map((t) => `${t.met === null ? '[ ? ]' : t.met ? '[met]' : '[not met]'} ${t.target}: ${t.reached}`);
   return [
-    `machine: ${result.machine.cpu}, ${result.machine.cores} cores, Node ${result.machine.node}, ${result.machine.numpy}`,
+    `machine: ${result.machine.cpu} (vector: ${result.machine.vector}), ${result.machine.cores} cores, Node ${result.machine.node}, ${result.machine.numpy}`,
     '',
     table(head, body),
     '',
@@ -516,7 +586,7 @@ export function resultsMarkdownRows(result: SuiteResult, date: Date): string[] {
   const day = date.toISOString().slice(0, 16).replace('T', ' ');
   const m = result.machine;
   return result.rows.map((r) =>
-    `| ${day} | ${m.cpu}, ${m.cores} cores | ${m.node} | ${r.section} | ${r.network} | ${r.engine} | ${r.workers || '-'} | ${r.batch} | ${fmt(r.rowsPerSec, 0)} | ${fmt(r.gflops, 2)} | ${fmt(r.p50Ms, 3)} | ${fmt(r.p99Ms, 3)} | ${fmt(r.rssMiB, 0)} | ${r.tensors} | ${fmt(r.vsPlainTfjs, 1)} | ${fmt(r.vsReference, 1)} | ${fmt(r.vsNumpy, 2)} |`,
+    `| ${day} | ${m.cpu} (${m.vector}), ${m.cores} cores | ${m.node} | ${r.section} | ${r.network} | ${r.engine} | ${r.workers || '-'} | ${r.batch} | ${fmt(r.rowsPerSec, 0)} | ${fmt(r.gflops, 2)} | ${fmt(r.p50Ms, 3)} | ${fmt(r.p99Ms, 3)} | ${fmt(r.rssMiB, 0)} | ${r.tensors} | ${fmt(r.vsPlainTfjs, 1)} | ${fmt(r.vsReference, 1)} | ${fmt(r.vsNumpy, 2)} |`,
   );
 }
 

@@ -17,6 +17,8 @@
  * Measured (js engine, 256 seeded rows, every activation, batchnorm and dropout mixed in, widths up
  * to 784-512-512-10): the largest absolute error was 3.4e-6, about 30 times inside `abs`.
  */
+import type { ActivationName } from '../model/index.js';
+
 export interface Tolerance {
   readonly abs: number;
   readonly rel: number;
@@ -45,4 +47,55 @@ export function toleranceRatio(a: number, b: number, tol: Tolerance): number {
 /** Whether one engine value matches its reference value. */
 export function withinTolerance(a: number, b: number, tol: Tolerance = FLOAT32_TOLERANCE): boolean {
   return toleranceRatio(a, b, tol) <= 1;
+}
+
+/**
+ * The integer engine against the float64 reference on the same stored (dequantised) weights.
+ * Its one approximation is the per-row quantisation of each dense layer's input: a row whose
+ * values span [min(0, min x), max(0, max x)] is rounded to codes with step s = span / 127, an
+ * error of at most s / 2 per value. Treating those roundings as independent and uniform on
+ * [-s/2, s/2] (variance s^2 / 12; common practice for rounding noise), output n of a dense layer
+ * carries a standard deviation of
+ *     σ_n = sqrt(Σ_k w_kn^2 · (σ_k^2 + s^2 / 12))
+ * where σ_k is the deviation input k already carried from earlier layers, and s is taken from the
+ * reference's span widened by 2 · INT8_SIGMAS · max σ_k (the engine quantises its own, perturbed,
+ * input). An activation scales σ by its Lipschitz constant (INT8_LIPSCHITZ), batch normalisation
+ * by |gamma / sqrt(var + eps)|. An element passes within INT8_SIGMAS deviations, plus the float32
+ * tolerance for the float steps around the integer sums:
+ *     |a - b| <= INT8_SIGMAS · σ + max(abs, rel · max(|b|, REL_FLOOR)).
+ * Why not the worst case Σ |w| · s / 2: it is never exceeded but measured 40x the real errors on
+ * seeded models, too loose to notice a bias off by 0.05. Six deviations leave room for the
+ * roundings' dependence on each other (inputs of a row share s) while a wrong weight, bias or
+ * layout of ordinary size fails; a row whose roundings all fall the same way (a constant row) can
+ * exceed it, and then the check fails loudly rather than passing a wrong answer.
+ */
+export const INT8_SIGMAS = 6;
+
+export const INT8_LIPSCHITZ: Readonly<Record<ActivationName, (alpha: number) => number>> = {
+  linear: () => 1,
+  relu: () => 1,
+  leaky_relu: (alpha) => Math.max(1, Math.abs(alpha)),
+  // The logistic's slope peaks at 1/4 (at 0); tanh's at 1; softplus's slope is the logistic, below 1.
+  sigmoid: () => 0.25,
+  tanh: () => 1,
+  softplus: () => 1,
+  // Per row: |Δp_i| <= Σ_j |∂p_i/∂z_j| · max|Δz| = 2 p_i (1 - p_i) · max|Δz| <= max|Δz| / 2.
+  softmax: () => 0.5,
+};
+
+/** Variance of one row's activation rounding, s^2 / 12, its span widened by 2 · INT8_SIGMAS · `carriedSigma`. */
+export function int8RoundingVariance(row: ArrayLike<number>, carriedSigma: number): number {
+  let lo = 0;
+  let hi = 0;
+  for (let i = 0; i < row.length; i++) {
+    lo = Math.min(lo, row[i]);
+    hi = Math.max(hi, row[i]);
+  }
+  const step = (hi - lo + 2 * INT8_SIGMAS * carriedSigma) / 127;
+  return (step * step) / 12;
+}
+
+/** Largest allowed |engine - reference| for one element carrying deviation `sigma`. */
+export function int8Allowed(sigma: number, reference: number, tol: Tolerance = FLOAT32_TOLERANCE): number {
+  return INT8_SIGMAS * sigma + Math.max(tol.abs, tol.rel * Math.max(Math.abs(reference), REL_FLOOR));
 }

@@ -2,7 +2,10 @@ export { engineFallbackReason, ensureEngine, liveTensorCount, useEngine, type En
 export { openRunner, type Runner, type RunnerOptions } from './runner.js';
 export { DEFAULT_CHUNK_ROWS, TfjsRunner, type TfjsRunnerOptions } from './tfjs-runner.js';
 export { TfjsTrainer, type TfjsGradients, type TfjsTape, type TfjsTrainForward } from './tfjs-trainer.js';
-export { ENGINE_CHOICES, resolveEngine, type EngineChoice, type ResolvedEngine, type RuntimeEngine } from './choice.js';
+export { ENGINE_CHOICES, kernelDescription, resolveEngine, type EngineChoice, type ResolvedEngine, type RuntimeEngine } from './choice.js';
 export { SimdRunner, type SimdRunnerOptions } from './fast/simd-runner.js';
 export { SimdTrainer, simdTrainBlocker, type SimdTape, type SimdTrainForward } from './fast/simd-trainer.js';
 export { wasmSimdAvailable } from './fast/dense-kernel.js';
+export { Int8Session, type Int8SessionOptions } from './int8/int8-session.js';
+export { SharedSession, type SharedArith, type SharedSessionOptions } from './shared-session.js';
+export { bestInt8Arith, INT8_KERNEL_NAMES, MAX_INT8_INPUTS, type Int8Arith } from './int8/kernels.js';

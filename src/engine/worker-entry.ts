@@ -31,7 +31,7 @@ async function main(): Promise<void> {
   let runner: Runner;
   try {
     const { doc } = decodeModel(setup.model, setup.source);
-    const engine = setup.engine === 'fast' ? 'fast' : await useEngine(setup.engine);
+    const engine = setup.engine === 'fast' || setup.engine === 'int8' ? setup.engine : await useEngine(setup.engine);
     runner = openRunner(doc, engine, { source: setup.source });
   } catch (error) {
     send({ kind: 'open-failed', ...describe(error) });

@@ -4,7 +4,7 @@
  */
 
 /** A tfjs engine ('auto' = wasm, else js), or 'fast': our own WebAssembly SIMD kernel (src/engine/fast). */
-export type WorkerEngine = 'js' | 'wasm' | 'auto' | 'fast';
+export type WorkerEngine = 'js' | 'wasm' | 'auto' | 'fast' | 'int8';
 
 /** What a worker is started with (its workerData). */
 export interface WorkerSetup {
@@ -23,7 +23,7 @@ export type ToWorker =
   | { readonly kind: 'crash-next-run' };
 
 export type FromWorker =
-  | { readonly kind: 'ready'; readonly engine: 'js' | 'wasm' | 'fast'; readonly inputs: number; readonly outputs: number }
+  | { readonly kind: 'ready'; readonly engine: 'js' | 'wasm' | 'fast' | 'int8'; readonly inputs: number; readonly outputs: number }
   | { readonly kind: 'open-failed'; readonly message: string; readonly typed: boolean }
   | { readonly kind: 'done'; readonly id: number; readonly data: ArrayBuffer }
   | { readonly kind: 'failed'; readonly id: number; readonly message: string; readonly typed: boolean };
@@ -31,5 +31,5 @@ export type FromWorker =
 export function isWorkerSetup(value: unknown): value is WorkerSetup {
   if (typeof value !== 'object' || value === null) return false;
   const v = value as Partial<Record<keyof WorkerSetup, unknown>>;
-  return v.model instanceof Uint8Array && typeof v.source === 'string' && (v.engine === 'js' || v.engine === 'wasm' || v.engine === 'auto' || v.engine === 'fast') && typeof v.crashEveryRun === 'boolean';
+  return v.model instanceof Uint8Array && typeof v.source === 'string' && (v.engine === 'js' || v.engine === 'wasm' || v.engine === 'auto' || v.engine === 'fast' || v.engine === 'int8') && typeof v.crashEveryRun === 'boolean';
 }

@@ -8,7 +8,7 @@ import type { Problem } from '../errors.js';
 import type { StorageCodec } from '../model/types.js';
 import { bytesToFloat32, bytesToUint16, float32ToBytes, uint16ToBytes } from './bytes.js';
 import { FLOAT16_MAX, fromFloat16, toFloat16 } from './float16.js';
-import { dequantiseColumns, quantiseColumns } from './int8.js';
+import { dequantiseColumns, quantiseColumns, rememberStoredCodes } from './int8.js';
 import { DTYPE_BYTES, DTYPE_CODES, type RawTensor } from './payload.js';
 
 export interface DecodedTensor {
@@ -148,14 +148,18 @@ export function decodeTensor(raw: RawTensor | null | undefined, where: string, p
       problems.push({ where, message: `I8 tensor has ${raw.scales.length} scales, expected one per column (${cols})` });
       return null;
     }
-    const badScale = describeBad(raw.scales, (s) => !Number.isFinite(s) || s < 0, 'negative or non-finite scale');
+    // A zero scale would silently zero the column's codes; the writer gives all-zero columns scale 1.
+    const badScale = describeBad(raw.scales, (s) => !Number.isFinite(s) || s <= 0, 'zero, negative or non-finite scale');
     if (badScale) {
       problems.push({ where: `${where}.scales`, message: badScale });
       return null;
     }
-    const codes = new Int8Array(raw.data.buffer, raw.data.byteOffset, raw.data.byteLength);
+    const codes = Int8Array.from(new Int8Array(raw.data.buffer, raw.data.byteOffset, raw.data.byteLength));
     const rows = cols === 0 ? 0 : elements / cols;
-    return { shape, codec, data: dequantiseColumns(codes, Float32Array.from(raw.scales), rows, cols) };
+    const scales = Float32Array.from(raw.scales);
+    const data = dequantiseColumns(codes, scales, rows, cols);
+    rememberStoredCodes(data, { codes, scales });
+    return { shape, codec, data };
   }
   if (raw.scales.length > 0) {
     problems.push({ where, message: `${codec} tensor carries ${raw.scales.length} scales; only I8 tensors have scales` });

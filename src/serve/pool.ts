@@ -75,7 +75,7 @@ export class WorkerPool {
   readonly inputs: number;
   readonly outputs: number;
   /** The engine the workers settled on. */
-  readonly engine: 'js' | 'wasm' | 'fast';
+  readonly engine: 'js' | 'wasm' | 'fast' | 'int8';
   /** Workers started to replace ones that died, since the pool opened. */
   replacements = 0;
 
@@ -88,7 +88,7 @@ export class WorkerPool {
     private readonly setup: WorkerSetup,
     private readonly script: string | URL,
     size: number,
-    ready: { engine: 'js' | 'wasm' | 'fast'; inputs: number; outputs: number },
+    ready: { engine: 'js' | 'wasm' | 'fast' | 'int8'; inputs: number; outputs: number },
     minShareRows: number,
   ) {
     this.size = size;
@@ -277,9 +277,9 @@ export class WorkerPool {
 }
 
 /** Start one worker; `ready` settles when it has opened the model (or could not). */
-function startWorker(script: string | URL, setup: WorkerSetup): { worker: Worker; ready: Promise<{ engine: 'js' | 'wasm' | 'fast'; inputs: number; outputs: number }> } {
+function startWorker(script: string | URL, setup: WorkerSetup): { worker: Worker; ready: Promise<{ engine: 'js' | 'wasm' | 'fast' | 'int8'; inputs: number; outputs: number }> } {
   const worker = new Worker(script, { workerData: setup });
-  const ready = new Promise<{ engine: 'js' | 'wasm' | 'fast'; inputs: number; outputs: number }>((resolve, reject) => {
+  const ready = new Promise<{ engine: 'js' | 'wasm' | 'fast' | 'int8'; inputs: number; outputs: number }>((resolve, reject) => {
     const onMessage = (message: FromWorker): void => {
       if (message.kind === 'ready') {
         worker.off('message', onMessage);

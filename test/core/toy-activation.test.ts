@@ -60,7 +60,7 @@ describe('a toy activation registered through the catalogue alone', () => {
     byHand.forEach((v, i) => expect(y[i]).toBeCloseTo(v, 12));
   });
 
-  const engines: RuntimeEngine[] = ['js', 'wasm', 'fast'];
+  const engines: ('js' | 'wasm' | 'fast')[] = ['js', 'wasm', 'fast'];
   for (const engine of engines) {
     it(`runs on the ${engine} engine: values by hand, and parity with the reference per layer`, async () => {
       if (engine === 'fast' && !wasmSimdAvailable()) throw new Error('this runtime lacks WebAssembly SIMD; the fast engine cannot be tested');

@@ -306,6 +306,16 @@ describe('content checks report every problem at once', () => {
       w.data = w.data.subarray(0, 12);
       w.scales = [1, 1];
     }, 'layers[0].dense.weight', /2 scales, expected one per column \(4\)/],
+    // A zero scale would silently zero its column's codes; negative, NaN and infinite ones are nonsense.
+    ...([['zero', 0], ['negative', -0.5], ['NaN', Number.NaN], ['infinite', Infinity]] as const).map(
+      ([what, bad]) =>
+        [`i8 ${what} scale`, (r: RawModel) => {
+          const w = r.layers[0].dense!.weight!;
+          w.dtype = DTYPE_CODES.i8;
+          w.data = w.data.subarray(0, 12);
+          w.scales = [0.5, 0.25, bad, 1];
+        }, 'layers[0].dense.weight.scales', /1 zero, negative or non-finite scale value \(first at element 2/] as [string, (r: RawModel) => void, string, RegExp],
+    ),
   ])('%s', (_name, edit, where, message) => {
     const file = crafted(everyKindDoc(), edit);
     const problems = problemsOf(() => decodeModel(file, 'bad.tdn'));

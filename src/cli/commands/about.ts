@@ -1,3 +1,4 @@
+import { bestInt8Arith, kernelDescription } from '../../engine/index.js';
 import { readModelFile } from '../../format/index.js';
 import { modelFacts, type ModelFacts } from '../../model/facts.js';
 import { noExtraPositionals, parseArgs, requirePositional } from '../args.js';
@@ -22,7 +23,11 @@ export const about: Command = {
     const read = await readModelFile(path);
     const facts = modelFacts(read.doc, { path, checksum: read.checksum, bytes: read.bytes, version: `${read.version.major}.${read.version.minor}` });
     const costs = f.costs ? storageCost(read.doc) : null;
-    io.out(f.json ? JSON.stringify(costs ? { ...facts, storageCosts: costs } : facts, null, 2) + '\n' : describe(facts) + (costs ? '\n' + describeStorageCosts(costs) : ''));
+    // What `--engine auto` runs this file on here: int8 for an i8-stored model, else the float32 kernel.
+    const engine = read.doc.storage === 'i8' && bestInt8Arith() !== null ? 'int8' : 'fast';
+    const runs = { engine, kernel: kernelDescription(engine) };
+    const line = `engine under --engine auto: ${runs.engine} (${runs.kernel})\n`;
+    io.out(f.json ? JSON.stringify({ ...facts, runs, ...(costs ? { storageCosts: costs } : {}) }, null, 2) + '\n' : describe(facts) + line + (costs ? '\n' + describeStorageCosts(costs) : ''));
     return 0;
   },
 };

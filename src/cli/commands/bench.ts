@@ -9,7 +9,7 @@ import { reportFormat, writeBenchReport } from '../report-files.js';
 
 const flags = {
   batch: { kind: 'string', help: 'comma-separated rows per call to measure', default: '1,32,256,1024' },
-  engine: { kind: 'string', help: 'auto, fast, wasm or js', default: 'auto' },
+  engine: { kind: 'string', help: 'auto, fast, int8, wasm or js', default: 'auto' },
   ms: { kind: 'integer', help: 'measuring time per batch size, in milliseconds', default: 1000 },
   json: { kind: 'boolean', help: 'print the rows as JSON' },
   report: { kind: 'string', help: 'also time plain tfjs ops and the float64 reference on the same rows and write all as one HTML page (FILE.html)' },
@@ -18,7 +18,7 @@ const flags = {
 export const bench: Command = {
   name: 'bench',
   summary: "measure a model's throughput and latency on this machine: rows/s, GFLOP/s, p50/p99, memory, tensors",
-  usage: 'tendon bench MODEL [--batch LIST] [--engine js|wasm|auto] [--ms N] [--json] [--report FILE.html]',
+  usage: 'tendon bench MODEL [--batch LIST] [--engine js|wasm|fast|int8|auto] [--ms N] [--json] [--report FILE.html]',
   flags,
   async run(argv, io) {
     const { flags: f, positionals } = parseArgs(argv, flags);
@@ -36,8 +36,8 @@ export const bench: Command = {
     // Baselines first: they run on the js backend, and the engine below switches to its own.
     const baselines = f.report ? await benchBaselines(doc, { batches, minMs }) : null;
     const choice = parseEngine(f.engine);
-    // 'auto' measures what a service would get from openModel: fast, else wasm, else js.
-    const engine = choice === 'auto' ? (await resolveEngine('auto')).engine : choice;
+    // 'auto' measures what a service would get from openModel: int8 for an i8-stored model, else fast, else wasm, else js.
+    const engine = choice === 'auto' ? (await resolveEngine('auto', doc)).engine : choice;
     const rows = await benchModel(doc, { batches, engine, minMs });
     const text = f.json ? JSON.stringify(rows, null, 2) : formatBenchRows(rows);
     io.out(text.endsWith('\n') ? text : text + '\n');

@@ -1,4 +1,4 @@
-import { randomInputs, type ParityReport } from '../../check/index.js';
+import { INT8_SIGMAS, randomInputs, type ParityReport } from '../../check/index.js';
 import { UsageError } from '../../errors.js';
 import { readModelFile } from '../../format/index.js';
 import { compareOutputs, costVerdict, SHRINK_TOLERANCE, type OutputComparison } from '../../transform/index.js';
@@ -16,7 +16,7 @@ const flags = {
   input: { kind: 'string', short: 'i', help: 'rows to check on (.csv, .jsonl, .npy); default: seeded random rows' },
   rows: { kind: 'integer', help: 'random rows when no --input is given', default: 256 },
   seed: { kind: 'integer', help: 'seed for the random rows', default: 1 },
-  engine: { kind: 'string', help: 'auto, fast, wasm or js', default: 'auto' },
+  engine: { kind: 'string', help: 'auto, fast, int8, wasm or js', default: 'auto' },
   json: { kind: 'boolean', help: 'print the report as JSON' },
   target: { kind: 'string', short: 't', help: 'with --input: the class column; also report accuracy and calibration error (ECE, 15 bins) on those labelled rows' },
   report: { kind: 'string', help: 'also write the per-layer errors against the tolerance as one HTML page (FILE.html)' },
@@ -29,7 +29,7 @@ const MAX_CHECK_ROWS = 100_000;
 export const check: Command = {
   name: 'check',
   summary: 'prove the engine against the float64 reference, per layer and at the output (exit 1 if a tolerance breaks)',
-  usage: 'tendon check MODEL [--input FILE [--target COLUMN]] [--rows N] [--json] [--engine js|wasm|auto] [--against PARENT] [--report FILE.html]',
+  usage: 'tendon check MODEL [--input FILE [--target COLUMN]] [--rows N] [--json] [--engine js|wasm|fast|int8|auto] [--against PARENT] [--report FILE.html]',
   flags,
   async run(argv, io) {
     const { flags: f, positionals } = parseArgs(argv, flags);
@@ -46,9 +46,9 @@ export const check: Command = {
       const input = f.input ? await readInput(model, f.input) : undefined;
       const report = model.check(input ?? { x: randomInputs(model.doc, rows, f.seed ?? 1), rows });
       const labelled = f.input && f.target !== undefined ? await labelledQuality(model, f.input, f.target) : null;
-      if (f.json) io.out(JSON.stringify({ model: path, engine: model.engine, ...report, ...(labelled ? { labelled } : {}) }, null, 2) + '\n');
+      if (f.json) io.out(JSON.stringify({ model: path, engine: model.engine, kernel: model.kernel, ...report, ...(labelled ? { labelled } : {}) }, null, 2) + '\n');
       else {
-        io.out(describeParity(report, `${path} on the ${model.engine} engine, ${report.output.rows} rows${f.input ? ` from ${f.input}` : ' (seeded random)'}`));
+        io.out(describeParity(report, `${path} on the ${model.engine} engine (${model.kernel}), ${report.output.rows} rows${f.input ? ` from ${f.input}` : ' (seeded random, not representative of real inputs)'}`, model.engine === 'int8'));
         if (labelled) io.out(describeLabelled(labelled, f.input ?? ''));
       }
       if (f.report) await writeCheckReport(f.report, path, model.engine, report, f.input ? `from ${f.input}` : '(seeded random)');
@@ -78,7 +78,7 @@ async function readInput(model: Pick<TendonModel, 'doc' | 'inputs'>, file: strin
 }
 
 /** The parity report as a table people can read. */
-export function describeParity(report: ParityReport, title: string): string {
+export function describeParity(report: ParityReport, title: string, integer = false): string {
   const rows = report.layers.map((l) => [
     String(l.index),
     l.kind,
@@ -90,7 +90,9 @@ export function describeParity(report: ParityReport, title: string): string {
   const agreement = report.output.topClassAgreement;
   return (
     `parity: ${title}\n` +
-    `float32 engine vs float64 reference; tolerance abs ${report.tolerance.abs}, rel ${report.tolerance.rel}\n\n` +
+    (integer
+      ? `int8 engine vs float64 reference on the stored weights; each element within ${INT8_SIGMAS} deviations of its activation quantisation (widest allowance ${sci(report.tolerance.abs)}) plus float32 tolerance\n\n`
+      : `float32 engine vs float64 reference; tolerance abs ${report.tolerance.abs}, rel ${report.tolerance.rel}\n\n`) +
     textTable(['#', 'layer', 'max abs err', 'max rel err', 'verdict'], rows) +
     (agreement === null ? '' : `top class agrees on ${percent(agreement, 2)} of rows\n`) +
     `${report.pass ? 'PASS' : 'FAIL'}: ${report.pass ? 'every layer within tolerance' : 'a tolerance is broken'}\n`

@@ -6,13 +6,13 @@ import { parseEngine } from './engine-flag.js';
 const flags = {
   dir: { kind: 'string', help: 'folder for the demo\'s model files (default: a new temporary folder)' },
   seed: { kind: 'integer', help: 'seed of the invented data and the initial weights', default: 7 },
-  engine: { kind: 'string', help: 'auto, fast, wasm or js', default: 'auto' },
+  engine: { kind: 'string', help: 'auto, fast, int8, wasm or js', default: 'auto' },
 } as const;
 
 export const demo: Command = {
   name: 'demo',
   summary: 'the whole job on an invented, seeded bakery: pack, train, score, prove parity, fine-tune for a second site',
-  usage: 'tendon demo [--dir DIR] [--seed N] [--engine js|wasm|auto]',
+  usage: 'tendon demo [--dir DIR] [--seed N] [--engine js|wasm|fast|int8|auto]',
   flags,
   async run(argv, io) {
     const { flags: f, positionals } = parseArgs(argv, flags);

@@ -1,11 +1,11 @@
 import { ENGINE_CHOICES, type EngineChoice } from '../../engine/index.js';
 import { UsageError } from '../../errors.js';
 
-/** The --engine flag: auto (fast, else wasm, else js), fast (own SIMD kernel), wasm (tfjs SIMD) or js (tfjs CPU). */
+/** The --engine flag: auto (int8 for an i8-stored model, else fast, else wasm, else js), fast (own SIMD kernel), int8 (integer kernel), wasm (tfjs SIMD) or js (tfjs CPU). */
 export function parseEngine(value: string | undefined): EngineChoice {
   const v = value ?? 'auto';
   if (!(ENGINE_CHOICES as readonly string[]).includes(v)) throw new UsageError('--engine', `must be one of ${ENGINE_CHOICES.join(', ')}, got "${v}"`);
   return v as EngineChoice;
 }
 
-export const ENGINE_HELP = 'auto, fast, wasm or js';
+export const ENGINE_HELP = 'auto, fast, int8, wasm or js';

@@ -1,3 +1,4 @@
+import { availableParallelism } from 'node:os';
 import { UsageError } from '../../errors.js';
 import { openTableWriter } from '../../io/index.js';
 import { DriftMonitor, describeDrift } from '../../drift/index.js';
@@ -12,7 +13,7 @@ const flags = {
   input: { kind: 'string', short: 'i', help: 'rows to score: .csv, .jsonl or .npy (2-D)' },
   output: { kind: 'string', short: 'o', help: 'where to write the scores: .csv, .jsonl or .npy' },
   batch: { kind: 'integer', help: 'rows read and scored at a time (bounds memory)', default: 4096 },
-  engine: { kind: 'string', help: 'auto, fast, wasm or js', default: 'auto' },
+  engine: { kind: 'string', help: 'auto, fast, int8, wasm or js', default: 'auto' },
   shard: { kind: 'string', help: 'K/N: score only the K-th (1-based) of N contiguous row ranges, for one task of an indexed batch job' },
   drift: { kind: 'boolean', help: 'after scoring, print per-feature drift against the model\'s normalisation statistics to stderr' },
 } as const;
@@ -20,7 +21,7 @@ const flags = {
 export const score: Command = {
   name: 'score',
   summary: 'score a data file with a model, streaming, one output row per input row',
-  usage: 'tendon score MODEL --input FILE --output FILE [--batch N] [--engine js|wasm|auto] [--shard K/N] [--drift]',
+  usage: 'tendon score MODEL --input FILE --output FILE [--batch N] [--engine js|wasm|fast|int8|auto] [--shard K/N] [--drift]',
   flags,
   async run(argv, io) {
     const { flags: f, positionals } = parseArgs(argv, flags);
@@ -31,7 +32,8 @@ export const score: Command = {
     const batch = f.batch ?? 4096;
     if (batch < 1) throw new UsageError('--batch', `must be at least 1, got ${batch}`);
     const shard = f.shard === undefined ? null : parseShard(f.shard);
-    const model = await openModel(path, { engine: parseEngine(f.engine), chunkRows: Math.min(batch, 4096) });
+    // Every core: the int8 engine splits each batch's rows across threads (the others run on one).
+    const model = await openModel(path, { engine: parseEngine(f.engine), chunkRows: Math.min(batch, 4096), threads: availableParallelism() });
     try {
       const drift = f.drift ? DriftMonitor.forModel(model.doc) : null;
       if (f.drift && !drift) io.err('tendon score: --drift: the model has no fitted normalisation statistics to compare with\n');
@@ -60,7 +62,7 @@ export const score: Command = {
         throw error;
       }
       const seconds = (performance.now() - started) / 1000;
-      io.err(`scored ${grouped(rows)} rows${part} into ${output} in ${seconds.toFixed(2)} s on the ${model.engine} engine\n`);
+      io.err(`scored ${grouped(rows)} rows${part} into ${output} in ${seconds.toFixed(2)} s on the ${model.engine} engine (${model.kernel})\n`);
       if (drift) io.err(describeDrift(drift.report()));
       return 0;
     } finally {

@@ -82,6 +82,7 @@ export const tune: Command = {
     const holdoutData = f['holdout-file'] ? await loadTrainingData(doc, f['holdout-file'], targets) : undefined;
     const replay = f.replay ? await loadTrainingData(doc, f.replay, targets) : undefined;
     const choice = parseEngine(f.engine);
+    if (choice === 'int8') throw new UsageError('--engine', 'training runs in float32; int8 is an inference engine (use auto, fast, wasm or js)');
     // auto: tune picks the fast kernel when the model allows it; js / wasm: the tfjs engine path.
     if (choice === 'js' || choice === 'wasm') await useEngine(choice);
     else await useEngine('auto');

@@ -42,7 +42,8 @@ export interface KernelOptions {
   readonly fused?: boolean;
 }
 
-function denseFunction(fused: boolean): FunctionDef {
+/** The float32 dense step as a module function (also emitted into the shared-memory plans). */
+export function denseFunction(fused: boolean): FunctionDef {
   // Locals after the 8 parameters, i32 first, then v128.
   let next = 8;
   const i32Local = (): number => next++;
@@ -277,14 +278,15 @@ export function relaxedMaddAvailable(): boolean {
 interface WasmMemory {
   readonly buffer: ArrayBuffer;
 }
-interface WasmApi {
+export interface WasmApi {
   readonly Module: new (bytes: Uint8Array) => object;
   readonly validate: (bytes: Uint8Array) => boolean;
   readonly Instance: new (module: object, imports: object) => { readonly exports: Record<string, unknown> };
+  readonly Memory: new (descriptor: { initial: number; maximum?: number; shared?: boolean }) => { readonly buffer: ArrayBuffer | SharedArrayBuffer };
 }
 
 /** The one typed adapter over the untyped global. */
-function wasmApi(): WasmApi {
+export function wasmApi(): WasmApi {
   const api: unknown = Reflect.get(globalThis, 'WebAssembly');
   if (typeof api !== 'object' || api === null) throw new Error('WebAssembly is not available in this runtime');
   const typed: WasmApi = Reflect.get(globalThis, 'WebAssembly');

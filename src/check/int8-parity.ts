@@ -1,0 +1,94 @@
+/**
+ * Parity of the integer engine: its outputs, layer by layer, against the float64 reference on the
+ * model's stored (dequantised) weights, each element held to the deviation its activation
+ * quantisation carries (derived in tolerance.ts), plus the float32 tolerance.
+ */
+import { modelWidths, type ModelDoc } from '../model/index.js';
+import { normalise64, referenceForward, toMat64 } from '../reference/index.js';
+import { topClassAgreement } from './compare.js';
+import type { Runner } from '../engine/index.js';
+import type { LayerParity, OutputParity, ParityReport } from './parity.js';
+import { FLOAT32_TOLERANCE, INT8_LIPSCHITZ, int8Allowed, int8RoundingVariance, relativeError } from './tolerance.js';
+
+/**
+ * Run the integer engine (`session`) and the reference on `x` (rows x inputs raw features).
+ * The report's `tolerance.abs` is the widest per-element allowance met anywhere.
+ * @example int8ParityReport(doc, randomInputs(doc, 256, 1), 256, new Int8Session(doc)).pass
+ */
+export function int8ParityReport(doc: ModelDoc, x: Float32Array, rows: number, session: Pick<Runner, 'runLayers'>): ParityReport {
+  const widths = modelWidths(doc);
+  const engineLayers = session.runLayers(x, rows);
+  const ref = referenceForward(doc, toMat64(x, rows, doc.inputs), { keepLayers: true });
+  const refLayers = ref.layers ?? [];
+  let input = normalise64(doc.normalise, toMat64(x, rows, doc.inputs)).data;
+  let carried = new Float64Array(rows * widths[0]);
+  let widest = 0;
+  const layers: LayerParity[] = doc.layers.map((layer, i) => {
+    const inW = widths[i];
+    const outW = widths[i + 1];
+    let bound = new Float64Array(rows * outW);
+    if (layer.kind === 'dense') {
+      const lipschitz = INT8_LIPSCHITZ[layer.activation](layer.alpha);
+      for (let r = 0; r < rows; r++) {
+        const e = carried.subarray(r * inW, (r + 1) * inW);
+        let maxE = 0;
+        for (let k = 0; k < inW; k++) maxE = Math.max(maxE, e[k]);
+        const rounding = int8RoundingVariance(input.subarray(r * inW, (r + 1) * inW), maxE);
+        let rowMax = 0;
+        for (let n = 0; n < outW; n++) {
+          let v = 0;
+          for (let k = 0; k < inW; k++) {
+            const w = layer.weight[k * outW + n];
+            v += w * w * (e[k] * e[k] + rounding);
+          }
+          bound[r * outW + n] = Math.sqrt(v);
+          rowMax = Math.max(rowMax, bound[r * outW + n]);
+        }
+        // Softmax mixes a row: its deviation is taken from the row's largest input deviation.
+        if (layer.activation === 'softmax') bound.fill(rowMax * lipschitz, r * outW, (r + 1) * outW);
+        else for (let n = 0; n < outW; n++) bound[r * outW + n] *= lipschitz;
+      }
+    } else if (layer.kind === 'batchnorm') {
+      for (let r = 0; r < rows; r++) {
+        for (let c = 0; c < outW; c++) bound[r * outW + c] = carried[r * inW + c] * Math.abs(layer.gamma[c] / Math.sqrt(layer.runningVariance[c] + layer.epsilon));
+      }
+    } else {
+      bound = Float64Array.from(carried);
+    }
+    const got = engineLayers[i];
+    const want = refLayers[i].data;
+    let maxAbs = 0;
+    let maxRel = 0;
+    let worst = -1;
+    let worstRatio = -1;
+    for (let j = 0; j < want.length; j++) {
+      const allowed = int8Allowed(bound[j], want[j]);
+      widest = Math.max(widest, allowed);
+      const diff = Math.abs(got[j] - want[j]);
+      const ratio = Number.isNaN(got[j]) !== Number.isNaN(want[j]) ? Infinity : Number.isNaN(diff) ? 0 : diff / allowed;
+      maxAbs = Math.max(maxAbs, ratio === Infinity ? Infinity : diff || 0);
+      maxRel = Math.max(maxRel, ratio === Infinity ? Infinity : relativeError(got[j], want[j]) || 0);
+      if (ratio > worstRatio) {
+        worstRatio = ratio;
+        worst = j;
+      }
+    }
+    carried = bound;
+    input = want;
+    return { index: i, kind: layer.kind, maxAbs, maxRel, worstRow: worst < 0 ? -1 : Math.floor(worst / outW), worstCol: worst < 0 ? -1 : worst % outW, worstRatio: Math.max(worstRatio, 0), pass: worstRatio <= 1 };
+  });
+  const outCols = widths[widths.length - 1];
+  const last = layers[layers.length - 1];
+  const engineOut = engineLayers[engineLayers.length - 1];
+  const output: OutputParity = {
+    maxAbs: last.maxAbs,
+    maxRel: last.maxRel,
+    worstRow: last.worstRow,
+    worstCol: last.worstCol,
+    worstRatio: last.worstRatio,
+    pass: last.pass,
+    topClassAgreement: outCols > 1 && rows > 0 ? topClassAgreement(engineOut, ref.y.data, rows, outCols) : null,
+    rows,
+  };
+  return { layers, output, tolerance: { abs: widest, rel: FLOAT32_TOLERANCE.rel }, pass: layers.every((l) => l.pass) };
+}

@@ -1,0 +1,104 @@
+/**
+ * Inference in integer arithmetic: int8 weights (the codes an i8 file stores), activations
+ * quantised per row on the fly, 32-bit integer sums, dequantise + bias + ReLU fused at the store
+ * (see kernels.ts for the arithmetic and its overflow bound). The same surface as FastSession,
+ * plus which kernel runs and on how many threads.
+ *
+ * Per row, not per batch: a per-batch activation range would make a row's answer depend on the
+ * other rows it was batched with (a service would answer the same row differently under load).
+ */
+import type { ModelDoc } from '../../model/index.js';
+import type { Runner } from '../runner.js';
+import { SharedSession } from '../shared-session.js';
+import { bestInt8Arith, INT8_KERNEL_NAMES, type Int8Arith } from './kernels.js';
+
+export interface Int8SessionOptions {
+  /** Threads, the caller included. Default 1. */
+  readonly threads?: number;
+  /** Rows per pass; default 256 per thread. */
+  readonly chunkRows?: number;
+  /** Names the model in errors. */
+  readonly source?: string;
+  /** Force an arithmetic (tests and benchmarks); default the best this runtime validates. */
+  readonly arith?: Int8Arith;
+}
+
+/**
+ * @example
+ * const s = new Int8Session(doc, { threads: 2 });
+ * await s.ready();
+ * const y = s.run(features, rows); // Float32Array rows x outputs
+ * s.kernel // "relaxed i8 dot, i16x8.relaxed_dot_i8x16_i7x16_s"
+ * @throws ModelFileError when the document is not usable or a layer is too wide for 32-bit sums;
+ *   Error when this runtime has no WebAssembly SIMD.
+ */
+export class Int8Session implements Runner {
+  readonly engine = 'int8' as const;
+  readonly inputs: number;
+  readonly outputs: number;
+  readonly arith: Int8Arith;
+  private readonly shared: SharedSession;
+  private readonly options: Int8SessionOptions;
+
+  constructor(
+    readonly doc: ModelDoc,
+    opts: Int8SessionOptions = {},
+  ) {
+    const arith = opts.arith ?? bestInt8Arith();
+    if (arith === null) throw new Error('the int8 engine needs WebAssembly SIMD, which this runtime lacks');
+    this.arith = arith;
+    this.options = opts;
+    this.shared = new SharedSession(doc, { arith, threads: opts.threads, chunkRows: opts.chunkRows, source: opts.source });
+    this.inputs = this.shared.inputs;
+    this.outputs = this.shared.outputs;
+  }
+
+  /** Which kernel runs, in words. */
+  get kernel(): string {
+    return INT8_KERNEL_NAMES[this.arith];
+  }
+
+  /** Whether the weights are the file's own int8 codes for every dense layer. */
+  get storedCodes(): boolean {
+    return this.shared.codes.every((c) => c === 'stored');
+  }
+
+  get threads(): number {
+    return this.shared.threads;
+  }
+
+  get chunkRows(): number {
+    return this.shared.chunkRows;
+  }
+
+  /** Resolves once the helper threads have started. */
+  ready(): Promise<void> {
+    return this.shared.ready();
+  }
+
+  /**
+   * Inference on raw features (rows x inputs, row-major); returns a new rows x outputs array.
+   * @throws ShapeError when data does not hold rows x inputs values.
+   */
+  run(data: Float32Array, rows: number): Float32Array {
+    return this.shared.run(data, rows);
+  }
+
+  /** Each layer's output, from the model cut after that layer, for the parity report. */
+  runLayers(data: Float32Array, rows: number): Float32Array[] {
+    return this.doc.layers.map((_, i) => {
+      if (i === this.doc.layers.length - 1) return this.run(data, rows);
+      const prefix: ModelDoc = { ...this.doc, layers: this.doc.layers.slice(0, i + 1), labels: null };
+      const cut = new Int8Session(prefix, { ...this.options, threads: 1 });
+      try {
+        return cut.run(data, rows);
+      } finally {
+        cut.dispose();
+      }
+    });
+  }
+
+  dispose(): void {
+    this.shared.dispose();
+  }
+}

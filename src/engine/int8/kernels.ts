@@ -1,0 +1,465 @@
+/**
+ * The integer micro-kernels, emitted as WebAssembly functions: activations quantised per row on
+ * the fly, int8 weights times 7-bit activations summed in 32-bit integers, and dequantise + bias
+ * + ReLU fused at the store. Two arithmetics give the same integers (so the same outputs, bit for
+ * bit): the relaxed-SIMD i8 dot (16 multiply-adds per instruction) and the standard i16 dot (8).
+ *
+ * Activations (Jacob et al., CVPR 2018: real = scale · (q - zero)): per row, the range
+ * [min(0, min x), max(0, max x)] maps onto the codes 0..127, scale = (max - min) / 127 and
+ * zero = round(-min / scale), so 0 is exact and ReLU outputs (min 0) use all 127 steps. Codes stay
+ * in [0, 127] because the relaxed dot is only deterministic when its second operand's bytes have
+ * the top bit clear (relaxed-SIMD proposal); the i16 path uses the same codes so both agree.
+ *
+ * Weights: the int8 codes and per-output-column scales `shrink --store i8` writes (W ≈ code · ws).
+ * A row's output column n is
+ *     y = ((Σ_k q_k · code_kn) - zero · Σ_k code_kn) · scale · ws_n + b_n
+ * with the integer part exact, then three float32 roundings (the conversion and two products)
+ * and one for the bias: the JS twins below repeat exactly these steps, so kernel and twin agree
+ * bit for bit; which rows share a batch never matters (integer sums have no order).
+ *
+ * Overflow bound (why MAX_INT8_INPUTS): a code lies in [-128, 127] (the writer never emits -128 but
+ * a reader accepts it) and an activation code in [0, 127], so one product is at most
+ * 128 · 127 = 16256 in magnitude, two of them (the relaxed dot's 16-bit intermediate) at most
+ * 32512 < 32767, and a sum over K inputs at most 16256 · K. zero · Σ code is bounded the same
+ * way (zero <= 127, |Σ code| <= 128 K), and their difference Σ (q - zero) · code too
+ * (|q - zero| <= 127). All three fit a signed 32-bit lane while 16256 · K <= 2^31 - 1, that is
+ * K <= 132104; widths are padded to multiples of 16, so the widest accepted layer has 132096
+ * (padded) inputs. A wider layer is refused by the session, by name.
+ */
+import { Code, F32, I32, V128, moduleBytes, type FunctionDef } from '../fast/wasm-emit.js';
+import { wasmApi } from '../fast/dense-kernel.js';
+import { setFlagsFromString } from 'node:v8';
+
+/** Widest (padded) input width whose int32 accumulators cannot overflow; see the bound above. */
+export const MAX_INT8_INPUTS = 132096;
+
+/** Which integer dot product a kernel is built on. */
+export type Int8Arith = 'relaxed' | 'i16';
+
+/** Bytes of one activation code in the quantised rows each arithmetic reads. */
+export const CODE_BYTES: Readonly<Record<Int8Arith, number>> = { relaxed: 1, i16: 2 };
+
+/** Register tile: rows x (4 · COL_VECTORS) outputs; 4 x 8 keeps 8 accumulators, 2 weight vectors and a splat in registers. */
+export const TILE_ROWS = 4;
+export const COL_VECTORS = 2;
+/** Columns per weight panel. */
+export const PANEL = 4 * COL_VECTORS;
+
+class Locals {
+  private next: number;
+  readonly types: number[] = [];
+  constructor(params: number) {
+    this.next = params;
+  }
+  add(type: number): number {
+    this.types.push(type);
+    return this.next++;
+  }
+  many(type: number, n: number): number[] {
+    return Array.from({ length: n }, () => this.add(type));
+  }
+}
+
+/**
+ * quantise(src, srcStride, rows, width, dst, dstStride, params): each row of `width` float32s
+ * (a multiple of 16) becomes codes in [0, 127] (one byte, or one i16 for the i16 arithmetic) at
+ * dst, and (scale float32, zero int32) at params + 8 · row. A NaN anywhere in a row makes its
+ * scale NaN, so every output of that row is NaN (never a finite guess).
+ */
+export function quantiseFunction(arith: Int8Arith): FunctionDef {
+  const SRC = 0, SSTRIDE = 1, ROWS = 2, WIDTH = 3, DST = 4, DSTRIDE = 5, PARAMS = 6;
+  const l = new Locals(7);
+  const R = l.add(I32), C = l.add(I32), SP = l.add(I32), DP = l.add(I32), Z = l.add(I32);
+  const MN = l.add(F32), MX = l.add(F32), S = l.add(F32), INV = l.add(F32);
+  const VMIN = l.add(V128), VMAX = l.add(V128), V = l.add(V128), VINV = l.add(V128), VZ = l.add(V128);
+  const LO = l.add(V128), HI = l.add(V128);
+  const c = new Code();
+  c.i32(0).set(R);
+  c.block().loop();
+  {
+    c.get(R).get(ROWS).geU().brIf(1);
+    c.get(SRC).get(R).get(SSTRIDE).mul().add().set(SP);
+    // Pass 1: the row's range, widened to include 0.
+    c.v128Zero().tee(VMIN).set(VMAX);
+    c.i32(0).set(C);
+    c.block().loop();
+    {
+      c.get(SP).get(C).add().v128Load(0).set(V);
+      c.get(VMIN).get(V).f32x4Min().set(VMIN);
+      c.get(VMAX).get(V).f32x4Max().set(VMAX);
+      c.get(C).i32(16).add().tee(C).get(WIDTH).i32(4).mul().ltU().brIf(0);
+    }
+    c.end().end();
+    c.get(VMIN).f32x4ExtractLane(0).get(VMIN).f32x4ExtractLane(1).f32Min().get(VMIN).f32x4ExtractLane(2).get(VMIN).f32x4ExtractLane(3).f32Min().f32Min().set(MN);
+    c.get(VMAX).f32x4ExtractLane(0).get(VMAX).f32x4ExtractLane(1).f32Max().get(VMAX).f32x4ExtractLane(2).get(VMAX).f32x4ExtractLane(3).f32Max().f32Max().set(MX);
+    // scale = (max - min) / 127, or 1 for an all-zero row (any scale decodes zeros to zero).
+    c.get(MX).get(MN).f32Sub().f32(127).f32Div().set(S);
+    c.f32(1).get(S).get(S).f32(0).f32Eq().select().set(S);
+    c.f32(1).get(S).f32Div().set(INV);
+    c.get(MN).f32Neg().get(INV).f32Mul().f32Nearest().i32TruncSatF32().set(Z);
+    c.get(PARAMS).get(R).i32(8).mul().add().set(DP);
+    c.get(DP).get(S).f32Store(0);
+    c.get(DP).get(Z).i32Store(4);
+    c.get(INV).f32x4Splat().set(VINV);
+    c.get(Z).i32x4Splat().set(VZ);
+    // Pass 2: q = clamp(nearest(x · inv) + zero, 0, 127), 16 values at a time.
+    c.get(DST).get(R).get(DSTRIDE).mul().add().set(DP);
+    c.i32(0).set(C);
+    c.block().loop();
+    {
+      const quad = (offset: number): void => {
+        c.get(SP).v128Load(offset).get(VINV).f32x4Mul().f32x4Nearest().i32x4TruncSatF32x4().get(VZ).i32x4Add();
+      };
+      quad(0);
+      quad(16);
+      c.i16x8NarrowI32x4S().set(LO);
+      quad(32);
+      quad(48);
+      c.i16x8NarrowI32x4S().set(HI);
+      if (arith === 'relaxed') {
+        // Saturating narrow to [0, 255], then the 127 cap.
+        c.get(DP).get(LO).get(HI).i8x16NarrowI16x8U().i32(127).i8x16Splat().i8x16MinU().v128Store(0);
+        c.get(DP).i32(16).add().set(DP);
+      } else {
+        for (const [half, at] of [[LO, 0], [HI, 16]] as const) {
+          c.get(DP).get(half).i32(127).i16x8Splat().i16x8MinS().v128Zero().i16x8MaxS().v128Store(at);
+        }
+        c.get(DP).i32(32).add().set(DP);
+      }
+      c.get(SP).i32(64).add().set(SP);
+      c.get(C).i32(16).add().tee(C).get(WIDTH).ltU().brIf(0);
+    }
+    c.end().end();
+    c.get(R).i32(1).add().set(R);
+    c.br(0);
+  }
+  c.end().end();
+  return { name: 'quantise', params: new Array<number>(7).fill(I32), locals: l.types, code: c };
+}
+
+/**
+ * denseI8(x, xStride, params, w, colSum, wScale, bias, y, yStride, rows, groups, outP, relu):
+ * y[r, n] = act(((Σ_k q[r,k] · code[k,n]) - zero_r · colSum[n]) · scale_r · wScale[n] + bias[n])
+ * over `rows` rows; K = 4 · groups inputs; outP a multiple of PANEL; w packed by `packInt8Weights`.
+ * Column panels outer (a panel of codes stays in L1), rows inner in tiles of TILE_ROWS.
+ */
+export function denseInt8Function(arith: Int8Arith, tileRows = TILE_ROWS, colVectors = COL_VECTORS): FunctionDef {
+  const X = 0, XSTRIDE = 1, P = 2, W = 3, CSUM = 4, WS = 5, B = 6, Y = 7, YSTRIDE = 8, ROWS = 9, GROUPS = 10, OUTP = 11, RELU = 12;
+  const l = new Locals(13);
+  const R0 = l.add(I32), J = l.add(I32), G = l.add(I32), WP = l.add(I32), WPANEL = l.add(I32), PANELBYTES = l.add(I32), YP = l.add(I32), PP = l.add(I32);
+  const XP = l.many(I32, tileRows);
+  const ACC = l.many(V128, tileRows * colVectors);
+  const WV = l.many(V128, colVectors);
+  const S = l.add(V128), LOWER = l.add(V128), ZS = l.add(V128), SS = l.add(V128);
+  const c = new Code();
+  const groupBytes = 16 * colVectors * (arith === 'relaxed' ? 1 : 2);
+  const xGroupBytes = 4 * CODE_BYTES[arith];
+
+  // ReLU as max(v, 0); "no activation" as max(v, -inf), which changes nothing (NaN stays NaN).
+  c.f32(0).f32(-Infinity).get(RELU).select().f32x4Splat().set(LOWER);
+  c.get(GROUPS).i32(groupBytes).mul().set(PANELBYTES);
+
+  const tile = (rows: number): void => {
+    for (let a = 0; a < rows * colVectors; a++) c.v128Zero().set(ACC[a]);
+    c.get(X).get(R0).get(XSTRIDE).mul().add().set(XP[0]);
+    for (let t = 1; t < rows; t++) c.get(XP[t - 1]).get(XSTRIDE).add().set(XP[t]);
+    c.get(WPANEL).set(WP);
+    c.get(GROUPS).set(G);
+    c.block().loop();
+    {
+      if (arith === 'relaxed') {
+        for (let v = 0; v < colVectors; v++) c.get(WP).v128Load(16 * v).set(WV[v]);
+        for (let t = 0; t < rows; t++) {
+          c.get(XP[t]).load32Splat(0).set(S);
+          for (let v = 0; v < colVectors; v++) {
+            const acc = ACC[t * colVectors + v];
+            c.get(acc).get(WV[v]).get(S).i16x8RelaxedDotI8x16I7x16S().i32x4ExtaddPairwiseI16x8S().i32x4Add().set(acc);
+          }
+        }
+      } else {
+        for (let h = 0; h < 2; h++) {
+          for (let v = 0; v < colVectors; v++) c.get(WP).v128Load(16 * (colVectors * h + v)).set(WV[v]);
+          for (let t = 0; t < rows; t++) {
+            c.get(XP[t]).load32Splat(4 * h).set(S);
+            for (let v = 0; v < colVectors; v++) {
+              const acc = ACC[t * colVectors + v];
+              c.get(acc).get(WV[v]).get(S).i32x4DotI16x8S().i32x4Add().set(acc);
+            }
+          }
+        }
+      }
+      for (let t = 0; t < rows; t++) c.get(XP[t]).i32(xGroupBytes).add().set(XP[t]);
+      c.get(WP).i32(groupBytes).add().set(WP);
+      c.get(G).i32(1).sub().tee(G).i32(0).ne().brIf(0);
+    }
+    c.end().end();
+    // Epilogue: zero-point correction, dequantise, bias, activation, store.
+    for (let t = 0; t < rows; t++) {
+      c.get(P).get(R0).i32(t).add().i32(8).mul().add().set(PP);
+      c.get(PP).load32Splat(4).set(ZS);
+      c.get(PP).load32Splat(0).set(SS);
+      c.get(Y).get(R0).i32(t).add().get(YSTRIDE).mul().add().get(J).i32(4).mul().add().set(YP);
+      for (let v = 0; v < colVectors; v++) {
+        c.get(ACC[t * colVectors + v]).get(ZS).get(CSUM).get(J).i32(4).mul().add().v128Load(16 * v).i32x4Mul().i32x4Sub();
+        c.f32x4ConvertI32x4().get(SS).f32x4Mul();
+        c.get(WS).get(J).i32(4).mul().add().v128Load(16 * v).f32x4Mul();
+        c.get(B).get(J).i32(4).mul().add().v128Load(16 * v).f32x4Add();
+        c.get(LOWER).f32x4Max();
+        c.set(S);
+        c.get(YP).get(S).v128Store(16 * v);
+      }
+    }
+  };
+
+  // for (J = 0; J < outP; J += PANEL, WPANEL += PANELBYTES)
+  c.i32(0).set(J);
+  c.get(W).set(WPANEL);
+  c.block().loop();
+  {
+    c.get(J).get(OUTP).geU().brIf(1);
+    c.i32(0).set(R0);
+    // Whole tiles, then the rows left over one at a time (same integers, so the same outputs).
+    c.block().loop();
+    {
+      c.get(R0).i32(tileRows).add().get(ROWS).gtU().brIf(1);
+      tile(tileRows);
+      c.get(R0).i32(tileRows).add().set(R0);
+      c.br(0);
+    }
+    c.end().end();
+    c.block().loop();
+    {
+      c.get(R0).get(ROWS).geU().brIf(1);
+      tile(1);
+      c.get(R0).i32(1).add().set(R0);
+      c.br(0);
+    }
+    c.end().end();
+    c.get(J).i32(4 * colVectors).add().set(J);
+    c.get(WPANEL).get(PANELBYTES).add().set(WPANEL);
+    c.br(0);
+  }
+  c.end().end();
+  return { name: 'dense_i8', params: new Array<number>(13).fill(I32), locals: l.types, code: c };
+}
+
+/**
+ * affine(x, stride, rows, width, scale, shift): in place over `width` floats (a multiple of 4) of
+ * each row. `order` 'scale-shift' is x · scale + shift (batch normalisation folded);
+ * 'shift-scale' is (x - shift) · scale (the model's input normalisation, as the fast engine does it).
+ */
+export function affineFunction(name: string, order: 'scale-shift' | 'shift-scale'): FunctionDef {
+  const X = 0, STRIDE = 1, ROWS = 2, WIDTH = 3, SCALE = 4, SHIFT = 5;
+  const l = new Locals(6);
+  const R = l.add(I32), C = l.add(I32), XP = l.add(I32);
+  const c = new Code();
+  c.i32(0).set(R);
+  c.block().loop();
+  {
+    c.get(R).get(ROWS).geU().brIf(1);
+    c.get(X).get(R).get(STRIDE).mul().add().set(XP);
+    c.i32(0).set(C);
+    c.block().loop();
+    {
+      c.get(XP).get(C).add();
+      if (order === 'scale-shift') {
+        c.get(XP).get(C).add().v128Load(0).get(SCALE).get(C).add().v128Load(0).f32x4Mul().get(SHIFT).get(C).add().v128Load(0).f32x4Add();
+      } else {
+        c.get(XP).get(C).add().v128Load(0).get(SHIFT).get(C).add().v128Load(0).f32x4Sub().get(SCALE).get(C).add().v128Load(0).f32x4Mul();
+      }
+      c.v128Store(0);
+      c.get(C).i32(16).add().tee(C).get(WIDTH).i32(4).mul().ltU().brIf(0);
+    }
+    c.end().end();
+    c.get(R).i32(1).add().set(R);
+    c.br(0);
+  }
+  c.end().end();
+  return { name, params: new Array<number>(6).fill(I32), locals: l.types, code: c };
+}
+
+// ---------------------------------------------------------------------------------------------
+// Weight packing.
+
+/**
+ * Pack a layer's codes (row-major [inputs, units]) for `denseInt8Function`, padded with zero codes
+ * to [kP, nP] (kP a multiple of 4, nP of PANEL). Panel p holds columns p·PANEL.. and, per group of
+ * 4 inputs, COL_VECTORS vectors of 4 columns:
+ * - relaxed: 16 bytes per vector, column j's 4 codes for inputs 4g..4g+3 in bytes 4j..4j+3 (one
+ *   i32 lane of the dot);
+ * - i16: two halves per group (inputs 4g+2h, +1), 8 i16 per vector, column j's pair in lanes 2j, 2j+1.
+ */
+export function packInt8Weights(codes: Int8Array, inputs: number, units: number, kP: number, nP: number, arith: Int8Arith): Uint8Array {
+  const groups = kP / 4;
+  const panels = nP / PANEL;
+  const code = (k: number, n: number): number => (k < inputs && n < units ? codes[k * units + n] : 0);
+  if (arith === 'relaxed') {
+    const out = new Int8Array(kP * nP);
+    for (let p = 0; p < panels; p++)
+      for (let g = 0; g < groups; g++)
+        for (let v = 0; v < COL_VECTORS; v++)
+          for (let j = 0; j < 4; j++)
+            for (let i = 0; i < 4; i++) out[((p * groups + g) * COL_VECTORS + v) * 16 + j * 4 + i] = code(4 * g + i, p * PANEL + 4 * v + j);
+    return new Uint8Array(out.buffer);
+  }
+  const out = new Int16Array(kP * nP);
+  for (let p = 0; p < panels; p++)
+    for (let g = 0; g < groups; g++)
+      for (let h = 0; h < 2; h++)
+        for (let v = 0; v < COL_VECTORS; v++)
+          for (let j = 0; j < 4; j++)
+            for (let i = 0; i < 2; i++) out[(((p * groups + g) * 2 + h) * COL_VECTORS + v) * 8 + j * 2 + i] = code(4 * g + 2 * h + i, p * PANEL + 4 * v + j);
+  return new Uint8Array(out.buffer);
+}
+
+/** Σ_k code[k, n] per column, padded with zeros to nP (the zero-point correction's factor). */
+export function columnSums(codes: Int8Array, inputs: number, units: number, nP: number): Int32Array {
+  const sums = new Int32Array(nP);
+  for (let k = 0; k < inputs; k++) for (let n = 0; n < units; n++) sums[n] += codes[k * units + n];
+  return sums;
+}
+
+// ---------------------------------------------------------------------------------------------
+// Plain JavaScript twins: the same steps, one value at a time, on unpacked codes.
+
+/** Round half to even, as f32.nearest does. */
+export function roundHalfEven(x: number): number {
+  const r = Math.round(x);
+  return Math.abs(x - Math.trunc(x)) === 0.5 && r % 2 !== 0 ? r - 1 : r;
+}
+
+/** Twin of `quantiseFunction` for one row: codes and (scale, zero), in float32 steps. */
+export function quantiseRowPlain(x: ArrayLike<number>): { codes: Uint8Array; scale: number; zero: number } {
+  let mn = 0;
+  let mx = 0;
+  for (let i = 0; i < x.length; i++) {
+    const v = x[i];
+    if (Number.isNaN(v)) mn = mx = Number.NaN;
+    else if (!Number.isNaN(mn)) {
+      mn = Math.min(mn, v);
+      mx = Math.max(mx, v);
+    }
+  }
+  let scale = Math.fround(Math.fround(mx - mn) / 127);
+  if (scale === 0) scale = 1;
+  const inv = Math.fround(1 / scale);
+  const zeroF = roundHalfEven(Math.fround(-mn * inv));
+  const zero = Number.isNaN(zeroF) ? 0 : zeroF + 0; // + 0: an integer register has no -0
+  const codes = new Uint8Array(x.length);
+  for (let i = 0; i < x.length; i++) {
+    const q = roundHalfEven(Math.fround(x[i] * inv));
+    codes[i] = Number.isNaN(q) ? Math.min(Math.max(zero, 0), 127) : Math.min(Math.max(q + zero, 0), 127);
+  }
+  return { codes, scale, zero };
+}
+
+/**
+ * Twin of `denseInt8Function` for one row against unpacked codes [inputs, units]: the integer sum
+ * exactly (in float64, far below 2^53), then the kernel's float32 roundings in its order.
+ */
+export function denseInt8RowPlain(
+  q: ArrayLike<number>,
+  scale: number,
+  zero: number,
+  codes: Int8Array,
+  wScale: Float32Array,
+  bias: Float32Array,
+  inputs: number,
+  units: number,
+  relu: boolean,
+): Float32Array {
+  const y = new Float32Array(units);
+  for (let n = 0; n < units; n++) {
+    let acc = 0;
+    let colSum = 0;
+    for (let k = 0; k < inputs; k++) {
+      acc += q[k] * codes[k * units + n];
+      colSum += codes[k * units + n];
+    }
+    const v = Math.fround(acc - zero * colSum);
+    const z = Math.fround(Math.fround(Math.fround(v * scale) * wScale[n]) + bias[n]);
+    y[n] = relu ? (Number.isNaN(z) ? z : Math.max(z, 0)) : z;
+  }
+  return y;
+}
+
+// ---------------------------------------------------------------------------------------------
+// Which integer dot product this runtime validates.
+
+let relaxedDot: boolean | null = null;
+
+/**
+ * Whether the relaxed i8 dot validates here and gives the right answers. Node 20's V8 has relaxed
+ * SIMD behind a flag, switched on first (process-wide).
+ */
+export function relaxedDotAvailable(): boolean {
+  if (relaxedDot !== null) return relaxedDot;
+  // probe(at): the relaxed step on the vectors at at, at + 16 and accumulator at + 32, stored at at + 48.
+  const code = new Code().get(0).get(0).v128Load(32).get(0).v128Load(0).get(0).v128Load(16);
+  code.i16x8RelaxedDotI8x16I7x16S().i32x4ExtaddPairwiseI16x8S().i32x4Add().v128Store(48);
+  const bytes = moduleBytes(1, [{ name: 'probe', params: [I32], locals: [], code }]);
+  const validate = (): boolean => {
+    try {
+      return wasmApi().validate(bytes);
+    } catch {
+      return false;
+    }
+  };
+  if (!validate()) {
+    try {
+      setFlagsFromString('--experimental-wasm-relaxed-simd');
+    } catch {
+      // No such flag here: the i16 dot serves.
+    }
+  }
+  relaxedDot = validate() && knownAnswer(bytes);
+  return relaxedDot;
+}
+
+/** The relaxed step gives the exact sums on extreme and mixed codes (a wrong lowering is refused, not trusted). */
+function knownAnswer(bytes: Uint8Array): boolean {
+  try {
+    const wasm = wasmApi();
+    const e = new wasm.Instance(new wasm.Module(bytes), {}).exports;
+    const memory = e.memory as { buffer: ArrayBuffer };
+    const probe = e.probe as (at: number) => void;
+    const a = Int8Array.from({ length: 16 }, (_, i) => [-128, 127, -5, 100, -128, -128, 127, 127][i % 8]);
+    const b = Uint8Array.from({ length: 16 }, (_, i) => [127, 127, 64, 1, 127, 127, 127, 127, 0, 3][i % 10]);
+    const c = Int32Array.of(1000, -7, 0, 2 ** 30);
+    new Int8Array(memory.buffer).set(a, 0);
+    new Uint8Array(memory.buffer).set(b, 16);
+    new Int32Array(memory.buffer).set(c, 8);
+    probe(0);
+    const got = new Int32Array(memory.buffer, 48, 4);
+    for (let j = 0; j < 4; j++) {
+      let want = c[j];
+      for (let i = 0; i < 4; i++) want += a[4 * j + i] * b[4 * j + i];
+      if (got[j] !== want) return false;
+    }
+    return true;
+  } catch {
+    return false;
+  }
+}
+
+/** Whether the standard i32x4.dot_i16x8_s validates (any runtime with fixed-width SIMD). */
+export function i16DotAvailable(): boolean {
+  const probe = new Code().get(0).get(1).i32x4DotI16x8S();
+  try {
+    return wasmApi().validate(moduleBytes(1, [{ name: 'probe', params: [V128, V128], results: [V128], locals: [], code: probe }]));
+  } catch {
+    return false;
+  }
+}
+
+/** The integer arithmetic to use here, best first; null when WebAssembly SIMD is missing. */
+export function bestInt8Arith(): Int8Arith | null {
+  if (relaxedDotAvailable()) return 'relaxed';
+  return i16DotAvailable() ? 'i16' : null;
+}
+
+/** What users see for each arithmetic. */
+export const INT8_KERNEL_NAMES: Readonly<Record<Int8Arith, string>> = {
+  relaxed: 'relaxed i8 dot, i16x8.relaxed_dot_i8x16_i7x16_s',
+  i16: 'i16 dot, i32x4.dot_i16x8_s',
+};

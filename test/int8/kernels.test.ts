@@ -1,0 +1,167 @@
+// The integer micro-kernels against their plain JavaScript twins on the same tiles. The twins
+// repeat the kernels' steps (exact integer sums, then the same float32 roundings in the same
+// order), so the bound is zero: every output must match bit for bit (kernels.ts states why).
+import { describe, expect, it } from 'vitest';
+import { wasmApi } from '../../src/engine/fast/dense-kernel.js';
+import { moduleBytes } from '../../src/engine/fast/wasm-emit.js';
+import {
+  CODE_BYTES,
+  columnSums,
+  denseInt8Function,
+  denseInt8RowPlain,
+  i16DotAvailable,
+  MAX_INT8_INPUTS,
+  packInt8Weights,
+  quantiseFunction,
+  quantiseRowPlain,
+  relaxedDotAvailable,
+  roundHalfEven,
+  type Int8Arith,
+} from '../../src/engine/int8/kernels.js';
+import { SeededRng } from '../../src/model/index.js';
+
+const ARITHS: Int8Arith[] = [...(relaxedDotAvailable() ? (['relaxed'] as const) : []), ...(i16DotAvailable() ? (['i16'] as const) : [])];
+
+interface Harness {
+  readonly mem: ArrayBuffer;
+  quantise(src: number, sStride: number, rows: number, width: number, dst: number, dStride: number, params: number): void;
+  dense(x: number, xs: number, p: number, w: number, cs: number, ws: number, b: number, y: number, ys: number, rows: number, groups: number, outP: number, relu: number): void;
+}
+
+function harness(arith: Int8Arith, bytes: number): Harness {
+  const pages = Math.ceil(bytes / 65536) + 1;
+  const wasm = wasmApi();
+  const inst = new wasm.Instance(new wasm.Module(moduleBytes(pages, [quantiseFunction(arith), denseInt8Function(arith)])), {});
+  const e = inst.exports as Record<string, (...a: number[]) => void> & { memory: { buffer: ArrayBuffer } };
+  return { mem: e.memory.buffer, quantise: e.quantise, dense: e.dense_i8 };
+}
+
+/** Run quantise then dense over rows x kP floats against [inputs, units] codes; returns y, codes and params. */
+function runTile(arith: Int8Arith, x: Float32Array, rows: number, kP: number, codes: Int8Array, scales: Float32Array, bias: Float32Array, inputs: number, units: number, relu: boolean) {
+  const nP = Math.ceil(units / 16) * 16;
+  const cb = CODE_BYTES[arith];
+  const packed = packInt8Weights(codes, inputs, units, kP, nP, arith);
+  let top = 0;
+  const take = (n: number) => {
+    const at = top;
+    top = Math.ceil((top + n) / 64) * 64;
+    return at;
+  };
+  const X = take(rows * kP * 4), Q = take(rows * kP * cb), P = take(rows * 8), W = take(packed.length), CS = take(nP * 4), WS = take(nP * 4), B = take(nP * 4), Y = take(rows * nP * 4);
+  const h = harness(arith, top);
+  const f32 = new Float32Array(h.mem);
+  f32.set(x, X / 4);
+  new Uint8Array(h.mem).set(packed, W);
+  new Int32Array(h.mem).set(columnSums(codes, inputs, units, nP), CS / 4);
+  const ws = new Float32Array(nP);
+  ws.set(scales);
+  f32.set(ws, WS / 4);
+  const bp = new Float32Array(nP);
+  bp.set(bias);
+  f32.set(bp, B / 4);
+  h.quantise(X, kP * 4, rows, kP, Q, kP * cb, P);
+  h.dense(Q, kP * cb, P, W, CS, WS, B, Y, nP * 4, rows, kP / 4, nP, relu ? 1 : 0);
+  const q = cb === 1 ? new Uint8Array(h.mem, Q, rows * kP) : new Int16Array(h.mem, Q, rows * kP);
+  return { y: new Float32Array(h.mem, Y, rows * nP), q: Array.from(q), params: { scale: new Float32Array(h.mem, P, rows * 2), zero: new Int32Array(h.mem, P, rows * 2) }, nP };
+}
+
+function randomCodes(rng: SeededRng, n: number): Int8Array {
+  return Int8Array.from({ length: n }, () => Math.max(-128, Math.min(127, Math.round(rng.normal() * 50))));
+}
+
+describe.each(ARITHS)('int8 kernels (%s) against their plain twins', (arith) => {
+  // Shapes reach every case: row tails (not a multiple of 4 rows), a single row, column tails,
+  // widths just past a multiple of 16, one input.
+  it.each([
+    [1, 1, 1],
+    [3, 20, 5],
+    [4, 16, 16],
+    [7, 33, 17],
+    [13, 100, 40],
+    [9, 784, 24],
+  ])('rows %i, inputs %i, units %i: quantised codes and outputs identical', (rows, inputs, units) => {
+    const rng = new SeededRng(rows * 1000 + inputs * 10 + units);
+    const kP = Math.ceil(inputs / 16) * 16;
+    const x = new Float32Array(rows * kP);
+    for (let r = 0; r < rows; r++) for (let k = 0; k < inputs; k++) x[r * kP + k] = rng.normal() * (r % 3 === 0 ? 3 : 1) + (r % 2 ? 1 : 0);
+    // One all-zero row, one all-positive row (the ReLU case: zero point 0).
+    if (rows > 2) x.fill(0, kP, 2 * kP);
+    if (rows > 3) for (let k = 0; k < inputs; k++) x[2 * kP + k] = Math.abs(x[2 * kP + k]);
+    const codes = randomCodes(rng, inputs * units);
+    const scales = Float32Array.from({ length: units }, () => 0.01 + rng.next() * 0.05);
+    const bias = Float32Array.from({ length: units }, () => rng.normal());
+    for (const relu of [false, true]) {
+      const { y, q, params, nP } = runTile(arith, x, rows, kP, codes, scales, bias, inputs, units, relu);
+      for (let r = 0; r < rows; r++) {
+        const plain = quantiseRowPlain(x.subarray(r * kP, (r + 1) * kP));
+        expect(q.slice(r * kP, (r + 1) * kP), `codes of row ${r}`).toEqual(Array.from(plain.codes));
+        expect(params.scale[2 * r]).toBe(plain.scale);
+        expect(params.zero[2 * r + 1]).toBe(plain.zero);
+        const want = denseInt8RowPlain(plain.codes, plain.scale, plain.zero, codes, scales, bias, inputs, units, relu);
+        expect(Array.from(y.subarray(r * nP, r * nP + units)), `row ${r}, relu ${relu}`).toEqual(Array.from(want));
+        // Padding columns stay zero, so a following layer's range is not disturbed.
+        for (let n = units; n < nP; n++) expect(y[r * nP + n]).toBe(0);
+      }
+    }
+  });
+
+  it('a NaN in a row makes that row NaN and leaves the others alone', () => {
+    const rng = new SeededRng(5);
+    const kP = 16;
+    const x = Float32Array.from({ length: 2 * kP }, () => rng.normal());
+    x[3] = Number.NaN;
+    const codes = randomCodes(rng, 16 * 4);
+    const { y, nP } = runTile(arith, x, 2, kP, codes, Float32Array.of(0.1, 0.1, 0.1, 0.1), new Float32Array(4), 16, 4, true);
+    for (let n = 0; n < 4; n++) expect(y[n]).toBeNaN();
+    for (let n = 0; n < 4; n++) expect(Number.isNaN(y[nP + n])).toBe(false);
+  });
+
+  it(`the widest accepted layer (${MAX_INT8_INPUTS} inputs) cannot overflow: extreme codes give the exact sums`, () => {
+    // Every weight code -128 or +127 (the extremes a reader accepts) and every activation the
+    // largest code 127: |Σ| = 16256 · 132096 = 2 147 352 576, just under 2^31 (the bound in kernels.ts).
+    const inputs = MAX_INT8_INPUTS;
+    const units = 4;
+    const codes = new Int8Array(inputs * units);
+    for (let k = 0; k < inputs; k++) {
+      codes[k * units] = -128;
+      codes[k * units + 1] = 127;
+      codes[k * units + 2] = k % 2 ? 127 : -128;
+    }
+    const x = new Float32Array(inputs).fill(1); // range [0, 1] -> every code 127, zero point 0
+    const { y, q, params } = runTile(arith, x, 1, inputs, codes, Float32Array.of(1, 1, 1, 1), new Float32Array(4), inputs, units, false);
+    expect(q[0]).toBe(127);
+    expect(params.zero[1]).toBe(0);
+    const s = params.scale[0];
+    const exact = [-128 * 127 * inputs, 127 * 127 * inputs, (127 * 127 - 128 * 127) * (inputs / 2), 0];
+    expect(Math.abs(exact[0])).toBeLessThan(2 ** 31);
+    exact.forEach((sum, n) => expect(y[n], `column ${n}`).toBe(Math.fround(Math.fround(sum) * s)));
+  });
+
+  it('negative inputs use the zero point: the sums are corrected exactly, extreme codes included', () => {
+    const inputs = 64;
+    const x = new Float32Array(inputs);
+    for (let k = 0; k < inputs; k++) x[k] = k % 2 ? -2 : 1; // range [-2, 1]: zero point 85
+    const codes = new Int8Array(inputs).fill(-128);
+    const { y, params } = runTile(arith, x, 1, inputs, codes, Float32Array.of(1), new Float32Array(1), inputs, 1, false);
+    const plain = quantiseRowPlain(x);
+    expect(params.zero[1]).toBe(plain.zero);
+    expect(plain.zero).toBe(roundHalfEven(Math.fround(2 * Math.fround(1 / plain.scale))));
+    let exact = 0;
+    for (let k = 0; k < inputs; k++) exact += (plain.codes[k] - plain.zero) * -128;
+    expect(y[0]).toBe(Math.fround(Math.fround(exact) * plain.scale));
+  });
+});
+
+describe('round half to even (as f32.nearest)', () => {
+  it.each([
+    [0.5, 0],
+    [1.5, 2],
+    [2.5, 2],
+    [-0.5, -0],
+    [-1.5, -2],
+    [2.4, 2],
+    [-2.6, -3],
+  ])('%f -> %f (IEEE 754 roundTiesToEven)', (x, want) => {
+    expect(roundHalfEven(x)).toBe(want);
+  });
+});
