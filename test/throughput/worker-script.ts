@@ -42,7 +42,7 @@ export function parseWorkerScript(): string {
   mkdirSync(dirname(out), { recursive: true });
   execFileSync(
     join(root, 'node_modules', '.bin', 'esbuild'),
-    ['src/serve/parse-worker.ts', '--bundle', '--platform=node', '--format=esm', '--target=node20', '--packages=external', `--outfile=${out}`, '--log-level=warning'],
+    ['src/serve/parse-worker.ts', '--bundle', '--platform=node', '--format=esm', '--target=node20', '--packages=external', '--loader:.proto=text', `--outfile=${out}`, '--log-level=warning'],
     { cwd: root },
   );
   bundledParser = out;
