@@ -52,6 +52,14 @@ export function bakerySpecDocument(): Omit<ModelDoc, 'layers'> & { layers: [] } 
   };
 }
 
+/** The loaves of both sites: training rows and new loaves to test on. */
+interface DemoLoaves {
+  readonly firstTrain: BakeryBatch;
+  readonly firstTest: BakeryBatch;
+  readonly secondTrain: BakeryBatch;
+  readonly secondTest: BakeryBatch;
+}
+
 export async function runDemo(opts: DemoOptions): Promise<DemoOutcome> {
   const { say } = opts;
   const dir = opts.dir ?? (await mkdtemp(join(tmpdir(), 'tendon-demo-')));
@@ -61,6 +69,7 @@ export async function runDemo(opts: DemoOptions): Promise<DemoOutcome> {
   const firstTest = bakeLoaves(FIRST_SITE, 1500, rng);
   const secondTrain = bakeLoaves(SECOND_SITE, 400, rng);
   const secondTest = bakeLoaves(SECOND_SITE, 1500, rng);
+  const loaves: DemoLoaves = { firstTrain, firstTest, secondTrain, secondTest };
 
   say(`tendon demo — an invented bakery (seed ${opts.seed}); files go to ${dir}`);
   await writeLoaves(join(dir, 'northgate-loaves.csv'), firstTrain);
@@ -68,7 +77,32 @@ export async function runDemo(opts: DemoOptions): Promise<DemoOutcome> {
   say(`sensors: ${BAKERY_FEATURES.join(', ')}  ->  quality: ${BAKERY_LABELS.join(' / ')}`);
   say('');
 
-  // 1. Pack a fresh model: weights seeded, normalisation left to be fitted from the first site's data.
+  const fresh = await packFreshModel(dir, opts);
+  const { trained, firstPath } = await trainFirstSite(fresh, firstTrain, dir, opts);
+
+  // 3. Reopen from disk, score, prove parity.
+  const model = await openModel(firstPath, { engine: opts.engine });
+  try {
+    const { firstAcc, parity } = scoreFirstSite(model, firstPath, firstTest, opts);
+    const calibration = calibrationOnNewLoaves(trained.doc, firstTest);
+    say(
+      `   calibration: temperature ${calibration.temperature.toFixed(3)} fitted on the ${trained.calibration?.rows ?? 0} hold-out loaves; ` +
+        `calibration error (ECE, 15 bins) on the ${firstTest.rows} new loaves ${calibration.eceBefore.toFixed(3)} before, ${calibration.eceAfter.toFixed(3)} after`,
+    );
+    say(`   (${CALIBRATION_CAUTION})`);
+    const explained = explainFlagged(trained.doc, firstTest, say);
+
+    const { table, kept } = await fineTuneSecondSite(model, trained.doc, firstPath, firstAcc, loaves, dir, opts);
+    if (kept) await saveFinal(kept, dir, say);
+    sayTryIt(dir, firstPath, say);
+    return { dir, firstSiteAccuracy: firstAcc, parityPass: parity.pass, table, explained, calibration };
+  } finally {
+    model.dispose();
+  }
+}
+
+/** 1. Pack a fresh model: weights seeded, normalisation left to be fitted from the first site's data. */
+async function packFreshModel(dir: string, opts: DemoOptions): Promise<ModelDoc> {
   const { buildFromSpec } = await import('../spec/spec.js');
   const fresh = await buildFromSpec(
     {
@@ -89,9 +123,13 @@ export async function runDemo(opts: DemoOptions): Promise<DemoOutcome> {
   );
   const freshPath = join(dir, 'bakery-fresh.tendon');
   await writeModelFile(freshPath, fresh);
-  say(`1. packed ${freshPath}: 7-32-16-3, ReLU hidden layers, softmax output, z-score inputs (to be fitted)`);
+  opts.say(`1. packed ${freshPath}: 7-32-16-3, ReLU hidden layers, softmax output, z-score inputs (to be fitted)`);
+  return fresh;
+}
 
-  // 2. Train at the first site.
+/** 2. Train at the first site and save the model. */
+async function trainFirstSite(fresh: ModelDoc, firstTrain: BakeryBatch, dir: string, opts: DemoOptions): Promise<{ trained: TuneResult; firstPath: string }> {
+  const { say } = opts;
   const t0 = performance.now();
   const trained = await tune(fresh, asData(firstTrain), { ...common(opts.seed), epochs: 40, holdout: 0.2, stopAfter: 8, calibrate: true, origin: 'a fresh model built in memory by the demo' }, { signal: opts.signal });
   const seconds = (performance.now() - t0) / 1000;
@@ -103,90 +141,106 @@ export async function runDemo(opts: DemoOptions): Promise<DemoOutcome> {
       `(${Math.round(last.rowsPerSecond)} rows/s), best hold-out epoch ${trained.bestEpoch + 1}${trained.stoppedEarly ? ' (stopped early)' : ''}`,
   );
   for (const d of trained.diagnostics) say(`   note: ${d.message}`);
+  return { trained, firstPath };
+}
 
-  // 3. Reopen from disk, score, prove parity.
-  const model = await openModel(firstPath, { engine: opts.engine });
-  try {
-    const firstAcc = accuracyOf(model, firstTest);
-    say(`3. reopened ${firstPath} (checksum ${model.checksum}) on the ${model.engine} engine`);
-    say(`   held-out accuracy at ${FIRST_SITE.name}: ${pct(firstAcc)} on ${firstTest.rows} new loaves`);
-    say(confusionText(model, firstTest));
-    say('   five loaves scored with model.run (raw sensor readings in, probabilities out):');
-    const sample = Array.from({ length: 5 }, (_, r) => Array.from(firstTest.x.subarray(r * 7, r * 7 + 7)));
-    const scores = model.run(sample);
-    sample.forEach((row, r) => {
-      const best = scores[r].indexOf(Math.max(...scores[r]));
-      say(
-        `     ${row.map((v) => v.toFixed(1).padStart(6)).join(' ')}  ->  ${scores[r].map((p) => p.toFixed(3)).join(' ')}  ${BAKERY_LABELS[best].padEnd(5)} (true: ${BAKERY_LABELS[firstTest.y[r]]})`,
-      );
-    });
-    const parity = model.check(undefined, opts.seed);
+/** 3 and 4. The reopened model's accuracy on new loaves, five loaves scored, and parity with the reference. */
+function scoreFirstSite(model: TendonModel, firstPath: string, firstTest: BakeryBatch, opts: DemoOptions): { firstAcc: number; parity: ReturnType<TendonModel['check']> } {
+  const { say } = opts;
+  const firstAcc = accuracyOf(model, firstTest);
+  say(`3. reopened ${firstPath} (checksum ${model.checksum}) on the ${model.engine} engine`);
+  say(`   held-out accuracy at ${FIRST_SITE.name}: ${pct(firstAcc)} on ${firstTest.rows} new loaves`);
+  say(confusionText(model, firstTest));
+  say('   five loaves scored with model.run (raw sensor readings in, probabilities out):');
+  const sample = Array.from({ length: 5 }, (_, r) => Array.from(firstTest.x.subarray(r * 7, r * 7 + 7)));
+  const scores = model.run(sample);
+  sample.forEach((row, r) => {
+    const best = scores[r].indexOf(Math.max(...scores[r]));
     say(
-      `4. parity against the float64 reference on ${parity.output.rows} rows: max abs error ${parity.output.maxAbs.toExponential(2)}, ` +
-        `max rel error ${parity.output.maxRel.toExponential(2)}, top class agrees on ${pct(parity.output.topClassAgreement ?? 1)} — ${parity.pass ? 'PASS' : 'FAIL'}`,
+      `     ${row.map((v) => v.toFixed(1).padStart(6)).join(' ')}  ->  ${scores[r].map((p) => p.toFixed(3)).join(' ')}  ${BAKERY_LABELS[best].padEnd(5)} (true: ${BAKERY_LABELS[firstTest.y[r]]})`,
     );
-    const calibration = calibrationOnNewLoaves(trained.doc, firstTest);
-    say(
-      `   calibration: temperature ${calibration.temperature.toFixed(3)} fitted on the ${trained.calibration?.rows ?? 0} hold-out loaves; ` +
-        `calibration error (ECE, 15 bins) on the ${firstTest.rows} new loaves ${calibration.eceBefore.toFixed(3)} before, ${calibration.eceAfter.toFixed(3)} after`,
-    );
-    say(`   (${CALIBRATION_CAUTION})`);
-    const explained = explainFlagged(trained.doc, firstTest, say);
+  });
+  const parity = model.check(undefined, opts.seed);
+  say(
+    `4. parity against the float64 reference on ${parity.output.rows} rows: max abs error ${parity.output.maxAbs.toExponential(2)}, ` +
+      `max rel error ${parity.output.maxRel.toExponential(2)}, top class agrees on ${pct(parity.output.topClassAgreement ?? 1)} — ${parity.pass ? 'PASS' : 'FAIL'}`,
+  );
+  return { firstAcc, parity };
+}
 
-    // 4. The second site: its sensors read differently.
-    const secondBefore = accuracyOf(model, secondTest);
-    say('');
-    say(`5. ${SECOND_SITE.name}: thermometers read ${SECOND_SITE.thermometerOffset} °C high, the humidity probe is scaled and shifted, the belt runs faster`);
-    say(`   the ${FIRST_SITE.name} model scores ${pct(secondBefore)} there; fine-tuning on ${secondTrain.rows} local loaves, three ways:`);
+/** 5. The second site, whose sensors read differently: three ways of fine-tuning, each scored at both sites. */
+async function fineTuneSecondSite(
+  model: TendonModel,
+  trainedDoc: ModelDoc,
+  firstPath: string,
+  firstAcc: number,
+  loaves: DemoLoaves,
+  dir: string,
+  opts: DemoOptions,
+): Promise<{ table: DemoOutcome['table']; kept: TuneResult | null }> {
+  const { say } = opts;
+  const { firstTrain, firstTest, secondTrain, secondTest } = loaves;
+  const secondBefore = accuracyOf(model, secondTest);
+  say('');
+  say(`5. ${SECOND_SITE.name}: thermometers read ${SECOND_SITE.thermometerOffset} °C high, the humidity probe is scaled and shifted, the belt runs faster`);
+  say(`   the ${FIRST_SITE.name} model scores ${pct(secondBefore)} there; fine-tuning on ${secondTrain.rows} local loaves, three ways:`);
 
-    const table = [{ model: `${FIRST_SITE.name} model`, first: firstAcc, second: secondBefore }];
-    const ways: { name: string; options: TuneRunOptions }[] = [
-      { name: 'plain fine-tune', options: {} },
-      { name: 'with anchor', options: { anchor: 0.05 } },
-      { name: 'anchor + replay', options: { anchor: 0.05, replay: asData(firstTrain), replayPerBatch: 0.5 } },
-    ];
-    let kept: TuneResult | null = null;
-    for (const way of ways) {
-      const result = await tune(
-        trained.doc,
-        asData(secondTrain),
-        { ...common(opts.seed + 1), epochs: 30, lr: 0.003, ...way.options, parent: { checksum: model.checksum ?? '', source: firstPath } },
-        { signal: opts.signal },
-      );
-      const tuned = await openModel(await saveTemp(dir, way.name, result.doc), { engine: opts.engine });
-      table.push({ model: way.name, first: accuracyOf(tuned, firstTest), second: accuracyOf(tuned, secondTest) });
-      tuned.dispose();
-      kept = result;
-    }
-    say('');
-    say(`   ${'model'.padEnd(22)} ${FIRST_SITE.name.padStart(10)} ${SECOND_SITE.name.padStart(10)}`);
-    for (const row of table) say(`   ${row.model.padEnd(22)} ${pct(row.first).padStart(10)} ${pct(row.second).padStart(10)}`);
-    const plain = table[1];
-    const guarded = table[table.length - 1];
-    say('');
-    say(
-      `   Plain fine-tuning lifts ${SECOND_SITE.name} by ${points(plain.second - secondBefore)} but forgets ${FIRST_SITE.name} (${points(plain.first - firstAcc)}); ` +
-        `with the anchor and replay, ${SECOND_SITE.name} gains ${points(guarded.second - secondBefore)} while ${FIRST_SITE.name} moves ${points(guarded.first - firstAcc)}.`,
+  const table = [{ model: `${FIRST_SITE.name} model`, first: firstAcc, second: secondBefore }];
+  const ways: { name: string; options: TuneRunOptions }[] = [
+    { name: 'plain fine-tune', options: {} },
+    { name: 'with anchor', options: { anchor: 0.05 } },
+    { name: 'anchor + replay', options: { anchor: 0.05, replay: asData(firstTrain), replayPerBatch: 0.5 } },
+  ];
+  let kept: TuneResult | null = null;
+  for (const way of ways) {
+    const result = await tune(
+      trainedDoc,
+      asData(secondTrain),
+      { ...common(opts.seed + 1), epochs: 30, lr: 0.003, ...way.options, parent: { checksum: model.checksum ?? '', source: firstPath } },
+      { signal: opts.signal },
     );
-    say('   (The same reading means a different bake at each site, so one model cannot be perfect at both.)');
-    if (kept) {
-      const finalPath = join(dir, 'bakery-riverside.tendon');
-      const written = await writeModelFile(finalPath, kept.doc);
-      const prov = kept.doc.provenance[kept.doc.provenance.length - 1];
-      say('');
-      say(`6. saved ${finalPath} (checksum ${written.checksum}); its provenance names the parent: ${prov ? `${prov.action} from ${prov.source}, checksum ${prov.checksum}` : '(none)'}`);
-    }
-    say('');
-    say('Invented data: these numbers show the runtime at work, not anything about real ovens.');
-    say('Try it yourself:');
-    say(`  npx tendon about ${firstPath}`);
-    say(`  npx tendon check ${firstPath}`);
-    say(`  npx tendon tune ${firstPath} --data ${join(dir, 'riverside-loaves.csv')} --target quality --anchor 0.05 --replay ${join(dir, 'northgate-loaves.csv')} --holdout 0.2 --epochs 20 -o ${join(dir, 'mine.tendon')}`);
-    say(`  npx tendon explain ${firstPath} --input ${join(dir, 'northgate-loaves.csv')} --output ${join(dir, 'why.csv')}`);
-    return { dir, firstSiteAccuracy: firstAcc, parityPass: parity.pass, table, explained, calibration };
-  } finally {
-    model.dispose();
+    const tuned = await openModel(await saveTemp(dir, way.name, result.doc), { engine: opts.engine });
+    table.push({ model: way.name, first: accuracyOf(tuned, firstTest), second: accuracyOf(tuned, secondTest) });
+    tuned.dispose();
+    kept = result;
   }
+  sayComparison(table, firstAcc, secondBefore, say);
+  return { table, kept };
+}
+
+/** The accuracy table and what it shows. */
+function sayComparison(table: DemoOutcome['table'], firstAcc: number, secondBefore: number, say: (line: string) => void): void {
+  say('');
+  say(`   ${'model'.padEnd(22)} ${FIRST_SITE.name.padStart(10)} ${SECOND_SITE.name.padStart(10)}`);
+  for (const row of table) say(`   ${row.model.padEnd(22)} ${pct(row.first).padStart(10)} ${pct(row.second).padStart(10)}`);
+  const plain = table[1];
+  const guarded = table[table.length - 1];
+  say('');
+  say(
+    `   Plain fine-tuning lifts ${SECOND_SITE.name} by ${points(plain.second - secondBefore)} but forgets ${FIRST_SITE.name} (${points(plain.first - firstAcc)}); ` +
+      `with the anchor and replay, ${SECOND_SITE.name} gains ${points(guarded.second - secondBefore)} while ${FIRST_SITE.name} moves ${points(guarded.first - firstAcc)}.`,
+  );
+  say('   (The same reading means a different bake at each site, so one model cannot be perfect at both.)');
+}
+
+/** 6. Save the last fine-tuned model; its provenance names the parent. */
+async function saveFinal(kept: TuneResult, dir: string, say: (line: string) => void): Promise<void> {
+  const finalPath = join(dir, 'bakery-riverside.tendon');
+  const written = await writeModelFile(finalPath, kept.doc);
+  const prov = kept.doc.provenance[kept.doc.provenance.length - 1];
+  say('');
+  say(`6. saved ${finalPath} (checksum ${written.checksum}); its provenance names the parent: ${prov ? `${prov.action} from ${prov.source}, checksum ${prov.checksum}` : '(none)'}`);
+}
+
+/** The closing note and the commands to try next on the demo's files. */
+function sayTryIt(dir: string, firstPath: string, say: (line: string) => void): void {
+  say('');
+  say('Invented data: these numbers show the runtime at work, not anything about real ovens.');
+  say('Try it yourself:');
+  say(`  npx tendon about ${firstPath}`);
+  say(`  npx tendon check ${firstPath}`);
+  say(`  npx tendon tune ${firstPath} --data ${join(dir, 'riverside-loaves.csv')} --target quality --anchor 0.05 --replay ${join(dir, 'northgate-loaves.csv')} --holdout 0.2 --epochs 20 -o ${join(dir, 'mine.tendon')}`);
+  say(`  npx tendon explain ${firstPath} --input ${join(dir, 'northgate-loaves.csv')} --output ${join(dir, 'why.csv')}`);
 }
 
 /** Plain words for the sensor columns, for the sentence that says why a loaf was flagged. */

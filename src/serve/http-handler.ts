@@ -14,7 +14,7 @@ import { bearerChallenge, type Authorize } from './http-access.js';
 import { readBody } from './http-body.js';
 import { EXPLAIN_MAX_ROWS, explainRequest } from './http-explain.js';
 import { csvAnswer } from './http-csv.js';
-import { ACCEPTED_TYPES, BODY_TYPES, answerFormatOf, bodyFormatOf } from './http-formats.js';
+import { ACCEPTED_TYPES, BODY_TYPES, answerFormatOf, bodyFormatOf, type BodyFormat } from './http-formats.js';
 import { encodeNpyAnswer } from './http-npy.js';
 import { parseRequestBody } from './http-parse.js';
 import { HttpProblem } from './http-problem.js';
@@ -87,6 +87,68 @@ export interface TendonRequestHandler {
  * http.createServer((req, res) => req.url?.startsWith('/ml/') ? handler(req, res) : ownRoutes(req, res)).listen(8080);
  */
 export function createRequestHandler(options: RequestHandlerOptions): TendonRequestHandler {
+  const state = handlerState(options);
+  const { counters, pools, parsers } = state;
+  let closed: Promise<void> | null = null;
+
+  const given = options.model;
+  const ready: Promise<void> = typeof given === 'string' ? openModel(given).then((m) => startPooled(state, m, true)) : Promise.resolve().then(() => startPooled(state, given, false));
+  // The failure is reported by /v1/ready and by score answers; `ready` rejects for whoever awaits it.
+  ready.catch((error: unknown) => {
+    state.loadFailure = error instanceof Error ? error.message : String(error);
+  });
+
+  const handler = (req: IncomingMessage, res: ServerResponse): void => handleRequest(state, req, res);
+
+  // defineProperty, not Object.assign: assign would copy the getter's value once (null while loading).
+  Object.defineProperty(handler, 'model', { get: (): TendonModel | null => state.slot?.current ?? null, enumerable: true });
+  Object.defineProperty(handler, 'liveWorkers', { get: (): number => pools?.liveWorkers ?? 0, enumerable: true });
+  return Object.assign(handler as typeof handler & { readonly model: TendonModel | null; readonly liveWorkers: number }, {
+    ready,
+    counters,
+    reload(path?: string): Promise<SwapOutcome> {
+      if (!state.slot) return Promise.resolve({ swapped: false as const, reason: 'the model is still loading' });
+      return state.slot.reload(path);
+    },
+    close(): Promise<void> {
+      state.closing = true;
+      closed ??= ready
+        .catch(() => undefined)
+        .then(async () => {
+          await state.batcher?.close();
+          await state.slot?.close();
+          await pools?.close();
+          await parsers?.close();
+        });
+      return closed;
+    },
+  });
+}
+
+/** What the routes share: settings fixed at creation, the thread pools, and the served model's state. */
+interface HandlerState {
+  readonly options: RequestHandlerOptions;
+  readonly log: (line: string) => void;
+  readonly prefix: string;
+  readonly bodyLimit: number;
+  readonly retryAfter: string;
+  readonly maxRows: number;
+  readonly counters: ServiceCounters;
+  readonly generations: Map<number, Generation>;
+  /** Worker threads that run batches (1: the main thread). */
+  readonly size: number;
+  readonly pools: PooledRunner | null;
+  readonly parsers: ParsePool | null;
+  readonly runBatch: ModelBatchRunner;
+  slot: ModelSlot | null;
+  batcher: MicroBatcher | null;
+  drift: DriftMonitor | null;
+  closing: boolean;
+  loadFailure: string | null;
+}
+
+/** The settings with their defaults, and the worker and parse pools. */
+function handlerState(options: RequestHandlerOptions): HandlerState {
   const log = options.log ?? ((line: string) => void process.stderr.write(line + '\n'));
   const prefix = (options.prefix ?? '').replace(/\/+$/, '');
   const bodyLimit = options.bodyLimitBytes ?? 1 << 20;
@@ -101,214 +163,213 @@ export function createRequestHandler(options: RequestHandlerOptions): TendonRequ
   if (size > 1 && !parseScript) log('tendon serve: no parse-worker.js beside the worker script; request bodies are parsed on the main thread');
   const parsers = parseScript ? new ParsePool(size, parseScript) : null;
   const runBatch: ModelBatchRunner = options.runBatch ?? pools?.run ?? ((model, x, rows) => model.run(x, rows));
-
-  let slot: ModelSlot | null = null;
-  let batcher: MicroBatcher | null = null;
-  let drift: DriftMonitor | null = null;
-  let closing = false;
-  let closed: Promise<void> | null = null;
-
-  const remember = (model: TendonModel, generation: number) => {
-    generations.set(generation, { checksum: model.checksum, labels: model.labels });
-    generations.delete(generation - GENERATIONS_KEPT);
-    counters.model = { checksum: model.checksum ?? 'none', inputs: model.inputs, outputs: model.outputs, source: model.source ?? '(document)' };
-    drift = options.drift === false ? null : DriftMonitor.forModel(model.doc, { k: options.drift?.k });
-    counters.drift = drift?.report() ?? null;
-  };
-
-  const start = (model: TendonModel, owned: boolean) => {
-    const s = new ModelSlot(
-      model,
-      model.source,
-      {
-        log,
-        onSwap: (m) => remember(m, s.generation),
-        onOutcome: (o) => counters.swapped(o.swapped),
-        // A new model gets its pool before it is swapped in; the old pool closes after its last batch.
-        prepare: pools ? (m) => pools.prepare(m) : undefined,
-        onRetired: pools ? (m) => pools.retire(m) : undefined,
-      },
-      owned,
-    );
-    slot = s;
-    remember(model, 1);
-    const maxQueue = options.batcher?.maxQueueRows ?? 4096;
-    const maxInFlight = options.batcher?.maxInFlight ?? (pools ? size : undefined);
-    batcher = slotBatcher(s, runBatch, { ...options.batcher, width: model.inputs, maxQueueRows: maxQueue, maxInFlight });
-    if (options.watch && model.source) s.watch(typeof options.watch === 'object' ? options.watch.debounceMs : undefined);
-  };
-
-  const given = options.model;
-  let loadFailure: string | null = null;
-  const startPooled = async (model: TendonModel, owned: boolean) => {
-    try {
-      await pools?.prepare(model);
-    } catch (error) {
-      if (owned) model.dispose();
-      throw error;
-    }
-    start(model, owned);
-  };
-  const ready: Promise<void> = typeof given === 'string' ? openModel(given).then((m) => startPooled(m, true)) : Promise.resolve().then(() => startPooled(given, false));
-  // The failure is reported by /v1/ready and by score answers; `ready` rejects for whoever awaits it.
-  ready.catch((error: unknown) => {
-    loadFailure = error instanceof Error ? error.message : String(error);
-  });
-  const notLoaded = () =>
-    new HttpProblem(503, loadFailure ? `no model: ${loadFailure}` : 'the model is still loading', loadFailure ? {} : { 'retry-after': retryAfter });
-
   const maxRows = Math.min(options.maxRowsPerRequest ?? 10_000, options.batcher?.maxQueueRows ?? 4096);
-
-  interface ScoreReply {
-    readonly rows: number;
-    readonly body: string | Buffer;
-    readonly type: string;
-    readonly headers: Record<string, string>;
-  }
-
-  async function score(req: IncomingMessage): Promise<ScoreReply> {
-    if (closing) throw new HttpProblem(503, 'shutting down; no new requests are taken', { 'retry-after': retryAfter, connection: 'close' });
-    const model = slot?.current;
-    if (!slot || !batcher || !model) throw notLoaded();
-    const format = bodyFormatOf(req);
-    const answerFormat = answerFormatOf(req);
-    const bytes = await readBody(req, bodyLimit);
-    const shape = { inputs: model.inputs, features: model.features, maxRows };
-    // NPY is a copy of bytes either way; text formats go to the parse threads when there are some.
-    const { rows, x } = parsers && format !== 'npy' ? await parsers.parse(format, bytes, shape) : parseRequestBody(format, bytes, shape);
-    let y: Float32Array;
-    try {
-      y = await batcher.submit(x);
-    } catch (error) {
-      if (error instanceof BusyError) throw new HttpProblem(503, error.message, { 'retry-after': retryAfter });
-      throw error;
-    }
-    const generation = y[y.length / rows - 1]!;
-    // Drift counts rows scored by the model now served, not by one swapped out meanwhile.
-    if (drift && generation === slot.generation) {
-      drift.add(x, rows);
-      counters.drift = drift.report();
-    }
-    if (answerFormat === 'json') {
-      return { rows, body: JSON.stringify(scoreAnswer(y, rows, generations).body) + '\n', type: `${BODY_TYPES.json}; charset=utf-8`, headers: {} };
-    }
-    const split = splitGeneration(y, rows);
-    const facts = generations.get(generation);
-    // The answer has no room for the model's checksum in its body, so it rides in a header.
-    const headers: Record<string, string> = facts?.checksum ? { 'tendon-model': facts.checksum } : {};
-    if (answerFormat === 'npy') return { rows, body: encodeNpyAnswer(split.outputs, rows, split.width), type: BODY_TYPES.npy, headers };
-    return { rows, body: csvAnswer(split.outputs, rows, outputNames(facts?.labels ?? null, split.width)), type: `${BODY_TYPES.csv}; charset=utf-8`, headers };
-  }
-
-  function about(): unknown {
-    const model = slot?.current;
-    if (!model) throw notLoaded();
-    const file =
-      model.source && model.checksum && model.fileBytes !== null
-        ? { path: model.source, checksum: model.checksum, bytes: model.fileBytes, version: model.formatVersion ?? '' }
-        : null;
-    return { ...modelFacts(model.doc, file), accepts: ACCEPTED_TYPES };
-  }
-
-  async function route(req: IncomingMessage, res: ServerResponse, path: string): Promise<{ status: number; rows: number }> {
-    const method = METHODS[path];
-    if (!method) throw new HttpProblem(404, `no route ${printablePath(prefix + path)} (routes: ${Object.keys(METHODS).map((p) => prefix + p).join(', ')})`);
-    if (req.method !== method) throw new HttpProblem(405, `${req.method} is not allowed on ${prefix + path}; use ${method}`, { allow: method });
-    switch (path) {
-      case ROUTES.score: {
-        const answer = await score(req);
-        const body = typeof answer.body === 'string' ? Buffer.from(answer.body, 'utf8') : answer.body;
-        res.writeHead(200, { ...answer.headers, ...(closing ? { connection: 'close' } : {}), 'content-type': answer.type, 'content-length': String(body.length), 'cache-control': 'no-store', vary: 'accept' });
-        res.end(body);
-        return { status: 200, rows: answer.rows };
-      }
-      case ROUTES.explain: {
-        if (closing) throw new HttpProblem(503, 'shutting down; no new requests are taken', { 'retry-after': retryAfter, connection: 'close' });
-        const model = slot?.current;
-        if (!model) throw notLoaded();
-        const answer = await explainRequest(req, model, { bodyLimitBytes: bodyLimit, maxRows: options.maxExplainRows ?? EXPLAIN_MAX_ROWS });
-        sendJson(res, 200, answer.body);
-        return { status: 200, rows: answer.rows };
-      }
-      case ROUTES.about:
-        sendJson(res, 200, about());
-        return { status: 200, rows: 0 };
-      case ROUTES.alive:
-        sendJson(res, 200, { alive: true });
-        return { status: 200, rows: 0 };
-      case ROUTES.ready: {
-        const ok = slot !== null && !closing;
-        const status = ok ? 200 : 503;
-        sendJson(res, status, { ready: ok, reason: ok ? undefined : closing ? 'shutting down' : notLoaded().message });
-        return { status, rows: 0 };
-      }
-      default:
-        send(res, 200, counters.render({ tensors: liveTensorCount(), residentBytes: process.memoryUsage().rss }), METRICS_CONTENT_TYPE);
-        return { status: 200, rows: 0 };
-    }
-  }
-
-  const handler = (req: IncomingMessage, res: ServerResponse): void => {
-    const started = performance.now();
-    let label = 'other';
-    // A socket error after the client went away is not ours to crash on.
-    res.on('error', () => undefined);
-    req.on('error', () => undefined);
-    const finish = (status: number, rows: number) => counters.request(label, status, (performance.now() - started) / 1000, rows);
-    const fail = (error: unknown) => {
-      const problem = error instanceof HttpProblem ? error : null;
-      if (!problem) log(`tendon serve: internal error on ${printablePath(req.url ?? '')}: ${error instanceof Error ? error.message : String(error)}`);
-      const status = problem?.status ?? 500;
-      const message = problem?.message ?? 'internal error; the request was not scored';
-      if (!res.headersSent) sendJson(res, status, { error: { status, message } }, problem?.headers ?? {});
-      else res.destroy();
-      finish(status, 0);
-    };
-    try {
-      const path = pathOf(req.url, prefix);
-      if (path !== null && path in METHODS) label = prefix + path;
-      if (path === null) throw new HttpProblem(404, `no route ${printablePath(req.url ?? '')}`);
-      // Probes stay open, so an orchestrator needs no secret to see the process is up.
-      const open = !options.authorize || path === ROUTES.alive || path === ROUTES.ready;
-      const allowed = open ? Promise.resolve(true) : Promise.resolve().then(() => options.authorize!(req));
-      allowed
-        .then(
-          (ok) => {
-            if (!ok) throw new HttpProblem(401, 'a valid bearer token is required (Authorization: Bearer TOKEN)', { 'www-authenticate': bearerChallenge(req) });
-          },
-          (error: unknown) => {
-            log(`tendon serve: authorize failed on ${printablePath(req.url ?? '')}: ${error instanceof Error ? error.message : String(error)}`);
-            throw new HttpProblem(401, 'the request could not be authorized', { 'www-authenticate': bearerChallenge(req) });
-          },
-        )
-        .then(() => route(req, res, path))
-        .then((r) => finish(r.status, r.rows), fail);
-    } catch (error) {
-      fail(error);
-    }
-  };
-
-  // defineProperty, not Object.assign: assign would copy the getter's value once (null while loading).
-  Object.defineProperty(handler, 'model', { get: (): TendonModel | null => slot?.current ?? null, enumerable: true });
-  Object.defineProperty(handler, 'liveWorkers', { get: (): number => pools?.liveWorkers ?? 0, enumerable: true });
-  return Object.assign(handler as typeof handler & { readonly model: TendonModel | null; readonly liveWorkers: number }, {
-    ready,
+  return {
+    options,
+    log,
+    prefix,
+    bodyLimit,
+    retryAfter,
+    maxRows,
     counters,
-    reload(path?: string): Promise<SwapOutcome> {
-      if (!slot) return Promise.resolve({ swapped: false as const, reason: 'the model is still loading' });
-      return slot.reload(path);
+    generations,
+    size,
+    pools,
+    parsers,
+    runBatch,
+    slot: null,
+    batcher: null,
+    drift: null,
+    closing: false,
+    loadFailure: null,
+  };
+}
+
+/** Record a model now served: its generation's facts, the counters' model, a fresh drift monitor. */
+function rememberModel(state: HandlerState, model: TendonModel, generation: number): void {
+  const { options, counters, generations } = state;
+  generations.set(generation, { checksum: model.checksum, labels: model.labels });
+  generations.delete(generation - GENERATIONS_KEPT);
+  counters.model = { checksum: model.checksum ?? 'none', inputs: model.inputs, outputs: model.outputs, source: model.source ?? '(document)' };
+  state.drift = options.drift === false ? null : DriftMonitor.forModel(model.doc, { k: options.drift?.k });
+  counters.drift = state.drift?.report() ?? null;
+}
+
+/** The worker pools take the model first; a model the handler owns is released if they fail. */
+async function startPooled(state: HandlerState, model: TendonModel, owned: boolean): Promise<void> {
+  try {
+    await state.pools?.prepare(model);
+  } catch (error) {
+    if (owned) model.dispose();
+    throw error;
+  }
+  startServing(state, model, owned);
+}
+
+/** Put the model in its slot and start the batcher (and the file watch). */
+function startServing(state: HandlerState, model: TendonModel, owned: boolean): void {
+  const { options, pools, log, counters } = state;
+  const s = new ModelSlot(
+    model,
+    model.source,
+    {
+      log,
+      onSwap: (m) => rememberModel(state, m, s.generation),
+      onOutcome: (o) => counters.swapped(o.swapped),
+      // A new model gets its pool before it is swapped in; the old pool closes after its last batch.
+      prepare: pools ? (m) => pools.prepare(m) : undefined,
+      onRetired: pools ? (m) => pools.retire(m) : undefined,
     },
-    close(): Promise<void> {
-      closing = true;
-      closed ??= ready
-        .catch(() => undefined)
-        .then(async () => {
-          await batcher?.close();
-          await slot?.close();
-          await pools?.close();
-          await parsers?.close();
-        });
-      return closed;
-    },
-  });
+    owned,
+  );
+  state.slot = s;
+  rememberModel(state, model, 1);
+  const maxQueue = options.batcher?.maxQueueRows ?? 4096;
+  const maxInFlight = options.batcher?.maxInFlight ?? (pools ? state.size : undefined);
+  state.batcher = slotBatcher(s, state.runBatch, { ...options.batcher, width: model.inputs, maxQueueRows: maxQueue, maxInFlight });
+  if (options.watch && model.source) s.watch(typeof options.watch === 'object' ? options.watch.debounceMs : undefined);
+}
+
+function notLoaded(state: HandlerState): HttpProblem {
+  const { loadFailure } = state;
+  return new HttpProblem(503, loadFailure ? `no model: ${loadFailure}` : 'the model is still loading', loadFailure ? {} : { 'retry-after': state.retryAfter });
+}
+
+interface ScoreReply {
+  readonly rows: number;
+  readonly body: string | Buffer;
+  readonly type: string;
+  readonly headers: Record<string, string>;
+}
+
+async function score(state: HandlerState, req: IncomingMessage): Promise<ScoreReply> {
+  const { retryAfter, slot, batcher, parsers } = state;
+  if (state.closing) throw new HttpProblem(503, 'shutting down; no new requests are taken', { 'retry-after': retryAfter, connection: 'close' });
+  const model = slot?.current;
+  if (!slot || !batcher || !model) throw notLoaded(state);
+  const format = bodyFormatOf(req);
+  const answerFormat = answerFormatOf(req);
+  const bytes = await readBody(req, state.bodyLimit);
+  const shape = { inputs: model.inputs, features: model.features, maxRows: state.maxRows };
+  // NPY is a copy of bytes either way; text formats go to the parse threads when there are some.
+  const { rows, x } = parsers && format !== 'npy' ? await parsers.parse(format, bytes, shape) : parseRequestBody(format, bytes, shape);
+  let y: Float32Array;
+  try {
+    y = await batcher.submit(x);
+  } catch (error) {
+    if (error instanceof BusyError) throw new HttpProblem(503, error.message, { 'retry-after': retryAfter });
+    throw error;
+  }
+  const generation = y[y.length / rows - 1]!;
+  // Drift counts rows scored by the model now served, not by one swapped out meanwhile.
+  const drift = state.drift;
+  if (drift && generation === slot.generation) {
+    drift.add(x, rows);
+    state.counters.drift = drift.report();
+  }
+  return scoreReply(state.generations, y, rows, answerFormat, generation);
+}
+
+/** The scored rows in the answer format asked for. */
+function scoreReply(generations: Map<number, Generation>, y: Float32Array, rows: number, answerFormat: BodyFormat, generation: number): ScoreReply {
+  if (answerFormat === 'json') {
+    return { rows, body: JSON.stringify(scoreAnswer(y, rows, generations).body) + '\n', type: `${BODY_TYPES.json}; charset=utf-8`, headers: {} };
+  }
+  const split = splitGeneration(y, rows);
+  const facts = generations.get(generation);
+  // The answer has no room for the model's checksum in its body, so it rides in a header.
+  const headers: Record<string, string> = facts?.checksum ? { 'tendon-model': facts.checksum } : {};
+  if (answerFormat === 'npy') return { rows, body: encodeNpyAnswer(split.outputs, rows, split.width), type: BODY_TYPES.npy, headers };
+  return { rows, body: csvAnswer(split.outputs, rows, outputNames(facts?.labels ?? null, split.width)), type: `${BODY_TYPES.csv}; charset=utf-8`, headers };
+}
+
+function about(state: HandlerState): unknown {
+  const model = state.slot?.current;
+  if (!model) throw notLoaded(state);
+  const file =
+    model.source && model.checksum && model.fileBytes !== null
+      ? { path: model.source, checksum: model.checksum, bytes: model.fileBytes, version: model.formatVersion ?? '' }
+      : null;
+  return { ...modelFacts(model.doc, file), accepts: ACCEPTED_TYPES };
+}
+
+async function route(state: HandlerState, req: IncomingMessage, res: ServerResponse, path: string): Promise<{ status: number; rows: number }> {
+  const { prefix, retryAfter, options } = state;
+  const method = METHODS[path];
+  if (!method) throw new HttpProblem(404, `no route ${printablePath(prefix + path)} (routes: ${Object.keys(METHODS).map((p) => prefix + p).join(', ')})`);
+  if (req.method !== method) throw new HttpProblem(405, `${req.method} is not allowed on ${prefix + path}; use ${method}`, { allow: method });
+  switch (path) {
+    case ROUTES.score: {
+      const answer = await score(state, req);
+      const body = typeof answer.body === 'string' ? Buffer.from(answer.body, 'utf8') : answer.body;
+      res.writeHead(200, { ...answer.headers, ...(state.closing ? { connection: 'close' } : {}), 'content-type': answer.type, 'content-length': String(body.length), 'cache-control': 'no-store', vary: 'accept' });
+      res.end(body);
+      return { status: 200, rows: answer.rows };
+    }
+    case ROUTES.explain: {
+      if (state.closing) throw new HttpProblem(503, 'shutting down; no new requests are taken', { 'retry-after': retryAfter, connection: 'close' });
+      const model = state.slot?.current;
+      if (!model) throw notLoaded(state);
+      const answer = await explainRequest(req, model, { bodyLimitBytes: state.bodyLimit, maxRows: options.maxExplainRows ?? EXPLAIN_MAX_ROWS });
+      sendJson(res, 200, answer.body);
+      return { status: 200, rows: answer.rows };
+    }
+    case ROUTES.about:
+      sendJson(res, 200, about(state));
+      return { status: 200, rows: 0 };
+    case ROUTES.alive:
+      sendJson(res, 200, { alive: true });
+      return { status: 200, rows: 0 };
+    case ROUTES.ready: {
+      const ok = state.slot !== null && !state.closing;
+      const status = ok ? 200 : 503;
+      sendJson(res, status, { ready: ok, reason: ok ? undefined : state.closing ? 'shutting down' : notLoaded(state).message });
+      return { status, rows: 0 };
+    }
+    default:
+      send(res, 200, state.counters.render({ tensors: liveTensorCount(), residentBytes: process.memoryUsage().rss }), METRICS_CONTENT_TYPE);
+      return { status: 200, rows: 0 };
+  }
+}
+
+/** One request: access check, route, and every failure answered as a status and a one-line message. */
+function handleRequest(state: HandlerState, req: IncomingMessage, res: ServerResponse): void {
+  const { prefix, options, log, counters } = state;
+  const started = performance.now();
+  let label = 'other';
+  // A socket error after the client went away is not ours to crash on.
+  res.on('error', () => undefined);
+  req.on('error', () => undefined);
+  const finish = (status: number, rows: number) => counters.request(label, status, (performance.now() - started) / 1000, rows);
+  const fail = (error: unknown) => {
+    const problem = error instanceof HttpProblem ? error : null;
+    if (!problem) log(`tendon serve: internal error on ${printablePath(req.url ?? '')}: ${error instanceof Error ? error.message : String(error)}`);
+    const status = problem?.status ?? 500;
+    const message = problem?.message ?? 'internal error; the request was not scored';
+    if (!res.headersSent) sendJson(res, status, { error: { status, message } }, problem?.headers ?? {});
+    else res.destroy();
+    finish(status, 0);
+  };
+  try {
+    const path = pathOf(req.url, prefix);
+    if (path !== null && path in METHODS) label = prefix + path;
+    if (path === null) throw new HttpProblem(404, `no route ${printablePath(req.url ?? '')}`);
+    // Probes stay open, so an orchestrator needs no secret to see the process is up.
+    const open = !options.authorize || path === ROUTES.alive || path === ROUTES.ready;
+    const allowed = open ? Promise.resolve(true) : Promise.resolve().then(() => options.authorize!(req));
+    allowed
+      .then(
+        (ok) => {
+          if (!ok) throw new HttpProblem(401, 'a valid bearer token is required (Authorization: Bearer TOKEN)', { 'www-authenticate': bearerChallenge(req) });
+        },
+        (error: unknown) => {
+          log(`tendon serve: authorize failed on ${printablePath(req.url ?? '')}: ${error instanceof Error ? error.message : String(error)}`);
+          throw new HttpProblem(401, 'the request could not be authorized', { 'www-authenticate': bearerChallenge(req) });
+        },
+      )
+      .then(() => route(state, req, res, path))
+      .then((r) => finish(r.status, r.rows), fail);
+  } catch (error) {
+    fail(error);
+  }
 }

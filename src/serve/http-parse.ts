@@ -18,7 +18,7 @@ export function parseRequestBody(format: BodyFormat, bytes: Uint8Array, shape: S
       return parseNpyBody(bytes, shape);
     case 'csv':
       return parseCsvBody(utf8(bytes), shape);
-    default:
+    case 'json':
       // Plain number rows take the fast path; anything else, or anything wrong, the general parser.
       return parseNumberRows(bytes, shape.inputs, shape.maxRows) ?? parseScoreBody(utf8(bytes), shape);
   }

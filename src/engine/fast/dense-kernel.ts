@@ -42,14 +42,43 @@ export interface KernelOptions {
   readonly fused?: boolean;
 }
 
-/** The float32 dense step as a module function (also emitted into the shared-memory plans). */
-export function denseFunction(fused: boolean): FunctionDef {
+/** Local indices of the dense step: the i32 locals after the 8 parameters, then the v128 ones. */
+interface DenseLocals {
+  readonly R: number;
+  readonly J: number;
+  readonly K: number;
+  readonly WP: number;
+  readonly YP: number;
+  readonly XSTRIDE: number;
+  readonly WSTRIDE: number;
+  /** Start and length of the current k block, whether it is the last, first row of the single-row tail. */
+  readonly K0: number;
+  readonly KLEN: number;
+  readonly LAST: number;
+  readonly TAIL: number;
+  readonly XP: readonly number[];
+  readonly ACC: readonly number[];
+  readonly W0: number;
+  readonly W1: number;
+  readonly S: number;
+  readonly ZERO: number;
+  readonly i32Count: number;
+  readonly v128Count: number;
+}
+
+/** What every emitter of the dense step shares: the code, the multiply-add choice, the locals. */
+interface DenseEmit {
+  readonly c: Code;
+  readonly fused: boolean;
+  readonly l: DenseLocals;
+}
+
+function denseLocals(): DenseLocals {
   // Locals after the 8 parameters, i32 first, then v128.
   let next = 8;
   const i32Local = (): number => next++;
   const R = i32Local(), J = i32Local(), K = i32Local(), WP = i32Local(), YP = i32Local();
   const XSTRIDE = i32Local(), WSTRIDE = i32Local();
-  // Start and length of the current k block, whether it is the last, first row of the single-row tail.
   const K0 = i32Local(), KLEN = i32Local(), LAST = i32Local(), TAIL = i32Local();
   const XP = Array.from({ length: TILE_ROWS }, i32Local);
   const i32Count = next - 8;
@@ -57,193 +86,216 @@ export function denseFunction(fused: boolean): FunctionDef {
   const ACC = Array.from({ length: 2 * TILE_ROWS }, v128Local);
   const W0 = v128Local(), W1 = v128Local(), S = v128Local(), ZERO = v128Local();
   const v128Count = next - 8 - i32Count;
+  return { R, J, K, WP, YP, XSTRIDE, WSTRIDE, K0, KLEN, LAST, TAIL, XP, ACC, W0, W1, S, ZERO, i32Count, v128Count };
+}
 
+/** The float32 dense step as a module function (also emitted into the shared-memory plans). */
+export function denseFunction(fused: boolean): FunctionDef {
+  const l = denseLocals();
   const c = new Code();
-  /**
-   * acc += a·b, where `push` leaves a and b on the stack. The row tiles use this and the
-   * single-row pass spells out the same operand order, so every output sees one instruction.
-   */
-  const accumulate = (acc: number, push: () => void): void => {
-    if (fused) {
-      push();
-      c.get(acc).f32x4RelaxedMadd().set(acc);
-    } else {
-      c.get(acc);
-      push();
-      c.f32x4Mul().f32x4Add().set(acc);
-    }
-  };
+  const e: DenseEmit = { c, fused, l };
 
   // Strides in bytes.
-  c.get(NIN).i32(4).mul().set(XSTRIDE);
-  c.get(OUTP).i32(4).mul().set(WSTRIDE);
-  c.v128Zero().set(ZERO);
-
-  /** One tile of `tileRows` rows x 8 columns at row R, column J. */
-  const tile = (tileRows: number): void => {
-    // Accumulators start at the bias in the first k block, else at the partial sums in y.
-    c.get(Y).get(R).get(WSTRIDE).mul().add().get(J).i32(4).mul().add().set(YP);
-    c.get(K0).eqz().if();
-    {
-      c.get(B).get(J).i32(4).mul().add().set(WP); // WP reused briefly as the bias pointer
-      c.get(WP).v128Load(0).set(ACC[0]);
-      c.get(WP).v128Load(16).set(ACC[1]);
-      for (let t = 1; t < tileRows; t++) {
-        c.get(ACC[0]).set(ACC[2 * t]);
-        c.get(ACC[1]).set(ACC[2 * t + 1]);
-      }
-    }
-    c.else();
-    {
-      c.get(YP).set(WP);
-      for (let t = 0; t < tileRows; t++) {
-        c.get(WP).v128Load(0).set(ACC[2 * t]);
-        c.get(WP).v128Load(16).set(ACC[2 * t + 1]);
-        c.get(WP).get(WSTRIDE).add().set(WP);
-      }
-    }
-    c.end();
-    // Row pointers into x, at column K0.
-    c.get(X).get(R).get(XSTRIDE).mul().add().get(K0).i32(4).mul().add().set(XP[0]);
-    for (let t = 1; t < tileRows; t++) c.get(XP[t - 1]).get(XSTRIDE).add().set(XP[t]);
-    c.get(W).get(K0).get(WSTRIDE).mul().add().get(J).i32(4).mul().add().set(WP);
-    c.get(KLEN).set(K);
-    c.block().loop();
-    {
-      c.get(WP).v128Load(0).set(W0);
-      c.get(WP).v128Load(16).set(W1);
-      for (let t = 0; t < tileRows; t++) {
-        c.get(XP[t]).load32Splat(0).set(S);
-        accumulate(ACC[2 * t], () => c.get(S).get(W0));
-        accumulate(ACC[2 * t + 1], () => c.get(S).get(W1));
-        c.get(XP[t]).i32(4).add().set(XP[t]);
-      }
-      c.get(WP).get(WSTRIDE).add().set(WP);
-      c.get(K).i32(1).sub().tee(K).i32(0).ne().brIf(0);
-    }
-    c.end().end();
-    c.get(RELU).get(LAST).and().if();
-    for (let a = 0; a < 2 * tileRows; a++) c.get(ACC[a]).get(ZERO).f32x4Max().set(ACC[a]);
-    c.end();
-    // Store: y[(R + t) * outP + J ...].
-    for (let t = 0; t < tileRows; t++) {
-      c.get(YP).get(ACC[2 * t]).v128Store(0);
-      c.get(YP).get(ACC[2 * t + 1]).v128Store(16);
-      if (t < tileRows - 1) c.get(YP).get(WSTRIDE).add().set(YP);
-    }
-  };
-
-  /**
-   * One row, all columns, streaming W in memory order: y[R, :] += x[R, k] · W[k, :] for each k of
-   * the block, the running sums kept in y (L1-resident: one row of outputs). A lone row has no
-   * row reuse, so reading W is the whole cost, and reading it front to back is what the
-   * hardware prefetcher serves best. Each output still sums from the bias in ascending k with
-   * the same multiply-add as the row tiles, so a row's answer never depends on which other rows
-   * share its batch (a service gives the same answer alone or under load).
-   */
-  const rowStream = (): void => {
-    // YP = &y[R, 0]; in the first k block the sums start at the bias.
-    c.get(Y).get(R).get(WSTRIDE).mul().add().set(YP);
-    c.get(K0).eqz().if();
-    {
-      c.i32(0).set(J);
-      c.block().loop();
-      {
-        c.get(YP).get(J).add().get(B).get(J).add().v128Load(0).v128Store(0);
-        c.get(J).i32(16).add().tee(J).get(WSTRIDE).ltU().brIf(0);
-      }
-      c.end().end();
-    }
-    c.end();
-    c.get(X).get(R).get(XSTRIDE).mul().add().get(K0).i32(4).mul().add().set(XP[0]);
-    c.get(W).get(K0).get(WSTRIDE).mul().add().set(WP);
-    c.get(KLEN).set(K);
-    c.block().loop();
-    {
-      c.get(XP[0]).load32Splat(0).set(S);
-      // for (J = 0; J < outP * 4; J += 64): 16 columns of y at YP + J from W at WP + J.
-      c.i32(0).set(J);
-      c.block().loop();
-      {
-        for (let q = 0; q < 4; q++) {
-          c.get(YP).get(J).add();
-          if (fused) c.get(S).get(WP).get(J).add().v128Load(16 * q).get(YP).get(J).add().v128Load(16 * q).f32x4RelaxedMadd();
-          else c.get(YP).get(J).add().v128Load(16 * q).get(S).get(WP).get(J).add().v128Load(16 * q).f32x4Mul().f32x4Add();
-          c.v128Store(16 * q);
-        }
-        c.get(J).i32(64).add().tee(J).get(WSTRIDE).ltU().brIf(0);
-      }
-      c.end().end();
-      c.get(WP).get(WSTRIDE).add().set(WP);
-      c.get(XP[0]).i32(4).add().set(XP[0]);
-      c.get(K).i32(1).sub().tee(K).i32(0).ne().brIf(0);
-    }
-    c.end().end();
-    c.get(RELU).get(LAST).and().if();
-    {
-      c.i32(0).set(J);
-      c.block().loop();
-      {
-        c.get(YP).get(J).add().get(YP).get(J).add().v128Load(0).get(ZERO).f32x4Max().v128Store(0);
-        c.get(J).i32(16).add().tee(J).get(WSTRIDE).ltU().brIf(0);
-      }
-      c.end().end();
-    }
-    c.end();
-  };
-
-  /** while (R + rows <= ROWS) { tile(rows); R += rows } */
-  const rowLoop = (tileRows: number): void => {
-    c.block().loop();
-    {
-      c.get(R).i32(tileRows).add().get(ROWS).gtU().brIf(1);
-      tile(tileRows);
-      c.get(R).i32(tileRows).add().set(R);
-      c.br(0);
-    }
-    c.end().end();
-  };
+  c.get(NIN).i32(4).mul().set(l.XSTRIDE);
+  c.get(OUTP).i32(4).mul().set(l.WSTRIDE);
+  c.v128Zero().set(l.ZERO);
 
   // for (K0 = 0; K0 < nIn; K0 += KB), KLEN = min(KB, nIn - K0)
-  c.i32(0).set(K0);
+  c.i32(0).set(l.K0);
   c.block().loop();
-  c.get(K0).get(NIN).geU().brIf(1);
-  c.get(NIN).get(K0).sub().set(KLEN);
-  c.get(KLEN).i32(KB).gtU().if();
-  c.i32(KB).set(KLEN);
+  c.get(l.K0).get(NIN).geU().brIf(1);
+  c.get(NIN).get(l.K0).sub().set(l.KLEN);
+  c.get(l.KLEN).i32(KB).gtU().if();
+  c.i32(KB).set(l.KLEN);
   c.end();
-  c.get(K0).get(KLEN).add().get(NIN).geU().set(LAST);
-
-  // Row tiles: for (J = 0; J < outP; J += 8) tiles of TILE_ROWS rows; TAIL = first row left over
-  c.i32(0).set(J);
-  c.i32(0).set(TAIL);
-  c.block().loop();
-  {
-    c.get(J).get(OUTP).geU().brIf(1);
-    c.i32(0).set(R);
-    rowLoop(TILE_ROWS);
-    c.get(R).set(TAIL);
-    c.get(J).i32(8).add().set(J);
-    c.br(0);
-  }
-  c.end().end();
-  // The rows left over, one at a time: for (R = TAIL; R < rows; R++) rowStream()
-  c.get(TAIL).set(R);
-  c.block().loop();
-  {
-    c.get(R).get(ROWS).geU().brIf(1);
-    rowStream();
-    c.get(R).i32(1).add().set(R);
-    c.br(0);
-  }
-  c.end().end();
-
-  c.get(K0).i32(KB).add().set(K0);
+  c.get(l.K0).get(l.KLEN).add().get(NIN).geU().set(l.LAST);
+  emitColumnPanels(e);
+  emitTailRows(e);
+  c.get(l.K0).i32(KB).add().set(l.K0);
   c.br(0);
   c.end().end();
 
-  const locals = [...new Array<number>(i32Count).fill(I32), ...new Array<number>(v128Count).fill(V128)];
+  const locals = [...new Array<number>(l.i32Count).fill(I32), ...new Array<number>(l.v128Count).fill(V128)];
   return { name: 'dense', params: [I32, I32, I32, I32, I32, I32, I32, I32], locals, code: c };
+}
+
+/**
+ * acc += a·b, where `push` leaves a and b on the stack. The row tiles use this and the
+ * single-row pass spells out the same operand order, so every output sees one instruction.
+ */
+function accumulate({ c, fused }: DenseEmit, acc: number, push: () => void): void {
+  if (fused) {
+    push();
+    c.get(acc).f32x4RelaxedMadd().set(acc);
+  } else {
+    c.get(acc);
+    push();
+    c.f32x4Mul().f32x4Add().set(acc);
+  }
+}
+
+/** Row tiles: for (J = 0; J < outP; J += 8) tiles of TILE_ROWS rows; TAIL = first row left over. */
+function emitColumnPanels(e: DenseEmit): void {
+  const { c, l } = e;
+  c.i32(0).set(l.J);
+  c.i32(0).set(l.TAIL);
+  c.block().loop();
+  {
+    c.get(l.J).get(OUTP).geU().brIf(1);
+    c.i32(0).set(l.R);
+    emitRowLoop(e, TILE_ROWS);
+    c.get(l.R).set(l.TAIL);
+    c.get(l.J).i32(8).add().set(l.J);
+    c.br(0);
+  }
+  c.end().end();
+}
+
+/** while (R + rows <= ROWS) { tile(rows); R += rows } */
+function emitRowLoop(e: DenseEmit, tileRows: number): void {
+  const { c, l } = e;
+  c.block().loop();
+  {
+    c.get(l.R).i32(tileRows).add().get(ROWS).gtU().brIf(1);
+    emitTile(e, tileRows);
+    c.get(l.R).i32(tileRows).add().set(l.R);
+    c.br(0);
+  }
+  c.end().end();
+}
+
+/** The rows left over, one at a time: for (R = TAIL; R < rows; R++) rowStream() */
+function emitTailRows(e: DenseEmit): void {
+  const { c, l } = e;
+  c.get(l.TAIL).set(l.R);
+  c.block().loop();
+  {
+    c.get(l.R).get(ROWS).geU().brIf(1);
+    emitRowStream(e);
+    c.get(l.R).i32(1).add().set(l.R);
+    c.br(0);
+  }
+  c.end().end();
+}
+
+/** One tile of `tileRows` rows x 8 columns at row R, column J. */
+function emitTile(e: DenseEmit, tileRows: number): void {
+  const { c, l } = e;
+  const { ACC, XP } = l;
+  emitTileStart(e, tileRows);
+  // Row pointers into x, at column K0.
+  c.get(X).get(l.R).get(l.XSTRIDE).mul().add().get(l.K0).i32(4).mul().add().set(XP[0]);
+  for (let t = 1; t < tileRows; t++) c.get(XP[t - 1]).get(l.XSTRIDE).add().set(XP[t]);
+  c.get(W).get(l.K0).get(l.WSTRIDE).mul().add().get(l.J).i32(4).mul().add().set(l.WP);
+  c.get(l.KLEN).set(l.K);
+  c.block().loop();
+  {
+    c.get(l.WP).v128Load(0).set(l.W0);
+    c.get(l.WP).v128Load(16).set(l.W1);
+    for (let t = 0; t < tileRows; t++) {
+      c.get(XP[t]).load32Splat(0).set(l.S);
+      accumulate(e, ACC[2 * t], () => c.get(l.S).get(l.W0));
+      accumulate(e, ACC[2 * t + 1], () => c.get(l.S).get(l.W1));
+      c.get(XP[t]).i32(4).add().set(XP[t]);
+    }
+    c.get(l.WP).get(l.WSTRIDE).add().set(l.WP);
+    c.get(l.K).i32(1).sub().tee(l.K).i32(0).ne().brIf(0);
+  }
+  c.end().end();
+  c.get(RELU).get(l.LAST).and().if();
+  for (let a = 0; a < 2 * tileRows; a++) c.get(ACC[a]).get(l.ZERO).f32x4Max().set(ACC[a]);
+  c.end();
+  // Store: y[(R + t) * outP + J ...].
+  for (let t = 0; t < tileRows; t++) {
+    c.get(l.YP).get(ACC[2 * t]).v128Store(0);
+    c.get(l.YP).get(ACC[2 * t + 1]).v128Store(16);
+    if (t < tileRows - 1) c.get(l.YP).get(l.WSTRIDE).add().set(l.YP);
+  }
+}
+
+/** A tile's accumulators start at the bias in the first k block, else at the partial sums in y. */
+function emitTileStart({ c, l }: DenseEmit, tileRows: number): void {
+  const { ACC } = l;
+  c.get(Y).get(l.R).get(l.WSTRIDE).mul().add().get(l.J).i32(4).mul().add().set(l.YP);
+  c.get(l.K0).eqz().if();
+  {
+    c.get(B).get(l.J).i32(4).mul().add().set(l.WP); // WP reused briefly as the bias pointer
+    c.get(l.WP).v128Load(0).set(ACC[0]);
+    c.get(l.WP).v128Load(16).set(ACC[1]);
+    for (let t = 1; t < tileRows; t++) {
+      c.get(ACC[0]).set(ACC[2 * t]);
+      c.get(ACC[1]).set(ACC[2 * t + 1]);
+    }
+  }
+  c.else();
+  {
+    c.get(l.YP).set(l.WP);
+    for (let t = 0; t < tileRows; t++) {
+      c.get(l.WP).v128Load(0).set(ACC[2 * t]);
+      c.get(l.WP).v128Load(16).set(ACC[2 * t + 1]);
+      c.get(l.WP).get(l.WSTRIDE).add().set(l.WP);
+    }
+  }
+  c.end();
+}
+
+/**
+ * One row, all columns, streaming W in memory order: y[R, :] += x[R, k] · W[k, :] for each k of
+ * the block, the running sums kept in y (L1-resident: one row of outputs). A lone row has no
+ * row reuse, so reading W is the whole cost, and reading it front to back is what the
+ * hardware prefetcher serves best. Each output still sums from the bias in ascending k with
+ * the same multiply-add as the row tiles, so a row's answer never depends on which other rows
+ * share its batch (a service gives the same answer alone or under load).
+ */
+function emitRowStream(e: DenseEmit): void {
+  const { c, l } = e;
+  // YP = &y[R, 0]; in the first k block the sums start at the bias.
+  c.get(Y).get(l.R).get(l.WSTRIDE).mul().add().set(l.YP);
+  c.get(l.K0).eqz().if();
+  emitRowSweep(e, () => c.get(l.YP).get(l.J).add().get(B).get(l.J).add().v128Load(0).v128Store(0));
+  c.end();
+  c.get(X).get(l.R).get(l.XSTRIDE).mul().add().get(l.K0).i32(4).mul().add().set(l.XP[0]);
+  c.get(W).get(l.K0).get(l.WSTRIDE).mul().add().set(l.WP);
+  c.get(l.KLEN).set(l.K);
+  c.block().loop();
+  {
+    c.get(l.XP[0]).load32Splat(0).set(l.S);
+    emitRowMultiplyAdd(e);
+    c.get(l.WP).get(l.WSTRIDE).add().set(l.WP);
+    c.get(l.XP[0]).i32(4).add().set(l.XP[0]);
+    c.get(l.K).i32(1).sub().tee(l.K).i32(0).ne().brIf(0);
+  }
+  c.end().end();
+  c.get(RELU).get(l.LAST).and().if();
+  emitRowSweep(e, () => c.get(l.YP).get(l.J).add().get(l.YP).get(l.J).add().v128Load(0).get(l.ZERO).f32x4Max().v128Store(0));
+  c.end();
+}
+
+/** for (J = 0; J < outP * 4; J += 16) body(): one pass over a row of y, 4 floats at a time. */
+function emitRowSweep({ c, l }: DenseEmit, body: () => void): void {
+  c.i32(0).set(l.J);
+  c.block().loop();
+  {
+    body();
+    c.get(l.J).i32(16).add().tee(l.J).get(l.WSTRIDE).ltU().brIf(0);
+  }
+  c.end().end();
+}
+
+/** for (J = 0; J < outP * 4; J += 64): 16 columns of y at YP + J from W at WP + J. */
+function emitRowMultiplyAdd({ c, fused, l }: DenseEmit): void {
+  c.i32(0).set(l.J);
+  c.block().loop();
+  {
+    for (let q = 0; q < 4; q++) {
+      c.get(l.YP).get(l.J).add();
+      if (fused) c.get(l.S).get(l.WP).get(l.J).add().v128Load(16 * q).get(l.YP).get(l.J).add().v128Load(16 * q).f32x4RelaxedMadd();
+      else c.get(l.YP).get(l.J).add().v128Load(16 * q).get(l.S).get(l.WP).get(l.J).add().v128Load(16 * q).f32x4Mul().f32x4Add();
+      c.v128Store(16 * q);
+    }
+    c.get(l.J).i32(64).add().tee(l.J).get(l.WSTRIDE).ltU().brIf(0);
+  }
+  c.end().end();
 }
 
 /**

@@ -137,6 +137,36 @@ export function quantiseFunction(arith: Int8Arith): FunctionDef {
   return { name: 'quantise', params: new Array<number>(7).fill(I32), locals: l.types, code: c };
 }
 
+/** Parameters of denseI8, in order. */
+const DENSE_I8_PARAMS = { X: 0, XSTRIDE: 1, P: 2, W: 3, CSUM: 4, WS: 5, B: 6, Y: 7, YSTRIDE: 8, ROWS: 9, GROUPS: 10, OUTP: 11, RELU: 12 } as const;
+
+/** What the emitters of denseI8 share: the code, the arithmetic and tile shape, the local indices. */
+interface DenseI8Emit {
+  readonly c: Code;
+  readonly arith: Int8Arith;
+  readonly colVectors: number;
+  /** Bytes of packed codes per group of 4 inputs of one panel, and of one row's 4 activation codes. */
+  readonly groupBytes: number;
+  readonly xGroupBytes: number;
+  readonly l: {
+    readonly R0: number;
+    readonly J: number;
+    readonly G: number;
+    readonly WP: number;
+    readonly WPANEL: number;
+    readonly PANELBYTES: number;
+    readonly YP: number;
+    readonly PP: number;
+    readonly XP: readonly number[];
+    readonly ACC: readonly number[];
+    readonly WV: readonly number[];
+    readonly S: number;
+    readonly LOWER: number;
+    readonly ZS: number;
+    readonly SS: number;
+  };
+}
+
 /**
  * denseI8(x, xStride, params, w, colSum, wScale, bias, y, yStride, rows, groups, outP, relu):
  * y[r, n] = act(((Σ_k q[r,k] · code[k,n]) - zero_r · colSum[n]) · scale_r · wScale[n] + bias[n])
@@ -144,72 +174,22 @@ export function quantiseFunction(arith: Int8Arith): FunctionDef {
  * Column panels outer (a panel of codes stays in L1), rows inner in tiles of TILE_ROWS.
  */
 export function denseInt8Function(arith: Int8Arith, tileRows = TILE_ROWS, colVectors = COL_VECTORS): FunctionDef {
-  const X = 0, XSTRIDE = 1, P = 2, W = 3, CSUM = 4, WS = 5, B = 6, Y = 7, YSTRIDE = 8, ROWS = 9, GROUPS = 10, OUTP = 11, RELU = 12;
-  const l = new Locals(13);
-  const R0 = l.add(I32), J = l.add(I32), G = l.add(I32), WP = l.add(I32), WPANEL = l.add(I32), PANELBYTES = l.add(I32), YP = l.add(I32), PP = l.add(I32);
-  const XP = l.many(I32, tileRows);
-  const ACC = l.many(V128, tileRows * colVectors);
-  const WV = l.many(V128, colVectors);
-  const S = l.add(V128), LOWER = l.add(V128), ZS = l.add(V128), SS = l.add(V128);
+  const { W, ROWS, GROUPS, OUTP, RELU } = DENSE_I8_PARAMS;
+  const locals = new Locals(13);
+  const R0 = locals.add(I32), J = locals.add(I32), G = locals.add(I32), WP = locals.add(I32), WPANEL = locals.add(I32), PANELBYTES = locals.add(I32), YP = locals.add(I32), PP = locals.add(I32);
+  const XP = locals.many(I32, tileRows);
+  const ACC = locals.many(V128, tileRows * colVectors);
+  const WV = locals.many(V128, colVectors);
+  const S = locals.add(V128), LOWER = locals.add(V128), ZS = locals.add(V128), SS = locals.add(V128);
   const c = new Code();
   const groupBytes = 16 * colVectors * (arith === 'relaxed' ? 1 : 2);
   const xGroupBytes = 4 * CODE_BYTES[arith];
+  const l = { R0, J, G, WP, WPANEL, PANELBYTES, YP, PP, XP, ACC, WV, S, LOWER, ZS, SS };
+  const e: DenseI8Emit = { c, arith, colVectors, groupBytes, xGroupBytes, l };
 
   // ReLU as max(v, 0); "no activation" as max(v, -inf), which changes nothing (NaN stays NaN).
   c.f32(0).f32(-Infinity).get(RELU).select().f32x4Splat().set(LOWER);
   c.get(GROUPS).i32(groupBytes).mul().set(PANELBYTES);
-
-  const tile = (rows: number): void => {
-    for (let a = 0; a < rows * colVectors; a++) c.v128Zero().set(ACC[a]);
-    c.get(X).get(R0).get(XSTRIDE).mul().add().set(XP[0]);
-    for (let t = 1; t < rows; t++) c.get(XP[t - 1]).get(XSTRIDE).add().set(XP[t]);
-    c.get(WPANEL).set(WP);
-    c.get(GROUPS).set(G);
-    c.block().loop();
-    {
-      if (arith === 'relaxed') {
-        for (let v = 0; v < colVectors; v++) c.get(WP).v128Load(16 * v).set(WV[v]);
-        for (let t = 0; t < rows; t++) {
-          c.get(XP[t]).load32Splat(0).set(S);
-          for (let v = 0; v < colVectors; v++) {
-            const acc = ACC[t * colVectors + v];
-            c.get(acc).get(WV[v]).get(S).i16x8RelaxedDotI8x16I7x16S().i32x4ExtaddPairwiseI16x8S().i32x4Add().set(acc);
-          }
-        }
-      } else {
-        for (let h = 0; h < 2; h++) {
-          for (let v = 0; v < colVectors; v++) c.get(WP).v128Load(16 * (colVectors * h + v)).set(WV[v]);
-          for (let t = 0; t < rows; t++) {
-            c.get(XP[t]).load32Splat(4 * h).set(S);
-            for (let v = 0; v < colVectors; v++) {
-              const acc = ACC[t * colVectors + v];
-              c.get(acc).get(WV[v]).get(S).i32x4DotI16x8S().i32x4Add().set(acc);
-            }
-          }
-        }
-      }
-      for (let t = 0; t < rows; t++) c.get(XP[t]).i32(xGroupBytes).add().set(XP[t]);
-      c.get(WP).i32(groupBytes).add().set(WP);
-      c.get(G).i32(1).sub().tee(G).i32(0).ne().brIf(0);
-    }
-    c.end().end();
-    // Epilogue: zero-point correction, dequantise, bias, activation, store.
-    for (let t = 0; t < rows; t++) {
-      c.get(P).get(R0).i32(t).add().i32(8).mul().add().set(PP);
-      c.get(PP).load32Splat(4).set(ZS);
-      c.get(PP).load32Splat(0).set(SS);
-      c.get(Y).get(R0).i32(t).add().get(YSTRIDE).mul().add().get(J).i32(4).mul().add().set(YP);
-      for (let v = 0; v < colVectors; v++) {
-        c.get(ACC[t * colVectors + v]).get(ZS).get(CSUM).get(J).i32(4).mul().add().v128Load(16 * v).i32x4Mul().i32x4Sub();
-        c.f32x4ConvertI32x4().get(SS).f32x4Mul();
-        c.get(WS).get(J).i32(4).mul().add().v128Load(16 * v).f32x4Mul();
-        c.get(B).get(J).i32(4).mul().add().v128Load(16 * v).f32x4Add();
-        c.get(LOWER).f32x4Max();
-        c.set(S);
-        c.get(YP).get(S).v128Store(16 * v);
-      }
-    }
-  };
 
   // for (J = 0; J < outP; J += PANEL, WPANEL += PANELBYTES)
   c.i32(0).set(J);
@@ -222,7 +202,7 @@ export function denseInt8Function(arith: Int8Arith, tileRows = TILE_ROWS, colVec
     c.block().loop();
     {
       c.get(R0).i32(tileRows).add().get(ROWS).gtU().brIf(1);
-      tile(tileRows);
+      emitInt8Tile(e, tileRows);
       c.get(R0).i32(tileRows).add().set(R0);
       c.br(0);
     }
@@ -230,7 +210,7 @@ export function denseInt8Function(arith: Int8Arith, tileRows = TILE_ROWS, colVec
     c.block().loop();
     {
       c.get(R0).get(ROWS).geU().brIf(1);
-      tile(1);
+      emitInt8Tile(e, 1);
       c.get(R0).i32(1).add().set(R0);
       c.br(0);
     }
@@ -240,7 +220,75 @@ export function denseInt8Function(arith: Int8Arith, tileRows = TILE_ROWS, colVec
     c.br(0);
   }
   c.end().end();
-  return { name: 'dense_i8', params: new Array<number>(13).fill(I32), locals: l.types, code: c };
+  return { name: 'dense_i8', params: new Array<number>(13).fill(I32), locals: locals.types, code: c };
+}
+
+/** One tile of `rows` rows x one panel at row R0, column J: the integer sums over all groups, then the epilogue. */
+function emitInt8Tile(e: DenseI8Emit, rows: number): void {
+  const { X, XSTRIDE, GROUPS } = DENSE_I8_PARAMS;
+  const { c, colVectors, groupBytes, xGroupBytes } = e;
+  const { R0, G, WP, WPANEL, XP, ACC } = e.l;
+  for (let a = 0; a < rows * colVectors; a++) c.v128Zero().set(ACC[a]);
+  c.get(X).get(R0).get(XSTRIDE).mul().add().set(XP[0]);
+  for (let t = 1; t < rows; t++) c.get(XP[t - 1]).get(XSTRIDE).add().set(XP[t]);
+  c.get(WPANEL).set(WP);
+  c.get(GROUPS).set(G);
+  c.block().loop();
+  {
+    emitInt8GroupProducts(e, rows);
+    for (let t = 0; t < rows; t++) c.get(XP[t]).i32(xGroupBytes).add().set(XP[t]);
+    c.get(WP).i32(groupBytes).add().set(WP);
+    c.get(G).i32(1).sub().tee(G).i32(0).ne().brIf(0);
+  }
+  c.end().end();
+  emitInt8Epilogue(e, rows);
+}
+
+/** The dot products of one group of 4 inputs into the tile's accumulators. */
+function emitInt8GroupProducts({ c, arith, colVectors, l }: DenseI8Emit, rows: number): void {
+  const { WP, XP, ACC, WV, S } = l;
+  if (arith === 'relaxed') {
+    for (let v = 0; v < colVectors; v++) c.get(WP).v128Load(16 * v).set(WV[v]);
+    for (let t = 0; t < rows; t++) {
+      c.get(XP[t]).load32Splat(0).set(S);
+      for (let v = 0; v < colVectors; v++) {
+        const acc = ACC[t * colVectors + v];
+        c.get(acc).get(WV[v]).get(S).i16x8RelaxedDotI8x16I7x16S().i32x4ExtaddPairwiseI16x8S().i32x4Add().set(acc);
+      }
+    }
+  } else {
+    for (let h = 0; h < 2; h++) {
+      for (let v = 0; v < colVectors; v++) c.get(WP).v128Load(16 * (colVectors * h + v)).set(WV[v]);
+      for (let t = 0; t < rows; t++) {
+        c.get(XP[t]).load32Splat(4 * h).set(S);
+        for (let v = 0; v < colVectors; v++) {
+          const acc = ACC[t * colVectors + v];
+          c.get(acc).get(WV[v]).get(S).i32x4DotI16x8S().i32x4Add().set(acc);
+        }
+      }
+    }
+  }
+}
+
+/** Epilogue: zero-point correction, dequantise, bias, activation, store. */
+function emitInt8Epilogue({ c, colVectors, l }: DenseI8Emit, rows: number): void {
+  const { P, CSUM, WS, B, Y, YSTRIDE } = DENSE_I8_PARAMS;
+  const { R0, J, YP, PP, ACC, S, LOWER, ZS, SS } = l;
+  for (let t = 0; t < rows; t++) {
+    c.get(P).get(R0).i32(t).add().i32(8).mul().add().set(PP);
+    c.get(PP).load32Splat(4).set(ZS);
+    c.get(PP).load32Splat(0).set(SS);
+    c.get(Y).get(R0).i32(t).add().get(YSTRIDE).mul().add().get(J).i32(4).mul().add().set(YP);
+    for (let v = 0; v < colVectors; v++) {
+      c.get(ACC[t * colVectors + v]).get(ZS).get(CSUM).get(J).i32(4).mul().add().v128Load(16 * v).i32x4Mul().i32x4Sub();
+      c.f32x4ConvertI32x4().get(SS).f32x4Mul();
+      c.get(WS).get(J).i32(4).mul().add().v128Load(16 * v).f32x4Mul();
+      c.get(B).get(J).i32(4).mul().add().v128Load(16 * v).f32x4Add();
+      c.get(LOWER).f32x4Max();
+      c.set(S);
+      c.get(YP).get(S).v128Store(16 * v);
+    }
+  }
 }
 
 /**
