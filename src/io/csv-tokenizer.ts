@@ -59,13 +59,10 @@ export class CsvTokenizer {
     this.sep = separator.charCodeAt(0);
   }
 
+  // eslint-disable-next-line max-lines-per-function -- per-character state machine: a call per character would cost on every cell of every file; setup, tail and errors are split out
   push(text: string): CsvRecord[] {
     const out: CsvRecord[] = [];
-    let start = 0;
-    if (this.first && text.length > 0) {
-      this.first = false;
-      if (text.charCodeAt(0) === 0xfeff) start = 1;
-    }
+    const start = this.skipByteOrderMark(text);
     let fieldStart = start;
     const n = text.length;
     const sep = this.sep;
@@ -161,6 +158,19 @@ export class CsvTokenizer {
           break;
       }
     }
+    this.carryOpenCell(text, fieldStart);
+    return out;
+  }
+
+  /** Index of the first character to read: 1 past a byte order mark at the very start of the file. */
+  private skipByteOrderMark(text: string): number {
+    if (!this.first || text.length === 0) return 0;
+    this.first = false;
+    return text.charCodeAt(0) === 0xfeff ? 1 : 0;
+  }
+
+  /** Keeps the part of a cell still open at the end of the chunk, for the next chunk to finish. */
+  private carryOpenCell(text: string, fieldStart: number): void {
     if (this.state === State.Unquoted || this.state === State.Quoted) {
       this.pending += text.slice(fieldStart);
       if (this.pending.length > MAX_CELL_CHARS) {
@@ -172,7 +182,6 @@ export class CsvTokenizer {
         );
       }
     }
-    return out;
   }
 
   /** Finishes the text; returns the last record when the file has no final newline. */

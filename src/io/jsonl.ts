@@ -47,24 +47,14 @@ export async function openJsonlTable(path: string, opts: TableOptions = {}): Pro
   const bytesTotal = await fileSize(path);
   const counter = { bytesRead: 0 };
   const lines = new BatchQueue(readLineBatches(path, counter), (line) => line.text.trim() !== '');
-  let firstLine: TextLine;
-  let firstValue: Row;
-  let columns: string[] | null;
-  let width: number;
-  let textColumns: number[];
+  let head: JsonlHead;
   try {
-    const head = await lines.next();
-    if (head === null) throw new DataError(path, 0, 0, 'file is empty');
-    firstLine = head;
-    firstValue = rowShape(path, head, parseJsonLine(path, head));
-    columns = Array.isArray(firstValue) ? null : Object.keys(firstValue);
-    width = columns ? columns.length : (firstValue as unknown[]).length;
-    if (width === 0) throw new DataError(path, head.line, 1, 'the first row has no values');
-    textColumns = resolveColumns(columns, width, opts.textColumns ?? [], path);
+    head = await readHead(path, lines, opts);
   } catch (error) {
     await lines.close();
     throw error;
   }
+  const { firstLine, firstValue, columns, width, textColumns } = head;
   const chunkRows = rowsPerChunk(width, opts.chunkRows);
   // 0: a number, 1: text, 2: skipped (any value, or no key at all).
   const use = new Uint8Array(width);
@@ -78,7 +68,75 @@ export async function openJsonlTable(path: string, opts: TableOptions = {}): Pro
   let closed = false;
   let started = false;
 
-  const addRow = (builder: ChunkBuilder, line: TextLine, value: Row): void => {
+  const addRow = makeRowAdder(path, columns, width, use);
+
+  async function* chunks(): AsyncGenerator<TableChunk> {
+    if (started) throw new Error('JSONL table chunks() can be iterated only once');
+    started = true;
+    const builder = new ChunkBuilder(width, chunkRows, textColumns);
+    try {
+      addRow(builder, firstLine, firstValue);
+      while (!closed) {
+        if (builder.full) yield builder.take()!;
+        const line = await lines.next();
+        if (line === null) break;
+        addRow(builder, line, rowShape(path, line, parseJsonLine(path, line)));
+      }
+      const last = builder.take();
+      if (last && !closed) yield last;
+    } finally {
+      await lines.close();
+    }
+  }
+
+  return {
+    columns,
+    width,
+    textColumns,
+    get bytesRead() {
+      return counter.bytesRead;
+    },
+    bytesTotal,
+    chunks,
+    async close() {
+      closed = true;
+      await lines.close();
+    },
+  };
+}
+
+/** What the first non-blank line settles: the columns (null for arrays), the width, the text columns. */
+interface JsonlHead {
+  firstLine: TextLine;
+  firstValue: Row;
+  columns: string[] | null;
+  width: number;
+  textColumns: number[];
+}
+
+async function readHead(path: string, lines: BatchQueue<TextLine>, opts: TableOptions): Promise<JsonlHead> {
+  const head = await lines.next();
+  if (head === null) throw new DataError(path, 0, 0, 'file is empty');
+  const firstValue = rowShape(path, head, parseJsonLine(path, head));
+  const columns = Array.isArray(firstValue) ? null : Object.keys(firstValue);
+  const width = columns ? columns.length : (firstValue as unknown[]).length;
+  if (width === 0) throw new DataError(path, head.line, 1, 'the first row has no values');
+  const textColumns = resolveColumns(columns, width, opts.textColumns ?? [], path);
+  return { firstLine: head, firstValue, columns, width, textColumns };
+}
+
+/**
+ * The reader of one row into a chunk: checks the row has the first line's shape and each read
+ * cell is a finite number (or a class name), and marks skipped cells NaN.
+ * `use` per column - 0: a number, 1: text, 2: skipped (any value, or no key at all).
+ */
+function makeRowAdder(
+  path: string,
+  columns: string[] | null,
+  width: number,
+  use: Uint8Array,
+): (builder: ChunkBuilder, line: TextLine, value: Row) => void {
+  return (builder: ChunkBuilder, line: TextLine, value: Row): void => {
     const offset = builder.startRow(line.line);
     const values = builder.values;
     if (columns === null) {
@@ -119,40 +177,6 @@ export async function openJsonlTable(path: string, opts: TableOptions = {}): Pro
         throw new DataError(path, line.line, c + 1, `value ${shownValue(cell)} in column ${name} is not a finite number`);
       }
     }
-  };
-
-  async function* chunks(): AsyncGenerator<TableChunk> {
-    if (started) throw new Error('JSONL table chunks() can be iterated only once');
-    started = true;
-    const builder = new ChunkBuilder(width, chunkRows, textColumns);
-    try {
-      addRow(builder, firstLine, firstValue);
-      while (!closed) {
-        if (builder.full) yield builder.take()!;
-        const line = await lines.next();
-        if (line === null) break;
-        addRow(builder, line, rowShape(path, line, parseJsonLine(path, line)));
-      }
-      const last = builder.take();
-      if (last && !closed) yield last;
-    } finally {
-      await lines.close();
-    }
-  }
-
-  return {
-    columns,
-    width,
-    textColumns,
-    get bytesRead() {
-      return counter.bytesRead;
-    },
-    bytesTotal,
-    chunks,
-    async close() {
-      closed = true;
-      await lines.close();
-    },
   };
 }
 

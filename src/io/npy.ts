@@ -211,6 +211,79 @@ export function littleEndianBytes(data: Float32Array | Float64Array, dtype: NpyW
   return out;
 }
 
+/** What the header settles, and the whole array when it is in Fortran order (read at once). */
+interface NpyLayout {
+  header: NpyHeader;
+  dtype: Dtype;
+  bytesTotal: number;
+  whole: NpyArray | null;
+}
+
+/** Reads and checks the header: a known dtype, data of the size the shape needs, 1 or 2 dimensions. */
+async function readNpyLayout(path: string, handle: FileHandle): Promise<NpyLayout> {
+  const bytesTotal = (await handle.stat()).size;
+  const preamble = Buffer.alloc(Math.min(NPY_PREAMBLE_BYTES, bytesTotal));
+  await handle.read(preamble, 0, preamble.length, 0);
+  const { dictEnd } = npyPreamble(path, preamble);
+  const head = Buffer.alloc(Math.min(dictEnd, bytesTotal));
+  await handle.read(head, 0, head.length, 0);
+  const header = decodeNpyHeader(path, head);
+  const checked = checkHeader(path, header);
+  const dtype = checked.dtype;
+  const have = bytesTotal - header.dataOffset;
+  if (have !== checked.count * dtype.size) {
+    throw new DataError(path, 0, 0, `NPY data holds ${have} bytes, but shape ${shapeText(header.shape)} of '${header.descr}' needs ${checked.count * dtype.size}`);
+  }
+  if (header.shape.length > 2) {
+    const flat = `(${header.shape[0]}, ${header.shape.slice(1).reduce((a, b) => a * b, 1)})`;
+    throw new DataError(path, 0, 0, `NPY array has ${header.shape.length} dimensions ${shapeText(header.shape)}; a table needs 1 or 2 (rows, columns): reshape it to ${flat} first, e.g. numpy's a.reshape(len(a), -1)`);
+  }
+  let whole: NpyArray | null = null;
+  if (header.fortranOrder && header.shape.length === 2) {
+    const bytes = Buffer.alloc(have);
+    await handle.read(bytes, 0, have, header.dataOffset);
+    whole = fortranToC(bytesToArray(dtype, bytes), header.shape);
+  }
+  return { header, dtype, bytesTotal, whole };
+}
+
+/**
+ * The maker of one table chunk from `rows` rows of values: skipped columns become NaN, float64
+ * values past the float32 range are refused (`checkCells` when either can happen), and text
+ * columns hand out their numbers as text.
+ */
+function makeChunkMaker(
+  path: string,
+  width: number,
+  textColumns: number[],
+  skipped: Uint8Array,
+  checkCells: boolean,
+): (row: number, rows: number, values: NpyArray) => TableChunk {
+  return (row: number, rows: number, values: NpyArray): TableChunk => {
+    const data = values instanceof Float64Array ? values : Float64Array.from(values);
+    // Only float64 values can pass the float32 range; skipped columns are never looked at.
+    if (checkCells) {
+      for (let i = 0; i < data.length; i++) {
+        const c = i % width;
+        if (skipped[c]) data[i] = Number.NaN;
+        else if (overflowsFloat32(data[i])) {
+          throw new DataError(path, row + Math.floor(i / width) + 1, c + 1, `value ${data[i]} in column ${c + 1} ${OUT_OF_FLOAT32}`);
+        }
+      }
+    }
+    const chunk: TableChunk = { rows, data, firstLine: row + 1 };
+    if (textColumns.length > 0) {
+      chunk.text = new Map(textColumns.map((c) => {
+        const cells: string[] = [];
+        for (let r = 0; r < rows; r++) cells.push(String(data[r * width + c]));
+        for (let r = 0; r < rows; r++) data[r * width + c] = Number.NaN;
+        return [c, cells];
+      }));
+    }
+    return chunk;
+  };
+}
+
 /**
  * Opens a 1-D or 2-D NPY file as a table (1-D is one column). Reads `chunkRows` rows per read,
  * so memory stays bounded; a Fortran-order file is read whole and rearranged first. Text
@@ -229,37 +302,14 @@ export async function openNpyTable(path: string, opts: TableOptions = {}): Promi
   } catch (error) {
     throw asDataError(path, error);
   }
-  let header: NpyHeader;
-  let dtype: Dtype;
-  let bytesTotal: number;
-  let whole: NpyArray | null = null;
+  let layout: NpyLayout;
   try {
-    bytesTotal = (await handle.stat()).size;
-    const preamble = Buffer.alloc(Math.min(NPY_PREAMBLE_BYTES, bytesTotal));
-    await handle.read(preamble, 0, preamble.length, 0);
-    const { dictEnd } = npyPreamble(path, preamble);
-    const head = Buffer.alloc(Math.min(dictEnd, bytesTotal));
-    await handle.read(head, 0, head.length, 0);
-    header = decodeNpyHeader(path, head);
-    const checked = checkHeader(path, header);
-    dtype = checked.dtype;
-    const have = bytesTotal - header.dataOffset;
-    if (have !== checked.count * dtype.size) {
-      throw new DataError(path, 0, 0, `NPY data holds ${have} bytes, but shape ${shapeText(header.shape)} of '${header.descr}' needs ${checked.count * dtype.size}`);
-    }
-    if (header.shape.length > 2) {
-      const flat = `(${header.shape[0]}, ${header.shape.slice(1).reduce((a, b) => a * b, 1)})`;
-      throw new DataError(path, 0, 0, `NPY array has ${header.shape.length} dimensions ${shapeText(header.shape)}; a table needs 1 or 2 (rows, columns): reshape it to ${flat} first, e.g. numpy's a.reshape(len(a), -1)`);
-    }
-    if (header.fortranOrder && header.shape.length === 2) {
-      const bytes = Buffer.alloc(have);
-      await handle.read(bytes, 0, have, header.dataOffset);
-      whole = fortranToC(bytesToArray(dtype, bytes), header.shape);
-    }
+    layout = await readNpyLayout(path, handle);
   } catch (error) {
     await handle.close();
     throw asDataError(path, error);
   }
+  const { header, dtype, bytesTotal, whole } = layout;
   const rowsTotal = header.shape[0];
   const width = header.shape.length === 2 ? header.shape[1] : 1;
   if (rowsTotal === 0 || width === 0) {
@@ -287,29 +337,7 @@ export async function openNpyTable(path: string, opts: TableOptions = {}): Promi
     await handle.close();
   };
 
-  const toChunk = (row: number, rows: number, values: NpyArray): TableChunk => {
-    const data = values instanceof Float64Array ? values : Float64Array.from(values);
-    // Only float64 values can pass the float32 range; skipped columns are never looked at.
-    if (mayOverflow || anySkipped) {
-      for (let i = 0; i < data.length; i++) {
-        const c = i % width;
-        if (skipped[c]) data[i] = Number.NaN;
-        else if (overflowsFloat32(data[i])) {
-          throw new DataError(path, row + Math.floor(i / width) + 1, c + 1, `value ${data[i]} in column ${c + 1} ${OUT_OF_FLOAT32}`);
-        }
-      }
-    }
-    const chunk: TableChunk = { rows, data, firstLine: row + 1 };
-    if (textColumns.length > 0) {
-      chunk.text = new Map(textColumns.map((c) => {
-        const cells: string[] = [];
-        for (let r = 0; r < rows; r++) cells.push(String(data[r * width + c]));
-        for (let r = 0; r < rows; r++) data[r * width + c] = Number.NaN;
-        return [c, cells];
-      }));
-    }
-    return chunk;
-  };
+  const toChunk = makeChunkMaker(path, width, textColumns, skipped, mayOverflow || anySkipped);
 
   async function* chunks(): AsyncGenerator<TableChunk> {
     try {

@@ -76,29 +76,7 @@ export async function buildFromSpec(spec: unknown, specPath: string, options: Sp
     return Float64Array.from(t.data);
   };
 
-  let normalise: Normalisation | null = null;
-  if (spec.normalise !== undefined) {
-    const n = spec.normalise;
-    if (!isObject(n)) fail('normalise', 'must be an object with a "method"');
-    else if (n.method === 'zscore') {
-      const count = n.count === undefined ? 0 : nonNegativeInt(n.count, 'normalise.count', fail) ?? 0;
-      const mean = n.mean === undefined ? null : (await loadVector(n.mean, 'normalise.mean', inputs)) ?? null;
-      const std = n.std === undefined ? null : (await loadVector(n.std, 'normalise.std', inputs)) ?? null;
-      if ((mean === null) !== (std === null)) fail('normalise', 'give both mean and std, or neither (to fit them from data)');
-      std?.forEach((s, i) => (s > 0 ? undefined : fail(`normalise.std[${i}]`, `must be > 0, got ${s}`)));
-      const m2 = std ? std.map((s) => s * s * count) : null;
-      normalise = { method: 'zscore', mean, std, m2, count };
-    } else if (n.method === 'minmax') {
-      const count = n.count === undefined ? 0 : nonNegativeInt(n.count, 'normalise.count', fail) ?? 0;
-      const min = n.min === undefined ? null : (await loadVector(n.min, 'normalise.min', inputs)) ?? null;
-      const max = n.max === undefined ? null : (await loadVector(n.max, 'normalise.max', inputs)) ?? null;
-      if ((min === null) !== (max === null)) fail('normalise', 'give both min and max, or neither (to fit them from data)');
-      if (min && max) min.forEach((lo, i) => (max[i] >= lo ? undefined : fail(`normalise.max[${i}]`, `is below min (${max[i]} < ${lo})`)));
-      normalise = { method: 'minmax', min, max, count };
-    } else {
-      fail('normalise.method', `must be "zscore" or "minmax", got ${JSON.stringify(n.method)}`);
-    }
-  }
+  const normalise = spec.normalise === undefined ? null : await readNormalise(spec.normalise, inputs, loadVector, fail);
 
   const layers: Layer[] = [];
   if (!Array.isArray(spec.layers) || spec.layers.length === 0) fail('layers', 'must be a non-empty list');
@@ -146,6 +124,35 @@ export async function buildFromSpec(spec: unknown, specPath: string, options: Sp
   };
 }
 
+/** The "normalise" block: z-score or min-max statistics, or none given (to fit them from data). */
+async function readNormalise(
+  n: unknown,
+  inputs: number | undefined,
+  loadVector: LayerContext['loadVector'],
+  fail: Fail,
+): Promise<Normalisation | null> {
+  if (!isObject(n)) fail('normalise', 'must be an object with a "method"');
+  else if (n.method === 'zscore') {
+    const count = n.count === undefined ? 0 : nonNegativeInt(n.count, 'normalise.count', fail) ?? 0;
+    const mean = n.mean === undefined ? null : (await loadVector(n.mean, 'normalise.mean', inputs)) ?? null;
+    const std = n.std === undefined ? null : (await loadVector(n.std, 'normalise.std', inputs)) ?? null;
+    if ((mean === null) !== (std === null)) fail('normalise', 'give both mean and std, or neither (to fit them from data)');
+    std?.forEach((s, i) => (s > 0 ? undefined : fail(`normalise.std[${i}]`, `must be > 0, got ${s}`)));
+    const m2 = std ? std.map((s) => s * s * count) : null;
+    return { method: 'zscore', mean, std, m2, count };
+  } else if (n.method === 'minmax') {
+    const count = n.count === undefined ? 0 : nonNegativeInt(n.count, 'normalise.count', fail) ?? 0;
+    const min = n.min === undefined ? null : (await loadVector(n.min, 'normalise.min', inputs)) ?? null;
+    const max = n.max === undefined ? null : (await loadVector(n.max, 'normalise.max', inputs)) ?? null;
+    if ((min === null) !== (max === null)) fail('normalise', 'give both min and max, or neither (to fit them from data)');
+    if (min && max) min.forEach((lo, i) => (max[i] >= lo ? undefined : fail(`normalise.max[${i}]`, `is below min (${max[i]} < ${lo})`)));
+    return { method: 'minmax', min, max, count };
+  } else {
+    fail('normalise.method', `must be "zscore" or "minmax", got ${JSON.stringify(n.method)}`);
+  }
+  return null;
+}
+
 type Fail = (where: string, message: string) => undefined;
 
 interface LayerContext {
@@ -183,30 +190,7 @@ async function buildLayer(
     return { layer: { kind: 'dropout', rate }, outputWidth: width };
   }
 
-  if (kind === 'batchnorm') {
-    const epsilon = raw.epsilon === undefined ? DEFAULT_BN_EPSILON : raw.epsilon;
-    const momentum = raw.momentum === undefined ? DEFAULT_BN_MOMENTUM : raw.momentum;
-    if (!BATCHNORM_RULES.epsilon.ok(epsilon)) fail(`${where}.epsilon`, `must be ${BATCHNORM_RULES.epsilon.rule}, got ${JSON.stringify(raw.epsilon)}`);
-    if (!BATCHNORM_RULES.momentum.ok(momentum)) fail(`${where}.momentum`, `must be ${BATCHNORM_RULES.momentum.rule}, got ${JSON.stringify(raw.momentum)}`);
-    if (width === undefined) return undefined;
-    const vector = async (name: string, fill: number) =>
-      raw[name] === undefined ? new Float64Array(width).fill(fill) : await loadVector(raw[name], `${where}.${name}`, width);
-    const [gamma, beta, mean, variance] = [await vector('gamma', 1), await vector('beta', 0), await vector('mean', 0), await vector('variance', 1)];
-    variance?.forEach((v, j) => (v >= 0 ? undefined : fail(`${where}.variance[${j}]`, `must be >= 0, got ${v}`)));
-    if (!gamma || !beta || !mean || !variance || typeof epsilon !== 'number' || typeof momentum !== 'number') return undefined;
-    return {
-      layer: {
-        kind: 'batchnorm',
-        gamma: Float32Array.from(gamma),
-        beta: Float32Array.from(beta),
-        runningMean: Float32Array.from(mean),
-        runningVariance: Float32Array.from(variance),
-        epsilon,
-        momentum,
-      },
-      outputWidth: width,
-    };
-  }
+  if (kind === 'batchnorm') return buildBatchnorm(raw, where, width, ctx);
 
   // Every other kind returned above: a new kind fails to compile here until it has its branch.
   if (kind !== 'dense') throw new Error(`buildLayer: unhandled layer kind ${String(kind satisfies never)}`);
@@ -246,6 +230,38 @@ async function buildLayer(
   }
   if (!weight || !bias) return { layer: placeholder(units), outputWidth: units };
   return { layer: { kind: 'dense', size: units, activation: act, alpha, weight, bias }, outputWidth: units };
+}
+
+/** A batchnorm layer: epsilon and momentum in range, and vectors of the layer width (defaults: scale 1, shift 0, mean 0, variance 1). */
+async function buildBatchnorm(
+  raw: Record<string, unknown>,
+  where: string,
+  width: number | undefined,
+  ctx: LayerContext,
+): Promise<{ layer: Layer; outputWidth: number | undefined } | undefined> {
+  const { fail, loadVector } = ctx;
+  const epsilon = raw.epsilon === undefined ? DEFAULT_BN_EPSILON : raw.epsilon;
+  const momentum = raw.momentum === undefined ? DEFAULT_BN_MOMENTUM : raw.momentum;
+  if (!BATCHNORM_RULES.epsilon.ok(epsilon)) fail(`${where}.epsilon`, `must be ${BATCHNORM_RULES.epsilon.rule}, got ${JSON.stringify(raw.epsilon)}`);
+  if (!BATCHNORM_RULES.momentum.ok(momentum)) fail(`${where}.momentum`, `must be ${BATCHNORM_RULES.momentum.rule}, got ${JSON.stringify(raw.momentum)}`);
+  if (width === undefined) return undefined;
+  const vector = async (name: string, fill: number) =>
+    raw[name] === undefined ? new Float64Array(width).fill(fill) : await loadVector(raw[name], `${where}.${name}`, width);
+  const [gamma, beta, mean, variance] = [await vector('gamma', 1), await vector('beta', 0), await vector('mean', 0), await vector('variance', 1)];
+  variance?.forEach((v, j) => (v >= 0 ? undefined : fail(`${where}.variance[${j}]`, `must be >= 0, got ${v}`)));
+  if (!gamma || !beta || !mean || !variance || typeof epsilon !== 'number' || typeof momentum !== 'number') return undefined;
+  return {
+    layer: {
+      kind: 'batchnorm',
+      gamma: Float32Array.from(gamma),
+      beta: Float32Array.from(beta),
+      runningMean: Float32Array.from(mean),
+      runningVariance: Float32Array.from(variance),
+      epsilon,
+      momentum,
+    },
+    outputWidth: width,
+  };
 }
 
 /** Stands in for a layer with problems so later layers are still checked against its width. */

@@ -60,76 +60,85 @@ const REFERENCE_EVAL_ROWS = 1024;
  */
 export function makeBackend(path: TrainPath, doc: ModelDoc, preActivation: boolean): TrainBackend {
   const view = logitsView(doc, preActivation);
+  if (path === 'reference') return referenceBackend(doc, view, preActivation);
+  if (path === 'fast') return fastBackend(doc, preActivation);
+  return engineBackend(doc, view, preActivation);
+}
+
+/** Steps on the float64 reference path; evaluation runs in pieces of REFERENCE_EVAL_ROWS rows. */
+function referenceBackend(doc: ModelDoc, view: ModelDoc, preActivation: boolean): TrainBackend {
   const outputs = (): number => {
     let w = doc.inputs;
     for (const l of doc.layers) if (l.kind === 'dense') w = l.size;
     return w;
   };
-  if (path === 'reference') {
-    return {
-      path,
-      forwardTrain(x, rows, ctx) {
-        const r = referenceForwardTrain(doc, toMat64(x, rows, doc.inputs), ctx);
-        const out = preActivation ? r.z!.data : r.y.data;
-        return { rows, out, stats: r.tape.map((t) => t.stats ?? null), tape: r.tape };
-      },
-      backward(f, dOut) {
-        const tape = f.tape as readonly ReferenceTapeEntry[];
-        return referenceBackwardTape(doc, tape, mat64(f.rows, outputs(), dOut), { dyIsPreActivation: preActivation }).grads;
-      },
-      discard() {},
-      refresh() {},
-      evaluate(x, rows) {
-        const pieces: Float64Array[][] = [];
-        for (let start = 0; start < rows; start += REFERENCE_EVAL_ROWS) {
-          const n = Math.min(REFERENCE_EVAL_ROWS, rows - start);
-          const sub = x.subarray(start * doc.inputs, (start + n) * doc.inputs);
-          pieces.push(referenceForward(view, toMat64(sub, n, doc.inputs), { keepLayers: true }).layers!.map((m) => m.data));
+  return {
+    path: 'reference',
+    forwardTrain(x, rows, ctx) {
+      const r = referenceForwardTrain(doc, toMat64(x, rows, doc.inputs), ctx);
+      const out = preActivation ? r.z!.data : r.y.data;
+      return { rows, out, stats: r.tape.map((t) => t.stats ?? null), tape: r.tape };
+    },
+    backward(f, dOut) {
+      const tape = f.tape as readonly ReferenceTapeEntry[];
+      return referenceBackwardTape(doc, tape, mat64(f.rows, outputs(), dOut), { dyIsPreActivation: preActivation }).grads;
+    },
+    discard() {},
+    refresh() {},
+    evaluate(x, rows) {
+      const pieces: Float64Array[][] = [];
+      for (let start = 0; start < rows; start += REFERENCE_EVAL_ROWS) {
+        const n = Math.min(REFERENCE_EVAL_ROWS, rows - start);
+        const sub = x.subarray(start * doc.inputs, (start + n) * doc.inputs);
+        pieces.push(referenceForward(view, toMat64(sub, n, doc.inputs), { keepLayers: true }).layers!.map((m) => m.data));
+      }
+      if (pieces.length === 1) return pieces[0];
+      return pieces[0].map((_, layer) => {
+        const total = pieces.reduce((s, p) => s + p[layer].length, 0);
+        const joined = new Float64Array(total);
+        let at = 0;
+        for (const p of pieces) {
+          joined.set(p[layer], at);
+          at += p[layer].length;
         }
-        if (pieces.length === 1) return pieces[0];
-        return pieces[0].map((_, layer) => {
-          const total = pieces.reduce((s, p) => s + p[layer].length, 0);
-          const joined = new Float64Array(total);
-          let at = 0;
-          for (const p of pieces) {
-            joined.set(p[layer], at);
-            at += p[layer].length;
-          }
-          return joined;
-        });
-      },
-      dispose() {},
-    };
-  }
+        return joined;
+      });
+    },
+    dispose() {},
+  };
+}
 
-  if (path === 'fast') {
-    const fast = new SimdTrainer(doc, { preActivation });
-    return {
-      path,
-      forwardTrain(x, rows, ctx) {
-        return fast.forwardTrain(x, rows, ctx);
-      },
-      backward(f, dOut) {
-        return fast.backward({ rows: f.rows, out: f.out as Float32Array, stats: [], tape: f.tape as SimdTape }, dOut);
-      },
-      discard(f) {
-        (f.tape as SimdTape).disposed = true;
-      },
-      refresh(layers) {
-        fast.refresh(layers);
-      },
-      evaluate(x, rows) {
-        return fast.evaluate(x, rows);
-      },
-      dispose() {},
-    };
-  }
+/** Steps on our WebAssembly SIMD kernel. */
+function fastBackend(doc: ModelDoc, preActivation: boolean): TrainBackend {
+  const fast = new SimdTrainer(doc, { preActivation });
+  return {
+    path: 'fast',
+    forwardTrain(x, rows, ctx) {
+      return fast.forwardTrain(x, rows, ctx);
+    },
+    backward(f, dOut) {
+      return fast.backward({ rows: f.rows, out: f.out as Float32Array, stats: [], tape: f.tape as SimdTape }, dOut);
+    },
+    discard(f) {
+      (f.tape as SimdTape).disposed = true;
+    },
+    refresh(layers) {
+      fast.refresh(layers);
+    },
+    evaluate(x, rows) {
+      return fast.evaluate(x, rows);
+    },
+    dispose() {},
+  };
+}
 
+/** Steps on the tfjs engine; evaluation reads logits from a second session when the loss wants them. */
+function engineBackend(doc: ModelDoc, view: ModelDoc, preActivation: boolean): TrainBackend {
   const session = new TfjsTrainer(doc);
   const evalSession = preActivation ? new TfjsTrainer(view) : session;
   let evalStale = false;
   return {
-    path,
+    path: 'engine',
     forwardTrain(x, rows, ctx) {
       const f = session.forwardTrain(x instanceof Float32Array ? x : Float32Array.from(x), rows, ctx);
       const out = preActivation ? f.z : f.y;

@@ -151,52 +151,20 @@ export function resolveTuneOptions(opts: TuneOptions, doc: ModelDoc): ResolvedTu
   const lr = opts.lr === undefined ? (optimiserName === 'adam' ? 0.001 : 0.01) : opts.lr;
   if (!isFiniteNumber(lr) || lr <= 0) throw new TuneConfigError('lr', `must be a finite number > 0, got ${lr}`);
 
-  let optimiser: OptimiserSpec;
-  if (optimiserName === 'sgd') optimiser = { name: 'sgd' };
-  else if (optimiserName === 'momentum') {
-    optimiser = { name: 'momentum', momentum: inRange('momentum', opts.momentum, 0.9, 0, 1, false, true), nesterov: opts.nesterov ?? false };
-  } else {
-    optimiser = {
-      name: 'adam',
-      beta1: inRange('beta1', opts.beta1, ADAM_DEFAULTS.beta1, 0, 1, false, true),
-      beta2: inRange('beta2', opts.beta2, ADAM_DEFAULTS.beta2, 0, 1, false, true),
-      epsilon: inRange('epsilon', opts.epsilon, ADAM_DEFAULTS.epsilon, 0, Infinity, true, true),
-    };
-  }
+  const optimiser = resolveOptimiser(optimiserName, opts);
 
   const decayRate = inRange('weightDecay', opts.weightDecay, 0, 0, Infinity, false, true);
   const decayMode = oneOf('decayMode', opts.decayMode, ['decoupled', 'l2'] as const, 'decoupled');
   const decay = decayRate > 0 ? { mode: decayMode, rate: decayRate } : null;
 
-  const shape = oneOf('schedule', opts.schedule, ['constant', 'step', 'cosine'] as const, 'constant');
-  const warmupSteps = opts.warmup === undefined ? 0 : opts.warmup;
-  if (!Number.isInteger(warmupSteps) || warmupSteps < 0) throw new TuneConfigError('warmup', `must be a whole number >= 0, got ${warmupSteps}`);
-  const schedule: Schedule =
-    shape === 'step'
-      ? {
-          shape: {
-            kind: 'step',
-            everyEpochs: positiveInt('stepEvery', opts.stepEvery, 10),
-            factor: inRange('stepFactor', opts.stepFactor, 0.5, 0, 1, true, false),
-          },
-          warmupSteps,
-        }
-      : shape === 'cosine'
-        ? { shape: { kind: 'cosine', floor: inRange('floor', opts.floor, 0, 0, lr, false, false) }, warmupSteps }
-        : { shape: { kind: 'constant' }, warmupSteps };
+  const schedule = resolveSchedule(opts, lr);
 
   const clip = opts.clip === undefined ? null : inRange('clip', opts.clip, 0, 0, Infinity, true, true);
 
   const seed = opts.seed ?? 0;
   if (!Number.isInteger(seed)) throw new TuneConfigError('seed', `must be a whole number, got ${seed}`);
 
-  let holdout: ResolvedTuneOptions['holdout'] = { kind: 'none' };
-  if (opts.holdoutData) {
-    checkData('holdoutData', opts.holdoutData, doc.inputs);
-    holdout = { kind: 'data', data: opts.holdoutData };
-  } else if (opts.holdout !== undefined) {
-    holdout = { kind: 'fraction', fraction: inRange('holdout', opts.holdout, 0, 0, 1, true, true) };
-  }
+  const holdout = resolveHoldout(opts, doc);
 
   const stopAfter = opts.stopAfter === undefined ? null : positiveInt('stopAfter', opts.stopAfter, 1);
   if (stopAfter !== null && holdout.kind === 'none') throw new TuneConfigError('stopAfter', 'early stopping needs hold-out rows (holdout or holdoutData)');
@@ -208,32 +176,11 @@ export function resolveTuneOptions(opts: TuneOptions, doc: ModelDoc): ResolvedTu
     throw new TuneConfigError('calibrate', 'a temperature is fitted to classes: a softmax output, or one sigmoid unit (this model has several sigmoid outputs)');
   }
 
-  const freeze = new Set<number>();
-  for (const i of opts.freeze ?? []) {
-    if (!Number.isInteger(i) || i < 0 || i >= doc.layers.length) {
-      throw new TuneConfigError('freeze', `layer index ${i} is out of range 0..${doc.layers.length - 1}`);
-    }
-    freeze.add(i);
-  }
-  const freezeTensors = new Set<string>();
-  for (const name of opts.freezeTensors ?? []) {
-    const m = /^layers\[(\d+)\]\.(\w+)$/.exec(name);
-    if (!m || Number(m[1]) >= doc.layers.length) throw new TuneConfigError('freezeTensors', `"${name}" does not name a tensor like layers[0].bias`);
-    freezeTensors.add(name);
-  }
-  if (freeze.size === doc.layers.length && doc.layers.length > 0) throw new TuneConfigError('freeze', 'every layer is frozen: nothing would train');
+  const { freeze, freezeTensors } = resolveFreeze(opts, doc);
 
   const anchor = inRange('anchor', opts.anchor, 0, 0, Infinity, false, true);
 
-  let replay: ResolvedTuneOptions['replay'] = null;
-  if (opts.replay) {
-    checkData('replay', opts.replay, doc.inputs);
-    const perBatch = opts.replayPerBatch ?? 0.25;
-    if (!isFiniteNumber(perBatch) || perBatch <= 0 || (perBatch >= 1 && !Number.isInteger(perBatch))) {
-      throw new TuneConfigError('replayPerBatch', `must be a fraction in (0, 1) or a whole count >= 1, got ${perBatch}`);
-    }
-    replay = { data: opts.replay, perBatch };
-  }
+  const replay = resolveReplay(opts, doc);
 
   return {
     epochs: positiveInt('epochs', opts.epochs, 10),
@@ -255,4 +202,77 @@ export function resolveTuneOptions(opts: TuneOptions, doc: ModelDoc): ResolvedTu
     calibrate,
     scaleTargets: flag('scaleTargets', opts.scaleTargets, true),
   };
+}
+
+/** The optimiser's own settings, with their defaults. */
+function resolveOptimiser(optimiserName: OptimiserSpec['name'], opts: TuneOptions): OptimiserSpec {
+  if (optimiserName === 'sgd') return { name: 'sgd' };
+  if (optimiserName === 'momentum') {
+    return { name: 'momentum', momentum: inRange('momentum', opts.momentum, 0.9, 0, 1, false, true), nesterov: opts.nesterov ?? false };
+  }
+  return {
+    name: 'adam',
+    beta1: inRange('beta1', opts.beta1, ADAM_DEFAULTS.beta1, 0, 1, false, true),
+    beta2: inRange('beta2', opts.beta2, ADAM_DEFAULTS.beta2, 0, 1, false, true),
+    epsilon: inRange('epsilon', opts.epsilon, ADAM_DEFAULTS.epsilon, 0, Infinity, true, true),
+  };
+}
+
+/** The learning-rate schedule: its shape and the warm-up steps. */
+function resolveSchedule(opts: TuneOptions, lr: number): Schedule {
+  const shape = oneOf('schedule', opts.schedule, ['constant', 'step', 'cosine'] as const, 'constant');
+  const warmupSteps = opts.warmup === undefined ? 0 : opts.warmup;
+  if (!Number.isInteger(warmupSteps) || warmupSteps < 0) throw new TuneConfigError('warmup', `must be a whole number >= 0, got ${warmupSteps}`);
+  return shape === 'step'
+    ? {
+        shape: {
+          kind: 'step',
+          everyEpochs: positiveInt('stepEvery', opts.stepEvery, 10),
+          factor: inRange('stepFactor', opts.stepFactor, 0.5, 0, 1, true, false),
+        },
+        warmupSteps,
+      }
+    : shape === 'cosine'
+      ? { shape: { kind: 'cosine', floor: inRange('floor', opts.floor, 0, 0, lr, false, false) }, warmupSteps }
+      : { shape: { kind: 'constant' }, warmupSteps };
+}
+
+/** Hold-out rows: given, a fraction of the training rows, or none. */
+function resolveHoldout(opts: TuneOptions, doc: ModelDoc): ResolvedTuneOptions['holdout'] {
+  if (opts.holdoutData) {
+    checkData('holdoutData', opts.holdoutData, doc.inputs);
+    return { kind: 'data', data: opts.holdoutData };
+  }
+  if (opts.holdout !== undefined) return { kind: 'fraction', fraction: inRange('holdout', opts.holdout, 0, 0, 1, true, true) };
+  return { kind: 'none' };
+}
+
+/** Frozen layers (by index) and frozen tensors (by name); refuses freezing every layer. */
+function resolveFreeze(opts: TuneOptions, doc: ModelDoc): { freeze: Set<number>; freezeTensors: Set<string> } {
+  const freeze = new Set<number>();
+  for (const i of opts.freeze ?? []) {
+    if (!Number.isInteger(i) || i < 0 || i >= doc.layers.length) {
+      throw new TuneConfigError('freeze', `layer index ${i} is out of range 0..${doc.layers.length - 1}`);
+    }
+    freeze.add(i);
+  }
+  const freezeTensors = new Set<string>();
+  for (const name of opts.freezeTensors ?? []) {
+    const m = /^layers\[(\d+)\]\.(\w+)$/.exec(name);
+    if (!m || Number(m[1]) >= doc.layers.length) throw new TuneConfigError('freezeTensors', `"${name}" does not name a tensor like layers[0].bias`);
+    freezeTensors.add(name);
+  }
+  if (freeze.size === doc.layers.length && doc.layers.length > 0) throw new TuneConfigError('freeze', 'every layer is frozen: nothing would train');
+  return { freeze, freezeTensors };
+}
+
+/** Replay rows mixed into each batch, and how many per batch (a fraction or a count). */
+function resolveReplay(opts: TuneOptions, doc: ModelDoc): ResolvedTuneOptions['replay'] {
+  if (!opts.replay) return null;
+  checkData('replay', opts.replay, doc.inputs);
+  const perBatch = opts.replayPerBatch ?? 0.25;
+  if (!isFiniteNumber(perBatch) || perBatch <= 0 || (perBatch >= 1 && !Number.isInteger(perBatch))) {
+    throw new TuneConfigError('replayPerBatch', `must be a fraction in (0, 1) or a whole count >= 1, got ${perBatch}`);
+  }
+  return { data: opts.replay, perBatch };
 }

@@ -9,7 +9,6 @@ import {
   SeededRng,
   attachTargetScaling,
   fitTargetScaling,
-  initDense,
   layerKind,
   scalableOutputLayer,
   type ActivationName,

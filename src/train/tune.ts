@@ -13,19 +13,19 @@
  * (divergence), split-eval and epoch-findings (what an epoch reports), doc-copies (snapshots).
  */
 import { TuneConfigError } from '../errors.js';
-import { SeededRng, modelWidths, validateModel, type ModelDoc } from '../model/index.js';
+import { SeededRng, modelWidths, validateModel, type ForwardContext, type ModelDoc, type TargetScaling } from '../model/index.js';
 import { referenceLogits } from '../reference/index.js';
-import { makeBackend } from './backends.js';
+import { makeBackend, type TrainBackend, type TrainPath } from './backends.js';
 import { classLogits, fitTemperature, type TemperatureFit } from './calibration.js';
 import { clipGlobalNorm } from './clip.js';
-import { resolveTuneOptions, type TuneData } from './config.js';
+import { resolveTuneOptions, type ResolvedTuneOptions, type TuneData } from './config.js';
 import { constantFeatures, linearStacks } from './diagnostics.js';
 import { cloneDoc, mutableArrays, restore, snapshot } from './doc-copies.js';
 import { DiagnosticLog, epochFindings } from './epoch-findings.js';
 import { firstBrokenSlot, firstNonFiniteLayer, layerLabel, layerSquaredNorms } from './finite-checks.js';
-import { computeLoss, lossFor } from './losses.js';
-import { makeOptimiser } from './optimisers.js';
-import { anchorStarts, changedLayers, slotsOf, stepGradients, updateRunningStatistics } from './param-slots.js';
+import { computeLoss, lossFor, type LossSpec } from './losses.js';
+import { makeOptimiser, type Optimiser } from './optimisers.js';
+import { anchorStarts, changedLayers, slotsOf, stepGradients, updateRunningStatistics, type Slot } from './param-slots.js';
 import {
   checkPath,
   choosePath,
@@ -99,7 +99,54 @@ export async function tune(doc: ModelDoc, data: TuneData, options: TuneRunOption
   const raw = prepareNormalisation(work, train, opts.normalisation);
   const log = new DiagnosticLog([fallback, ...stacks, raw, constantFeatures(work.normalise, work.features)]);
 
-  // What the steps change, and the snapshots that undo them.
+  const run = prepareSteps({ opts, spec, work, train, held, replay, outputs, classifier, scaling, withScaling, log, hooks, rng }, path);
+  const { history, bestEpoch, stoppedEarly, aborted } = await runEpochs(run);
+  const calibration = calibrateOnHoldout(run, aborted);
+
+  if (scaling) work.targetScaling = scaling;
+  const lineage = tuneProvenance(doc, options.parent, options.origin);
+  if (lineage) work.provenance.push({ ...lineage, at: new Date().toISOString() });
+  const droppedTemperature = calibration === null ? parentTemperature : null;
+  return { doc: work, history, diagnostics: log.list, stoppedEarly, bestEpoch, aborted, loss: spec, path, calibration, droppedTemperature };
+}
+
+/** What the run settled before the steps: options, loss, working copy, rows, diagnostics. */
+interface RunBasis {
+  readonly opts: ResolvedTuneOptions;
+  readonly spec: LossSpec;
+  readonly work: ModelDoc;
+  readonly train: TuneData;
+  readonly held: TuneData | null;
+  readonly replay: TuneData | null;
+  readonly outputs: number;
+  readonly classifier: boolean;
+  readonly scaling: TargetScaling | null;
+  readonly withScaling: (d: ModelDoc) => ModelDoc;
+  readonly log: DiagnosticLog;
+  readonly hooks: TuneHooks;
+  readonly rng: ReturnType<typeof streams>;
+}
+
+/** Everything each step reads and changes; `step` counts optimiser steps across epochs. */
+interface StepRun extends RunBasis {
+  readonly slots: Slot[];
+  readonly anchorStart: (Float64Array | null)[] | null;
+  readonly optimiser: Optimiser;
+  readonly gradientsChange: boolean;
+  readonly arrays: Float32Array[];
+  readonly lastGood: Float32Array[];
+  readonly reluLayers: number[];
+  readonly changed: number[];
+  readonly ctx: ForwardContext;
+  readonly backend: TrainBackend;
+  readonly gather: BatchGatherer;
+  readonly totalSteps: number;
+  step: number;
+}
+
+/** What the steps change, the snapshots that undo them, and where the steps run. */
+function prepareSteps(basis: RunBasis, path: TrainPath): StepRun {
+  const { opts, work, spec, outputs, classifier, replay, train, rng } = basis;
   const slots = slotsOf(work, opts);
   if (slots.length > 0 && slots.every((sl) => sl.frozen)) {
     // Refused rather than run: epochs that change nothing would look like a finished training.
@@ -111,7 +158,6 @@ export async function tune(doc: ModelDoc, data: TuneData, options: TuneRunOption
   const gradientsChange = anchorStart !== null || opts.clip !== null;
   const arrays = mutableArrays(work);
   const lastGood = snapshot(arrays);
-  let best: Float32Array[] | null = null;
   const reluLayers = hiddenReluLayers(work);
   const changed = changedLayers(work, slots, opts.freeze);
 
@@ -119,88 +165,46 @@ export async function tune(doc: ModelDoc, data: TuneData, options: TuneRunOption
   const backend = makeBackend(path, work, spec.input === 'logits');
   const gather = new BatchGatherer(work.inputs, outputs, opts.batch, classifier, replay && opts.replay ? { rows: replay, perBatch: opts.replay.perBatch, rng: rng.replay } : null);
   const totalSteps = Math.ceil(train.rows / opts.batch) * opts.epochs;
+  return { ...basis, slots, anchorStart, optimiser, gradientsChange, arrays, lastGood, reluLayers, changed, ctx, backend, gather, totalSteps, step: 0 };
+}
+
+/** The epochs with their reports and early stopping; frees the backend at the end. */
+async function runEpochs(run: StepRun): Promise<{ history: EpochRecord[]; bestEpoch: number; stoppedEarly: boolean; aborted: boolean }> {
+  const { opts, backend, work, train, held, spec, outputs, classifier, scaling, log, hooks, arrays } = run;
   const history: EpochRecord[] = [];
+  let best: Float32Array[] | null = null;
   let bestLoss = Infinity;
   let bestEpoch = -1;
   let stoppedEarly = false;
   let aborted = false;
-  let step = 0;
 
   try {
     for (let epoch = 0; epoch < opts.epochs && !aborted; epoch++) {
       const started = performance.now();
-      const batches = epochBatches(train.rows, opts.batch, rng.shuffle);
-      const normSums = new Map<number, number>();
-      let lossSum = 0;
-      let anchorSum = 0;
-      let rowsSeen = 0;
-      let lr = opts.lr;
-      for (let b = 0; b < batches.length; b++) {
-        // Forward, loss and backward on the batch (with its replay rows).
-        const batch = gather.next(train, batches[b]);
-        const n = batch.rows;
-        const f = backend.forwardTrain(batch.x, n, ctx);
-        const loss = computeLoss(spec, Float64Array.from(f.out), n, outputs, batch.targets);
-        const grads = backend.backward(f, loss.grad);
-
-        // Per-layer gradient norms of the data loss (before anchor and clipping); one pass
-        // serves the norms and the divergence check, which names the first layer gone bad.
-        const layerSq = layerSquaredNorms(slots, grads);
-        const bad = firstNonFiniteLayer(layerSq, grads);
-        if (!Number.isFinite(loss.value) || bad >= 0) {
-          restore(arrays, lastGood);
-          throw new TuneDivergence(epoch + 1, b + 1, bad >= 0 ? layerLabel(work, bad) : 'the loss', `loss is ${loss.value}`, withScaling(cloneDoc(work)));
-        }
-        for (const [l, sq] of layerSq) normSums.set(l, (normSums.get(l) ?? 0) + Math.sqrt(sq));
-
-        // Anchor, clipping, then the optimiser step at the scheduled rate.
-        const { grads: flat, anchorPenalty } = stepGradients(slots, grads, gradientsChange, anchorStart, opts.anchor);
-        if (opts.clip !== null) clipGlobalNorm(flat, opts.clip);
-        lr = rateAt(opts.schedule, opts.lr, { epoch, step, totalSteps });
-        snapshot(arrays, lastGood);
-        optimiser.step(slots, flat, lr);
-        step++;
-        updateRunningStatistics(work, f.stats, n, opts.freeze);
-
-        const brokenAt = firstBrokenSlot(slots);
-        if (brokenAt) {
-          restore(arrays, lastGood);
-          throw new TuneDivergence(epoch + 1, b + 1, layerLabel(work, brokenAt.layer), `the update made ${brokenAt.ref.name} non-finite (learning rate ${lr})`, withScaling(cloneDoc(work)));
-        }
-        backend.refresh(changed);
-
-        lossSum += loss.value * n;
-        anchorSum += anchorPenalty;
-        rowsSeen += n;
-        hooks.onBatch?.({ epoch, batch: b, batches: batches.length, loss: loss.value + anchorPenalty, rows: n });
-        if (hooks.signal) {
-          // Let a signal handler (Ctrl-C) run between batches.
-          await new Promise<void>((resolve) => setImmediate(resolve));
-          if (hooks.signal.aborted) {
-            aborted = true;
-            break;
-          }
-        }
+      const batches = epochBatches(train.rows, opts.batch, run.rng.shuffle);
+      const sums = await runBatches(run, epoch, batches);
+      if (sums.aborted) {
+        aborted = true;
+        break;
       }
-      if (aborted) break;
 
       // The epoch's report: both splits in inference mode, gradient norms, diagnostics.
       const seconds = (performance.now() - started) / 1000;
-      const trainEval = evaluateSplit(backend, work, train, spec, outputs, classifier, reluLayers, scaling);
+      const trainEval = evaluateSplit(backend, work, train, spec, outputs, classifier, run.reluLayers, scaling);
       const heldEval = held ? evaluateSplit(backend, work, held, spec, outputs, classifier, [], scaling) : null;
-      const found = epochFindings(work, normSums, batches.length, trainEval.relu, epoch);
+      const found = epochFindings(work, sums.normSums, batches.length, trainEval.relu, epoch);
       log.addNew(found.diagnostics);
       const record: EpochRecord = {
         epoch,
-        batchLoss: lossSum / rowsSeen,
-        anchorPenalty: anchorSum / batches.length,
+        batchLoss: sums.lossSum / sums.rowsSeen,
+        anchorPenalty: sums.anchorSum / batches.length,
         train: trainEval.metrics,
         holdout: heldEval ? heldEval.metrics : null,
         gradientNorms: found.gradientNorms,
         deadRelu: found.deadRelu,
-        lr,
+        lr: sums.lr,
         updates: batches.length,
-        rowsPerSecond: rowsSeen / Math.max(seconds, 1e-9),
+        rowsPerSecond: sums.rowsSeen / Math.max(seconds, 1e-9),
         diagnostics: found.diagnostics,
       };
       history.push(record);
@@ -228,8 +232,81 @@ export async function tune(doc: ModelDoc, data: TuneData, options: TuneRunOption
   } finally {
     backend.dispose();
   }
+  return { history, bestEpoch, stoppedEarly, aborted };
+}
 
-  // Calibration: one temperature fitted on the hold-out rows' logits (calibration.ts).
+/** One epoch's sums over its batches, and whether a signal stopped it. */
+interface EpochSums {
+  readonly normSums: Map<number, number>;
+  readonly lossSum: number;
+  readonly anchorSum: number;
+  readonly rowsSeen: number;
+  readonly lr: number;
+  readonly aborted: boolean;
+}
+
+/** The steps of one epoch: per batch forward, loss, backward, divergence checks and the optimiser step. */
+async function runBatches(run: StepRun, epoch: number, batches: Int32Array[]): Promise<EpochSums> {
+  const { opts, spec, work, train, outputs, slots, arrays, lastGood, backend, hooks, withScaling } = run;
+  const normSums = new Map<number, number>();
+  let lossSum = 0;
+  let anchorSum = 0;
+  let rowsSeen = 0;
+  let lr = opts.lr;
+  let aborted = false;
+  for (let b = 0; b < batches.length; b++) {
+    // Forward, loss and backward on the batch (with its replay rows).
+    const batch = run.gather.next(train, batches[b]);
+    const n = batch.rows;
+    const f = backend.forwardTrain(batch.x, n, run.ctx);
+    const loss = computeLoss(spec, Float64Array.from(f.out), n, outputs, batch.targets);
+    const grads = backend.backward(f, loss.grad);
+
+    // Per-layer gradient norms of the data loss (before anchor and clipping); one pass
+    // serves the norms and the divergence check, which names the first layer gone bad.
+    const layerSq = layerSquaredNorms(slots, grads);
+    const bad = firstNonFiniteLayer(layerSq, grads);
+    if (!Number.isFinite(loss.value) || bad >= 0) {
+      restore(arrays, lastGood);
+      throw new TuneDivergence(epoch + 1, b + 1, bad >= 0 ? layerLabel(work, bad) : 'the loss', `loss is ${loss.value}`, withScaling(cloneDoc(work)));
+    }
+    for (const [l, sq] of layerSq) normSums.set(l, (normSums.get(l) ?? 0) + Math.sqrt(sq));
+
+    // Anchor, clipping, then the optimiser step at the scheduled rate.
+    const { grads: flat, anchorPenalty } = stepGradients(slots, grads, run.gradientsChange, run.anchorStart, opts.anchor);
+    if (opts.clip !== null) clipGlobalNorm(flat, opts.clip);
+    lr = rateAt(opts.schedule, opts.lr, { epoch, step: run.step, totalSteps: run.totalSteps });
+    snapshot(arrays, lastGood);
+    run.optimiser.step(slots, flat, lr);
+    run.step++;
+    updateRunningStatistics(work, f.stats, n, opts.freeze);
+
+    const brokenAt = firstBrokenSlot(slots);
+    if (brokenAt) {
+      restore(arrays, lastGood);
+      throw new TuneDivergence(epoch + 1, b + 1, layerLabel(work, brokenAt.layer), `the update made ${brokenAt.ref.name} non-finite (learning rate ${lr})`, withScaling(cloneDoc(work)));
+    }
+    backend.refresh(run.changed);
+
+    lossSum += loss.value * n;
+    anchorSum += anchorPenalty;
+    rowsSeen += n;
+    hooks.onBatch?.({ epoch, batch: b, batches: batches.length, loss: loss.value + anchorPenalty, rows: n });
+    if (hooks.signal) {
+      // Let a signal handler (Ctrl-C) run between batches.
+      await new Promise<void>((resolve) => setImmediate(resolve));
+      if (hooks.signal.aborted) {
+        aborted = true;
+        break;
+      }
+    }
+  }
+  return { normSums, lossSum, anchorSum, rowsSeen, lr, aborted };
+}
+
+/** Calibration: one temperature fitted on the hold-out rows' logits (calibration.ts). */
+function calibrateOnHoldout(run: StepRun, aborted: boolean): TemperatureFit | null {
+  const { opts, held, work, outputs } = run;
   let calibration: TemperatureFit | null = null;
   if (opts.calibrate && held && held.y instanceof Int32Array && !aborted) {
     const { logits, classes } = classLogits(referenceLogits(work, held.x, held.rows), held.rows, outputs);
@@ -238,12 +315,7 @@ export async function tune(doc: ModelDoc, data: TuneData, options: TuneRunOption
     // the likelihood keeps rising as T falls): storing it would be a confident wrong answer.
     if (!calibration.atBound) work.temperature = calibration.temperature;
   }
-
-  if (scaling) work.targetScaling = scaling;
-  const lineage = tuneProvenance(doc, options.parent, options.origin);
-  if (lineage) work.provenance.push({ ...lineage, at: new Date().toISOString() });
-  const droppedTemperature = calibration === null ? parentTemperature : null;
-  return { doc: work, history, diagnostics: log.list, stoppedEarly, bestEpoch, aborted, loss: spec, path, calibration, droppedTemperature };
+  return calibration;
 }
 
 /**

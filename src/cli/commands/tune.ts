@@ -4,7 +4,7 @@ import { CALIBRATION_CAUTION, ECE_BINS, type TemperatureFit } from '../../train/
 import { tune as tuneModel, TuneDivergence, type EpochRecord, type TuneResult, type TuneRunOptions } from '../../train/tune.js';
 import { ensureEngine, useEngine } from '../../engine/index.js';
 import { buildModelFromSpecFile } from './pack.js';
-import { noExtraPositionals, parseArgs, requireFlag, requirePositional } from '../args.js';
+import { noExtraPositionals, parseArgs, requireFlag, requirePositional, type FlagValues } from '../args.js';
 import type { Command, Io } from '../command.js';
 import type { ModelDoc } from '../../model/index.js';
 import { grouped, percent, sci } from '../format.js';
@@ -81,39 +81,9 @@ export const tune: Command = {
     if (fromSpec && !doc.features) doc.features = await headerFeatureNames(dataPath, targets, doc.inputs);
     const holdoutData = f['holdout-file'] ? await loadTrainingData(doc, f['holdout-file'], targets) : undefined;
     const replay = f.replay ? await loadTrainingData(doc, f.replay, targets) : undefined;
-    const choice = parseEngine(f.engine);
-    if (choice === 'int8') throw new UsageError('--engine', 'training runs in float32; int8 is an inference engine (use auto, fast, wasm or js)');
-    // auto: tune picks the fast kernel when the model allows it; js / wasm: the tfjs engine path.
-    if (choice === 'js' || choice === 'wasm') await useEngine(choice);
-    else await useEngine('auto');
-    const path = choice === 'js' || choice === 'wasm' ? 'engine' : choice === 'fast' ? 'fast' : undefined;
+    const path = await trainingPath(f.engine);
 
-    const options: TuneRunOptions = {
-      epochs: f.epochs,
-      batch: f.batch,
-      lr: f.lr,
-      optimizer: f.optimizer,
-      nesterov: f.nesterov || undefined,
-      weightDecay: f['weight-decay'],
-      schedule: f.schedule,
-      warmup: f.warmup,
-      clip: f.clip,
-      seed: f.seed,
-      holdout: f.holdout,
-      holdoutData,
-      stopAfter: f['stop-after'],
-      freeze,
-      anchor: f.anchor,
-      replay,
-      replayPerBatch: replay ? f['replay-share'] : undefined,
-      normalisation: f.normalisation,
-      loss: f.loss,
-      scaleTargets: !f['raw-targets'],
-      parent: parent ? { checksum: parent.checksum, source: modelPath } : undefined,
-      origin: parent ? undefined : `spec ${modelPath}`,
-      path,
-      calibrate: f.calibrate || undefined,
-    };
+    const options = runOptions(f, { modelPath, parent, holdoutData, replay, freeze, path });
 
     const bar = progressLine((t) => io.err(t), io.interactive && log === 'text');
     const started = performance.now();
@@ -161,6 +131,57 @@ export const tune: Command = {
     return 0;
   },
 };
+
+/** The engine flag as a training path; also loads the engine evaluation runs on. */
+async function trainingPath(engine: string | undefined): Promise<TuneRunOptions['path']> {
+  const choice = parseEngine(engine);
+  if (choice === 'int8') throw new UsageError('--engine', 'training runs in float32; int8 is an inference engine (use auto, fast, wasm or js)');
+  // auto: tune picks the fast kernel when the model allows it; js / wasm: the tfjs engine path.
+  if (choice === 'js' || choice === 'wasm') await useEngine(choice);
+  else await useEngine('auto');
+  return choice === 'js' || choice === 'wasm' ? 'engine' : choice === 'fast' ? 'fast' : undefined;
+}
+
+/** The flags as tune options, with the rows and settings read before. */
+function runOptions(
+  f: FlagValues<typeof flags>,
+  read: {
+    modelPath: string;
+    parent: { checksum: string } | null;
+    holdoutData: TuneRunOptions['holdoutData'];
+    replay: TuneRunOptions['replay'];
+    freeze: number[] | undefined;
+    path: TuneRunOptions['path'];
+  },
+): TuneRunOptions {
+  const { modelPath, parent, holdoutData, replay, freeze, path } = read;
+  return {
+    epochs: f.epochs,
+    batch: f.batch,
+    lr: f.lr,
+    optimizer: f.optimizer,
+    nesterov: f.nesterov || undefined,
+    weightDecay: f['weight-decay'],
+    schedule: f.schedule,
+    warmup: f.warmup,
+    clip: f.clip,
+    seed: f.seed,
+    holdout: f.holdout,
+    holdoutData,
+    stopAfter: f['stop-after'],
+    freeze,
+    anchor: f.anchor,
+    replay,
+    replayPerBatch: replay ? f['replay-share'] : undefined,
+    normalisation: f.normalisation,
+    loss: f.loss,
+    scaleTargets: !f['raw-targets'],
+    parent: parent ? { checksum: parent.checksum, source: modelPath } : undefined,
+    origin: parent ? undefined : `spec ${modelPath}`,
+    path,
+    calibrate: f.calibrate || undefined,
+  };
+}
 
 /** One line: the fitted temperature and the hold-out calibration error and NLL before and after. */
 function calibrationText(c: TemperatureFit): string {
