@@ -18,7 +18,9 @@ const server = createServer((req, res) => {
       const x = new Float32Array(rows.length * model.inputs);
       rows.forEach((row, r) => x.set(row, r * model.inputs));
       const outputs = model.run(x, rows.length);
-      const body = JSON.stringify({ outputs: Array.from({ length: rows.length }, (_, r) => Array.from(outputs.subarray(r * model.outputs, (r + 1) * model.outputs))) });
+      const body = JSON.stringify({
+        outputs: Array.from({ length: rows.length }, (_, r) => Array.from(outputs.subarray(r * model.outputs, (r + 1) * model.outputs))),
+      });
       res.writeHead(200, { 'content-type': 'application/json' });
       res.end(body);
     } catch (error) {

@@ -14,9 +14,7 @@ const DIR = process.env.FASHION_MNIST_DIR ?? '/usr/share/datasets/fashion-mnist'
 // The dataset's README benchmark table lists "MLP 256-128-100, no preprocessing: 0.8833" test accuracy.
 const README_MLP_ACCURACY = 0.8833;
 
-const args = Object.fromEntries(
-  process.argv.slice(2).reduce((pairs, a, i, all) => (a.startsWith('--') ? [...pairs, [a.slice(2), all[i + 1]]] : pairs), []),
-);
+const args = Object.fromEntries(process.argv.slice(2).reduce((pairs, a, i, all) => (a.startsWith('--') ? [...pairs, [a.slice(2), all[i + 1]]] : pairs), []));
 const epochs = Number(args.epochs ?? 5);
 const engineAsked = args.engine ?? 'auto';
 const maxRows = Number(args.rows ?? 60000);
@@ -56,14 +54,21 @@ const doc = await buildFromSpec(spec, 'fashion-spec.json', { seed: 1, loadTensor
 console.log(`Fashion-MNIST: ${train.rows} training rows, ${test.rows} test rows; 784-256-128-10 ReLU, Adam lr 1e-3, batch 64, ${epochs} epochs`);
 const epochTimes = [];
 let last = performance.now();
-const result = await tune(doc, { x: train.x, rows: train.rows, y: trainY }, { epochs, batch: 64, lr: 0.001, optimizer: 'adam', seed: 1, holdoutData: { x: test.x, rows: test.rows, y: testY } }, {
-  onEpoch: (e) => {
-    const now = performance.now();
-    epochTimes.push((now - last) / 1000);
-    last = now;
-    console.log(`  epoch ${e.epoch + 1}: ${epochTimes.at(-1).toFixed(1)} s, ${Math.round(e.rowsPerSecond)} rows/s, train loss ${e.train.loss.toFixed(4)}, test accuracy ${(e.holdout.accuracy * 100).toFixed(2)}%`);
+const result = await tune(
+  doc,
+  { x: train.x, rows: train.rows, y: trainY },
+  { epochs, batch: 64, lr: 0.001, optimizer: 'adam', seed: 1, holdoutData: { x: test.x, rows: test.rows, y: testY } },
+  {
+    onEpoch: (e) => {
+      const now = performance.now();
+      epochTimes.push((now - last) / 1000);
+      last = now;
+      console.log(
+        `  epoch ${e.epoch + 1}: ${epochTimes.at(-1).toFixed(1)} s, ${Math.round(e.rowsPerSecond)} rows/s, train loss ${e.train.loss.toFixed(4)}, test accuracy ${(e.holdout.accuracy * 100).toFixed(2)}%`,
+      );
+    },
   },
-});
+);
 const trainedOn = result.path === 'fast' ? 'the fast kernel' : `the tfjs ${engine} engine`;
 console.log(`trained on ${trainedOn}`);
 const model = await modelFromDocument(result.doc);
@@ -80,7 +85,9 @@ const meanEpoch = epochTimes.reduce((a, b) => a + b, 0) / epochTimes.length;
 const rowsPerSecond = result.history.reduce((a, e) => a + e.rowsPerSecond, 0) / result.history.length;
 console.log('');
 console.log(`| epochs | mean epoch s | train rows/s | test accuracy | README MLP 256-128-100 |`);
-console.log(`| ${epochs} | ${meanEpoch.toFixed(1)} | ${Math.round(rowsPerSecond)} | ${(accuracy * 100).toFixed(2)}% | ${(README_MLP_ACCURACY * 100).toFixed(2)}% |`);
+console.log(
+  `| ${epochs} | ${meanEpoch.toFixed(1)} | ${Math.round(rowsPerSecond)} | ${(accuracy * 100).toFixed(2)}% | ${(README_MLP_ACCURACY * 100).toFixed(2)}% |`,
+);
 
 const cpu = os.cpus()[0]?.model ?? 'unknown CPU';
 await appendFile(

@@ -19,7 +19,21 @@ async function loadSuite() {
   // dist does not export the suite (src/index.ts without the bench re-exports): bundle it alone.
   const out = join(root, 'node_modules', '.cache', 'tendon-bench', 'suite.js');
   mkdirSync(dirname(out), { recursive: true });
-  execFileSync(join(root, 'node_modules', '.bin', 'esbuild'), ['src/bench/index.ts', '--bundle', '--platform=node', '--format=esm', '--target=node20', '--packages=external', `--outfile=${out}`, '--log-level=warning'], { cwd: root });
+  execFileSync(
+    join(root, 'node_modules', '.bin', 'esbuild'),
+    [
+      'src/bench/index.ts',
+      '--bundle',
+      '--platform=node',
+      '--format=esm',
+      '--target=node20',
+      '--packages=external',
+      '--loader:.proto=text',
+      `--outfile=${out}`,
+      '--log-level=warning',
+    ],
+    { cwd: root },
+  );
   return { api: await import(pathToFileURL(out).href), from: 'src/bench (bundled; dist/index.js does not export runBenchSuite)' };
 }
 
@@ -48,7 +62,14 @@ const isSuiteHeader = (l) => l.startsWith('| date (UTC) | machine | node | secti
 let at = lines.findIndex(isSuiteHeader);
 if (at < 0) {
   while (lines.length && lines.at(-1) === '') lines.pop();
-  lines.push('', '## suite (`npm run bench`)', '', 'One row per configuration per run, newest last. Ratios ("x ...") are our rows/s over the baseline\'s, measured in the same run.', '', ...api.RESULTS_HEADER);
+  lines.push(
+    '',
+    '## suite (`npm run bench`)',
+    '',
+    'One row per configuration per run, newest last. Ratios ("x ...") are our rows/s over the baseline\'s, measured in the same run.',
+    '',
+    ...api.RESULTS_HEADER,
+  );
   at = lines.length - 2;
 }
 while (at < lines.length && lines[at].startsWith('|')) at++;

@@ -35,10 +35,13 @@ function option(name, fallback) {
 const SECONDS = option('seconds', 60);
 const CLIENTS = option('clients', 8);
 const MAX_REQUESTS = option('max-requests', 2_000_000);
-const hardStop = setTimeout(() => {
-  console.error('soak: hard deadline passed; stopping');
-  process.exit(1);
-}, (SECONDS + 120 + (process.argv.includes('--no-wire') ? 0 : option('wire-seconds', 4) * option('wire-rounds', 2) * 3 + 240)) * 1000);
+const hardStop = setTimeout(
+  () => {
+    console.error('soak: hard deadline passed; stopping');
+    process.exit(1);
+  },
+  (SECONDS + 120 + (process.argv.includes('--no-wire') ? 0 : option('wire-seconds', 4) * option('wire-rounds', 2) * 3 + 240)) * 1000,
+);
 hardStop.unref();
 
 /** mulberry32: seeded uniform numbers in [0, 1), so every run sends the same rows. */
@@ -152,7 +155,8 @@ async function main() {
   const KINDS = ['json', 'npy', 'csv'];
   const request = (kind, rowsOf) => {
     if (kind === 'npy') return { headers: { 'content-type': 'application/x-npy', accept: 'application/x-npy' }, body: npyBody(rowsOf) };
-    if (kind === 'csv') return { headers: { 'content-type': 'text/csv', accept: 'text/csv' }, body: [FEATURES.join(','), ...rowsOf.map((r) => r.join(','))].join('\n') };
+    if (kind === 'csv')
+      return { headers: { 'content-type': 'text/csv', accept: 'text/csv' }, body: [FEATURES.join(','), ...rowsOf.map((r) => r.join(','))].join('\n') };
     return { headers: { 'content-type': 'application/json' }, body: JSON.stringify({ rows: rowsOf }) };
   };
   /** Outputs per row and the model that answered, from any answer type. */
@@ -161,7 +165,11 @@ async function main() {
       const bytes = Buffer.from(await res.arrayBuffer());
       const data = bytes.subarray(10 + bytes.readUInt16LE(8));
       const values = new Float32Array(data.buffer.slice(data.byteOffset, data.byteOffset + data.byteLength));
-      return { model: res.headers.get('tendon-model'), outputs: Array.from({ length: values.length / 3 }, (_, r) => Array.from(values.subarray(r * 3, r * 3 + 3))), text: '' };
+      return {
+        model: res.headers.get('tendon-model'),
+        outputs: Array.from({ length: values.length / 3 }, (_, r) => Array.from(values.subarray(r * 3, r * 3 + 3))),
+        text: '',
+      };
     }
     if (kind === 'csv') {
       const text = await res.text();
@@ -178,7 +186,10 @@ async function main() {
     const kind = KINDS[seed % KINDS.length];
     while (performance.now() < deadline && requests < MAX_REQUESTS) {
       const n = 1 + Math.floor(r() * 16);
-      const { headers, body } = request(kind, Array.from({ length: n }, () => rowOf(r)));
+      const { headers, body } = request(
+        kind,
+        Array.from({ length: n }, () => rowOf(r)),
+      );
       const t0 = performance.now();
       try {
         const res = await fetch(`${url}/v1/score`, { method: 'POST', headers, body });
@@ -256,7 +267,10 @@ async function main() {
     refused,
     models: checksums.size,
   };
-  const machine = `${cpus()[0]?.model.replace(/\s+\d+-Core Processor$/, '').replace(/\s+/g, ' ').trim()}, ${cpus().length} cores`;
+  const machine = `${cpus()[0]
+    ?.model.replace(/\s+\d+-Core Processor$/, '')
+    .replace(/\s+/g, ' ')
+    .trim()}, ${cpus().length} cores`;
   const date = new Date().toISOString().slice(0, 16).replace('T', ' ');
   console.log(events.join('\n'));
   console.log(
@@ -271,14 +285,20 @@ async function main() {
     ].join('\n'),
   );
 
-  await recordRow(`| ${date} | ${machine} | ${process.version} | ${elapsed.toFixed(0)} | ${CLIENTS} | ${requests} | ${rows} | ${errors.length} | ${figures.p50.toFixed(2)} | ${figures.p99.toFixed(2)} | ${mib(figures.rssStart)} | ${mib(figures.rssWarm)} | ${mib(figures.rssEnd)} | ${mib(figures.rssPeak)} | ${swaps} | ${checksums.size} | ${tensorsStart} | ${tensorsEnd} |`);
+  await recordRow(
+    `| ${date} | ${machine} | ${process.version} | ${elapsed.toFixed(0)} | ${CLIENTS} | ${requests} | ${rows} | ${errors.length} | ${figures.p50.toFixed(2)} | ${figures.p99.toFixed(2)} | ${mib(figures.rssStart)} | ${mib(figures.rssWarm)} | ${mib(figures.rssEnd)} | ${mib(figures.rssPeak)} | ${swaps} | ${checksums.size} | ${tensorsStart} | ${tensorsEnd} |`,
+  );
   console.log(`added a row to the soak table in ${RESULTS}`);
   let wireOk = true;
   if (!process.argv.includes('--no-wire')) {
     // The wire comparison, same load generator for every server (bench/wire.mjs); it appends its own rows.
     console.log('\nwire: bare node:http server vs tendon serve (JSON, NPY), same load generator');
     wireOk = await new Promise((resolve) => {
-      const child = spawn(process.execPath, [join(HERE, 'wire.mjs'), '--seconds', String(option('wire-seconds', 4)), '--rounds', String(option('wire-rounds', 2))], { stdio: 'inherit' });
+      const child = spawn(
+        process.execPath,
+        [join(HERE, 'wire.mjs'), '--seconds', String(option('wire-seconds', 4)), '--rounds', String(option('wire-rounds', 2))],
+        { stdio: 'inherit' },
+      );
       child.once('exit', (code) => resolve(code === 0));
     });
   }

@@ -35,10 +35,13 @@ const CLIENTS = option('clients', 8);
 const ROWS = option('rows', 16);
 const WORKERS = option('workers', 2);
 const INPUTS = 784;
-const hardStop = setTimeout(() => {
-  console.error('wire: hard deadline passed; stopping');
-  process.exit(1);
-}, (SECONDS * ROUNDS * 4 + 180) * 1000);
+const hardStop = setTimeout(
+  () => {
+    console.error('wire: hard deadline passed; stopping');
+    process.exit(1);
+  },
+  (SECONDS * ROUNDS * 4 + 180) * 1000,
+);
 hardStop.unref();
 
 /** The CPU's vector features that matter to the kernels, from /proc/cpuinfo (Linux). */
@@ -142,7 +145,17 @@ export async function measureWire() {
   const dir = await mkdtemp(join(tmpdir(), 'tendon-wire-'));
   const spec = join(dir, 'spec.json');
   const model = join(dir, 'mnist-shaped.tendon');
-  await writeFile(spec, JSON.stringify({ inputs: INPUTS, layers: [{ kind: 'dense', size: 512, activation: 'relu' }, { kind: 'dense', size: 256, activation: 'relu' }, { kind: 'dense', size: 10, activation: 'softmax' }] }));
+  await writeFile(
+    spec,
+    JSON.stringify({
+      inputs: INPUTS,
+      layers: [
+        { kind: 'dense', size: 512, activation: 'relu' },
+        { kind: 'dense', size: 256, activation: 'relu' },
+        { kind: 'dense', size: 10, activation: 'softmax' },
+      ],
+    }),
+  );
   execFileSync(process.execPath, [CLI, 'pack', spec, '-o', model, '--seed', '11'], { stdio: 'ignore' });
 
   // Pixel-like rows, three decimals: what a client would send as JSON.
@@ -152,7 +165,10 @@ export async function measureWire() {
   const npy = npyBody(Float32Array.from(rows.flat()), ROWS);
 
   const bare = startChild([join(HERE, 'bare-server.mjs'), model], /on (http:\/\/127\.0\.0\.1:\d+)/);
-  const tendon = startChild([CLI, 'serve', model, '--port', '0', '--workers', String(WORKERS), '--batch-rows', '128', '--no-watch'], /on (http:\/\/127\.0\.0\.1:\d+)/);
+  const tendon = startChild(
+    [CLI, 'serve', model, '--port', '0', '--workers', String(WORKERS), '--batch-rows', '128', '--no-watch'],
+    /on (http:\/\/127\.0\.0\.1:\d+)/,
+  );
   try {
     const urls = { bare: await bare.url, tendon: await tendon.url };
     const JSON_HEADERS = { 'content-type': 'application/json' };
@@ -166,7 +182,8 @@ export async function measureWire() {
     agent.destroy();
     let worst = 0;
     for (let i = 0; i < viaJson.length; i++) worst = Math.max(worst, Math.abs(viaNpy[i] - viaJson[i]), Math.abs(viaBare[i] - viaJson[i]));
-    if (viaNpy.length !== viaJson.length || !(worst <= 1e-6)) throw new Error(`answers differ: NPY ${viaNpy.length} values, JSON ${viaJson.length}, worst difference ${worst}`);
+    if (viaNpy.length !== viaJson.length || !(worst <= 1e-6))
+      throw new Error(`answers differ: NPY ${viaNpy.length} values, JSON ${viaJson.length}, worst difference ${worst}`);
 
     const targets = [
       { server: 'bare node:http', body: 'JSON', url: urls.bare, payload: jsonBody, headers: JSON_HEADERS },
@@ -221,13 +238,24 @@ async function recordRows(rows) {
 if (process.argv[1] === fileURLToPath(import.meta.url)) {
   try {
     const { results, worst } = await measureWire();
-    const machine = `${cpus()[0]?.model.replace(/\s+\d+-Core Processor$/, '').replace(/\s+/g, ' ').trim()}, ${cpus().length} cores`;
+    const machine = `${cpus()[0]
+      ?.model.replace(/\s+\d+-Core Processor$/, '')
+      .replace(/\s+/g, ' ')
+      .trim()}, ${cpus().length} cores`;
     const vector = await vectorFeatures();
     const date = new Date().toISOString().slice(0, 16).replace('T', ' ');
     console.log(`answers: NPY and bare JSON within ${worst.toExponential(1)} of tendon JSON (limit 1e-6); CPU: ${vector}`);
     console.log('round | server | body | rows/s | x bare | errors');
-    for (const r of results) console.log(`${r.round} | ${r.server} | ${r.body} | ${r.rowsPerSecond.toFixed(0)} | ${r.ratio.toFixed(2)} | ${r.errors}${r.firstError ? ` (${r.firstError})` : ''}`);
-    await recordRows(results.map((r) => `| ${date} | ${machine} | ${vector} | ${process.version} | ${r.round} | ${r.server} | ${r.body} | ${CLIENTS} | ${ROWS} | ${Math.round(r.rowsPerSecond).toLocaleString('en-US')} | ${r.ratio.toFixed(2)} | ${r.errors} |`));
+    for (const r of results)
+      console.log(
+        `${r.round} | ${r.server} | ${r.body} | ${r.rowsPerSecond.toFixed(0)} | ${r.ratio.toFixed(2)} | ${r.errors}${r.firstError ? ` (${r.firstError})` : ''}`,
+      );
+    await recordRows(
+      results.map(
+        (r) =>
+          `| ${date} | ${machine} | ${vector} | ${process.version} | ${r.round} | ${r.server} | ${r.body} | ${CLIENTS} | ${ROWS} | ${Math.round(r.rowsPerSecond).toLocaleString('en-US')} | ${r.ratio.toFixed(2)} | ${r.errors} |`,
+      ),
+    );
     console.log(`added ${results.length} rows to the wire table in ${RESULTS}`);
     process.exitCode = results.every((r) => r.errors === 0) ? 0 : 1;
   } catch (error) {

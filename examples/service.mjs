@@ -36,9 +36,15 @@ function loaves(rows, seed, offset = 0) {
   const x = new Float32Array(rows * 7);
   const y = new Int32Array(rows);
   for (let r = 0; r < rows; r++) {
-    const z1 = 215 + 9 * normal(), z2 = 230 + 9 * normal(), z3 = 220 + 9 * normal();
-    const humidity = 45 + 8 * normal(), belt = 1.6 + 0.12 * normal(), mass = 800 + 45 * normal(), proof = 55 + 7 * normal();
-    const degree = (0.5 * (z1 - 215) + 0.8 * (z2 - 230) + 0.6 * (z3 - 220)) / 9 - 8 * (belt - 1.6) - (mass - 800) / 60 - (humidity - 45) / 10 + (proof - 55) / 14;
+    const z1 = 215 + 9 * normal(),
+      z2 = 230 + 9 * normal(),
+      z3 = 220 + 9 * normal();
+    const humidity = 45 + 8 * normal(),
+      belt = 1.6 + 0.12 * normal(),
+      mass = 800 + 45 * normal(),
+      proof = 55 + 7 * normal();
+    const degree =
+      (0.5 * (z1 - 215) + 0.8 * (z2 - 230) + 0.6 * (z3 - 220)) / 9 - 8 * (belt - 1.6) - (mass - 800) / 60 - (humidity - 45) / 10 + (proof - 55) / 14;
     y[r] = degree < -1 ? 0 : degree > 1 ? 2 : 1;
     x.set([z1 + offset, z2 + offset, z3 + offset, humidity, belt, mass, proof], r * 7);
   }
@@ -58,8 +64,17 @@ function accuracy(model, data) {
 /** Start the service; resolves with its URL and a stop function. */
 export async function startService({ port = 0, dir = mkdtempSync(join(tmpdir(), 'tendon-service-')), log = console.log } = {}) {
   const modelPath = join(dir, 'bakery.tendon');
-  const spec = { inputs: 7, features: FEATURES, labels: ['under', 'good', 'over'], normalise: { method: 'zscore' },
-    layers: [{ kind: 'dense', size: 32, activation: 'relu' }, { kind: 'dropout', rate: 0.1 }, { kind: 'dense', size: 3, activation: 'softmax' }] };
+  const spec = {
+    inputs: 7,
+    features: FEATURES,
+    labels: ['under', 'good', 'over'],
+    normalise: { method: 'zscore' },
+    layers: [
+      { kind: 'dense', size: 32, activation: 'relu' },
+      { kind: 'dropout', rate: 0.1 },
+      { kind: 'dense', size: 3, activation: 'softmax' },
+    ],
+  };
   const first = await tune(await buildFromSpec(spec, 'bakery-spec.json', { seed: 7 }), loaves(1500, 1), { epochs: 15, seed: 1 });
   await writeModelFile(modelPath, first.doc);
 
@@ -96,7 +111,10 @@ export async function startService({ port = 0, dir = mkdtempSync(join(tmpdir(), 
     if (req.method === 'GET' && path === '/orders/today') return json(200, { orders: 42 });
     if (req.method === 'POST' && path === '/admin/refresh') {
       refreshing ??= refresh().finally(() => (refreshing = null));
-      refreshing.then((r) => log(`refresh: held-out accuracy ${r.before.toFixed(3)} -> ${r.after.toFixed(3)}; ${r.swapped ? 'swapped in' : 'kept the current model'}`), (e) => log(`refresh failed: ${e.message}`));
+      refreshing.then(
+        (r) => log(`refresh: held-out accuracy ${r.before.toFixed(3)} -> ${r.after.toFixed(3)}; ${r.swapped ? 'swapped in' : 'kept the current model'}`),
+        (e) => log(`refresh failed: ${e.message}`),
+      );
       return json(202, { started: true });
     }
     json(404, { error: 'no such route' });

@@ -32,10 +32,7 @@ export class ModelFileError extends TendonError {
     readonly path: string,
     readonly problems: readonly Problem[],
   ) {
-    super(
-      `${path}: ` +
-        problems.map((p) => (p.where ? `${p.where}: ${p.message}` : p.message)).join('; '),
-    );
+    super(`${path}: ` + problems.map((p) => (p.where ? `${p.where}: ${p.message}` : p.message)).join('; '));
   }
 }
 
@@ -48,9 +45,7 @@ export class ShapeError extends TendonError {
     readonly actual: readonly number[],
     context = '',
   ) {
-    super(
-      `${context ? context + ': ' : ''}${tensor} has shape [${actual.join(', ')}], expected [${expected.join(', ')}]`,
-    );
+    super(`${context ? context + ': ' : ''}${tensor} has shape [${actual.join(', ')}], expected [${expected.join(', ')}]`);
   }
   override hint = 'tendon about MODEL shows the features the model takes and the values it gives';
 }
@@ -156,5 +151,5 @@ export class EngineUnavailableError extends TendonError {
   ) {
     super(`the ${engine} engine cannot run here: ${reason}`);
   }
-  override hint = "use --engine auto, which falls back to the next engine that runs, or name another (fast, wasm, js)";
+  override hint = 'use --engine auto, which falls back to the next engine that runs, or name another (fast, wasm, js)';
 }

@@ -31,9 +31,31 @@ export { parityReport, randomInputs, FLOAT32_TOLERANCE, type ParityReport, type 
 export { buildFromSpec, type SpecOptions } from './spec/spec.js';
 export { openTable, readTable, openTableWriter, readNpy, writeNpy, readIdx } from './io/index.js';
 export { tune, type TuneResult, type EpochRecord, type TuneRunOptions } from './train/tune.js';
-export { foldModel, shrinkModel, storageCost, compareOutputs, baselineNormalisation, SHRINK_TOLERANCE, type FoldResult, type FoldStep, type StorageChoice, type OutputComparison } from './transform/index.js';
+export {
+  foldModel,
+  shrinkModel,
+  storageCost,
+  compareOutputs,
+  baselineNormalisation,
+  SHRINK_TOLERANCE,
+  type FoldResult,
+  type FoldStep,
+  type StorageChoice,
+  type OutputComparison,
+} from './transform/index.js';
 export { DriftMonitor, FeatureMoments, describeDrift, type DriftReport, type FeatureDrift } from './drift/index.js';
-export { createRequestHandler, startServer, ROUTES, bearerToken, type Authorize, type RequestHandlerOptions, type TendonRequestHandler, type RunningServer, type ServerOptions, type ModelBatchRunner } from './serve/http.js';
+export {
+  createRequestHandler,
+  startServer,
+  ROUTES,
+  bearerToken,
+  type Authorize,
+  type RequestHandlerOptions,
+  type TendonRequestHandler,
+  type RunningServer,
+  type ServerOptions,
+  type ModelBatchRunner,
+} from './serve/http.js';
 export { ModelSlot, type SwapOutcome } from './serve/swap.js';
 export { ServiceCounters } from './serve/metrics.js';
 export { MicroBatcher, BusyError, type BatcherOptions } from './serve/batcher.js';

@@ -4,7 +4,17 @@
  */
 import * as tf from '@tensorflow/tfjs-core';
 import { int8ParityReport, parityReport, randomInputs, type ParityReport } from './check/index.js';
-import { Int8Session, TfjsRunner, ensureEngine, kernelDescription, openRunner, resolveEngine, type EngineChoice, type Runner, type RuntimeEngine } from './engine/index.js';
+import {
+  Int8Session,
+  TfjsRunner,
+  ensureEngine,
+  kernelDescription,
+  openRunner,
+  resolveEngine,
+  type EngineChoice,
+  type Runner,
+  type RuntimeEngine,
+} from './engine/index.js';
 import { DataError, ShapeError } from './errors.js';
 import { readModelFile, writeModelFile } from './format/index.js';
 import type { ModelDoc } from './model/index.js';
@@ -74,7 +84,14 @@ export async function openModel(path: string, options: OpenOptions = {}): Promis
 export async function modelFromDocument(doc: ModelDoc, options: OpenOptions = {}): Promise<TendonModel> {
   // The runner validates the document (once) as it is opened.
   const engine = await chooseEngine(options.engine, doc);
-  return new TendonModel(doc, engine, { source: null, checksum: null, bytes: null, formatVersion: null, chunkRows: options.chunkRows, threads: options.threads });
+  return new TendonModel(doc, engine, {
+    source: null,
+    checksum: null,
+    bytes: null,
+    formatVersion: null,
+    chunkRows: options.chunkRows,
+    threads: options.threads,
+  });
 }
 
 interface ModelOrigin {

@@ -79,7 +79,10 @@ export function numpyKey(widths: readonly number[], batch: number): string {
 export function runNumpyBaseline(script: string, cases: readonly NumpyCase[], minMs: number): NumpyResult {
   const probe = spawnSync('python3', ['-c', 'import numpy'], { encoding: 'utf8' });
   if (probe.error || probe.status !== 0) {
-    return { available: false, note: `numpy column skipped: python3 -c "import numpy" failed (${probe.error?.message ?? probe.stderr.trim().split('\n').pop()})` };
+    return {
+      available: false,
+      note: `numpy column skipped: python3 -c "import numpy" failed (${probe.error?.message ?? probe.stderr.trim().split('\n').pop()})`,
+    };
   }
   const timings = new Map<string, Timing>();
   const allThreads = new Map<string, Timing>();
@@ -103,7 +106,8 @@ export function runNumpyBaseline(script: string, cases: readonly NumpyCase[], mi
     kernels = doc.kernels ?? 'unknown';
     for (const r of doc.results) {
       const key = numpyKey(r.widths, r.batch);
-      if (!threads) allThreads.set(key, { calls: r.calls, totalMs: (r.calls * r.batch * 1000) / r.rowsPerSec, rowsPerSec: r.rowsPerSec, p50Ms: r.p50Ms, p99Ms: r.p99Ms });
+      if (!threads)
+        allThreads.set(key, { calls: r.calls, totalMs: (r.calls * r.batch * 1000) / r.rowsPerSec, rowsPerSec: r.rowsPerSec, p50Ms: r.p50Ms, p99Ms: r.p99Ms });
       const seen = timings.get(key);
       if (seen && seen.rowsPerSec >= r.rowsPerSec) continue;
       timings.set(key, { calls: r.calls, totalMs: (r.calls * r.batch * 1000) / r.rowsPerSec, rowsPerSec: r.rowsPerSec, p50Ms: r.p50Ms, p99Ms: r.p99Ms });
@@ -135,7 +139,10 @@ const BASELINE_CALL_BUDGET_MS = 3000;
  * Switches the process's tfjs backend to js; measure the engine afterwards.
  * @example const { rows, notes } = await benchBaselines(doc, { batches: [1, 256], minMs: 500 });
  */
-export async function benchBaselines(doc: ModelDoc, opts: { batches: readonly number[]; minMs: number; seed?: number }): Promise<{ rows: BaselineRow[]; notes: string[] }> {
+export async function benchBaselines(
+  doc: ModelDoc,
+  opts: { batches: readonly number[]; minMs: number; seed?: number },
+): Promise<{ rows: BaselineRow[]; notes: string[] }> {
   const rows: BaselineRow[] = [];
   const notes: string[] = [];
   const plainFits = doc.layers.every((l) => l.kind === 'dense' && ['relu', 'linear', 'softmax'].includes(l.activation));
@@ -143,7 +150,7 @@ export async function benchBaselines(doc: ModelDoc, opts: { batches: readonly nu
   if (plainFits) {
     await useEngine('js');
     plain = plainTfjsForward(doc);
-    if (doc.normalise) notes.push('plain tfjs ops leave out the model\'s input normalisation (a small share of the work)');
+    if (doc.normalise) notes.push("plain tfjs ops leave out the model's input normalisation (a small share of the work)");
   } else {
     notes.push('plain tfjs ops not run: written for dense layers with relu, linear or softmax only');
   }

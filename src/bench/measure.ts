@@ -138,7 +138,16 @@ export async function benchModel(doc: ModelDoc, options: BenchModelOptions = {})
 /** A plain-text table of bench rows, one line per batch size. */
 export function formatBenchRows(rows: readonly BenchRow[]): string {
   const head = ['engine', 'batch', 'rows/s', 'GFLOP/s', 'p50 ms', 'p99 ms', 'rss MiB', 'tensors'];
-  const body = rows.map((r) => [r.engine, String(r.batch), fmt(r.rowsPerSec, 0), fmt(r.gflops, 2), fmt(r.p50Ms, 3), fmt(r.p99Ms, 3), fmt(r.rssMiB, 0), String(r.tensors)]);
+  const body = rows.map((r) => [
+    r.engine,
+    String(r.batch),
+    fmt(r.rowsPerSec, 0),
+    fmt(r.gflops, 2),
+    fmt(r.p50Ms, 3),
+    fmt(r.p99Ms, 3),
+    fmt(r.rssMiB, 0),
+    String(r.tensors),
+  ]);
   return table(head, body);
 }
 

@@ -9,7 +9,17 @@
 import { readFileSync } from 'node:fs';
 import { cpus, availableParallelism } from 'node:os';
 import * as tf from '@tensorflow/tfjs-core';
-import { bestInt8Arith, engineFallbackReason, Int8Session, kernelDescription, openRunner, SharedSession, useEngine, type EngineName, type Runner } from '../engine/index.js';
+import {
+  bestInt8Arith,
+  engineFallbackReason,
+  Int8Session,
+  kernelDescription,
+  openRunner,
+  SharedSession,
+  useEngine,
+  type EngineName,
+  type Runner,
+} from '../engine/index.js';
 import { decodeModel, encodeModel } from '../format/index.js';
 import { wasmSimdAvailable } from '../engine/fast/dense-kernel.js';
 import type { ModelDoc } from '../model/index.js';
@@ -157,7 +167,9 @@ export async function runBenchSuite(opts: SuiteOptions): Promise<SuiteResult> {
 /** Time fn unless one call is predicted to exceed the budget; null (and a note) when skipped. */
 async function budgeted(run: SuiteRun, label: string, predictedRowsPerSec: number | null, batch: number, fn: () => unknown): Promise<Timing | null> {
   if (predictedRowsPerSec !== null && (batch / predictedRowsPerSec) * 1000 > run.callBudgetMs) {
-    run.notes.push(`${label} at batch ${batch} skipped: one call predicted at ${fmt((batch / predictedRowsPerSec) * 1000, 0)} ms, over the ${run.callBudgetMs} ms budget`);
+    run.notes.push(
+      `${label} at batch ${batch} skipped: one call predicted at ${fmt((batch / predictedRowsPerSec) * 1000, 0)} ms, over the ${run.callBudgetMs} ms budget`,
+    );
     return null;
   }
   return timeCalls(fn, batch, { minMs: run.minMs, minCalls: 2, warmupCalls: 1 });
@@ -232,7 +244,18 @@ async function measureEngines(run: SuiteRun, engines: readonly SuiteEngine[]): P
         if (!t) continue;
         rate = t.rowsPerSec;
         const { rowsPerSec, p50Ms, p99Ms } = t;
-        addRow(run, { section: 'engine', network: net.name, engine, workers: 0, batch, rowsPerSec, gflops: gflops(net.widths, rowsPerSec), p50Ms, p99Ms, note: 'in-process session' });
+        addRow(run, {
+          section: 'engine',
+          network: net.name,
+          engine,
+          workers: 0,
+          batch,
+          rowsPerSec,
+          gflops: gflops(net.widths, rowsPerSec),
+          p50Ms,
+          p99Ms,
+          note: 'in-process session',
+        });
       }
       session.dispose();
     }
@@ -245,7 +268,12 @@ async function measureThreads(run: SuiteRun): Promise<void> {
   if (int8Arith !== null) {
     const f32Doc = docOf(run, MID.name);
     const i8Doc = decodeModel(encodeModel({ ...f32Doc, storage: 'i8' }), '(benchmark model stored as i8)').doc;
-    const cases: { name: string; threads: number; batch: number; open: (threads: number) => { run(x: Float32Array, n: number): Float32Array; ready(): Promise<void>; dispose(): void } }[] = [];
+    const cases: {
+      name: string;
+      threads: number;
+      batch: number;
+      open: (threads: number) => { run(x: Float32Array, n: number): Float32Array; ready(): Promise<void>; dispose(): void };
+    }[] = [];
     for (const threads of [1, 2]) {
       cases.push({ name: 'fast', threads, batch: 256, open: (t) => new SharedSession(f32Doc, { arith: 'f32', threads: t }) });
       cases.push({ name: 'int8', threads, batch: 256, open: (t) => new Int8Session(i8Doc, { threads: t }) });
@@ -260,7 +288,18 @@ async function measureThreads(run: SuiteRun): Promise<void> {
       session.dispose();
       if (!t) continue;
       const kernel = c.name === 'int8' ? kernelDescription('int8') : kernelDescription('fast');
-      addRow(run, { section: 'threads', network: MID.name, engine: c.name, workers: c.threads, batch: c.batch, rowsPerSec: t.rowsPerSec, gflops: gflops(MID.widths, t.rowsPerSec), p50Ms: t.p50Ms, p99Ms: t.p99Ms, note: `${kernel}; shared memory, ${c.threads} thread${c.threads > 1 ? 's' : ''}` });
+      addRow(run, {
+        section: 'threads',
+        network: MID.name,
+        engine: c.name,
+        workers: c.threads,
+        batch: c.batch,
+        rowsPerSec: t.rowsPerSec,
+        gflops: gflops(MID.widths, t.rowsPerSec),
+        p50Ms: t.p50Ms,
+        p99Ms: t.p99Ms,
+        note: `${kernel}; shared memory, ${c.threads} thread${c.threads > 1 ? 's' : ''}`,
+      });
     }
   } else run.notes.push('int8 and shared-memory thread rows skipped: this runtime has no WebAssembly SIMD');
 }
@@ -286,7 +325,18 @@ async function measurePool(run: SuiteRun, engines: readonly SuiteEngine[], best:
         if (!t) continue;
         rate = t.rowsPerSec;
         const { rowsPerSec, p50Ms, p99Ms } = t;
-        addRow(run, { section: 'pool', network: MID.name, engine, workers, batch, rowsPerSec, gflops: gflops(MID.widths, rowsPerSec), p50Ms, p99Ms, note: 'worker threads' });
+        addRow(run, {
+          section: 'pool',
+          network: MID.name,
+          engine,
+          workers,
+          batch,
+          rowsPerSec,
+          gflops: gflops(MID.widths, rowsPerSec),
+          p50Ms,
+          p99Ms,
+          note: 'worker threads',
+        });
       }
       await pool.close();
     }
@@ -319,7 +369,18 @@ async function measureBatcher(run: SuiteRun, best: SuiteEngine): Promise<void> {
     latencies.sort((a, b) => a - b);
     const rps = latencies.length / seconds;
     const note = `${callers} concurrent single-row callers, max batch 64, max wait 1 ms`;
-    addRow(run, { section: 'batcher', network: net.name, engine: best, workers: 0, batch: 1, rowsPerSec: rps, gflops: gflops(net.widths, rps), p50Ms: percentile(latencies, 0.5), p99Ms: percentile(latencies, 0.99), note });
+    addRow(run, {
+      section: 'batcher',
+      network: net.name,
+      engine: best,
+      workers: 0,
+      batch: 1,
+      rowsPerSec: rps,
+      gflops: gflops(net.widths, rps),
+      p50Ms: percentile(latencies, 0.5),
+      p99Ms: percentile(latencies, 0.99),
+      note,
+    });
   }
 }
 
@@ -330,7 +391,18 @@ const TRAIN_NETWORK = 'train 784-256-10';
 async function measureTraining(run: SuiteRun, engines: readonly SuiteEngine[]): Promise<void> {
   // A training step is about 3x the forward multiply-adds (forward, input gradient, weight gradient).
   const trainRow = (engine: string, rps: number, note: string) =>
-    addRow(run, { section: 'train', network: TRAIN_NETWORK, engine, workers: 0, batch: 64, rowsPerSec: rps, gflops: 3 * gflops(TRAIN_WIDTHS, rps), p50Ms: Number.NaN, p99Ms: Number.NaN, note });
+    addRow(run, {
+      section: 'train',
+      network: TRAIN_NETWORK,
+      engine,
+      workers: 0,
+      batch: 64,
+      rowsPerSec: rps,
+      gflops: 3 * gflops(TRAIN_WIDTHS, rps),
+      p50Ms: Number.NaN,
+      p99Ms: Number.NaN,
+      note,
+    });
   for (const engine of engines.filter((e): e is EngineName => e !== 'fast')) {
     await useEngine(engine);
     const n = engine === 'js' ? (run.quick ? 256 : 1024) : run.quick ? 1024 : 4096;
@@ -373,10 +445,24 @@ async function measureLeaks(run: SuiteRun, engines: readonly SuiteEngine[]): Pro
     const tensorsAfter = tf.memory().numTensors;
     const rssAfter = rss();
     session.dispose();
-    run.notes.push(`leak check (${engine}, ${net.name}, ${calls} calls of run): tensors ${tensorsBefore} -> ${tensorsAfter}, rss ${fmt(rssBefore, 1)} -> ${fmt(rssAfter, 1)} MiB`);
+    run.notes.push(
+      `leak check (${engine}, ${net.name}, ${calls} calls of run): tensors ${tensorsBefore} -> ${tensorsAfter}, rss ${fmt(rssBefore, 1)} -> ${fmt(rssAfter, 1)} MiB`,
+    );
     const note = `tensors ${tensorsBefore}->${tensorsAfter}, rss ${fmt(rssBefore, 0)}->${fmt(rssAfter, 0)} MiB`;
     const rps = calls / seconds;
-    addRow(run, { section: 'leak', network: net.name, engine, workers: 0, batch: 1, rowsPerSec: rps, gflops: gflops(net.widths, rps), p50Ms: Number.NaN, p99Ms: Number.NaN, tensorGrowth: tensorsAfter - tensorsBefore, note });
+    addRow(run, {
+      section: 'leak',
+      network: net.name,
+      engine,
+      workers: 0,
+      batch: 1,
+      rowsPerSec: rps,
+      gflops: gflops(net.widths, rps),
+      p50Ms: Number.NaN,
+      p99Ms: Number.NaN,
+      tensorGrowth: tensorsAfter - tensorsBefore,
+      note,
+    });
   }
 }
 
@@ -393,7 +479,8 @@ function vectorFeatures(): string {
 
 /** The integer engine's and the shared-memory threads' targets, all ratios within this run. */
 function threadTargets(rows: readonly SuiteRow[], baselines: SuiteResult['baselines'], numpyAll256: Timing | null): TargetCheck[] {
-  const at = (engine: string, threads: number, batch: number) => rows.find((r) => r.section === 'threads' && r.engine === engine && r.workers === threads && r.batch === batch);
+  const at = (engine: string, threads: number, batch: number) =>
+    rows.find((r) => r.section === 'threads' && r.engine === engine && r.workers === threads && r.batch === batch);
   const fastEngine256 = rows.find((r) => r.section === 'engine' && r.engine === 'fast' && r.network === MID.name && r.batch === 256);
   const f1 = at('fast', 1, 256);
   const f2 = at('fast', 2, 256);
@@ -402,7 +489,11 @@ function threadTargets(rows: readonly SuiteRow[], baselines: SuiteResult['baseli
   const i1row = at('int8', 1, 1);
   const np1 = baselines.find((b) => b.network === MID.name && b.batch === 1)?.numpy?.p50Ms;
   const ratio = (a: SuiteRow | undefined, b: { rowsPerSec: number } | undefined | null) => (a && b ? a.rowsPerSec / b.rowsPerSec : undefined);
-  const check = (target: string, value: number | undefined, goal: number): TargetCheck => ({ target, reached: value === undefined ? 'not measured' : `${fmt(value, 2)}x`, met: value === undefined ? null : value >= goal });
+  const check = (target: string, value: number | undefined, goal: number): TargetCheck => ({
+    target,
+    reached: value === undefined ? 'not measured' : `${fmt(value, 2)}x`,
+    met: value === undefined ? null : value >= goal,
+  });
   return [
     check(`${MID.name} batch 256: int8 on one thread >= 2.2x the fast engine on one thread`, ratio(i1, fastEngine256), 2.2),
     check(`${MID.name} batch 256: float32 on 2 shared-memory threads >= 1.8x one thread`, ratio(f2, f1), 1.8),
@@ -545,7 +636,22 @@ export function checkTargets(rows: readonly SuiteRow[], baselines: SuiteResult['
 
 /** The suite's rows as a text table. */
 export function formatSuite(result: SuiteResult): string {
-  const head = ['section', 'network', 'engine', 'workers', 'batch', 'rows/s', 'GFLOP/s', 'p50 ms', 'p99 ms', 'rss MiB', 'tensors', 'x tfjs ops', 'x ref f64', 'x numpy'];
+  const head = [
+    'section',
+    'network',
+    'engine',
+    'workers',
+    'batch',
+    'rows/s',
+    'GFLOP/s',
+    'p50 ms',
+    'p99 ms',
+    'rss MiB',
+    'tensors',
+    'x tfjs ops',
+    'x ref f64',
+    'x numpy',
+  ];
   const body = result.rows.map((r) => [
     r.section,
     r.network,
@@ -563,7 +669,14 @@ export function formatSuite(result: SuiteResult): string {
     fmt(r.vsNumpy, 2),
   ]);
   const baseHead = ['network', 'batch', 'tfjs ops rows/s', 'ref f64 rows/s', 'numpy rows/s', 'numpy p50 ms'];
-  const baseBody = result.baselines.map((b) => [b.network, String(b.batch), fmt(b.plainTfjs?.rowsPerSec ?? Number.NaN, 0), fmt(b.reference?.rowsPerSec ?? Number.NaN, 0), fmt(b.numpy?.rowsPerSec ?? Number.NaN, 0), fmt(b.numpy?.p50Ms ?? Number.NaN, 3)]);
+  const baseBody = result.baselines.map((b) => [
+    b.network,
+    String(b.batch),
+    fmt(b.plainTfjs?.rowsPerSec ?? Number.NaN, 0),
+    fmt(b.reference?.rowsPerSec ?? Number.NaN, 0),
+    fmt(b.numpy?.rowsPerSec ?? Number.NaN, 0),
+    fmt(b.numpy?.p50Ms ?? Number.NaN, 3),
+  ]);
   const targets = result.targets.map((t) => `${t.met === null ? '[ ? ]' : t.met ? '[met]' : '[not met]'} ${t.target}: ${t.reached}`);
   return [
     `machine: ${result.machine.cpu} (vector: ${result.machine.vector}), ${result.machine.cores} cores, Node ${result.machine.node}, ${result.machine.numpy}`,
@@ -585,8 +698,9 @@ export function formatSuite(result: SuiteResult): string {
 export function resultsMarkdownRows(result: SuiteResult, date: Date): string[] {
   const day = date.toISOString().slice(0, 16).replace('T', ' ');
   const m = result.machine;
-  return result.rows.map((r) =>
-    `| ${day} | ${m.cpu} (${m.vector}), ${m.cores} cores | ${m.node} | ${r.section} | ${r.network} | ${r.engine} | ${r.workers || '-'} | ${r.batch} | ${fmt(r.rowsPerSec, 0)} | ${fmt(r.gflops, 2)} | ${fmt(r.p50Ms, 3)} | ${fmt(r.p99Ms, 3)} | ${fmt(r.rssMiB, 0)} | ${r.tensors} | ${fmt(r.vsPlainTfjs, 1)} | ${fmt(r.vsReference, 1)} | ${fmt(r.vsNumpy, 2)} |`,
+  return result.rows.map(
+    (r) =>
+      `| ${day} | ${m.cpu} (${m.vector}), ${m.cores} cores | ${m.node} | ${r.section} | ${r.network} | ${r.engine} | ${r.workers || '-'} | ${r.batch} | ${fmt(r.rowsPerSec, 0)} | ${fmt(r.gflops, 2)} | ${fmt(r.p50Ms, 3)} | ${fmt(r.p99Ms, 3)} | ${fmt(r.rssMiB, 0)} | ${r.tensors} | ${fmt(r.vsPlainTfjs, 1)} | ${fmt(r.vsReference, 1)} | ${fmt(r.vsNumpy, 2)} |`,
   );
 }
 

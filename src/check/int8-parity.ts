@@ -50,7 +50,8 @@ export function int8ParityReport(doc: ModelDoc, x: Float32Array, rows: number, s
       }
     } else if (layer.kind === 'batchnorm') {
       for (let r = 0; r < rows; r++) {
-        for (let c = 0; c < outW; c++) bound[r * outW + c] = carried[r * inW + c] * Math.abs(layer.gamma[c] / Math.sqrt(layer.runningVariance[c] + layer.epsilon));
+        for (let c = 0; c < outW; c++)
+          bound[r * outW + c] = carried[r * inW + c] * Math.abs(layer.gamma[c] / Math.sqrt(layer.runningVariance[c] + layer.epsilon));
       }
     } else {
       bound = Float64Array.from(carried);
@@ -75,7 +76,16 @@ export function int8ParityReport(doc: ModelDoc, x: Float32Array, rows: number, s
     }
     carried = bound;
     input = want;
-    return { index: i, kind: layer.kind, maxAbs, maxRel, worstRow: worst < 0 ? -1 : Math.floor(worst / outW), worstCol: worst < 0 ? -1 : worst % outW, worstRatio: Math.max(worstRatio, 0), pass: worstRatio <= 1 };
+    return {
+      index: i,
+      kind: layer.kind,
+      maxAbs,
+      maxRel,
+      worstRow: worst < 0 ? -1 : Math.floor(worst / outW),
+      worstCol: worst < 0 ? -1 : worst % outW,
+      worstRatio: Math.max(worstRatio, 0),
+      pass: worstRatio <= 1,
+    };
   });
   const outCols = widths[widths.length - 1];
   const last = layers[layers.length - 1];

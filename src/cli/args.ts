@@ -18,11 +18,7 @@ export interface FlagSpec {
 export type FlagSpecs = Record<string, FlagSpec>;
 
 export type FlagValues<S extends FlagSpecs> = {
-  [K in keyof S]: S[K]['kind'] extends 'boolean'
-    ? boolean
-    : S[K]['kind'] extends 'string'
-      ? string | undefined
-      : number | undefined;
+  [K in keyof S]: S[K]['kind'] extends 'boolean' ? boolean : S[K]['kind'] extends 'string' ? string | undefined : number | undefined;
 };
 
 export interface Parsed<S extends FlagSpecs> {

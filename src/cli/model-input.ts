@@ -20,7 +20,12 @@ export function inputColumns(doc: ModelDoc, table: Pick<TableReader, 'columns' |
     // shares no name with the model (it names the columns some other way).
     const shared = doc.features.length - missing.length;
     if (shared > 0 || named.length !== doc.inputs) {
-      throw new DataError(file, 1, 0, `missing feature column${missing.length > 1 ? 's' : ''} ${shownNames(missing)} (the header has: ${shownNames(table.columns.filter((c) => c !== ''))})`);
+      throw new DataError(
+        file,
+        1,
+        0,
+        `missing feature column${missing.length > 1 ? 's' : ''} ${shownNames(missing)} (the header has: ${shownNames(table.columns.filter((c) => c !== ''))})`,
+      );
     }
   }
   if (named.length !== doc.inputs) {

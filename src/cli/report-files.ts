@@ -78,8 +78,20 @@ export async function writeCheckReport(path: string, modelPath: string, engine: 
       ],
       tolerance: report.tolerance,
       rows: [
-        ...report.layers.map((l) => ({ label: `${l.index} ${l.kind}`, maxAbs: l.maxAbs, maxRel: l.maxRel, pass: l.pass, where: `row ${l.worstRow}, column ${l.worstCol}` })),
-        { label: 'output', maxAbs: report.output.maxAbs, maxRel: report.output.maxRel, pass: report.output.pass, where: `row ${report.output.worstRow}, column ${report.output.worstCol}` },
+        ...report.layers.map((l) => ({
+          label: `${l.index} ${l.kind}`,
+          maxAbs: l.maxAbs,
+          maxRel: l.maxRel,
+          pass: l.pass,
+          where: `row ${l.worstRow}, column ${l.worstCol}`,
+        })),
+        {
+          label: 'output',
+          maxAbs: report.output.maxAbs,
+          maxRel: report.output.maxRel,
+          pass: report.output.pass,
+          where: `row ${report.output.worstRow}, column ${report.output.worstCol}`,
+        },
       ],
       pass: report.pass,
       topClassAgreement: report.output.topClassAgreement,
@@ -103,13 +115,20 @@ export async function writeAgainstReport(path: string, modelPath: string, parent
 }
 
 /** Write a bench run (engine rows and the baselines timed in the same run) as an HTML page. */
-export async function writeBenchReport(path: string, modelPath: string, rows: readonly BenchRow[], baselines: { rows: readonly BaselineRow[]; notes: readonly string[] }): Promise<void> {
+export async function writeBenchReport(
+  path: string,
+  modelPath: string,
+  rows: readonly BenchRow[],
+  baselines: { rows: readonly BaselineRow[]; notes: readonly string[] },
+): Promise<void> {
   const best = rows.reduce<BenchRow | null>((a, r) => (a === null || r.rowsPerSec > a.rowsPerSec ? r : a), null);
   await writeFile(
     path,
     benchPage({
       title: `tendon bench ${modelPath}`,
-      lead: best ? `Fastest: the ${best.engine} engine at batch ${best.batch}, ${valueText(best.rowsPerSec, false)} rows/s on this machine.` : 'Nothing was measured.',
+      lead: best
+        ? `Fastest: the ${best.engine} engine at batch ${best.batch}, ${valueText(best.rowsPerSec, false)} rows/s on this machine.`
+        : 'Nothing was measured.',
       facts: [
         ['model', modelPath],
         ['node', process.version],

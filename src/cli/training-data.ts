@@ -36,12 +36,7 @@ const READ_AHEAD_BYTES = 128 * 1024;
  * @throws DataError naming the file, line and column of a bad cell, an unknown column, a class
  *   the model does not know, or target names that are not the model's output labels.
  */
-export async function loadTrainingData(
-  doc: ModelDoc,
-  file: string,
-  targets: readonly string[],
-  warn: (message: string) => void = () => {},
-): Promise<TuneData> {
+export async function loadTrainingData(doc: ModelDoc, file: string, targets: readonly string[], warn: (message: string) => void = () => {}): Promise<TuneData> {
   const classes = isClassifier(doc);
   const refs: ColumnRef[] = targets.map((t) => (/^\d+$/.test(t) ? Number(t) : t));
   const layout = await tableLayout(file);
@@ -110,7 +105,12 @@ function featureColumns(doc: ModelDoc, layout: Layout, targetCols: readonly numb
   if (doc.features && layout.columns) {
     const missing = doc.features.filter((f) => !layout.columns!.includes(f));
     if (missing.length === 0) return resolveColumns(layout.columns, layout.width, doc.features, file);
-    throw new DataError(file, 1, 0, `missing feature column${missing.length > 1 ? 's' : ''} ${shownNames(missing)} (the header has: ${shownNames(layout.columns.filter((c) => c !== ''))})`);
+    throw new DataError(
+      file,
+      1,
+      0,
+      `missing feature column${missing.length > 1 ? 's' : ''} ${shownNames(missing)} (the header has: ${shownNames(layout.columns.filter((c) => c !== ''))})`,
+    );
   }
   const rest = namedColumns(layout).filter((i) => !targetCols.includes(i));
   if (rest.length !== doc.inputs) {
@@ -170,7 +170,7 @@ class GrowingRows<T extends Float32Array | Int32Array> {
     // Rows expected in the whole file, from the rows per byte seen so far, plus a margin. The
     // margin costs little: pages of the buffer that are never written are never resident.
     const consumed = Math.max(bytesRead - READ_AHEAD_BYTES, bytesRead / 2, 1);
-    const expected = bytesRead >= bytesTotal ? this.rows + more : Math.ceil(((this.rows + more) * bytesTotal) / consumed * 1.15);
+    const expected = bytesRead >= bytesTotal ? this.rows + more : Math.ceil((((this.rows + more) * bytesTotal) / consumed) * 1.15);
     const grown = new this.make(Math.max(need, expected * this.width, Math.ceil(this.buffer.length * 1.25)));
     grown.set(this.buffer.subarray(0, this.rows * this.width));
     this.buffer = grown;
@@ -242,7 +242,12 @@ class ClassReader {
     const at = this.position + 1;
     if (this.conflict) {
       const c = this.conflict;
-      return new DataError(this.file, line, at, `class ${shownCell(c.cell)} is ambiguous: it is the label of class ${c.byName} and also the index ${c.byIndex}; write the classes by index only`);
+      return new DataError(
+        this.file,
+        line,
+        at,
+        `class ${shownCell(c.cell)} is ambiguous: it is the label of class ${c.byName} and also the index ${c.byIndex}; write the classes by index only`,
+      );
     }
     return new DataError(this.file, line, at, `class ${shownCell(cell.trim())} is not one the model knows (${this.known()})`);
   }

@@ -43,7 +43,12 @@ export async function headerFeatureNames(file: string, targets: readonly string[
   const width = probe.width;
   await probe.close();
   if (!columns) return null;
-  const targetCols = resolveColumns(columns, width, targets.map((t) => (/^\d+$/.test(t) ? Number(t) : t)), file);
+  const targetCols = resolveColumns(
+    columns,
+    width,
+    targets.map((t) => (/^\d+$/.test(t) ? Number(t) : t)),
+    file,
+  );
   // Columns without a name (an index column, a trailing comma) are never read as features.
   const names = columns.filter((name, i) => name.trim() !== '' && !targetCols.includes(i));
   const usable = names.length === inputs && new Set(names).size === names.length;

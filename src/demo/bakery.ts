@@ -8,15 +8,7 @@
  */
 import type { Rng } from '../model/layers/kind.js';
 
-export const BAKERY_FEATURES = [
-  'zone1_temp_c',
-  'zone2_temp_c',
-  'zone3_temp_c',
-  'humidity_pct',
-  'belt_speed_m_min',
-  'dough_mass_g',
-  'proof_time_min',
-] as const;
+export const BAKERY_FEATURES = ['zone1_temp_c', 'zone2_temp_c', 'zone3_temp_c', 'humidity_pct', 'belt_speed_m_min', 'dough_mass_g', 'proof_time_min'] as const;
 
 export const BAKERY_LABELS = ['under', 'good', 'over'] as const;
 

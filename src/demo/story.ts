@@ -131,7 +131,12 @@ async function packFreshModel(dir: string, opts: DemoOptions): Promise<ModelDoc>
 async function trainFirstSite(fresh: ModelDoc, firstTrain: BakeryBatch, dir: string, opts: DemoOptions): Promise<{ trained: TuneResult; firstPath: string }> {
   const { say } = opts;
   const t0 = performance.now();
-  const trained = await tune(fresh, asData(firstTrain), { ...common(opts.seed), epochs: 40, holdout: 0.2, stopAfter: 8, calibrate: true, origin: 'a fresh model built in memory by the demo' }, { signal: opts.signal });
+  const trained = await tune(
+    fresh,
+    asData(firstTrain),
+    { ...common(opts.seed), epochs: 40, holdout: 0.2, stopAfter: 8, calibrate: true, origin: 'a fresh model built in memory by the demo' },
+    { signal: opts.signal },
+  );
   const seconds = (performance.now() - t0) / 1000;
   const firstPath = join(dir, 'bakery-northgate.tendon');
   await writeModelFile(firstPath, trained.doc);
@@ -145,7 +150,12 @@ async function trainFirstSite(fresh: ModelDoc, firstTrain: BakeryBatch, dir: str
 }
 
 /** 3 and 4. The reopened model's accuracy on new loaves, five loaves scored, and parity with the reference. */
-function scoreFirstSite(model: TendonModel, firstPath: string, firstTest: BakeryBatch, opts: DemoOptions): { firstAcc: number; parity: ReturnType<TendonModel['check']> } {
+function scoreFirstSite(
+  model: TendonModel,
+  firstPath: string,
+  firstTest: BakeryBatch,
+  opts: DemoOptions,
+): { firstAcc: number; parity: ReturnType<TendonModel['check']> } {
   const { say } = opts;
   const firstAcc = accuracyOf(model, firstTest);
   say(`3. reopened ${firstPath} (checksum ${model.checksum}) on the ${model.engine} engine`);
@@ -229,7 +239,9 @@ async function saveFinal(kept: TuneResult, dir: string, say: (line: string) => v
   const written = await writeModelFile(finalPath, kept.doc);
   const prov = kept.doc.provenance[kept.doc.provenance.length - 1];
   say('');
-  say(`6. saved ${finalPath} (checksum ${written.checksum}); its provenance names the parent: ${prov ? `${prov.action} from ${prov.source}, checksum ${prov.checksum}` : '(none)'}`);
+  say(
+    `6. saved ${finalPath} (checksum ${written.checksum}); its provenance names the parent: ${prov ? `${prov.action} from ${prov.source}, checksum ${prov.checksum}` : '(none)'}`,
+  );
 }
 
 /** The closing note and the commands to try next on the demo's files. */
@@ -239,7 +251,9 @@ function sayTryIt(dir: string, firstPath: string, say: (line: string) => void): 
   say('Try it yourself:');
   say(`  npx tendon about ${firstPath}`);
   say(`  npx tendon check ${firstPath}`);
-  say(`  npx tendon tune ${firstPath} --data ${join(dir, 'riverside-loaves.csv')} --target quality --anchor 0.05 --replay ${join(dir, 'northgate-loaves.csv')} --holdout 0.2 --epochs 20 -o ${join(dir, 'mine.tendon')}`);
+  say(
+    `  npx tendon tune ${firstPath} --data ${join(dir, 'riverside-loaves.csv')} --target quality --anchor 0.05 --replay ${join(dir, 'northgate-loaves.csv')} --holdout 0.2 --epochs 20 -o ${join(dir, 'mine.tendon')}`,
+  );
   say(`  npx tendon explain ${firstPath} --input ${join(dir, 'northgate-loaves.csv')} --output ${join(dir, 'why.csv')}`);
 }
 

@@ -53,9 +53,7 @@ export interface DriftReport {
   readonly drifted: string[];
 }
 
-type Baseline =
-  | { method: 'zscore'; mean: Float64Array; std: Float64Array }
-  | { method: 'minmax'; min: Float64Array; max: Float64Array };
+type Baseline = { method: 'zscore'; mean: Float64Array; std: Float64Array } | { method: 'minmax'; min: Float64Array; max: Float64Array };
 
 function baselineOf(norm: Normalisation | null): Baseline | null {
   if (norm?.method === 'zscore' && norm.mean && norm.std) return { method: 'zscore', mean: norm.mean, std: norm.std };
@@ -107,8 +105,7 @@ export class DriftMonitor {
         const v = x[r * w + c];
         // Incoming rows are float32: compare with the float32 rounding of the stored range, so a
         // value that was at the edge when the statistics were fitted does not count as outside.
-        const outside =
-          b.method === 'zscore' ? Math.abs(v - b.mean[c]) > ZSCORE_RANGE_SD * b.std[c] : v < Math.fround(b.min[c]) || v > Math.fround(b.max[c]);
+        const outside = b.method === 'zscore' ? Math.abs(v - b.mean[c]) > ZSCORE_RANGE_SD * b.std[c] : v < Math.fround(b.min[c]) || v > Math.fround(b.max[c]);
         if (outside) this.outside[c]++;
       }
     }
@@ -131,7 +128,9 @@ export class DriftMonitor {
           shift = Math.abs(m.mean[c] - b.mean[c]) / b.std[c];
           if (shift > this.k) reasons.push(`mean moved ${shift.toFixed(1)} sd`);
         } else if (m.mean[c] < Math.fround(b.min[c]) || m.mean[c] > Math.fround(b.max[c])) {
-          reasons.push(`mean ${Number(m.mean[c].toPrecision(4))} outside the seen range [${Number(b.min[c].toPrecision(4))}, ${Number(b.max[c].toPrecision(4))}]`);
+          reasons.push(
+            `mean ${Number(m.mean[c].toPrecision(4))} outside the seen range [${Number(b.min[c].toPrecision(4))}, ${Number(b.max[c].toPrecision(4))}]`,
+          );
         }
       }
       return {
@@ -170,7 +169,11 @@ export function describeDrift(report: DriftReport): string {
     f.drifted ? f.reason : f.constantInTraining ? 'ok (constant in training: the model ignores it)' : 'ok',
   ]);
   const widths = header.map((h, i) => Math.max(h.length, ...rows.map((r) => r[i].length)));
-  const line = (cells: string[]) => cells.map((cell, i) => (i === 0 || i === cells.length - 1 ? cell.padEnd(widths[i]) : cell.padStart(widths[i]))).join('  ').trimEnd();
+  const line = (cells: string[]) =>
+    cells
+      .map((cell, i) => (i === 0 || i === cells.length - 1 ? cell.padEnd(widths[i]) : cell.padStart(widths[i])))
+      .join('  ')
+      .trimEnd();
   const summary =
     report.drifted.length === 0
       ? 'no feature has drifted'
@@ -179,11 +182,13 @@ export function describeDrift(report: DriftReport): string {
     report.method === 'zscore'
       ? `a feature drifts when its incoming mean moves more than ${report.k} training sd; "out of range" counts values beyond mean ± ${ZSCORE_RANGE_SD} sd, shown only`
       : 'a feature drifts when its incoming mean leaves the range seen in training; "out of range" counts single values outside it, shown only';
-  return [
-    `drift: ${report.rows} rows against the model's ${report.method} statistics (${rule})`,
-    line(header),
-    line(widths.map((w) => '-'.repeat(w))),
-    ...rows.map(line),
-    summary,
-  ].join('\n') + '\n';
+  return (
+    [
+      `drift: ${report.rows} rows against the model's ${report.method} statistics (${rule})`,
+      line(header),
+      line(widths.map((w) => '-'.repeat(w))),
+      ...rows.map(line),
+      summary,
+    ].join('\n') + '\n'
+  );
 }

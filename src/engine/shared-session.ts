@@ -22,10 +22,28 @@
  */
 import { ModelFileError, ShapeError } from '../errors.js';
 import { quantiseColumns, storedCodesOf, type Int8Matrix } from '../format/int8.js';
-import { activationKind, batchNormAffine, inputShiftScale, modelWidths, validateModel, type ActivationName, type DenseLayer, type ModelDoc } from '../model/index.js';
+import {
+  activationKind,
+  batchNormAffine,
+  inputShiftScale,
+  modelWidths,
+  validateModel,
+  type ActivationName,
+  type DenseLayer,
+  type ModelDoc,
+} from '../model/index.js';
 import { denseFunction, padded, relaxedMaddAvailable, wasmApi } from './fast/dense-kernel.js';
 import { Code, I32, moduleBytes, type FunctionDef } from './fast/wasm-emit.js';
-import { affineFunction, CODE_BYTES, columnSums, denseInt8Function, MAX_INT8_INPUTS, packInt8Weights, quantiseFunction, type Int8Arith } from './int8/kernels.js';
+import {
+  affineFunction,
+  CODE_BYTES,
+  columnSums,
+  denseInt8Function,
+  MAX_INT8_INPUTS,
+  packInt8Weights,
+  quantiseFunction,
+  type Int8Arith,
+} from './int8/kernels.js';
 import { ThreadTeam, type Share } from './threads.js';
 
 export type SharedArith = 'f32' | Int8Arith;
@@ -122,7 +140,15 @@ export class SharedSession {
       if (typeof fn !== 'function') throw new Error(`shared session: segment ${def.name} missing from the module`);
       return (row0: number, rows: number) => void fn(row0, rows);
     });
-    this.team = threads > 1 ? new ThreadTeam(module, memory, segmentDefs.map((d) => d.name), threads) : null;
+    this.team =
+      threads > 1
+        ? new ThreadTeam(
+            module,
+            memory,
+            segmentDefs.map((d) => d.name),
+            threads,
+          )
+        : null;
   }
 
   /** Threads taking rows right now, the caller included. */
@@ -207,7 +233,19 @@ const f32Bytes = (a: Float32Array): Uint8Array => new Uint8Array(a.buffer, a.byt
 /** One step of the module with the addresses of its constants. */
 type Step =
   | { kind: 'normalise'; shift: number; scale: number }
-  | { kind: 'dense'; k: number; outP: number; out: number; relu: boolean; w: number; b: number; cs: number; ws: number; activation: ActivationName; alpha: number }
+  | {
+      kind: 'dense';
+      k: number;
+      outP: number;
+      out: number;
+      relu: boolean;
+      w: number;
+      b: number;
+      cs: number;
+      ws: number;
+      activation: ActivationName;
+      alpha: number;
+    }
   | { kind: 'affine'; scale: number; shift: number; width: number };
 
 /**
@@ -215,7 +253,15 @@ type Step =
  * int8 codes came from.
  * @throws ModelFileError when a dense layer has more inputs than the int8 sums can hold.
  */
-function planSteps(doc: ModelDoc, widths: number[], inP: number, arith: SharedArith, source: string, constants: ConstantLayout, codes: CodesOrigin[]): { steps: Step[]; maxWidth: number } {
+function planSteps(
+  doc: ModelDoc,
+  widths: number[],
+  inP: number,
+  arith: SharedArith,
+  source: string,
+  constants: ConstantLayout,
+  codes: CodesOrigin[],
+): { steps: Step[]; maxWidth: number } {
   const steps: Step[] = [];
   const norm = inputShiftScale(doc.normalise, widths[0]);
   if (norm) {
@@ -273,7 +319,19 @@ function denseF32Step(layer: DenseLayer, realIn: number, width: number, constant
   const w = new Float32Array(width * outP);
   for (let k = 0; k < realIn; k++) w.set(layer.weight.subarray(k * layer.size, (k + 1) * layer.size), k * outP);
   const wAt = constants.place(f32Bytes(w));
-  return { kind: 'dense', k: width, outP, out: layer.size, relu, w: wAt, b: placeBias(layer, outP, constants), cs: -1, ws: -1, activation: layer.activation, alpha: layer.alpha };
+  return {
+    kind: 'dense',
+    k: width,
+    outP,
+    out: layer.size,
+    relu,
+    w: wAt,
+    b: placeBias(layer, outP, constants),
+    cs: -1,
+    ws: -1,
+    activation: layer.activation,
+    alpha: layer.alpha,
+  };
 }
 
 /** An integer dense step: the stored codes, else the layer quantised the way `shrink` does. */
@@ -335,8 +393,12 @@ function layoutBuffers(top: number, chunk: number, inP: number, maxWidth: number
 }
 
 // Function indices of the kernels in the module, and the parameters of a segment.
-const DENSE = 0, AFFINE = 1, NORMALISE = 2, QUANTISE = 3;
-const ROW0 = 0, ROWS = 1;
+const DENSE = 0,
+  AFFINE = 1,
+  NORMALISE = 2,
+  QUANTISE = 3;
+const ROW0 = 0,
+  ROWS = 1;
 
 /** Push base + row0 · stride (the input and the per-row scales: plain row order). */
 const rowAddr = (c: Code, base: number, stride: number): Code => c.i32(base).get(ROW0).i32(stride).mul().add();
@@ -347,7 +409,12 @@ const regionAddr = (c: Code, base: number, bytes: number): Code => c.i32(base).g
  * The segments: calls of the kernels with every address fixed, a new segment after each step
  * whose activation runs in JavaScript (its pass), then where the output rows are.
  */
-function emitSegments(steps: Step[], buffers: BufferLayout, inP: number, arith: SharedArith): { segments: Code[]; passes: (ActivationPass | null)[]; out: { at: number; stride: number; region: number } } {
+function emitSegments(
+  steps: Step[],
+  buffers: BufferLayout,
+  inP: number,
+  arith: SharedArith,
+): { segments: Code[]; passes: (ActivationPass | null)[]; out: { at: number; stride: number; region: number } } {
   const { xAt, region, bufAt } = buffers;
   const segments: Code[] = [new Code()];
   const passes: (ActivationPass | null)[] = [];
@@ -359,9 +426,21 @@ function emitSegments(steps: Step[], buffers: BufferLayout, inP: number, arith: 
   for (const step of steps) {
     const c = segments[segments.length - 1];
     if (step.kind === 'normalise') {
-      rowAddr(c, xAt, inP * 4).i32(inP * 4).get(ROWS).i32(inP).i32(step.scale).i32(step.shift).call(NORMALISE);
+      rowAddr(c, xAt, inP * 4)
+        .i32(inP * 4)
+        .get(ROWS)
+        .i32(inP)
+        .i32(step.scale)
+        .i32(step.shift)
+        .call(NORMALISE);
     } else if (step.kind === 'affine') {
-      at(c, from, fromStride).i32(fromStride * 4).get(ROWS).i32(step.width).i32(step.scale).i32(step.shift).call(AFFINE);
+      at(c, from, fromStride)
+        .i32(fromStride * 4)
+        .get(ROWS)
+        .i32(step.width)
+        .i32(step.scale)
+        .i32(step.shift)
+        .call(AFFINE);
     } else {
       const to = bufAt[which];
       at(c, from, step.k);
@@ -385,17 +464,30 @@ type DenseStep = Extract<Step, { kind: 'dense' }>;
 /** dense(x, w, b, y, rows, nIn, outP, relu), x already pushed. */
 function emitDenseF32Call(c: Code, step: DenseStep, to: number, region: number): void {
   c.i32(step.w).i32(step.b);
-  regionAddr(c, to, region).get(ROWS).i32(step.k).i32(step.outP).i32(step.relu ? 1 : 0).call(DENSE);
+  regionAddr(c, to, region)
+    .get(ROWS)
+    .i32(step.k)
+    .i32(step.outP)
+    .i32(step.relu ? 1 : 0)
+    .call(DENSE);
 }
 
 /** quantise(x, ...) then denseI8(q, ...), x already pushed. */
 function emitDenseInt8Call(c: Code, step: DenseStep, to: number, buffers: BufferLayout): void {
   const { qAt, qRegion, pAt, region, codeBytes } = buffers;
   const qStride = step.k * codeBytes;
-  c.i32(step.k * 4).get(ROWS).i32(step.k);
+  c.i32(step.k * 4)
+    .get(ROWS)
+    .i32(step.k);
   regionAddr(c, qAt, qRegion).i32(qStride);
   rowAddr(c, pAt, 8).call(QUANTISE);
   regionAddr(c, qAt, qRegion).i32(qStride);
   rowAddr(c, pAt, 8).i32(step.w).i32(step.cs).i32(step.ws).i32(step.b);
-  regionAddr(c, to, region).i32(step.outP * 4).get(ROWS).i32(step.k / 4).i32(step.outP).i32(step.relu ? 1 : 0).call(DENSE);
+  regionAddr(c, to, region)
+    .i32(step.outP * 4)
+    .get(ROWS)
+    .i32(step.k / 4)
+    .i32(step.outP)
+    .i32(step.relu ? 1 : 0)
+    .call(DENSE);
 }

@@ -52,7 +52,11 @@ export class TfjsRunner implements Runner {
     this.engine = ensureEngine();
     this.tfBackend = tf.getBackend();
     this.widths = modelWidths(doc);
-    this.weights = doc.layers.map((layer) => layerKind(layer.kind).engine.upload(layer).map((t) => tf.keep(t)));
+    this.weights = doc.layers.map((layer) =>
+      layerKind(layer.kind)
+        .engine.upload(layer)
+        .map((t) => tf.keep(t)),
+    );
     this.norm = uploadNormalisation(doc.normalise, doc.inputs);
   }
 
@@ -107,7 +111,7 @@ export class TfjsRunner implements Runner {
     return outs;
   }
 
-    /** Free every tensor the runner holds. The runner cannot be used afterwards. */
+  /** Free every tensor the runner holds. The runner cannot be used afterwards. */
   dispose(): void {
     if (this.disposed) return;
     for (const w of this.weights) tf.dispose(w);

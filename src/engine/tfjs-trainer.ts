@@ -134,7 +134,9 @@ export class TfjsTrainer extends TfjsRunner {
       const layer = this.doc.layers[i];
       if (!layer) throw new RangeError(`refreshWeights: no layer ${i} (model has ${this.doc.layers.length})`);
       tf.dispose(this.weights[i]);
-      this.weights[i] = layerKind(layer.kind).engine.upload(layer).map((t) => tf.keep(t));
+      this.weights[i] = layerKind(layer.kind)
+        .engine.upload(layer)
+        .map((t) => tf.keep(t));
     }
     if (layerIndex === undefined) {
       if (this.norm) tf.dispose([this.norm.shift, this.norm.scale]);

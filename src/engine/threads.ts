@@ -15,7 +15,12 @@ import { Worker } from 'node:worker_threads';
 import { RuntimeFailure } from '../errors.js';
 
 // Control block (Int32 words).
-const GEN = 0, DONE = 1, FAILED = 2, STOP = 3, READY = 4, TASKS = 8;
+const GEN = 0,
+  DONE = 1,
+  FAILED = 2,
+  STOP = 3,
+  READY = 4,
+  TASKS = 8;
 const TASK_WORDS = 4;
 
 /** The helper's whole program (CommonJS, evaluated). */

@@ -31,5 +31,10 @@ export type FromWorker =
 export function isWorkerSetup(value: unknown): value is WorkerSetup {
   if (typeof value !== 'object' || value === null) return false;
   const v = value as Partial<Record<keyof WorkerSetup, unknown>>;
-  return v.model instanceof Uint8Array && typeof v.source === 'string' && (v.engine === 'js' || v.engine === 'wasm' || v.engine === 'auto' || v.engine === 'fast' || v.engine === 'int8') && typeof v.crashEveryRun === 'boolean';
+  return (
+    v.model instanceof Uint8Array &&
+    typeof v.source === 'string' &&
+    (v.engine === 'js' || v.engine === 'wasm' || v.engine === 'auto' || v.engine === 'fast' || v.engine === 'int8') &&
+    typeof v.crashEveryRun === 'boolean'
+  );
 }

@@ -55,7 +55,8 @@ export function namedBaseline(doc: ModelDoc, name: 'mean' | 'zeros', flag: strin
   if (name === 'zeros') return new Float64Array(doc.inputs);
   const n = doc.normalise;
   if (n?.method === 'zscore' && n.mean) return Float64Array.from(n.mean);
-  const why = n?.method === 'minmax' ? 'stores min-max statistics, not a mean' : n ? 'has no fitted normalisation statistics' : 'stores no normalisation statistics';
+  const why =
+    n?.method === 'minmax' ? 'stores min-max statistics, not a mean' : n ? 'has no fitted normalisation statistics' : 'stores no normalisation statistics';
   throw new UsageError(flag, `the model ${why}, so there is no average input to compare with; pass zeros, or a file with one baseline row`);
 }
 
@@ -87,7 +88,12 @@ export interface Explanation {
  * AUTO_STEPS_LIMIT or the steps asked for) for rows whose completeness gap passes 1%.
  * @example explainRows(doc, x, rows, { output: 'top', baseline, steps: 64 })
  */
-export function explainRows(doc: ModelDoc, x: ArrayLike<number>, rows: number, opts: { output: ClassChoice; baseline: Float64Array; steps: number }): Explanation {
+export function explainRows(
+  doc: ModelDoc,
+  x: ArrayLike<number>,
+  rows: number,
+  opts: { output: ClassChoice; baseline: Float64Array; steps: number },
+): Explanation {
   const n = doc.inputs;
   const classes = opts.output === 'top' ? topOutputs(doc, x, rows) : new Int32Array(rows).fill(opts.output);
   const first = integratedGradients(doc, x, rows, opts.baseline, classes, opts.steps);
@@ -103,7 +109,14 @@ export function explainRows(doc: ModelDoc, x: ArrayLike<number>, rows: number, o
     redo.forEach((r, i) => {
       for (let c = 0; c < n; c++) sub[i * n + c] = x[r * n + c];
     });
-    const again = integratedGradients(doc, sub, redo.length, opts.baseline, Int32Array.from(redo, (r) => classes[r]), use);
+    const again = integratedGradients(
+      doc,
+      sub,
+      redo.length,
+      opts.baseline,
+      Int32Array.from(redo, (r) => classes[r]),
+      use,
+    );
     const againGaps = completenessGaps(again, n);
     redo.forEach((r, i) => {
       attributions.set(again.attributions.subarray(i * n, (i + 1) * n), r * n);
@@ -118,7 +131,14 @@ export function explainRows(doc: ModelDoc, x: ArrayLike<number>, rows: number, o
 
 /** Each row's top output (its first, for a model with one output). */
 function topOutputs(doc: ModelDoc, x: ArrayLike<number>, rows: number): Int32Array {
-  const y = referenceForward(doc, mat64(rows, doc.inputs, Float64Array.from({ length: rows * doc.inputs }, (_, i) => x[i]))).y;
+  const y = referenceForward(
+    doc,
+    mat64(
+      rows,
+      doc.inputs,
+      Float64Array.from({ length: rows * doc.inputs }, (_, i) => x[i]),
+    ),
+  ).y;
   return Int32Array.from({ length: rows }, (_, r) => {
     let best = 0;
     for (let c = 1; c < y.cols; c++) if (y.data[r * y.cols + c] > y.data[r * y.cols + best]) best = c;

@@ -30,7 +30,14 @@ export interface Attribution {
  * against one baseline row, with `steps` midpoint-rule pieces.
  * @example integratedGradients(doc, x, 1, baseline, Int32Array.of(0), 64).attributions
  */
-export function integratedGradients(doc: ModelDoc, x: ArrayLike<number>, rows: number, baseline: Float64Array, classes: Int32Array, steps: number): Attribution {
+export function integratedGradients(
+  doc: ModelDoc,
+  x: ArrayLike<number>,
+  rows: number,
+  baseline: Float64Array,
+  classes: Int32Array,
+  steps: number,
+): Attribution {
   const n = doc.inputs;
   const attributions = new Float64Array(rows * n);
   const rowsPerBatch = Math.max(1, Math.floor(POINTS_PER_BATCH / steps));
@@ -59,7 +66,12 @@ export function integratedGradients(doc: ModelDoc, x: ArrayLike<number>, rows: n
       }
     }
   }
-  const score = outputAt(doc, Float64Array.from({ length: rows * n }, (_, i) => x[i]), rows, classes);
+  const score = outputAt(
+    doc,
+    Float64Array.from({ length: rows * n }, (_, i) => x[i]),
+    rows,
+    classes,
+  );
   const baselineRows = new Float64Array(rows * n);
   for (let r = 0; r < rows; r++) baselineRows.set(baseline, r * n);
   const baselineScore = outputAt(doc, baselineRows, rows, classes);

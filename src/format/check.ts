@@ -9,26 +9,8 @@
 import type { Problem } from '../errors.js';
 import { BATCHNORM_RULES, DROPOUT_RATE_RULE, activationByCode, activationNames, activationKind } from '../model/index.js';
 import { LAYER_KINDS } from '../model/types.js';
-import type {
-  BatchNormLayer,
-  DenseLayer,
-  Layer,
-  ModelDoc,
-  ModelMeta,
-  Normalisation,
-  Provenance,
-  StorageCodec,
-  TargetScaling,
-} from '../model/types.js';
-import {
-  type RawBatchNorm,
-  type RawDense,
-  type RawLayer,
-  type RawMinMax,
-  type RawModel,
-  type RawTargetScaling,
-  type RawZScore,
-} from './payload.js';
+import type { BatchNormLayer, DenseLayer, Layer, ModelDoc, ModelMeta, Normalisation, Provenance, StorageCodec, TargetScaling } from '../model/types.js';
+import { type RawBatchNorm, type RawDense, type RawLayer, type RawMinMax, type RawModel, type RawTargetScaling, type RawZScore } from './payload.js';
 import { decodeTensor, formatShape, type DecodedTensor } from './tensor.js';
 
 /** The width flowing into the next layer and where it came from, for messages. */
@@ -44,7 +26,9 @@ function checkDense(raw: RawDense, where: string, width: Width, problems: Proble
 
   const activation = activationByCode(raw.activation)?.name;
   if (activation === undefined) {
-    const known = activationNames().map((name) => `${activationKind(name).code} = ${name}`).join(', ');
+    const known = activationNames()
+      .map((name) => `${activationKind(name).code} = ${name}`)
+      .join(', ');
     problems.push({
       where: `${where}.activation`,
       message: raw.activation === 0 ? 'activation is not set' : `unknown activation code ${raw.activation} (known: ${known})`,
@@ -112,7 +96,8 @@ function checkBatchNorm(raw: RawBatchNorm, where: string, width: Width, problems
     }
   }
   for (const name of ['epsilon', 'momentum'] as const) {
-    if (!BATCHNORM_RULES[name].ok(raw[name])) problems.push({ where: `${where}.${name}`, message: `${name} must be ${BATCHNORM_RULES[name].rule}, got ${raw[name]}` });
+    if (!BATCHNORM_RULES[name].ok(raw[name]))
+      problems.push({ where: `${where}.${name}`, message: `${name} must be ${BATCHNORM_RULES[name].rule}, got ${raw[name]}` });
   }
   if (width.value === null && lengths.length > 0) width.value = lengths[0][1];
   width.from = `${where.replace(/\.batchnorm$/, '')} (batchnorm)`;
@@ -219,7 +204,10 @@ function checkMinMax(raw: RawMinMax, inputs: number, problems: Problem[]): Norma
 /** Target scaling: one finite mean and one std > 0 per output; the layer rule is the model's (model/target-scaling.ts). */
 function checkTargetScaling(raw: RawTargetScaling, outputs: number | null, problems: Problem[]): TargetScaling | null {
   const before = problems.length;
-  for (const [name, values] of [['mean', raw.mean], ['std', raw.std]] as const) {
+  for (const [name, values] of [
+    ['mean', raw.mean],
+    ['std', raw.std],
+  ] as const) {
     if (outputs !== null && values.length !== outputs) {
       problems.push({ where: `target_scaling.${name}`, message: `has ${values.length} values, expected one per output (${outputs})` });
     }

@@ -11,22 +11,10 @@ import type { Layer, ModelDoc, StorageCodec } from '../model/types.js';
 import { checkPayload } from './check.js';
 import { crcHex } from './crc32.js';
 import { FORMAT_VERSION, frame, openFrame, type FormatVersion } from './header.js';
-import {
-  decodePayload,
-  encodePayload,
-  type RawLayer,
-  type RawModel,
-  type RawTensor,
-} from './payload.js';
+import { decodePayload, encodePayload, type RawLayer, type RawModel, type RawTensor } from './payload.js';
 import { encodeTensor } from './tensor.js';
 
-function tensorOrProblems(
-  values: Float32Array,
-  shape: readonly number[],
-  codec: StorageCodec,
-  where: string,
-  problems: Problem[],
-): RawTensor | null {
+function tensorOrProblems(values: Float32Array, shape: readonly number[], codec: StorageCodec, where: string, problems: Problem[]): RawTensor | null {
   const result = encodeTensor(values, shape, codec, where);
   if (Array.isArray(result)) {
     problems.push(...result);
@@ -58,8 +46,7 @@ function encodeLayer(layer: Layer, index: number, storage: StorageCodec, problem
       };
     }
     case 'batchnorm': {
-      const vector = (values: Float32Array, name: string): RawTensor | null =>
-        tensorOrProblems(values, [values.length], 'f32', `${where}.${name}`, problems);
+      const vector = (values: Float32Array, name: string): RawTensor | null => tensorOrProblems(values, [values.length], 'f32', `${where}.${name}`, problems);
       return {
         batchnorm: {
           gamma: vector(layer.gamma, 'gamma'),

@@ -40,9 +40,7 @@ function describe(error: unknown): string {
 function fileSystemError(path: string, doing: string, error: unknown): Error {
   if (error instanceof ModelFileError || error instanceof RuntimeFailure) return error;
   const what = `cannot ${doing}: ${describe(error)}`;
-  return USER_CAUSED.has(errorCode(error))
-    ? new ModelFileError(path, [{ where: '', message: what }])
-    : new RuntimeFailure(`${path}: ${what}`);
+  return USER_CAUSED.has(errorCode(error)) ? new ModelFileError(path, [{ where: '', message: what }]) : new RuntimeFailure(`${path}: ${what}`);
 }
 
 /**

@@ -17,9 +17,7 @@ export interface DecodedTensor {
   readonly codec: StorageCodec;
 }
 
-const CODEC_BY_CODE = new Map<number, StorageCodec>(
-  (Object.keys(DTYPE_CODES) as StorageCodec[]).map((codec) => [DTYPE_CODES[codec], codec]),
-);
+const CODEC_BY_CODE = new Map<number, StorageCodec>((Object.keys(DTYPE_CODES) as StorageCodec[]).map((codec) => [DTYPE_CODES[codec], codec]));
 
 /** "[2, 3]" */
 export function formatShape(shape: readonly number[]): string {
@@ -52,12 +50,7 @@ function describeBad(data: ArrayLike<number>, bad: (v: number) => boolean, what:
  * it needs at least one dimension. Returns problems instead of a tensor when the values cannot
  * be stored faithfully (non-finite, or beyond the float16 range).
  */
-export function encodeTensor(
-  values: Float32Array,
-  shape: readonly number[],
-  codec: StorageCodec,
-  where: string,
-): RawTensor | Problem[] {
+export function encodeTensor(values: Float32Array, shape: readonly number[], codec: StorageCodec, where: string): RawTensor | Problem[] {
   const problems: Problem[] = [];
   const count = shape.reduce((a, b) => a * b, 1);
   if (count !== values.length) {
@@ -101,10 +94,7 @@ export function decodeTensor(raw: RawTensor | null | undefined, where: string, p
   if (codec === undefined) {
     problems.push({
       where,
-      message:
-        raw.dtype === 0
-          ? 'dtype is not set'
-          : `unknown dtype code ${raw.dtype} (known: 1 = F32, 2 = F16, 3 = I8)`,
+      message: raw.dtype === 0 ? 'dtype is not set' : `unknown dtype code ${raw.dtype} (known: 1 = F32, 2 = F16, 3 = I8)`,
     });
     return null;
   }

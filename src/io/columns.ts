@@ -12,12 +12,7 @@ import type { ColumnRef, LoadedTable } from './table-types.js';
  * @throws DataError for an unknown name (listing the available ones), a name when the file has
  *   no header, or a position out of range.
  */
-export function resolveColumns(
-  columns: readonly string[] | null,
-  width: number,
-  wanted: readonly ColumnRef[],
-  file: string,
-): number[] {
+export function resolveColumns(columns: readonly string[] | null, width: number, wanted: readonly ColumnRef[], file: string): number[] {
   return wanted.map((ref) => {
     if (typeof ref === 'number') {
       if (!Number.isInteger(ref) || ref < 0 || ref >= width) {
@@ -42,11 +37,7 @@ export function resolveColumns(
  *
  * @example selectColumns(table, ['temp', 'humidity'], 'data.csv').data // rows x 2
  */
-export function selectColumns(
-  table: LoadedTable,
-  wanted: readonly ColumnRef[],
-  file: string,
-): LoadedTable & { indices: number[] } {
+export function selectColumns(table: LoadedTable, wanted: readonly ColumnRef[], file: string): LoadedTable & { indices: number[] } {
   const indices = resolveColumns(table.columns, table.width, wanted, file);
   const width = indices.length;
   const data = new Float64Array(table.rows * width);

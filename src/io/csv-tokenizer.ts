@@ -59,7 +59,6 @@ export class CsvTokenizer {
     this.sep = separator.charCodeAt(0);
   }
 
-  // eslint-disable-next-line max-lines-per-function -- per-character state machine: a call per character would cost on every cell of every file; setup, tail and errors are split out
   push(text: string): CsvRecord[] {
     const out: CsvRecord[] = [];
     const start = this.skipByteOrderMark(text);
@@ -148,12 +147,7 @@ export class CsvTokenizer {
             this.endRecord(out);
             this.endLine(c);
           } else {
-            throw new DataError(
-              this.file,
-              this.line,
-              this.cells.length + 1,
-              `unexpected ${JSON.stringify(text[i])} after the closing quote of a quoted cell`,
-            );
+            throw new DataError(this.file, this.line, this.cells.length + 1, `unexpected ${JSON.stringify(text[i])} after the closing quote of a quoted cell`);
           }
           break;
       }
@@ -189,12 +183,7 @@ export class CsvTokenizer {
     const out: CsvRecord[] = [];
     switch (this.state) {
       case State.Quoted:
-        throw new DataError(
-          this.file,
-          this.quotedFieldLine,
-          this.cells.length + 1,
-          'a quoted cell is never closed (missing closing quote)',
-        );
+        throw new DataError(this.file, this.quotedFieldLine, this.cells.length + 1, 'a quoted cell is never closed (missing closing quote)');
       case State.QuoteInQuoted:
       case State.Unquoted:
         this.cells.push(this.pending);

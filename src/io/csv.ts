@@ -184,8 +184,7 @@ async function readHead(path: string, records: BatchQueue<CsvRecord>, opts: Tabl
   const separator = counter.separator ?? ',';
   // Text and skipped columns given by position are known before the header; by name only after it.
   const positional = [...(opts.textColumns ?? []), ...(opts.skipColumns ?? [])].filter((c): c is number => typeof c === 'number');
-  const isHeader =
-    opts.header ?? first.cells.some((cell, i) => !positional.includes(i) && parseNumberCell(cell) === undefined);
+  const isHeader = opts.header ?? first.cells.some((cell, i) => !positional.includes(i) && parseNumberCell(cell) === undefined);
   if (!isHeader) {
     const width = first.cells.length;
     const skipped = columnMask(width, resolveColumns(null, width, opts.skipColumns ?? [], path));
@@ -233,14 +232,7 @@ function raggedRow(path: string, record: CsvRecord, width: number, hasHeader: bo
   return new DataError(path, record.line, Math.min(actual, width) + 1, `row has ${actual} cells, expected ${width} (${source} ${width})`);
 }
 
-function badCell(
-  path: string,
-  line: number,
-  column: number,
-  cell: string,
-  columns: readonly string[] | null,
-  why: string,
-): DataError {
+function badCell(path: string, line: number, column: number, cell: string, columns: readonly string[] | null, why: string): DataError {
   const name = columns && columns[column] !== '' ? `"${columns[column]}"` : String(column + 1);
   return new DataError(path, line, column + 1, `cell ${shownCell(cell)} in column ${name} ${why}`);
 }

@@ -26,11 +26,7 @@ interface IdxType {
   decode(view: DataView, offset: number, count: number): IdxData;
 }
 
-function bigEndian<T extends Exclude<IdxData, Uint8Array | Int8Array>>(
-  make: (n: number) => T,
-  size: number,
-  get: (view: DataView, at: number) => number,
-) {
+function bigEndian<T extends Exclude<IdxData, Uint8Array | Int8Array>>(make: (n: number) => T, size: number, get: (view: DataView, at: number) => number) {
   return (view: DataView, offset: number, count: number): IdxData => {
     const out = make(count);
     for (let i = 0; i < count; i++) out[i] = get(view, offset + i * size);
@@ -41,10 +37,42 @@ function bigEndian<T extends Exclude<IdxData, Uint8Array | Int8Array>>(
 const TYPES: Record<number, IdxType> = {
   0x08: { name: 'unsigned byte', size: 1, decode: (v, o, n) => new Uint8Array(v.buffer.slice(v.byteOffset + o, v.byteOffset + o + n)) },
   0x09: { name: 'signed byte', size: 1, decode: (v, o, n) => new Int8Array(v.buffer.slice(v.byteOffset + o, v.byteOffset + o + n)) },
-  0x0b: { name: 'short', size: 2, decode: bigEndian((n) => new Int16Array(n), 2, (v, a) => v.getInt16(a, false)) },
-  0x0c: { name: 'int', size: 4, decode: bigEndian((n) => new Int32Array(n), 4, (v, a) => v.getInt32(a, false)) },
-  0x0d: { name: 'float', size: 4, decode: bigEndian((n) => new Float32Array(n), 4, (v, a) => v.getFloat32(a, false)) },
-  0x0e: { name: 'double', size: 8, decode: bigEndian((n) => new Float64Array(n), 8, (v, a) => v.getFloat64(a, false)) },
+  0x0b: {
+    name: 'short',
+    size: 2,
+    decode: bigEndian(
+      (n) => new Int16Array(n),
+      2,
+      (v, a) => v.getInt16(a, false),
+    ),
+  },
+  0x0c: {
+    name: 'int',
+    size: 4,
+    decode: bigEndian(
+      (n) => new Int32Array(n),
+      4,
+      (v, a) => v.getInt32(a, false),
+    ),
+  },
+  0x0d: {
+    name: 'float',
+    size: 4,
+    decode: bigEndian(
+      (n) => new Float32Array(n),
+      4,
+      (v, a) => v.getFloat32(a, false),
+    ),
+  },
+  0x0e: {
+    name: 'double',
+    size: 8,
+    decode: bigEndian(
+      (n) => new Float64Array(n),
+      8,
+      (v, a) => v.getFloat64(a, false),
+    ),
+  },
 };
 
 const hex32 = (n: number): string => '0x' + n.toString(16).padStart(8, '0');
@@ -63,10 +91,16 @@ export function decodeIdx(file: string, bytes: Uint8Array): IdxArray {
   const rank = bytes[3];
   const type = TYPES[typeCode];
   if (bytes[0] !== 0 || bytes[1] !== 0 || !type || rank === 0) {
-    throw new DataError(file, 0, 0, `not an IDX file: magic ${hex32(magic)} (expected 0x000008NN..0x00000eNN, e.g. 0x00000801 for labels, 0x00000803 for images)`);
+    throw new DataError(
+      file,
+      0,
+      0,
+      `not an IDX file: magic ${hex32(magic)} (expected 0x000008NN..0x00000eNN, e.g. 0x00000801 for labels, 0x00000803 for images)`,
+    );
   }
   const headerBytes = 4 + 4 * rank;
-  if (bytes.length < headerBytes) throw new DataError(file, 0, 0, `IDX header is truncated: ${rank} dimensions need ${headerBytes} bytes, the file has ${bytes.length}`);
+  if (bytes.length < headerBytes)
+    throw new DataError(file, 0, 0, `IDX header is truncated: ${rank} dimensions need ${headerBytes} bytes, the file has ${bytes.length}`);
   const dims: number[] = [];
   for (let d = 0; d < rank; d++) dims.push(view.getUint32(4 + 4 * d, false));
   const count = dims.reduce((a, b) => a * b, 1);

@@ -130,19 +130,19 @@ async function readHead(path: string, lines: BatchQueue<TextLine>, opts: TableOp
  * cell is a finite number (or a class name), and marks skipped cells NaN.
  * `use` per column - 0: a number, 1: text, 2: skipped (any value, or no key at all).
  */
-function makeRowAdder(
-  path: string,
-  columns: string[] | null,
-  width: number,
-  use: Uint8Array,
-): (builder: ChunkBuilder, line: TextLine, value: Row) => void {
+function makeRowAdder(path: string, columns: string[] | null, width: number, use: Uint8Array): (builder: ChunkBuilder, line: TextLine, value: Row) => void {
   return (builder: ChunkBuilder, line: TextLine, value: Row): void => {
     const offset = builder.startRow(line.line);
     const values = builder.values;
     if (columns === null) {
       if (!Array.isArray(value)) throw new DataError(path, line.line, 1, 'expected an array like the first line, found an object');
       if (value.length !== width) {
-        throw new DataError(path, line.line, Math.min(value.length, width) + 1, `row has ${value.length} values, expected ${width} (the first line has ${width})`);
+        throw new DataError(
+          path,
+          line.line,
+          Math.min(value.length, width) + 1,
+          `row has ${value.length} values, expected ${width} (the first line has ${width})`,
+        );
       }
     } else if (Array.isArray(value)) {
       throw new DataError(path, line.line, 1, 'expected an object like the first line, found an array');

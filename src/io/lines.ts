@@ -18,10 +18,7 @@ const READ_PIECE_BYTES = 64 * 1024;
  *
  * @example for await (const batch of readLineBatches('a.jsonl')) for (const l of batch) use(l.text);
  */
-export async function* readLineBatches(
-  path: string,
-  counter: { bytesRead: number } = { bytesRead: 0 },
-): AsyncGenerator<TextLine[]> {
+export async function* readLineBatches(path: string, counter: { bytesRead: number } = { bytesRead: 0 }): AsyncGenerator<TextLine[]> {
   const stream = createReadStream(path, { encoding: 'utf8', highWaterMark: READ_PIECE_BYTES });
   let carry = '';
   let line = 1;

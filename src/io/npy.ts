@@ -9,13 +9,7 @@ import { DataError } from '../errors.js';
 import { float16Value } from '../format/index.js';
 import { openAtomicFile, type AtomicFile } from './atomic-file.js';
 import { asDataError } from './file-errors.js';
-import {
-  formatNpyHeader,
-  npyPreamble,
-  NPY_PREAMBLE_BYTES,
-  parseNpyDict,
-  type NpyHeader,
-} from './npy-header.js';
+import { formatNpyHeader, npyPreamble, NPY_PREAMBLE_BYTES, parseNpyDict, type NpyHeader } from './npy-header.js';
 import { columnMask, resolveColumns } from './columns.js';
 import { OUT_OF_FLOAT32, overflowsFloat32 } from './numbers.js';
 import { rowsPerChunk, type TableChunk, type TableOptions, type TableReader } from './table-types.js';
@@ -43,7 +37,12 @@ const LITTLE_ENDIAN_HOST = endianness() === 'LE';
 function dtypeOf(file: string, descr: string): Dtype {
   const m = /^([<>|=]?)([fiub])(\d+)$/.exec(descr);
   if (!m || !READ_DTYPES.includes(m[2] + m[3])) {
-    throw new DataError(file, 0, 0, `NPY dtype '${descr}' is not supported (numbers only: float16/32/64, int8/16/32/64, uint8/16/32/64, bool, in either byte order)`);
+    throw new DataError(
+      file,
+      0,
+      0,
+      `NPY dtype '${descr}' is not supported (numbers only: float16/32/64, int8/16/32/64, uint8/16/32/64, bool, in either byte order)`,
+    );
   }
   const size = Number(m[3]);
   // '|' means no byte order (one byte); '=' is the writer's native order, which NumPy records as
@@ -178,7 +177,11 @@ export async function readNpy(path: string): Promise<{ shape: number[]; descr: s
  *
  * @example encodeNpy(new Float32Array([1, 2, 3, 4]), [2, 2])
  */
-export function encodeNpy(data: Float32Array | Float64Array, shape: readonly number[], dtype: NpyWriteDtype = data instanceof Float64Array ? '<f8' : '<f4'): Buffer {
+export function encodeNpy(
+  data: Float32Array | Float64Array,
+  shape: readonly number[],
+  dtype: NpyWriteDtype = data instanceof Float64Array ? '<f8' : '<f4',
+): Buffer {
   const count = shape.reduce((a, b) => a * b, 1);
   if (count !== data.length) throw new RangeError(`encodeNpy: shape ${shapeText(shape)} needs ${count} values, got ${data.length}`);
   const header = formatNpyHeader(dtype, shape);
@@ -200,7 +203,8 @@ export async function writeNpy(path: string, data: Float32Array | Float64Array, 
 
 /** Values as little-endian '<f4' or '<f8' bytes, converting between float widths as needed. */
 export function littleEndianBytes(data: Float32Array | Float64Array, dtype: NpyWriteDtype): Uint8Array {
-  const typed = dtype === '<f4' ? (data instanceof Float32Array ? data : Float32Array.from(data)) : data instanceof Float64Array ? data : Float64Array.from(data);
+  const typed =
+    dtype === '<f4' ? (data instanceof Float32Array ? data : Float32Array.from(data)) : data instanceof Float64Array ? data : Float64Array.from(data);
   if (LITTLE_ENDIAN_HOST) return new Uint8Array(typed.buffer, typed.byteOffset, typed.byteLength);
   const out = new Uint8Array(typed.byteLength);
   const view = new DataView(out.buffer);
@@ -232,11 +236,21 @@ async function readNpyLayout(path: string, handle: FileHandle): Promise<NpyLayou
   const dtype = checked.dtype;
   const have = bytesTotal - header.dataOffset;
   if (have !== checked.count * dtype.size) {
-    throw new DataError(path, 0, 0, `NPY data holds ${have} bytes, but shape ${shapeText(header.shape)} of '${header.descr}' needs ${checked.count * dtype.size}`);
+    throw new DataError(
+      path,
+      0,
+      0,
+      `NPY data holds ${have} bytes, but shape ${shapeText(header.shape)} of '${header.descr}' needs ${checked.count * dtype.size}`,
+    );
   }
   if (header.shape.length > 2) {
     const flat = `(${header.shape[0]}, ${header.shape.slice(1).reduce((a, b) => a * b, 1)})`;
-    throw new DataError(path, 0, 0, `NPY array has ${header.shape.length} dimensions ${shapeText(header.shape)}; a table needs 1 or 2 (rows, columns): reshape it to ${flat} first, e.g. numpy's a.reshape(len(a), -1)`);
+    throw new DataError(
+      path,
+      0,
+      0,
+      `NPY array has ${header.shape.length} dimensions ${shapeText(header.shape)}; a table needs 1 or 2 (rows, columns): reshape it to ${flat} first, e.g. numpy's a.reshape(len(a), -1)`,
+    );
   }
   let whole: NpyArray | null = null;
   if (header.fortranOrder && header.shape.length === 2) {
@@ -273,12 +287,14 @@ function makeChunkMaker(
     }
     const chunk: TableChunk = { rows, data, firstLine: row + 1 };
     if (textColumns.length > 0) {
-      chunk.text = new Map(textColumns.map((c) => {
-        const cells: string[] = [];
-        for (let r = 0; r < rows; r++) cells.push(String(data[r * width + c]));
-        for (let r = 0; r < rows; r++) data[r * width + c] = Number.NaN;
-        return [c, cells];
-      }));
+      chunk.text = new Map(
+        textColumns.map((c) => {
+          const cells: string[] = [];
+          for (let r = 0; r < rows; r++) cells.push(String(data[r * width + c]));
+          for (let r = 0; r < rows; r++) data[r * width + c] = Number.NaN;
+          return [c, cells];
+        }),
+      );
     }
     return chunk;
   };

@@ -16,7 +16,12 @@ const BY_EXTENSION: Record<string, TableFormat> = { '.csv': 'csv', '.tsv': 'csv'
 export function tableFormatOf(path: string): TableFormat {
   const format = BY_EXTENSION[extname(path).toLowerCase()];
   if (!format) {
-    throw new DataError(path, 0, 0, `unknown data file extension "${extname(path)}"; supported: ${Object.keys(BY_EXTENSION).join(', ')} (rename the file to one of these)`);
+    throw new DataError(
+      path,
+      0,
+      0,
+      `unknown data file extension "${extname(path)}"; supported: ${Object.keys(BY_EXTENSION).join(', ')} (rename the file to one of these)`,
+    );
   }
   return format;
 }

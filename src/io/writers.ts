@@ -91,12 +91,7 @@ export async function openTableWriter(path: string, columns: readonly string[], 
 
 type RowText = (values: ArrayLike<number>, from: number, width: number, print: (v: number) => string) => string;
 
-function textWriter(
-  file: AtomicFile,
-  width: number,
-  checkShape: (rows: number, data: Float32Array | Float64Array) => void,
-  rowText: RowText,
-): TableWriter {
+function textWriter(file: AtomicFile, width: number, checkShape: (rows: number, data: Float32Array | Float64Array) => void, rowText: RowText): TableWriter {
   return {
     async write(rows, data) {
       checkShape(rows, data);

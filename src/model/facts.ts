@@ -22,7 +22,16 @@ export interface ModelFacts {
   targetScaling: { mean: number[]; std: number[] } | null;
   storage: string;
   parameters: number;
-  layers: { index: number; kind: string; activation?: string; inputs: number; outputs: number; tensors: { name: string; shape: number[] }[]; parameters: number; detail: string }[];
+  layers: {
+    index: number;
+    kind: string;
+    activation?: string;
+    inputs: number;
+    outputs: number;
+    tensors: { name: string; shape: number[] }[];
+    parameters: number;
+    detail: string;
+  }[];
   provenance: ModelDoc['provenance'];
   extra: Record<string, string>;
 }
@@ -67,9 +76,7 @@ export function modelFacts(doc: ModelDoc, file: { path: string; checksum: string
     features: doc.features,
     labels: doc.labels,
     temperature: doc.temperature ?? null,
-    normalise: norm
-      ? { method: norm.method, fitted: norm.method === 'zscore' ? norm.mean !== null : norm.min !== null, rowsSeen: norm.count }
-      : null,
+    normalise: norm ? { method: norm.method, fitted: norm.method === 'zscore' ? norm.mean !== null : norm.min !== null, rowsSeen: norm.count } : null,
     targetScaling: doc.targetScaling ? { mean: Array.from(doc.targetScaling.mean), std: Array.from(doc.targetScaling.std) } : null,
     storage: doc.storage,
     parameters: layers.reduce((n, l) => n + l.parameters, 0),
@@ -78,4 +85,3 @@ export function modelFacts(doc: ModelDoc, file: { path: string; checksum: string
     extra: doc.meta.extra,
   };
 }
-

@@ -48,7 +48,12 @@ export function temperatureProblems(doc: Pick<ModelDoc, 'layers' | 'temperature'
   if (t === undefined) return [];
   if (!(Number.isFinite(t) && t > 0)) return [{ where: 'temperature', message: `must be a finite number > 0, got ${t}` }];
   if (!canCalibrate(doc)) {
-    return [{ where: 'temperature', message: 'is set, but the model\'s output is not a softmax or sigmoid dense layer (a temperature divides logits before one of those)' }];
+    return [
+      {
+        where: 'temperature',
+        message: "is set, but the model's output is not a softmax or sigmoid dense layer (a temperature divides logits before one of those)",
+      },
+    ];
   }
   return [];
 }

@@ -55,7 +55,17 @@ function normalisationProblems(doc: ModelDoc): Problem[] {
   if (!n) return [];
   const where = `normalise (${n.method})`;
   const problems: Problem[] = [];
-  const stats: [string, Float64Array | null][] = n.method === 'zscore' ? [['mean', n.mean], ['std', n.std], ['m2', n.m2]] : [['min', n.min], ['max', n.max]];
+  const stats: [string, Float64Array | null][] =
+    n.method === 'zscore'
+      ? [
+          ['mean', n.mean],
+          ['std', n.std],
+          ['m2', n.m2],
+        ]
+      : [
+          ['min', n.min],
+          ['max', n.max],
+        ];
   for (const [name, data] of stats) {
     if (!data) continue;
     if (data.length !== doc.inputs) problems.push({ where, message: `${name} has ${data.length} values, expected one per input (${doc.inputs})` });

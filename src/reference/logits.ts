@@ -11,7 +11,7 @@ import { referenceForward } from './forward.js';
  */
 export function referenceLogits(doc: ModelDoc, x: Float32Array | Float64Array, rows: number): Float64Array {
   const index = outputDenseIndex(doc);
-  if (index < 0) throw new RangeError('referenceLogits: the model\'s output is not a dense layer');
+  if (index < 0) throw new RangeError("referenceLogits: the model's output is not a dense layer");
   const out = doc.layers[index] as DenseLayer;
   const { temperature: _ignored, ...rest } = doc;
   const view: ModelDoc = { ...rest, layers: [...doc.layers.slice(0, index), { ...out, activation: 'linear' }] };

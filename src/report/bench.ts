@@ -57,7 +57,13 @@ export function benchPage(input: BenchReportInput): string {
       {
         heading: 'Rows per second',
         intro: 'Longer is faster. Each group is one batch size (rows per call); the log scale keeps slow and fast paths readable side by side.',
-        body: barChart({ title: 'Throughput per engine and baseline', valueTitle: 'rows per second', series: names, groups: batches.map((b) => ({ label: `batch ${b}`, values: names.map((n) => rate(n, b)) })), log: true }),
+        body: barChart({
+          title: 'Throughput per engine and baseline',
+          valueTitle: 'rows per second',
+          series: names,
+          groups: batches.map((b) => ({ label: `batch ${b}`, values: names.map((n) => rate(n, b)) })),
+          log: true,
+        }),
       },
       {
         heading: 'The numbers',

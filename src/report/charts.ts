@@ -6,7 +6,24 @@
  * Elements carry class names (tick x / tick y, series, line, marker, bar, last, cell) so the
  * tests can read the pictures back and invert the axes.
  */
-import { AXIS, CHART, escapeMarkup, FONT_FAMILY, GRID, heatColour, INK, MUTED, PAPER, px, seriesStyle, textWidth, TYPE, WASH, type MarkerShape, type SeriesStyle } from './look.js';
+import {
+  AXIS,
+  CHART,
+  escapeMarkup,
+  FONT_FAMILY,
+  GRID,
+  heatColour,
+  INK,
+  MUTED,
+  PAPER,
+  px,
+  seriesStyle,
+  textWidth,
+  TYPE,
+  WASH,
+  type MarkerShape,
+  type SeriesStyle,
+} from './look.js';
 import { linearAxis, logAxis, tickText, valueText, type Axis } from './scale.js';
 
 export interface LineSeries {
@@ -85,7 +102,14 @@ function legendSample(x: number, y: number, style: SeriesStyle): string {
 }
 
 /** Legend items laid out left to right, wrapping; returns markup and the height used. */
-function legend(labels: readonly string[], styleOf: (i: number) => SeriesStyle, left: number, top: number, maxWidth: number, sample = legendSample): { markup: string; height: number } {
+function legend(
+  labels: readonly string[],
+  styleOf: (i: number) => SeriesStyle,
+  left: number,
+  top: number,
+  maxWidth: number,
+  sample = legendSample,
+): { markup: string; height: number } {
   let x = left;
   let y = top;
   const parts: string[] = [];
@@ -154,7 +178,13 @@ export function lineChart(spec: LineChartSpec): string {
   const m = CHART.margin;
   const usable = (y: number) => Number.isFinite(y) && (!spec.log || y > 0);
   const styles = spec.series.map((_, i) => seriesStyle(i));
-  const lg = legend(spec.series.map((s) => s.label), (i) => styles[i], m.left, 36, width - m.left - 16);
+  const lg = legend(
+    spec.series.map((s) => s.label),
+    (i) => styles[i],
+    m.left,
+    36,
+    width - m.left - 16,
+  );
   // Room on the right for the longest "label value" written at the line ends.
   const endRoom = Math.min(240, Math.max(m.right, ...spec.series.map((s) => textWidth(`${s.label} -0.000e-00`, TYPE.label) + 16)));
   const plot = { left: m.left, right: width - endRoom, top: m.top + lg.height - 6, bottom: height - m.bottom + lg.height - 6 };
@@ -172,14 +202,26 @@ export function lineChart(spec: LineChartSpec): string {
   }
   const xAxis = linearAxis(xs, plot.left, plot.right, { minStep: spec.integerX ? 1 : 0, target: 6 });
   const yAxis = spec.log ? logAxis(ys, plot.bottom, plot.top) : linearAxis(ys, plot.bottom, plot.top, { include: spec.include, target: 5 });
-  parts.push(`<rect class="plot" x="${px(plot.left)}" y="${px(plot.top)}" width="${px(plot.right - plot.left)}" height="${px(plot.bottom - plot.top)}" fill="${PAPER}"/>`);
+  parts.push(
+    `<rect class="plot" x="${px(plot.left)}" y="${px(plot.top)}" width="${px(plot.right - plot.left)}" height="${px(plot.bottom - plot.top)}" fill="${PAPER}"/>`,
+  );
   parts.push(axisMarkup(yAxis, 'y', plot, !!spec.percent, true));
   parts.push(axisMarkup(xAxis, 'x', plot, false, false));
   parts.push(`<line x1="${px(plot.left)}" y1="${px(plot.bottom)}" x2="${px(plot.right)}" y2="${px(plot.bottom)}" stroke="${AXIS}"/>`);
   parts.push(`<line x1="${px(plot.left)}" y1="${px(plot.top)}" x2="${px(plot.left)}" y2="${px(plot.bottom)}" stroke="${AXIS}"/>`);
-  parts.push(text((plot.left + plot.right) / 2, plot.bottom + 34, spec.xTitle, { 'font-size': TYPE.label, fill: MUTED, 'text-anchor': 'middle', class: 'axis-title x' }));
+  parts.push(
+    text((plot.left + plot.right) / 2, plot.bottom + 34, spec.xTitle, { 'font-size': TYPE.label, fill: MUTED, 'text-anchor': 'middle', class: 'axis-title x' }),
+  );
   const yMid = (plot.top + plot.bottom) / 2;
-  parts.push(text(16, yMid, spec.yTitle + (spec.log ? ' (log scale)' : ''), { 'font-size': TYPE.label, fill: MUTED, 'text-anchor': 'middle', transform: `rotate(-90 16 ${px(yMid)})`, class: 'axis-title y' }));
+  parts.push(
+    text(16, yMid, spec.yTitle + (spec.log ? ' (log scale)' : ''), {
+      'font-size': TYPE.label,
+      fill: MUTED,
+      'text-anchor': 'middle',
+      transform: `rotate(-90 16 ${px(yMid)})`,
+      class: 'axis-title y',
+    }),
+  );
 
   const ends: { y: number; text: string; style: SeriesStyle }[] = [];
   spec.series.forEach((s, i) => {
@@ -197,7 +239,10 @@ export function lineChart(spec: LineChartSpec): string {
       good.push(p);
     }
     const g: string[] = [`<g class="series" data-label="${escapeMarkup(s.label)}">`];
-    if (runs.length) g.push(`<path class="line" d="${runs.join(' ')}" fill="none" stroke="${style.colour}" stroke-width="${CHART.lineWidth}" stroke-linejoin="round"${style.dash ? ` stroke-dasharray="${style.dash}"` : ''}/>`);
+    if (runs.length)
+      g.push(
+        `<path class="line" d="${runs.join(' ')}" fill="none" stroke="${style.colour}" stroke-width="${CHART.lineWidth}" stroke-linejoin="round"${style.dash ? ` stroke-dasharray="${style.dash}"` : ''}/>`,
+      );
     // Markers on at most ~12 points (shifted per series so they do not sit on each other), and the last.
     const every = Math.max(1, Math.ceil(good.length / 12));
     good.forEach((p, k) => {
@@ -208,9 +253,16 @@ export function lineChart(spec: LineChartSpec): string {
     const last = good[good.length - 1];
     if (last) ends.push({ y: yAxis.toPixel(last[1]), text: `${s.label} ${valueText(last[1], !!spec.percent)}`, style });
   });
-  const placed = spread(ends.map((e) => e.y), 13, plot.top, plot.bottom + 8);
+  const placed = spread(
+    ends.map((e) => e.y),
+    13,
+    plot.top,
+    plot.bottom + 8,
+  );
   ends.forEach((e, k) => {
-    parts.push(`<line x1="${px(plot.right + 2)}" y1="${px(e.y)}" x2="${px(plot.right + 8)}" y2="${px(placed[k])}" stroke="${e.style.colour}" stroke-width="1"/>`);
+    parts.push(
+      `<line x1="${px(plot.right + 2)}" y1="${px(e.y)}" x2="${px(plot.right + 8)}" y2="${px(placed[k])}" stroke="${e.style.colour}" stroke-width="1"/>`,
+    );
     parts.push(text(plot.right + 11, placed[k] + 3.5, e.text, { 'font-size': TYPE.label, fill: INK, class: 'last' }));
   });
   parts.push('</svg>');
@@ -248,7 +300,13 @@ function barFill(i: number, style: SeriesStyle, idBase: string): string {
 
 /** Pattern ids unique per chart, so several charts can share one HTML page. */
 function hatchBase(title: string): string {
-  return 'hatch-' + title.toLowerCase().replace(/[^a-z0-9]+/g, '-').replace(/^-|-$/g, '');
+  return (
+    'hatch-' +
+    title
+      .toLowerCase()
+      .replace(/[^a-z0-9]+/g, '-')
+      .replace(/^-|-$/g, '')
+  );
 }
 
 function hatchDefs(count: number, idBase: string): string {
@@ -296,11 +354,20 @@ export function barChart(spec: BarChartSpec): string {
   // On a log axis bars need a baseline below the smallest value: one decade under it, so the
   // smallest bar still has length and no mark sits on the edge.
   const positives = [...values, ...markValues].filter((v) => v > 0);
-  const axis = spec.log ? logAxis([...values, ...markValues, ...(positives.length ? [Math.min(...positives) / 10] : [])], plot.left, plot.right) : linearAxis([...values, ...markValues], plot.left, plot.right, { include: [0, ...(spec.percent ? [1] : [])] });
+  const axis = spec.log
+    ? logAxis([...values, ...markValues, ...(positives.length ? [Math.min(...positives) / 10] : [])], plot.left, plot.right)
+    : linearAxis([...values, ...markValues], plot.left, plot.right, { include: [0, ...(spec.percent ? [1] : [])] });
   const zero = spec.log ? plot.left : axis.toPixel(0);
   parts.push(axisMarkup(axis, 'x', plot, !!spec.percent, true));
   parts.push(`<line x1="${px(zero)}" y1="${px(plot.top)}" x2="${px(zero)}" y2="${px(plot.bottom)}" stroke="${AXIS}"/>`);
-  parts.push(text((plot.left + plot.right) / 2, plot.bottom + 34, spec.valueTitle + (spec.log ? ' (log scale)' : ''), { 'font-size': TYPE.label, fill: MUTED, 'text-anchor': 'middle', class: 'axis-title x' }));
+  parts.push(
+    text((plot.left + plot.right) / 2, plot.bottom + 34, spec.valueTitle + (spec.log ? ' (log scale)' : ''), {
+      'font-size': TYPE.label,
+      fill: MUTED,
+      'text-anchor': 'middle',
+      class: 'axis-title x',
+    }),
+  );
 
   spec.groups.forEach((g, gi) => {
     const gy = plot.top + CHART.groupGap / 2 + gi * (perGroup + CHART.groupGap);
@@ -309,7 +376,13 @@ export function barChart(spec: BarChartSpec): string {
       const y = gy + si * (CHART.barHeight + CHART.barGap);
       const style = styles[si];
       if (v === null || Number.isNaN(v)) {
-        parts.push(text(zero + 4, y + CHART.barHeight - 3, v === null ? spec.missing ?? 'not run' : 'NaN', { 'font-size': TYPE.note, fill: MUTED, class: 'bar-missing' }));
+        parts.push(
+          text(zero + 4, y + CHART.barHeight - 3, v === null ? (spec.missing ?? 'not run') : 'NaN', {
+            'font-size': TYPE.note,
+            fill: MUTED,
+            class: 'bar-missing',
+          }),
+        );
         return;
       }
       const end = !Number.isFinite(v) ? (v > 0 ? plot.right : plot.left) : spec.log && v <= 0 ? plot.left : axis.toPixel(v);
@@ -320,14 +393,25 @@ export function barChart(spec: BarChartSpec): string {
       );
       const label = valueText(v, !!spec.percent);
       const right = end >= zero;
-      parts.push(text(right ? end + 4 : end - 4, y + CHART.barHeight - 3, label, { 'font-size': TYPE.note, fill: INK, 'text-anchor': right ? 'start' : 'end', class: 'bar-value' }));
+      parts.push(
+        text(right ? end + 4 : end - 4, y + CHART.barHeight - 3, label, {
+          'font-size': TYPE.note,
+          fill: INK,
+          'text-anchor': right ? 'start' : 'end',
+          class: 'bar-value',
+        }),
+      );
     });
   });
   for (const mk of spec.marks ?? []) {
     const x = axis.toPixel(mk.value);
     parts.push(
       `<g class="mark"><line x1="${px(x)}" y1="${px(plot.top - 4)}" x2="${px(x)}" y2="${px(plot.bottom)}" stroke="${INK}" stroke-width="1.4" stroke-dasharray="5 3"/>` +
-        text(x, plot.top - 8, `${mk.label} ${valueText(mk.value, !!spec.percent)}`, { 'font-size': TYPE.note, fill: INK, 'text-anchor': x < plot.left + 60 ? 'start' : x > plot.right - 60 ? 'end' : 'middle' }) +
+        text(x, plot.top - 8, `${mk.label} ${valueText(mk.value, !!spec.percent)}`, {
+          'font-size': TYPE.note,
+          fill: INK,
+          'text-anchor': x < plot.left + 60 ? 'start' : x > plot.right - 60 ? 'end' : 'middle',
+        }) +
         `</g>`,
     );
   }
@@ -368,12 +452,26 @@ export function heatMap(spec: HeatMapSpec): string {
   parts.push(text(16, 20, spec.title, { 'font-size': TYPE.title, 'font-weight': 'bold', fill: INK, class: 'chart-title' }));
   parts.push(text(left + (n * cell) / 2, 40, spec.columnTitle, { 'font-size': TYPE.label, fill: MUTED, 'text-anchor': 'middle', class: 'axis-title x' }));
   const midY = top + (n * cell) / 2;
-  parts.push(text(16, midY, spec.rowTitle, { 'font-size': TYPE.label, fill: MUTED, 'text-anchor': 'middle', transform: `rotate(-90 16 ${px(midY)})`, class: 'axis-title y' }));
+  parts.push(
+    text(16, midY, spec.rowTitle, {
+      'font-size': TYPE.label,
+      fill: MUTED,
+      'text-anchor': 'middle',
+      transform: `rotate(-90 16 ${px(midY)})`,
+      class: 'axis-title y',
+    }),
+  );
   spec.labels.forEach((label, c) => {
     const cx = left + c * cell + cell / 2;
     parts.push(
       slant
-        ? text(cx, top - 6, label, { 'font-size': fontSize, fill: INK, 'text-anchor': 'start', transform: `rotate(-40 ${px(cx)} ${px(top - 6)})`, class: 'column-label' })
+        ? text(cx, top - 6, label, {
+            'font-size': fontSize,
+            fill: INK,
+            'text-anchor': 'start',
+            transform: `rotate(-40 ${px(cx)} ${px(top - 6)})`,
+            class: 'column-label',
+          })
         : text(cx, top - 6, label, { 'font-size': fontSize, fill: INK, 'text-anchor': 'middle', class: 'column-label' }),
     );
     parts.push(text(left - 6, top + c * cell + cell / 2 + 4, label, { 'font-size': fontSize, fill: INK, 'text-anchor': 'end', class: 'row-label' }));

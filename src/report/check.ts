@@ -37,7 +37,10 @@ export function checkPage(input: CheckReportInput): string {
   const verdict = input.pass
     ? `<p class="verdict pass">PASS: every layer is within the tolerance.</p>`
     : `<p class="verdict fail">FAIL: ${broken.map((r) => r.label).join(', ')} broke the tolerance.</p>`;
-  const agreement = input.topClassAgreement === null || input.topClassAgreement === undefined ? '' : para(`The largest output is in the same column on both paths for ${valueText(input.topClassAgreement, true)} of rows.`);
+  const agreement =
+    input.topClassAgreement === null || input.topClassAgreement === undefined
+      ? ''
+      : para(`The largest output is in the same column on both paths for ${valueText(input.topClassAgreement, true)} of rows.`);
   return htmlPage({
     title: input.title,
     lead: input.lead,
@@ -49,21 +52,44 @@ export function checkPage(input: CheckReportInput): string {
         body:
           verdict +
           agreement +
-          (input.pass ? '' : para('What to do: a layer far past the tolerance points to a wrong weight or a kernel fault on this engine; run the same check with --engine js to see whether the engine is to blame, and report it with the model file.')),
+          (input.pass
+            ? ''
+            : para(
+                'What to do: a layer far past the tolerance points to a wrong weight or a kernel fault on this engine; run the same check with --engine js to see whether the engine is to blame, and report it with the model file.',
+              )),
       },
       {
         heading: 'Largest absolute error per layer',
-        body: barChart({ title: 'Absolute error against the tolerance', valueTitle: 'largest |engine − reference|', series: ['max abs error'], groups: groups((r) => r.maxAbs), log: true, marks: [{ value: input.tolerance.abs, label: 'tolerance' }] }),
+        body: barChart({
+          title: 'Absolute error against the tolerance',
+          valueTitle: 'largest |engine − reference|',
+          series: ['max abs error'],
+          groups: groups((r) => r.maxAbs),
+          log: true,
+          marks: [{ value: input.tolerance.abs, label: 'tolerance' }],
+        }),
       },
       {
         heading: 'Largest relative error per layer',
-        body: barChart({ title: 'Relative error against the tolerance', valueTitle: 'largest relative error', series: ['max rel error'], groups: groups((r) => r.maxRel), log: true, marks: [{ value: input.tolerance.rel, label: 'tolerance' }] }),
+        body: barChart({
+          title: 'Relative error against the tolerance',
+          valueTitle: 'largest relative error',
+          series: ['max rel error'],
+          groups: groups((r) => r.maxRel),
+          log: true,
+          marks: [{ value: input.tolerance.rel, label: 'tolerance' }],
+        }),
       },
       {
         heading: 'The numbers',
         body: htmlTable(
           ['layer', 'max abs err', 'max rel err', 'verdict'],
-          input.rows.map((r) => [r.label, valueText(r.maxAbs, false), valueText(r.maxRel, false), r.pass ? 'within' : `over${r.where ? ` (worst at ${r.where})` : ''}`]),
+          input.rows.map((r) => [
+            r.label,
+            valueText(r.maxAbs, false),
+            valueText(r.maxRel, false),
+            r.pass ? 'within' : `over${r.where ? ` (worst at ${r.where})` : ''}`,
+          ]),
           [1, 2],
         ),
       },

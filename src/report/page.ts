@@ -74,7 +74,10 @@ export function findingsList(findings: readonly Finding[]): string {
   return (
     `<ul class="findings">` +
     findings
-      .map((f) => `<li${f.fine ? ' class="fine"' : ''}><strong>${escapeMarkup(f.title)}</strong>${escapeMarkup(f.seen)}${f.todo ? `<br/>What to do: ${escapeMarkup(f.todo)}` : ''}</li>`)
+      .map(
+        (f) =>
+          `<li${f.fine ? ' class="fine"' : ''}><strong>${escapeMarkup(f.title)}</strong>${escapeMarkup(f.seen)}${f.todo ? `<br/>What to do: ${escapeMarkup(f.todo)}` : ''}</li>`,
+      )
       .join('') +
     `</ul>`
   );

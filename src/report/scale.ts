@@ -108,7 +108,11 @@ export function tickText(v: number, step: number, percent: boolean): string {
   if (v === 0) return '0';
   if (a >= 1e6 && a < 1e12) return `${clean(v / 1e6)}M`;
   if (a >= 1e4 && a < 1e6) return `${clean(v / 1e3)}k`;
-  if (a < 1e-3 || a >= 1e12) return v.toExponential().replace(/\.?0+e/, 'e').replace('e+', 'e');
+  if (a < 1e-3 || a >= 1e12)
+    return v
+      .toExponential()
+      .replace(/\.?0+e/, 'e')
+      .replace('e+', 'e');
   if (Number.isFinite(step)) {
     const places = Math.max(0, -Math.floor(Math.log10(step) + 1e-9));
     return v.toFixed(places);

@@ -62,7 +62,8 @@ function lossChart(epochs: readonly TuneEpochView[]): string {
 function accuracyChart(epochs: readonly TuneEpochView[]): string | null {
   if (!epochs.some((e) => e.trainAccuracy !== null)) return null;
   const series: LineSeries[] = [{ label: 'training', points: epochs.map((e) => [e.epoch + 1, e.trainAccuracy ?? Number.NaN]) }];
-  if (epochs.some((e) => e.holdoutAccuracy !== null)) series.push({ label: 'hold-out', points: epochs.map((e) => [e.epoch + 1, e.holdoutAccuracy ?? Number.NaN]) });
+  if (epochs.some((e) => e.holdoutAccuracy !== null))
+    series.push({ label: 'hold-out', points: epochs.map((e) => [e.epoch + 1, e.holdoutAccuracy ?? Number.NaN]) });
   return lineChart({ title: 'Accuracy per epoch', xTitle: 'epoch', yTitle: 'accuracy', series, percent: true, integerX: true });
 }
 
@@ -70,7 +71,10 @@ function layersOf(epochs: readonly TuneEpochView[], pick: (e: TuneEpochView) => 
   return [...new Set(epochs.flatMap((e) => Object.keys(pick(e) ?? {}).map(Number)))].sort((a, b) => a - b);
 }
 
-function perLayerSeries(input: Pick<TuneReportInput, 'epochs' | 'layerNames'>, pick: (e: TuneEpochView) => Readonly<Record<number, number>> | undefined): LineSeries[] {
+function perLayerSeries(
+  input: Pick<TuneReportInput, 'epochs' | 'layerNames'>,
+  pick: (e: TuneEpochView) => Readonly<Record<number, number>> | undefined,
+): LineSeries[] {
   return layersOf(input.epochs, pick).map((l) => ({
     label: layerName(input, l),
     points: input.epochs.map((e) => [e.epoch + 1, pick(e)?.[l] ?? Number.NaN] as const),
@@ -78,7 +82,14 @@ function perLayerSeries(input: Pick<TuneReportInput, 'epochs' | 'layerNames'>, p
 }
 
 function gradientChart(input: Pick<TuneReportInput, 'epochs' | 'layerNames'>): string {
-  return lineChart({ title: 'Gradient norm per layer', xTitle: 'epoch', yTitle: 'mean gradient norm', series: perLayerSeries(input, (e) => e.gradientNorms), log: true, integerX: true });
+  return lineChart({
+    title: 'Gradient norm per layer',
+    xTitle: 'epoch',
+    yTitle: 'mean gradient norm',
+    series: perLayerSeries(input, (e) => e.gradientNorms),
+    log: true,
+    integerX: true,
+  });
 }
 
 /**
@@ -173,7 +184,12 @@ export function curveFindings(epochs: readonly TuneEpochView[], bestEpoch: numbe
           : `add --stop-after 5 to keep the weights of the best epoch, or use fewer epochs, dropout or --weight-decay.`,
     });
   } else {
-    out.push({ title: 'Hold-out loss kept up with training', seen: `Hold-out loss was lowest in epoch ${best.epoch + 1} (${valueText(best.holdoutLoss!, false)}); it did not rise more than ${Math.round((RISE - 1) * 100)}% after.`, todo: '', fine: true });
+    out.push({
+      title: 'Hold-out loss kept up with training',
+      seen: `Hold-out loss was lowest in epoch ${best.epoch + 1} (${valueText(best.holdoutLoss!, false)}); it did not rise more than ${Math.round((RISE - 1) * 100)}% after.`,
+      todo: '',
+      fine: true,
+    });
   }
   const at = epochs.find((e) => e.epoch === bestEpoch) ?? last;
   if (at.trainAccuracy !== null && at.holdoutAccuracy !== null && at.trainAccuracy - at.holdoutAccuracy > ACCURACY_GAP) {
@@ -204,8 +220,19 @@ function classSections(input: TuneReportInput): PageSection[] {
       heading: 'Precision and recall per class',
       intro: 'Precision: of the rows the model put in a class, the share that belong there. Recall: of the rows of a class, the share the model found.',
       body:
-        barChart({ title: `Precision and recall, ${which} rows`, valueTitle: 'share of rows', series: ['precision', 'recall'], groups: labels.map((l, c) => ({ label: l, values: [scores.precision[c], scores.recall[c]] })), percent: true, missing: 'no rows' }) +
-        htmlTable(['class', 'rows', 'precision', 'recall'], labels.map((l, c) => [l, String(scores.rows[c]), pct(scores.precision[c]), pct(scores.recall[c])]), [1, 2, 3]),
+        barChart({
+          title: `Precision and recall, ${which} rows`,
+          valueTitle: 'share of rows',
+          series: ['precision', 'recall'],
+          groups: labels.map((l, c) => ({ label: l, values: [scores.precision[c], scores.recall[c]] })),
+          percent: true,
+          missing: 'no rows',
+        }) +
+        htmlTable(
+          ['class', 'rows', 'precision', 'recall'],
+          labels.map((l, c) => [l, String(scores.rows[c]), pct(scores.precision[c]), pct(scores.recall[c])]),
+          [1, 2, 3],
+        ),
     },
   ];
 }
@@ -232,14 +259,26 @@ export function tunePage(input: TuneReportInput): string {
   sections.push(...classSections(input));
   sections.push({
     heading: 'Gradient norm per layer',
-    intro: 'How strongly each layer was pushed per update, on a log scale. Lines far below the others (a factor of 1000 or more) mean those layers barely learn; lines that shoot up mean steps too large.',
+    intro:
+      'How strongly each layer was pushed per update, on a log scale. Lines far below the others (a factor of 1000 or more) mean those layers barely learn; lines that shoot up mean steps too large.',
     body: gradientChart(input),
   });
   const deadSeries = perLayerSeries(input, (e) => e.deadRelu);
   sections.push({
     heading: 'Dead ReLU units',
-    intro: 'Share of each hidden ReLU layer\'s units that never produced a positive output on the training rows in an epoch. Such units no longer learn; past 50% the run warns.',
-    body: deadSeries.length ? lineChart({ title: 'Dead ReLU share per layer', xTitle: 'epoch', yTitle: 'units that never fired', series: deadSeries, percent: true, include: [0, 1], integerX: true }) : para('The model has no hidden ReLU layers.', 'note'),
+    intro:
+      "Share of each hidden ReLU layer's units that never produced a positive output on the training rows in an epoch. Such units no longer learn; past 50% the run warns.",
+    body: deadSeries.length
+      ? lineChart({
+          title: 'Dead ReLU share per layer',
+          xTitle: 'epoch',
+          yTitle: 'units that never fired',
+          series: deadSeries,
+          percent: true,
+          include: [0, 1],
+          integerX: true,
+        })
+      : para('The model has no hidden ReLU layers.', 'note'),
   });
   const last = input.epochs[input.epochs.length - 1];
   const lead = last

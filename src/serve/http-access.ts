@@ -42,7 +42,10 @@ function digest(text: string): Buffer {
  * @example isLoopbackHost('127.0.0.1') // true
  */
 export function isLoopbackHost(host: string): boolean {
-  const h = host.trim().toLowerCase().replace(/^\[(.*)\]$/, '$1');
+  const h = host
+    .trim()
+    .toLowerCase()
+    .replace(/^\[(.*)\]$/, '$1');
   if (h === 'localhost') return true;
   if (isIP(h) === 4) return h.startsWith('127.');
   if (isIP(h) === 6) return h === '::1' || /^::ffff:127\./.test(h) || /^(0{1,4}:){7}0{0,3}1$/.test(h);

@@ -43,7 +43,9 @@ export function parseCsvBody(text: string, shape: ScoreShape): { rows: number; x
   const x = new Float32Array(dataRecords.length * n);
   dataRecords.forEach((record, r) => {
     if (record.cells.length !== width) {
-      throw bad(`${BODY}:${record.line}: row has ${record.cells.length} cells, expected ${width} (${isHeader ? 'the header has' : 'the first row has'} ${width})`);
+      throw bad(
+        `${BODY}:${record.line}: row has ${record.cells.length} cells, expected ${width} (${isHeader ? 'the header has' : 'the first row has'} ${width})`,
+      );
     }
     for (let k = 0; k < n; k++) {
       const c = picks[k]!;
@@ -67,7 +69,9 @@ function inputPicks(columns: string[] | null, width: number, shape: ScoreShape, 
     if (missing.length === 0) return features.map((name) => columns.indexOf(name));
     // Some names but not all would feed one feature's values into another's input: refuse.
     if (missing.length < features.length || width !== shape.inputs) {
-      throw bad(`${BODY}:${headerLine}: missing feature column${missing.length > 1 ? 's' : ''} ${shownNames(missing)} (the header has: ${shownNames(columns)})`);
+      throw bad(
+        `${BODY}:${headerLine}: missing feature column${missing.length > 1 ? 's' : ''} ${shownNames(missing)} (the header has: ${shownNames(columns)})`,
+      );
     }
   }
   if (width !== shape.inputs) {

@@ -21,7 +21,11 @@ export const EXPLAIN_MAX_ROWS = 100;
  * Read, check and answer one explain request for `model`.
  * @throws HttpProblem 400 for a bad body or option, 413 for too many rows or bytes.
  */
-export async function explainRequest(req: IncomingMessage, model: TendonModel, limits: { bodyLimitBytes: number; maxRows: number }): Promise<{ body: unknown; rows: number }> {
+export async function explainRequest(
+  req: IncomingMessage,
+  model: TendonModel,
+  limits: { bodyLimitBytes: number; maxRows: number },
+): Promise<{ body: unknown; rows: number }> {
   const query = new URL(req.url ?? '/', 'http://endpoint.invalid').searchParams;
   const text = (await readBody(req, limits.bodyLimitBytes)).toString('utf8');
   const { rows, x } = parseScoreBody(text, { inputs: model.inputs, features: model.features, maxRows: limits.maxRows });

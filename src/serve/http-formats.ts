@@ -40,7 +40,9 @@ export function bodyFormatOf(req: IncomingMessage): BodyFormat {
   if (type === BODY_TYPES.json || type.endsWith('+json') || JSON_ALIASES.has(type)) return 'json';
   if (type === BODY_TYPES.npy) return 'npy';
   if (type === BODY_TYPES.csv) return 'csv';
-  throw new HttpProblem(415, `Content-Type ${printableType(type)} is not accepted; send one of ${ACCEPTED_TYPES.join(', ')}`, { 'accept-post': ACCEPTED_TYPES.join(', ') });
+  throw new HttpProblem(415, `Content-Type ${printableType(type)} is not accepted; send one of ${ACCEPTED_TYPES.join(', ')}`, {
+    'accept-post': ACCEPTED_TYPES.join(', '),
+  });
 }
 
 /**

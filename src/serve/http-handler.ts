@@ -92,7 +92,8 @@ export function createRequestHandler(options: RequestHandlerOptions): TendonRequ
   let closed: Promise<void> | null = null;
 
   const given = options.model;
-  const ready: Promise<void> = typeof given === 'string' ? openModel(given).then((m) => startPooled(state, m, true)) : Promise.resolve().then(() => startPooled(state, given, false));
+  const ready: Promise<void> =
+    typeof given === 'string' ? openModel(given).then((m) => startPooled(state, m, true)) : Promise.resolve().then(() => startPooled(state, given, false));
   // The failure is reported by /v1/ready and by score answers; `ready` rejects for whoever awaits it.
   ready.catch((error: unknown) => {
     state.loadFailure = error instanceof Error ? error.message : String(error);
@@ -156,7 +157,8 @@ function handlerState(options: RequestHandlerOptions): HandlerState {
   const counters = new ServiceCounters();
   const generations = new Map<number, Generation>();
   const size = workerCount(options.workers);
-  if (size > 1 && options.runBatch) throw new RuntimeFailure(`createRequestHandler: runBatch cannot be combined with workers = ${size}; the workers run the batches`);
+  if (size > 1 && options.runBatch)
+    throw new RuntimeFailure(`createRequestHandler: runBatch cannot be combined with workers = ${size}; the workers run the batches`);
   const pools = size > 1 ? new PooledRunner({ size, workerScript: options.workerScript, log }) : null;
   // With worker threads, JSON and CSV bodies are parsed on threads of their own too.
   const parseScript = size > 1 ? parseWorkerScript(options.parseWorkerScript, options.workerScript) : null;
@@ -296,13 +298,26 @@ function about(state: HandlerState): unknown {
 async function route(state: HandlerState, req: IncomingMessage, res: ServerResponse, path: string): Promise<{ status: number; rows: number }> {
   const { prefix, retryAfter, options } = state;
   const method = METHODS[path];
-  if (!method) throw new HttpProblem(404, `no route ${printablePath(prefix + path)} (routes: ${Object.keys(METHODS).map((p) => prefix + p).join(', ')})`);
+  if (!method)
+    throw new HttpProblem(
+      404,
+      `no route ${printablePath(prefix + path)} (routes: ${Object.keys(METHODS)
+        .map((p) => prefix + p)
+        .join(', ')})`,
+    );
   if (req.method !== method) throw new HttpProblem(405, `${req.method} is not allowed on ${prefix + path}; use ${method}`, { allow: method });
   switch (path) {
     case ROUTES.score: {
       const answer = await score(state, req);
       const body = typeof answer.body === 'string' ? Buffer.from(answer.body, 'utf8') : answer.body;
-      res.writeHead(200, { ...answer.headers, ...(state.closing ? { connection: 'close' } : {}), 'content-type': answer.type, 'content-length': String(body.length), 'cache-control': 'no-store', vary: 'accept' });
+      res.writeHead(200, {
+        ...answer.headers,
+        ...(state.closing ? { connection: 'close' } : {}),
+        'content-type': answer.type,
+        'content-length': String(body.length),
+        'cache-control': 'no-store',
+        vary: 'accept',
+      });
       res.end(body);
       return { status: 200, rows: answer.rows };
     }

@@ -34,7 +34,9 @@ export function parseNpyBody(bytes: Uint8Array, shape: ScoreShape): { rows: numb
   try {
     const preamble = npyPreamble(BODY, head);
     if (preamble.dictEnd > head.length) {
-      throw bad(`NPY header says it is ${preamble.dictEnd - preamble.dictStart} bytes long, but the body ends ${head.length - preamble.dictStart} bytes after its start`);
+      throw bad(
+        `NPY header says it is ${preamble.dictEnd - preamble.dictStart} bytes long, but the body ends ${head.length - preamble.dictStart} bytes after its start`,
+      );
     }
     const dictText = head.toString(preamble.version[0] >= 3 ? 'utf8' : 'latin1', preamble.dictStart, preamble.dictEnd);
     ({ descr, fortranOrder, shape: dims } = parseNpyDict(BODY, dictText));

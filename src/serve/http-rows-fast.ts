@@ -35,7 +35,6 @@ const EXACT_MANTISSA = 2 ** 53;
  * width within `maxRows` (the general parser then answers).
  * @example parseNumberRows(Buffer.from('{"rows": [[1, 2.5]]}'), 2, 10) // { rows: 1, x: Float32Array [1, 2.5] }
  */
-// eslint-disable-next-line max-lines-per-function -- per-number hot loop: a parse call per number would return (value, position) through an object or closure on every cell of the body
 export function parseNumberRows(bytes: Uint8Array, inputs: number, maxRows: number): { rows: number; x: Float32Array } | null {
   const end = bytes.length;
   let at = 0;

@@ -42,7 +42,8 @@ export function parseScoreBody(text: string, shape: ScoreShape): { rows: number;
       });
       return;
     }
-    if (typeof row !== 'object' || row === null) throw bad(`rows[${r}]: expected an array of ${n} numbers or an object keyed by feature name, got ${kindOf(row)}`);
+    if (typeof row !== 'object' || row === null)
+      throw bad(`rows[${r}]: expected an array of ${n} numbers or an object keyed by feature name, got ${kindOf(row)}`);
     if (!index || !shape.features) throw bad(`rows[${r}]: the model has no feature names; send each row as an array of ${n} numbers`);
     const seen = new Uint8Array(n);
     for (const [key, v] of Object.entries(row)) {

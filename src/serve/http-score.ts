@@ -75,7 +75,11 @@ function argmax(row: readonly number[]): number {
  *
  * @example scoreAnswer(Float32Array.of(0.2, 0.8, 1), 1, generations) // { generation: 1, body: { model, outputs: [[0.2, 0.8]], top: [1] } }
  */
-export function scoreAnswer(y: Float32Array, rows: number, generations: ReadonlyMap<number, Generation>): { generation: number; body: Record<string, unknown> } {
+export function scoreAnswer(
+  y: Float32Array,
+  rows: number,
+  generations: ReadonlyMap<number, Generation>,
+): { generation: number; body: Record<string, unknown> } {
   const width = y.length / rows - 1;
   const generation = y[width];
   const facts = generations.get(generation) ?? { checksum: null, labels: null };

@@ -64,7 +64,8 @@ export class ServiceCounters {
   /** The exposition text; `runtime` adds the process's live tfjs tensors and resident memory. */
   render(runtime?: { readonly tensors: number; readonly residentBytes: number }): string {
     const out: string[] = [];
-    const family = (name: string, type: 'counter' | 'gauge' | 'summary', help: string) => out.push(`# HELP ${name} ${escapeHelp(help)}`, `# TYPE ${name} ${type}`);
+    const family = (name: string, type: 'counter' | 'gauge' | 'summary', help: string) =>
+      out.push(`# HELP ${name} ${escapeHelp(help)}`, `# TYPE ${name} ${type}`);
 
     family('tendon_requests_total', 'counter', 'Requests answered, by route and HTTP status.');
     for (const [key, n] of [...this.requests].sort(([a], [b]) => (a < b ? -1 : 1))) {
@@ -100,7 +101,7 @@ export class ServiceCounters {
 
     const d = this.drift;
     if (d) {
-      family('tendon_drift_rows_total', 'counter', 'Rows compared with the model\'s normalisation statistics since the model was loaded.');
+      family('tendon_drift_rows_total', 'counter', "Rows compared with the model's normalisation statistics since the model was loaded.");
       out.push(sample('tendon_drift_rows_total', {}, d.rows));
       family('tendon_drift_mean_shift_sd', 'gauge', 'Distance of the incoming mean from the stored mean, in stored standard deviations (z-score models).');
       for (const f of d.features) if (f.meanShiftSd !== null) out.push(sample('tendon_drift_mean_shift_sd', { feature: f.name }, f.meanShiftSd));

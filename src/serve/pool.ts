@@ -103,7 +103,8 @@ export class WorkerPool {
     const size = options.size ?? availableParallelism();
     if (!Number.isInteger(size) || size < 1) throw new RuntimeFailure(`worker pool size must be a positive integer, got ${size}`);
     const minShareRows = options.minShareRows ?? 32;
-    if (!Number.isInteger(minShareRows) || minShareRows < 1) throw new RuntimeFailure(`worker pool minShareRows must be a positive integer, got ${minShareRows}`);
+    if (!Number.isInteger(minShareRows) || minShareRows < 1)
+      throw new RuntimeFailure(`worker pool minShareRows must be a positive integer, got ${minShareRows}`);
     const source = options.source ?? '(model)';
     // Check the model here, where a ModelFileError keeps its type and its list of problems.
     const bytes = model instanceof Uint8Array ? model : encodeModel(model, source);
@@ -277,7 +278,10 @@ export class WorkerPool {
 }
 
 /** Start one worker; `ready` settles when it has opened the model (or could not). */
-function startWorker(script: string | URL, setup: WorkerSetup): { worker: Worker; ready: Promise<{ engine: 'js' | 'wasm' | 'fast' | 'int8'; inputs: number; outputs: number }> } {
+function startWorker(
+  script: string | URL,
+  setup: WorkerSetup,
+): { worker: Worker; ready: Promise<{ engine: 'js' | 'wasm' | 'fast' | 'int8'; inputs: number; outputs: number }> } {
   const worker = new Worker(script, { workerData: setup });
   const ready = new Promise<{ engine: 'js' | 'wasm' | 'fast' | 'int8'; inputs: number; outputs: number }>((resolve, reject) => {
     const onMessage = (message: FromWorker): void => {

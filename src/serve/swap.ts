@@ -24,8 +24,7 @@ interface Entry extends ModelLease {
 }
 
 export type SwapOutcome =
-  | { readonly swapped: true; readonly checksum: string | null; readonly generation: number }
-  | { readonly swapped: false; readonly reason: string };
+  { readonly swapped: true; readonly checksum: string | null; readonly generation: number } | { readonly swapped: false; readonly reason: string };
 
 export interface ModelSlotOptions {
   /** One line per swap or refusal; default: stderr. */

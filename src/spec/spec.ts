@@ -8,14 +8,7 @@
 import { dirname, resolve } from 'node:path';
 import { ModelFileError, type Problem } from '../errors.js';
 import { BATCHNORM_RULES, DROPOUT_RATE_RULE, activationNames, isActivationName, isLayerKindName } from '../model/index.js';
-import {
-  STORAGE_CODECS,
-  type Layer,
-  type LayerKindName,
-  type ModelDoc,
-  type Normalisation,
-  type StorageCodec,
-} from '../model/types.js';
+import { STORAGE_CODECS, type Layer, type LayerKindName, type ModelDoc, type Normalisation, type StorageCodec } from '../model/types.js';
 import { DEFAULT_LEAKY_ALPHA, initDense } from '../model/init.js';
 import { SeededRng } from '../model/rng.js';
 
@@ -125,25 +118,20 @@ export async function buildFromSpec(spec: unknown, specPath: string, options: Sp
 }
 
 /** The "normalise" block: z-score or min-max statistics, or none given (to fit them from data). */
-async function readNormalise(
-  n: unknown,
-  inputs: number | undefined,
-  loadVector: LayerContext['loadVector'],
-  fail: Fail,
-): Promise<Normalisation | null> {
+async function readNormalise(n: unknown, inputs: number | undefined, loadVector: LayerContext['loadVector'], fail: Fail): Promise<Normalisation | null> {
   if (!isObject(n)) fail('normalise', 'must be an object with a "method"');
   else if (n.method === 'zscore') {
-    const count = n.count === undefined ? 0 : nonNegativeInt(n.count, 'normalise.count', fail) ?? 0;
-    const mean = n.mean === undefined ? null : (await loadVector(n.mean, 'normalise.mean', inputs)) ?? null;
-    const std = n.std === undefined ? null : (await loadVector(n.std, 'normalise.std', inputs)) ?? null;
+    const count = n.count === undefined ? 0 : (nonNegativeInt(n.count, 'normalise.count', fail) ?? 0);
+    const mean = n.mean === undefined ? null : ((await loadVector(n.mean, 'normalise.mean', inputs)) ?? null);
+    const std = n.std === undefined ? null : ((await loadVector(n.std, 'normalise.std', inputs)) ?? null);
     if ((mean === null) !== (std === null)) fail('normalise', 'give both mean and std, or neither (to fit them from data)');
     std?.forEach((s, i) => (s > 0 ? undefined : fail(`normalise.std[${i}]`, `must be > 0, got ${s}`)));
     const m2 = std ? std.map((s) => s * s * count) : null;
     return { method: 'zscore', mean, std, m2, count };
   } else if (n.method === 'minmax') {
-    const count = n.count === undefined ? 0 : nonNegativeInt(n.count, 'normalise.count', fail) ?? 0;
-    const min = n.min === undefined ? null : (await loadVector(n.min, 'normalise.min', inputs)) ?? null;
-    const max = n.max === undefined ? null : (await loadVector(n.max, 'normalise.max', inputs)) ?? null;
+    const count = n.count === undefined ? 0 : (nonNegativeInt(n.count, 'normalise.count', fail) ?? 0);
+    const min = n.min === undefined ? null : ((await loadVector(n.min, 'normalise.min', inputs)) ?? null);
+    const max = n.max === undefined ? null : ((await loadVector(n.max, 'normalise.max', inputs)) ?? null);
     if ((min === null) !== (max === null)) fail('normalise', 'give both min and max, or neither (to fit them from data)');
     if (min && max) min.forEach((lo, i) => (max[i] >= lo ? undefined : fail(`normalise.max[${i}]`, `is below min (${max[i]} < ${lo})`)));
     return { method: 'minmax', min, max, count };
@@ -269,13 +257,7 @@ function placeholder(units: number): Layer {
   return { kind: 'dense', size: units, activation: 'linear', alpha: 0, weight: new Float32Array(0), bias: new Float32Array(units) };
 }
 
-async function loadTensor(
-  value: unknown,
-  where: string,
-  here: string,
-  loadFile: TensorFileLoader,
-  fail: Fail,
-): Promise<LoadedTensor | undefined> {
+async function loadTensor(value: unknown, where: string, here: string, loadFile: TensorFileLoader, fail: Fail): Promise<LoadedTensor | undefined> {
   if (typeof value === 'string') {
     const path = resolve(here, value);
     try {

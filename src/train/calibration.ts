@@ -174,5 +174,4 @@ export function fitTemperature(logits: Float64Array, rows: number, classes: numb
 }
 
 /** The cautions printed beside a calibration figure. */
-export const CALIBRATION_CAUTION =
-  'a calibrated probability holds for data like the rows it was fitted on; it drifts when the data drift';
+export const CALIBRATION_CAUTION = 'a calibrated probability holds for data like the rows it was fitted on; it drifts when the data drift';

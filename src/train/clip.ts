@@ -23,10 +23,7 @@ export function globalNorm(grads: readonly (Float32Array | Float64Array | null)[
  *
  * @example clipGlobalNorm([Float64Array.of(3, 4)], 1) // { norm: 5, factor: 0.2 }, grads now [0.6, 0.8]
  */
-export function clipGlobalNorm(
-  grads: readonly (Float32Array | Float64Array | null)[],
-  maxNorm: number,
-): { norm: number; factor: number } {
+export function clipGlobalNorm(grads: readonly (Float32Array | Float64Array | null)[], maxNorm: number): { norm: number; factor: number } {
   const norm = globalNorm(grads);
   if (!(norm > maxNorm) || !Number.isFinite(norm)) return { norm, factor: 1 };
   const factor = maxNorm / norm;

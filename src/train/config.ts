@@ -171,9 +171,13 @@ export function resolveTuneOptions(opts: TuneOptions, doc: ModelDoc): ResolvedTu
 
   const calibrate = opts.calibrate === true;
   if (calibrate && holdout.kind === 'none') throw new TuneConfigError('calibrate', 'fitting a temperature needs hold-out rows (holdout or holdoutData)');
-  if (calibrate && !canCalibrate(doc)) throw new TuneConfigError('calibrate', 'a temperature applies to a softmax or sigmoid output layer; this model\'s output is neither');
+  if (calibrate && !canCalibrate(doc))
+    throw new TuneConfigError('calibrate', "a temperature applies to a softmax or sigmoid output layer; this model's output is neither");
   if (calibrate && (doc.layers[outputDenseIndex(doc)] as DenseLayer).activation === 'sigmoid' && (doc.layers[outputDenseIndex(doc)] as DenseLayer).size !== 1) {
-    throw new TuneConfigError('calibrate', 'a temperature is fitted to classes: a softmax output, or one sigmoid unit (this model has several sigmoid outputs)');
+    throw new TuneConfigError(
+      'calibrate',
+      'a temperature is fitted to classes: a softmax output, or one sigmoid unit (this model has several sigmoid outputs)',
+    );
   }
 
   const { freeze, freezeTensors } = resolveFreeze(opts, doc);

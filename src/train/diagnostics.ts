@@ -129,12 +129,7 @@ export function linearStacks(layers: readonly Layer[]): Diagnostic[] {
  *
  * @example rawInputs(x, rows, 4, false) // null or { code: 'raw_inputs', ... }
  */
-export function rawInputs(
-  x: ArrayLike<number>,
-  rows: number,
-  features: number,
-  hasNormalisation: boolean,
-): Diagnostic | null {
+export function rawInputs(x: ArrayLike<number>, rows: number, features: number, hasNormalisation: boolean): Diagnostic | null {
   if (hasNormalisation || rows === 0) return null;
   const far: string[] = [];
   for (let c = 0; c < features; c++) {

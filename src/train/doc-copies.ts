@@ -32,7 +32,11 @@ export function cloneDoc(doc: ModelDoc): ModelDoc {
 /** Every float32 array the run may change: every stored tensor (trainable ones and batch-norm running statistics). */
 export function mutableArrays(doc: ModelDoc): Float32Array[] {
   const widths = modelWidths(doc);
-  return doc.layers.flatMap((l, i) => layerKind(l.kind).tensors(l, widths[i], i).map((t) => t.data));
+  return doc.layers.flatMap((l, i) =>
+    layerKind(l.kind)
+      .tensors(l, widths[i], i)
+      .map((t) => t.data),
+  );
 }
 
 /** Copies of `arrays`: new ones, or written into `into` (same shapes) to spare allocations each step. */

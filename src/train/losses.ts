@@ -24,9 +24,7 @@ export const LOSS_NAMES = ['cross_entropy', 'binary_cross_entropy', 'mse', 'half
 export type LossName = (typeof LOSS_NAMES)[number];
 
 /** Targets: class indices (one per row) or a rows x cols matrix of values. */
-export type Targets =
-  | { readonly kind: 'classes'; readonly classes: Int32Array }
-  | { readonly kind: 'values'; readonly values: Float32Array | Float64Array };
+export type Targets = { readonly kind: 'classes'; readonly classes: Int32Array } | { readonly kind: 'values'; readonly values: Float32Array | Float64Array };
 
 /** What the loss is computed from: the last layer's pre-activation, or its outputs. */
 export type LossInput = 'logits' | 'outputs';
@@ -55,8 +53,7 @@ export const PROBABILITY_CLAMP = 1e-7;
  * @example lossFor('softmax') // { name: 'cross_entropy', input: 'logits' }
  */
 export function lossFor(activation: ActivationName, override?: LossName): LossSpec {
-  const name: LossName =
-    override ?? (activation === 'softmax' ? 'cross_entropy' : activation === 'sigmoid' ? 'binary_cross_entropy' : 'mse');
+  const name: LossName = override ?? (activation === 'softmax' ? 'cross_entropy' : activation === 'sigmoid' ? 'binary_cross_entropy' : 'mse');
   if (name === 'cross_entropy') {
     // Cross-entropy always works on logits: softmax is applied inside, stably.
     return { name, input: 'logits' };
@@ -90,21 +87,13 @@ export function targetMatrix(targets: Targets, rows: number, cols: number): Floa
  *
  * @example computeLoss({ name: 'mse', input: 'outputs' }, Float64Array.of(1), 1, 1, { kind: 'values', values: Float64Array.of(0) }) // { value: 1, grad: [2] }
  */
-export function computeLoss(
-  spec: LossSpec,
-  input: Float64Array,
-  rows: number,
-  cols: number,
-  targets: Targets,
-): LossResult {
+export function computeLoss(spec: LossSpec, input: Float64Array, rows: number, cols: number, targets: Targets): LossResult {
   const t = targetMatrix(targets, rows, cols);
   switch (spec.name) {
     case 'cross_entropy':
       return crossEntropyFromLogits(input, rows, cols, t);
     case 'binary_cross_entropy':
-      return spec.input === 'logits'
-        ? binaryCrossEntropyFromLogits(input, rows, cols, t)
-        : binaryCrossEntropyFromProbabilities(input, rows, cols, t);
+      return spec.input === 'logits' ? binaryCrossEntropyFromLogits(input, rows, cols, t) : binaryCrossEntropyFromProbabilities(input, rows, cols, t);
     case 'mse':
       return meanSquaredError(input, rows, cols, t);
     case 'half_sse':
@@ -158,12 +147,7 @@ export function binaryCrossEntropyFromLogits(z: Float64Array, rows: number, cols
 }
 
 /** Mean binary cross-entropy from probabilities, clamped to [PROBABILITY_CLAMP, 1 - PROBABILITY_CLAMP]. */
-export function binaryCrossEntropyFromProbabilities(
-  p: Float64Array,
-  rows: number,
-  cols: number,
-  t: Float64Array,
-): LossResult {
+export function binaryCrossEntropyFromProbabilities(p: Float64Array, rows: number, cols: number, t: Float64Array): LossResult {
   const n = rows * cols;
   const grad = new Float64Array(n);
   let total = 0;

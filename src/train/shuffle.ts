@@ -46,11 +46,7 @@ export function epochBatches(rows: number, batchSize: number, rng: Rng): Int32Ar
  *
  * @example gatherRows(new Float32Array([1, 2, 3, 4]), 2, Int32Array.of(1)) // Float64Array [3, 4]
  */
-export function gatherRows(
-  data: Float32Array | Float64Array,
-  cols: number,
-  indices: ArrayLike<number>,
-): Float64Array {
+export function gatherRows(data: Float32Array | Float64Array, cols: number, indices: ArrayLike<number>): Float64Array {
   const out = new Float64Array(indices.length * cols);
   for (let r = 0; r < indices.length; r++) {
     const src = indices[r] * cols;
@@ -65,11 +61,7 @@ export function gatherRows(
  *
  * @example splitHoldout(10, 0.2, rng) // { train: 8 indices, holdout: 2 indices }
  */
-export function splitHoldout(
-  rows: number,
-  fraction: number,
-  rng: Rng,
-): { train: Int32Array; holdout: Int32Array } {
+export function splitHoldout(rows: number, fraction: number, rng: Rng): { train: Int32Array; holdout: Int32Array } {
   const order = shuffledOrder(rows, rng);
   const held = Math.min(rows - 1, Math.max(1, Math.round(rows * fraction)));
   const holdout = order.slice(0, held).sort();

@@ -70,7 +70,13 @@ export function evaluateSplit(
     // A single sigmoid output: the evaluation output is a logit when the loss reads logits.
     const predicted = predictedClasses(outAll, data.rows, outputs, spec.input === 'logits' ? 0 : 0.5);
     return {
-      metrics: { loss, accuracy: accuracy(predicted, data.y), confusion: confusionMatrix(predicted, data.y, outputs === 1 ? 2 : outputs), mae: null, rmse: null },
+      metrics: {
+        loss,
+        accuracy: accuracy(predicted, data.y),
+        confusion: confusionMatrix(predicted, data.y, outputs === 1 ? 2 : outputs),
+        mae: null,
+        rmse: null,
+      },
       relu,
     };
   }

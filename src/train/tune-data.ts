@@ -41,9 +41,7 @@ function asFloat32(data: TuneData): TuneData {
 
 /** The targets of rows from..to (exclusive) of `y`. */
 export function targetsOf(y: TuneData['y'], from: number, to: number, outputs: number): Targets {
-  return y instanceof Int32Array
-    ? { kind: 'classes', classes: y.subarray(from, to) }
-    : { kind: 'values', values: y.subarray(from * outputs, to * outputs) };
+  return y instanceof Int32Array ? { kind: 'classes', classes: y.subarray(from, to) } : { kind: 'values', values: y.subarray(from * outputs, to * outputs) };
 }
 
 export interface RunRows {
@@ -73,7 +71,7 @@ export function runRows(data: TuneData, opts: ResolvedTuneOptions, inputs: numbe
   }
   const replay = opts.replay ? asFloat32(opts.replay.data) : null;
   if (replay) checkTargets(replay, outputs, 'replay');
-  if (replay && (replay.y instanceof Int32Array) !== (data.y instanceof Int32Array)) {
+  if (replay && replay.y instanceof Int32Array !== data.y instanceof Int32Array) {
     throw new TuneConfigError('replay', 'targets must be of the same kind as the training data (class indices or values)');
   }
   return { train, held, replay };
@@ -139,7 +137,9 @@ export class BatchGatherer {
         put(rows, this.replayOrder[this.replayAt++]);
       }
     }
-    const targets: Targets = this.classifier ? { kind: 'classes', classes: this.classes.subarray(0, n) } : { kind: 'values', values: this.values.subarray(0, n * outputs) };
+    const targets: Targets = this.classifier
+      ? { kind: 'classes', classes: this.classes.subarray(0, n) }
+      : { kind: 'values', values: this.values.subarray(0, n * outputs) };
     return { x: this.x.subarray(0, n * inputs), rows: n, targets };
   }
 }

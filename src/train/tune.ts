@@ -163,7 +163,13 @@ function prepareSteps(basis: RunBasis, path: TrainPath): StepRun {
 
   const ctx = trainingContext(rng.dropout);
   const backend = makeBackend(path, work, spec.input === 'logits');
-  const gather = new BatchGatherer(work.inputs, outputs, opts.batch, classifier, replay && opts.replay ? { rows: replay, perBatch: opts.replay.perBatch, rng: rng.replay } : null);
+  const gather = new BatchGatherer(
+    work.inputs,
+    outputs,
+    opts.batch,
+    classifier,
+    replay && opts.replay ? { rows: replay, perBatch: opts.replay.perBatch, rng: rng.replay } : null,
+  );
   const totalSteps = Math.ceil(train.rows / opts.batch) * opts.epochs;
   return { ...basis, slots, anchorStart, optimiser, gradientsChange, arrays, lastGood, reluLayers, changed, ctx, backend, gather, totalSteps, step: 0 };
 }
@@ -284,7 +290,13 @@ async function runBatches(run: StepRun, epoch: number, batches: Int32Array[]): P
     const brokenAt = firstBrokenSlot(slots);
     if (brokenAt) {
       restore(arrays, lastGood);
-      throw new TuneDivergence(epoch + 1, b + 1, layerLabel(work, brokenAt.layer), `the update made ${brokenAt.ref.name} non-finite (learning rate ${lr})`, withScaling(cloneDoc(work)));
+      throw new TuneDivergence(
+        epoch + 1,
+        b + 1,
+        layerLabel(work, brokenAt.layer),
+        `the update made ${brokenAt.ref.name} non-finite (learning rate ${lr})`,
+        withScaling(cloneDoc(work)),
+      );
     }
     backend.refresh(run.changed);
 

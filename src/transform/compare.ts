@@ -27,7 +27,13 @@ export interface OutputComparison {
  * @example compareOutputs(parent, shrinkModel(parent, 'f16'), randomInputs(parent, 256, 1), 256, SHRINK_TOLERANCE.f16)
  * @throws ShapeError when the two models take or give different widths.
  */
-export function compareOutputs(parent: ModelDoc, candidate: ModelDoc, x: Float32Array, rows: number, tolerance: Tolerance = FLOAT32_TOLERANCE): OutputComparison {
+export function compareOutputs(
+  parent: ModelDoc,
+  candidate: ModelDoc,
+  x: Float32Array,
+  rows: number,
+  tolerance: Tolerance = FLOAT32_TOLERANCE,
+): OutputComparison {
   const outParent = modelWidths(parent).at(-1)!;
   const outCandidate = modelWidths(candidate).at(-1)!;
   if (parent.inputs !== candidate.inputs) throw new ShapeError('candidate inputs', [parent.inputs], [candidate.inputs], 'compare with parent');

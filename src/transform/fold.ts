@@ -17,7 +17,16 @@
  * The arithmetic runs in float64 on the float32 weights and is rounded to float32 once, at the end.
  */
 import { checksumOf, encodeModel } from '../format/index.js';
-import { inputAffine, layerKind, validateModel, type ActivationName, type Layer, type LayerKindName, type ModelDoc, type Normalisation } from '../model/index.js';
+import {
+  inputAffine,
+  layerKind,
+  validateModel,
+  type ActivationName,
+  type Layer,
+  type LayerKindName,
+  type ModelDoc,
+  type Normalisation,
+} from '../model/index.js';
 
 /** A layer kind folded or kept (batchnorm, dropout, ...), the input normalisation, or a product of two dense layers. */
 export type FoldStepName = LayerKindName | 'normalisation' | 'linear-collapse';
@@ -110,7 +119,10 @@ export function foldModel(doc: ModelDoc, options: FoldOptions = {}): FoldResult 
   }
   work = collapseLinear(work, steps);
 
-  const parent = options.parent ?? { checksum: checksumOf(encodeModel(doc)), source: doc.meta.name ? `${doc.meta.name}, held in memory` : 'a model held in memory' };
+  const parent = options.parent ?? {
+    checksum: checksumOf(encodeModel(doc)),
+    source: doc.meta.name ? `${doc.meta.name}, held in memory` : 'a model held in memory',
+  };
   const folded: ModelDoc = {
     inputs: doc.inputs,
     features: doc.features ? [...doc.features] : null,
@@ -206,9 +218,10 @@ function foldBatchNorms(work: Work[], steps: FoldStep[]): Work[] {
       after.origin.unshift(...w.origin);
       steps.push({ step, layers: [...w.origin], folded: true, reason: `into the dense layer after it (layers[${after.origin[after.origin.length - 1]}])` });
     } else {
-      const why = before?.kind === 'dense'
-        ? `the dense layer before it applies ${before.activation}, so the affine map cannot move inside it, and no dense layer follows`
-        : 'no linear dense layer before it and no dense layer after it';
+      const why =
+        before?.kind === 'dense'
+          ? `the dense layer before it applies ${before.activation}, so the affine map cannot move inside it, and no dense layer follows`
+          : 'no linear dense layer before it and no dense layer after it';
       steps.push({ step, layers: [...w.origin], folded: false, reason: why });
       out.push(w);
     }

@@ -24,11 +24,17 @@ export interface ShrinkOptions {
  * @throws ModelFileError when a weight cannot be stored with the codec (beyond the float16 range).
  */
 export function shrinkModel(doc: ModelDoc, codec: StorageCodec, options: ShrinkOptions = {}): ModelDoc {
-  const parent = options.parent ?? { checksum: checksumOf(encodeModel(doc)), source: doc.meta.name ? `${doc.meta.name}, held in memory` : 'a model held in memory' };
+  const parent = options.parent ?? {
+    checksum: checksumOf(encodeModel(doc)),
+    source: doc.meta.name ? `${doc.meta.name}, held in memory` : 'a model held in memory',
+  };
   const marked: ModelDoc = {
     ...doc,
     storage: codec,
-    provenance: [...doc.provenance, { checksum: parent.checksum, source: parent.source, action: `shrunk to ${codec}`, at: options.at ?? new Date().toISOString() }],
+    provenance: [
+      ...doc.provenance,
+      { checksum: parent.checksum, source: parent.source, action: `shrunk to ${codec}`, at: options.at ?? new Date().toISOString() },
+    ],
   };
   return decodeModel(encodeModel(marked, `(model shrunk to ${codec})`), `(model shrunk to ${codec})`).doc;
 }
@@ -88,7 +94,9 @@ export function denseWeightBytes(doc: ModelDoc, codec: StorageCodec): number {
  * @example costVerdict(choice.cost) // "within (worst value at 16% of its bound)"
  */
 export function costVerdict(cost: OutputComparison): string {
-  return cost.pass ? `within (worst value at ${Math.round(cost.worstRatio * 100)}% of its bound)` : `BROKEN (worst value ${cost.worstRatio.toPrecision(3)}x its bound)`;
+  return cost.pass
+    ? `within (worst value at ${Math.round(cost.worstRatio * 100)}% of its bound)`
+    : `BROKEN (worst value ${cost.worstRatio.toPrecision(3)}x its bound)`;
 }
 
 /**
@@ -110,7 +118,11 @@ export function describeStorageCosts(choices: readonly StorageChoice[]): string 
     costVerdict(c.cost),
   ]);
   const widths = header.map((h, i) => Math.max(h.length, ...rows.map((r) => r[i].length)));
-  const line = (cells: string[]) => cells.map((cell, i) => (i === 0 || i >= cells.length - 2 ? cell.padEnd(widths[i]) : cell.padStart(widths[i]))).join('  ').trimEnd();
+  const line = (cells: string[]) =>
+    cells
+      .map((cell, i) => (i === 0 || i >= cells.length - 2 ? cell.padEnd(widths[i]) : cell.padStart(widths[i])))
+      .join('  ')
+      .trimEnd();
   const rowsSeen = choices[0]?.cost.rows ?? 0;
   return (
     [

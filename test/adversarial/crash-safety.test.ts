@@ -70,7 +70,8 @@ function killAndWait(child: ChildProcess): Promise<void> {
 }
 
 /** Byte equality without a deep-equality walk over a megabyte of elements. */
-const sameBytes = (a: Uint8Array, b: Uint8Array) => Buffer.compare(Buffer.from(a.buffer, a.byteOffset, a.byteLength), Buffer.from(b.buffer, b.byteOffset, b.byteLength)) === 0;
+const sameBytes = (a: Uint8Array, b: Uint8Array) =>
+  Buffer.compare(Buffer.from(a.buffer, a.byteOffset, a.byteLength), Buffer.from(b.buffer, b.byteOffset, b.byteLength)) === 0;
 
 const sleep = (ms: number) => new Promise((r) => setTimeout(r, ms));
 

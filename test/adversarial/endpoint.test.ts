@@ -30,7 +30,12 @@ beforeAll(async () => {
   const dir = await mkdtemp(join(tmpdir(), 'tendon-endpoint-'));
   await writeFile(
     join(dir, 'linear.json'),
-    JSON.stringify({ inputs: 3, features: ['a', 'b', 'c'], labels: ['y'], layers: [{ kind: 'dense', size: 1, activation: 'linear', weight: [[1], [10], [100]], bias: [0.5] }] }),
+    JSON.stringify({
+      inputs: 3,
+      features: ['a', 'b', 'c'],
+      labels: ['y'],
+      layers: [{ kind: 'dense', size: 1, activation: 'linear', weight: [[1], [10], [100]], bias: [0.5] }],
+    }),
   );
   const model = join(dir, 'linear.tendon');
   expect((await runCli('pack', join(dir, 'linear.json'), '-o', model)).code).toBe(0);
@@ -132,15 +137,16 @@ const deepNesting = '{"rows": ' + '['.repeat(30_000) + ']'.repeat(30_000) + '}';
 const MALFORMED: [string, () => Promise<RawResult>, number][] = [
   ['a request line that is not HTTP', () => rawClient(sendAll('GARBAGE\r\n\r\n')), 400],
   ['binary noise', () => rawClient(sendAll(Buffer.from(Array.from({ length: 512 }, (_, i) => (i * 37) % 256)))), 400],
-  ['a 20 KB header (past Node\'s 16 KiB limit)', () => rawClient(sendAll(request('GET', '/v1/alive', '', { 'x-pad': 'p'.repeat(20_000) }))), 431],
+  ["a 20 KB header (past Node's 16 KiB limit)", () => rawClient(sendAll(request('GET', '/v1/alive', '', { 'x-pad': 'p'.repeat(20_000) }))), 431],
   ['a Content-Length past the body limit', () => rawClient(sendAll(request('POST', '/v1/score', '', { 'content-length': String(BODY_LIMIT * 16) }))), 413],
   [
     'a chunked body that grows past the limit',
-    () => rawClient((s) => {
-      s.write(request('POST', '/v1/score', '', { 'transfer-encoding': 'chunked' }));
-      const chunk = 'x'.repeat(16 * 1024);
-      for (let i = 0; i < 8; i++) s.write(`${chunk.length.toString(16)}\r\n${chunk}\r\n`);
-    }),
+    () =>
+      rawClient((s) => {
+        s.write(request('POST', '/v1/score', '', { 'transfer-encoding': 'chunked' }));
+        const chunk = 'x'.repeat(16 * 1024);
+        for (let i = 0; i < 8; i++) s.write(`${chunk.length.toString(16)}\r\n${chunk}\r\n`);
+      }),
     413,
   ],
   ['a Content-Length that is not a number', () => rawClient(sendAll(request('POST', '/v1/score', '{}', { 'content-length': 'lots' }))), 400],
@@ -151,7 +157,11 @@ const MALFORMED: [string, () => Promise<RawResult>, number][] = [
   ['a row too short', () => rawClient(sendAll(request('POST', '/v1/score', '{"rows": [[1, 2]]}'))), 400],
   ['a row too long', () => rawClient(sendAll(request('POST', '/v1/score', '{"rows": [[1, 2, 3, 4]]}'))), 400],
   ['an unknown feature name', () => rawClient(sendAll(request('POST', '/v1/score', '{"rows": [{"a": 1, "b": 2, "zz": 3}]}'))), 400],
-  ['more rows than one request may carry', () => rawClient(sendAll(request('POST', '/v1/score', JSON.stringify({ rows: Array.from({ length: 101 }, () => [1, 2, 3]) })))), 413],
+  [
+    'more rows than one request may carry',
+    () => rawClient(sendAll(request('POST', '/v1/score', JSON.stringify({ rows: Array.from({ length: 101 }, () => [1, 2, 3]) })))),
+    413,
+  ],
   ['a wrong method', () => rawClient(sendAll(request('DELETE', '/v1/score', ''))), 405],
   ['an unknown route', () => rawClient(sendAll(request('GET', '/v1/../../etc/passwd', ''))), 404],
 ];

@@ -81,17 +81,57 @@ const CSV_CASES: [string, () => string, Outcome][] = [
   ['ragged row, a cell short', () => 'a,b,c\n1,2,3\n4,5\n', { where: ':3:3', error: /row has 2 cells, expected 3/ }],
   ['ragged row, a cell extra', () => 'a,b,c\n1,2,3,4\n', { where: ':2:4', error: /row has 4 cells, expected 3/ }],
   ['a trailing comma is one more (empty) cell', () => 'a,b,c\n1,2,3,\n', { where: ':2:4', error: /row has 4 cells/ }],
-  ['ragged row after a quoted cell spanning two lines (line numbers follow the file)', () => 'a,b,c\n"1\n",2,3\n4,5\n', { where: ':4:3', error: /row has 2 cells/ }],
+  [
+    'ragged row after a quoted cell spanning two lines (line numbers follow the file)',
+    () => 'a,b,c\n"1\n",2,3\n4,5\n',
+    { where: ':4:3', error: /row has 2 cells/ },
+  ],
   ['quoted fields (RFC 4180)', () => '"a","b","c"\n"1","2","3"\n', { rows: [[1, 2, 3]] }],
   ['quoted decimal comma is one cell and not a number', () => 'a,b,c\n"1,5",2,3\n', { where: ':2:1', error: /cell "1,5" in column "a" is not a number/ }],
   ['a quote inside an unquoted cell', () => 'a,b,c\n1,2"3,4\n', { where: ':2:2', error: /quote inside an unquoted cell/ }],
   ['a quoted cell never closed', () => 'a,b,c\n1,"2,3\n4,5,6\n', { where: ':2:2', error: /never closed/ }],
   ['UTF-8 byte-order mark before the header', () => '\uFEFFa,b,c\n1,2,3\n', { rows: [[1, 2, 3]] }],
-  ['UTF-8 byte-order mark, no header', () => '\uFEFF1,2,3\n0.5,0,1\n', { rows: [[1, 2, 3], [0.5, 0, 1]] }],
-  ['CRLF line ends', () => 'a,b,c\r\n1,2,3\r\n4,5,6\r\n', { rows: [[1, 2, 3], [4, 5, 6]] }],
+  [
+    'UTF-8 byte-order mark, no header',
+    () => '\uFEFF1,2,3\n0.5,0,1\n',
+    {
+      rows: [
+        [1, 2, 3],
+        [0.5, 0, 1],
+      ],
+    },
+  ],
+  [
+    'CRLF line ends',
+    () => 'a,b,c\r\n1,2,3\r\n4,5,6\r\n',
+    {
+      rows: [
+        [1, 2, 3],
+        [4, 5, 6],
+      ],
+    },
+  ],
   ['CRLF line ends: an error on line 3 says line 3', () => 'a,b,c\r\n1,2,3\r\n4,x,6\r\n', { where: ':3:2', error: /cell "x" in column "b" is not a number/ }],
-  ['lone CR line ends, no final newline', () => 'a,b,c\r1,2,3\r4,5,6', { rows: [[1, 2, 3], [4, 5, 6]] }],
-  ['blank lines between rows are skipped', () => 'a,b,c\n\n1,2,3\n\n\n4,5,6\n', { rows: [[1, 2, 3], [4, 5, 6]] }],
+  [
+    'lone CR line ends, no final newline',
+    () => 'a,b,c\r1,2,3\r4,5,6',
+    {
+      rows: [
+        [1, 2, 3],
+        [4, 5, 6],
+      ],
+    },
+  ],
+  [
+    'blank lines between rows are skipped',
+    () => 'a,b,c\n\n1,2,3\n\n\n4,5,6\n',
+    {
+      rows: [
+        [1, 2, 3],
+        [4, 5, 6],
+      ],
+    },
+  ],
   ['NaN cell', () => 'a,b,c\n1,NaN,3\n', { where: ':2:2', error: /cell "NaN" in column "b" is not a number/ }],
   ['nan cell', () => 'a,b,c\n1,2,nan\n', { where: ':2:3', error: /cell "nan" in column "c" is not a number/ }],
   ['Infinity cell', () => 'a,b,c\nInfinity,2,3\n', { where: ':2:1', error: /"Infinity" in column "a" is not a number/ }],
@@ -100,7 +140,17 @@ const CSV_CASES: [string, () => string, Outcome][] = [
   ['empty cell', () => 'a,b,c\n1,,3\n', { where: ':2:2', error: /cell "" in column "b" is empty/ }],
   ['blank (spaces only) cell', () => 'a,b,c\n1,2,   \n', { where: ':2:3', error: /is empty/ }],
   ['a number beyond float64 (1e999)', () => 'a,b,c\n1e999,2,3\n', { where: ':2:1', error: /out of the float64 range/ }],
-  ['exotic but plain decimals: +1.5, .5, 5., 1e2, 1E-2, -0, padded', () => 'a,b,c\n+1.5,.5,5.\n1e2,1E-2,-0\n 2 ,\t3\t,  4\n', { rows: [[1.5, 0.5, 5], [100, 0.01, -0], [2, 3, 4]] }],
+  [
+    'exotic but plain decimals: +1.5, .5, 5., 1e2, 1E-2, -0, padded',
+    () => 'a,b,c\n+1.5,.5,5.\n1e2,1E-2,-0\n 2 ,\t3\t,  4\n',
+    {
+      rows: [
+        [1.5, 0.5, 5],
+        [100, 0.01, -0],
+        [2, 3, 4],
+      ],
+    },
+  ],
   ['hexadecimal', () => 'a,b,c\n0x10,2,3\n', { where: ':2:1', error: /"0x10" in column "a" is not a number/ }],
   ['binary literal', () => 'a,b,c\n1,0b1,3\n', { where: ':2:2', error: /is not a number/ }],
   ['digit separators', () => 'a,b,c\n1_000,2,3\n', { where: ':2:1', error: /is not a number/ }],
@@ -111,18 +161,57 @@ const CSV_CASES: [string, () => string, Outcome][] = [
   ['exponent without digits', () => 'a,b,c\n1e,2,3\n', { where: ':2:1', error: /is not a number/ }],
   ['a lone point', () => 'a,b,c\n.,2,3\n', { where: ':2:1', error: /is not a number/ }],
   ['a space inside a number', () => 'a,b,c\n1 2,2,3\n', { where: ':2:1', error: /is not a number/ }],
-  ['columns in a different order are matched by name', () => 'c,a,b\n3,1,2\n0,0.5,1\n', { rows: [[1, 2, 3], [0.5, 1, 0]] }],
+  [
+    'columns in a different order are matched by name',
+    () => 'c,a,b\n3,1,2\n0,0.5,1\n',
+    {
+      rows: [
+        [1, 2, 3],
+        [0.5, 1, 0],
+      ],
+    },
+  ],
   ['extra columns are ignored when every feature is named', () => 'z,c,a,b\n9,3,1,2\n', { rows: [[1, 2, 3]] }],
-  ['a header naming some features but missing one is refused, not read by position', () => 'b,a,d\n1,2,3\n', { where: ':1', error: /missing feature column "c"/ }],
+  [
+    'a header naming some features but missing one is refused, not read by position',
+    () => 'b,a,d\n1,2,3\n',
+    { where: ':1', error: /missing feature column "c"/ },
+  ],
   ['a repeated column name', () => 'a,b,a\n1,2,3\n', { where: ':1:3', error: /column name "a" repeats column 1/ }],
   ['an empty column name where a feature should be: that feature is missing', () => 'a,,c\n1,2,3\n', { where: ':1', error: /missing feature column "b"/ }],
-  ['a dataframe index column (empty name) first is never read', () => ',a,b,c\n0,1,2,3\nrow-1,0.5,1,0\n', { rows: [[1, 2, 3], [0.5, 1, 0]] }],
+  [
+    'a dataframe index column (empty name) first is never read',
+    () => ',a,b,c\n0,1,2,3\nrow-1,0.5,1,0\n',
+    {
+      rows: [
+        [1, 2, 3],
+        [0.5, 1, 0],
+      ],
+    },
+  ],
   ['a comma ending every line (an empty-named, empty last column)', () => 'a,b,c,\n1,2,3,\n', { rows: [[1, 2, 3]] }],
-  ['an empty cell in a column the model does not read', () => 'a,b,c,label\n1,2,3,\n0.5,1,0,good\n', { rows: [[1, 2, 3], [0.5, 1, 0]] }],
-  ['a number beyond float32 (1e39), refused at the cell', () => 'a,b,c\n1,2,3\n1,1e39,3\n', { where: ':3:2', error: /cell "1e39" in column "b" is out of the float32 range/ }],
+  [
+    'an empty cell in a column the model does not read',
+    () => 'a,b,c,label\n1,2,3,\n0.5,1,0,good\n',
+    {
+      rows: [
+        [1, 2, 3],
+        [0.5, 1, 0],
+      ],
+    },
+  ],
+  [
+    'a number beyond float32 (1e39), refused at the cell',
+    () => 'a,b,c\n1,2,3\n1,1e39,3\n',
+    { where: ':3:2', error: /cell "1e39" in column "b" is out of the float32 range/ },
+  ],
   ['semicolon-separated (sniffed from the header)', () => 'a;b;c\n1;2;3\n', { rows: [[1, 2, 3]] }],
   ['semicolon-separated with decimal commas is refused with a hint', () => 'a;b;c\n1,5;2;3\n', { where: ':2:1', error: /decimal comma/ }],
-  ['a 10 MB cell that is not a float64 (a single 10 MB line)', () => `a,b,c\n${'9'.repeat(TEN_MB)},1,1\n`, { where: ':2:1', error: /in column "a" is out of the float64 range/ }],
+  [
+    'a 10 MB cell that is not a float64 (a single 10 MB line)',
+    () => `a,b,c\n${'9'.repeat(TEN_MB)},1,1\n`,
+    { where: ':2:1', error: /in column "a" is out of the float64 range/ },
+  ],
   ['a 10 MB line of letters', () => `a,b,c\n1,${'x'.repeat(TEN_MB)},1\n`, { where: ':2:2', error: /in column "b" is not a number/ }],
   ['a 10 MB line of 5 million cells', () => `a,b,c\n${'1,'.repeat(TEN_MB / 2 - 1)}1\n`, { where: ':2:4', error: /row has 5242880 cells, expected 3/ }],
   ['a 10 MB cell that is a valid number (1.000...0, 10 MB of zeros)', () => `a,b,c\n1.${'0'.repeat(TEN_MB)},2,3\n`, { rows: [[1, 2, 3]] }],
@@ -130,18 +219,63 @@ const CSV_CASES: [string, () => string, Outcome][] = [
 
 const JSONL_CASES: [string, () => string, Outcome][] = [
   ['empty file', () => '', { where: '', error: /file is empty/ }],
-  ['objects with keys in a different order on each line', () => '{"a":1,"b":2,"c":3}\n{"c":0,"b":1,"a":0.5}\n', { rows: [[1, 2, 3], [0.5, 1, 0]] }],
-  ['UTF-8 byte-order mark and CRLF line ends', () => '\uFEFF{"a":1,"b":2,"c":3}\r\n[4,5,6]\r\n'.replace('[4,5,6]', '{"a":4,"b":5,"c":6}'), { rows: [[1, 2, 3], [4, 5, 6]] }],
+  [
+    'objects with keys in a different order on each line',
+    () => '{"a":1,"b":2,"c":3}\n{"c":0,"b":1,"a":0.5}\n',
+    {
+      rows: [
+        [1, 2, 3],
+        [0.5, 1, 0],
+      ],
+    },
+  ],
+  [
+    'UTF-8 byte-order mark and CRLF line ends',
+    () => '\uFEFF{"a":1,"b":2,"c":3}\r\n[4,5,6]\r\n'.replace('[4,5,6]', '{"a":4,"b":5,"c":6}'),
+    {
+      rows: [
+        [1, 2, 3],
+        [4, 5, 6],
+      ],
+    },
+  ],
   ['NaN is not JSON (the column points at the N)', () => '{"a":1,"b":2,"c":3}\n{"a":1,"b":NaN,"c":3}\n', { where: ':2:12', error: /not valid JSON/ }],
   ['a number beyond float64 parses to Infinity and is refused', () => '{"a":1e999,"b":2,"c":3}\n', { where: ':1:1', error: /not a finite number/ }],
   ['a number given as a string', () => '{"a":1,"b":"2","c":3}\n', { where: ':1:2', error: /value "2" in column "b" is not a finite number/ }],
   ['null', () => '{"a":1,"b":2,"c":null}\n', { where: ':1:3', error: /value null in column "c" is not a finite number/ }],
   ['a missing key', () => '{"a":1,"b":2,"c":3}\n{"a":1,"c":3}\n', { where: ':2:2', error: /key "b" is missing/ }],
-  ['extra keys of any type are ignored', () => '{"id":7,"a":1,"b":2,"c":3,"meta":{"x":[1]},"ok":true,"note":null}\n{"a":4,"b":5,"c":6,"id":8,"ok":false,"meta":null,"note":"n"}\n', { rows: [[1, 2, 3], [4, 5, 6]] }],
-  ['an unused key present on some lines only is ignored', () => '{"a":1,"b":2,"c":3,"note":"x"}\n{"a":4,"b":5,"c":6}\n{"a":7,"b":8,"c":9,"extra":1}\n', { rows: [[1, 2, 3], [4, 5, 6], [7, 8, 9]] }],
-  ['a number beyond float32 (1e39), refused at the value', () => '{"a":1,"b":2,"c":1e39}\n', { where: ':1:3', error: /value 1e\+39 in column "c" is out of the float32 range/ }],
+  [
+    'extra keys of any type are ignored',
+    () => '{"id":7,"a":1,"b":2,"c":3,"meta":{"x":[1]},"ok":true,"note":null}\n{"a":4,"b":5,"c":6,"id":8,"ok":false,"meta":null,"note":"n"}\n',
+    {
+      rows: [
+        [1, 2, 3],
+        [4, 5, 6],
+      ],
+    },
+  ],
+  [
+    'an unused key present on some lines only is ignored',
+    () => '{"a":1,"b":2,"c":3,"note":"x"}\n{"a":4,"b":5,"c":6}\n{"a":7,"b":8,"c":9,"extra":1}\n',
+    {
+      rows: [
+        [1, 2, 3],
+        [4, 5, 6],
+        [7, 8, 9],
+      ],
+    },
+  ],
+  [
+    'a number beyond float32 (1e39), refused at the value',
+    () => '{"a":1,"b":2,"c":1e39}\n',
+    { where: ':1:3', error: /value 1e\+39 in column "c" is out of the float32 range/ },
+  ],
   ['a ragged array row', () => '[1,2,3]\n[1,2]\n', { where: ':2:3', error: /row has 2 values, expected 3/ }],
-  ['a 10 MB string value (a single 10 MB line)', () => `{"a":1,"b":"${'x'.repeat(TEN_MB)}","c":3}\n`, { where: ':1:2', error: /in column "b" is not a finite number/ }],
+  [
+    'a 10 MB string value (a single 10 MB line)',
+    () => `{"a":1,"b":"${'x'.repeat(TEN_MB)}","c":3}\n`,
+    { where: ':1:2', error: /in column "b" is not a finite number/ },
+  ],
 ];
 
 async function scoreFile(path: string): Promise<{ code: number; err: string; out: string; scores: number[] }> {
@@ -196,17 +330,42 @@ const TUNE_CASES: [string, () => string, TuneOutcome][] = [
   ['Infinity feature', () => 'a,b,label\n1,2,yes\nInfinity,2,no\n', { where: ':3:1', error: /is not a number/ }],
   ['empty target cell', () => 'a,b,label\n1,2,\n', { where: ':2:3', error: /is empty/ }],
   ['an unknown class on line 3', () => 'a,b,label\n1,2,yes\n3,4,maybe\n', { where: ':3:3', error: /class "maybe" is not one the model knows/ }],
-  ['an unknown class after blank lines: the line named is the file line', () => 'a,b,label\n\n1,2,yes\n\n3,4,maybe\n', { where: ':5:3', error: /class "maybe"/ }],
+  [
+    'an unknown class after blank lines: the line named is the file line',
+    () => 'a,b,label\n\n1,2,yes\n\n3,4,maybe\n',
+    { where: ':5:3', error: /class "maybe"/ },
+  ],
   ['an unknown class after a quoted cell spanning lines', () => 'a,b,label\n1,2,"yes"\n3,4,"no\n"\n5,6,maybe\n', { where: ':5:3', error: /class "maybe"/ }],
   ['a 10 MB class label', () => `a,b,label\n1,2,${'z'.repeat(TEN_MB)}\n`, { where: ':2:3', error: /is not one the model knows/ }],
   ['a class index out of range', () => 'a,b,label\n1,2,2\n', { where: ':2:3', error: /class "2"/ }],
-  ['class indices, including float-looking whole numbers (0.0) as dataframes write them', () => 'a,b,label\n1,2,1\n3,4,0.0\n5,6,1.0\n', { features: [[1, 2], [3, 4], [5, 6]] }],
-  ['a column mixing class names and indices is refused at the first index', () => 'a,b,label\n1,2,yes\n3,4,no\n5,6,1\n', { where: ':4:3', error: /mixes class names and indices \("yes" on line 2, "1" on line 4\)/ }],
+  [
+    'class indices, including float-looking whole numbers (0.0) as dataframes write them',
+    () => 'a,b,label\n1,2,1\n3,4,0.0\n5,6,1.0\n',
+    {
+      features: [
+        [1, 2],
+        [3, 4],
+        [5, 6],
+      ],
+    },
+  ],
+  [
+    'a column mixing class names and indices is refused at the first index',
+    () => 'a,b,label\n1,2,yes\n3,4,no\n5,6,1\n',
+    { where: ':4:3', error: /mixes class names and indices \("yes" on line 2, "1" on line 4\)/ },
+  ],
   [
     'BOM, CRLF, quoted labels, columns in another order: read correctly',
     () => '\uFEFFlabel,b,a\r\n"yes",2,1\r\nno,4,3\r\nyes,0.5,-1\r\n" no ",8,7\r\n',
     // Every label cell ("yes", no, yes, " no ") is a class the model knows, or tune would refuse it.
-    { features: [[1, 2], [3, 4], [-1, 0.5], [7, 8]] },
+    {
+      features: [
+        [1, 2],
+        [3, 4],
+        [-1, 0.5],
+        [7, 8],
+      ],
+    },
   ],
 ];
 
@@ -214,7 +373,24 @@ describe('tendon tune on hostile training files', () => {
   it.each(TUNE_CASES)('%s', async (_name, content, outcome) => {
     const path = await dataFile(content());
     const out = join(dir, `tuned-${counter++}.tendon`);
-    const r = await runCli('tune', classifierSpec, '--data', path, '--target', 'label', '-o', out, '--epochs', '1', '--batch', '2', '--engine', 'js', '--log', 'text');
+    const r = await runCli(
+      'tune',
+      classifierSpec,
+      '--data',
+      path,
+      '--target',
+      'label',
+      '-o',
+      out,
+      '--epochs',
+      '1',
+      '--batch',
+      '2',
+      '--engine',
+      'js',
+      '--log',
+      'text',
+    );
     if ('features' in outcome) {
       expect(r.err).toBe('');
       expect(r.code).toBe(0);

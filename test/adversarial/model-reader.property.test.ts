@@ -147,17 +147,13 @@ describe('random damage to a framed file', () => {
     let refused = 0;
     let decoded = 0;
     fc.assert(
-      fc.property(
-        storageArb,
-        fc.array(fc.tuple(fc.nat(), fc.integer({ min: 0, max: 255 })), { minLength: 1, maxLength: 6 }),
-        (storage, edits) => {
-          const payload = FILES[storage].slice(HEADER_BYTES);
-          for (const [at, value] of edits) payload[at % payload.length] = value;
-          const verdict = decodeHostile(reframe(payload), 'rewritten.tdn');
-          if (verdict.kind === 'refused') refused++;
-          else decoded++;
-        },
-      ),
+      fc.property(storageArb, fc.array(fc.tuple(fc.nat(), fc.integer({ min: 0, max: 255 })), { minLength: 1, maxLength: 6 }), (storage, edits) => {
+        const payload = FILES[storage].slice(HEADER_BYTES);
+        for (const [at, value] of edits) payload[at % payload.length] = value;
+        const verdict = decodeHostile(reframe(payload), 'rewritten.tdn');
+        if (verdict.kind === 'refused') refused++;
+        else decoded++;
+      }),
       { seed: 0x7e0d02, numRuns: 600 },
     );
     // Both outcomes occur: most damage is caught by the content checks, some lands in free
@@ -262,47 +258,38 @@ describe('crafted payloads with a correct CRC', () => {
 
   it('shapes whose element count is huge or overflows 2^53 are refused at once, without allocating what they declare', () => {
     fc.assert(
-      fc.property(
-        dimsArb,
-        fc.constantFrom(1, 2, 3),
-        fc.nat({ max: 64 }),
-        fc.nat({ max: 1 }),
-        (dims, dtype, dataBytes, whichSlot) => {
-          // Make the declared size surely exceed the bytes present (a zero dimension would not).
-          const shape = dims.map((d) => Math.max(d, 2));
-          fc.pre(shape.reduce((p, d) => p * d, 1) > 1e6);
-          const raw = rawOf(tinyDoc());
-          const dense = raw.layers[0].dense!;
-          const tensor: RawTensor = { dtype, shape, data: new Uint8Array(dataBytes), scales: dtype === 3 ? [1] : [] };
-          if (whichSlot === 0) dense.weight = tensor;
-          else dense.bias = tensor;
-          const verdict = decodeHostile(reframe(encodePayload(raw)), 'huge.tdn');
-          expect(verdict.kind).toBe('refused');
-          if (verdict.kind === 'refused') {
-            const where = `layers[0].dense.${whichSlot === 0 ? 'weight' : 'bias'}`;
-            expect(verdict.error.problems.find((p) => p.where === where)?.message).toMatch(/overflows|needs/);
-          }
-        },
-      ),
+      fc.property(dimsArb, fc.constantFrom(1, 2, 3), fc.nat({ max: 64 }), fc.nat({ max: 1 }), (dims, dtype, dataBytes, whichSlot) => {
+        // Make the declared size surely exceed the bytes present (a zero dimension would not).
+        const shape = dims.map((d) => Math.max(d, 2));
+        fc.pre(shape.reduce((p, d) => p * d, 1) > 1e6);
+        const raw = rawOf(tinyDoc());
+        const dense = raw.layers[0].dense!;
+        const tensor: RawTensor = { dtype, shape, data: new Uint8Array(dataBytes), scales: dtype === 3 ? [1] : [] };
+        if (whichSlot === 0) dense.weight = tensor;
+        else dense.bias = tensor;
+        const verdict = decodeHostile(reframe(encodePayload(raw)), 'huge.tdn');
+        expect(verdict.kind).toBe('refused');
+        if (verdict.kind === 'refused') {
+          const where = `layers[0].dense.${whichSlot === 0 ? 'weight' : 'bias'}`;
+          expect(verdict.error.problems.find((p) => p.where === where)?.message).toMatch(/overflows|needs/);
+        }
+      }),
       { seed: 0x7e0d08, numRuns: 300 },
     );
   });
 
   it('dtype codes outside 1..3 (0, large, negative) are refused naming the tensor', () => {
     fc.assert(
-      fc.property(
-        fc.oneof(fc.constant(0), fc.integer({ min: 4, max: 0x7fffffff }), fc.integer({ min: -0x80000000, max: -1 })),
-        (dtype) => {
-          const raw = rawOf(tinyDoc());
-          raw.layers[0].dense!.weight!.dtype = dtype;
-          const verdict = decodeHostile(reframe(encodePayload(raw)), 'dtype.tdn');
-          expect(verdict.kind).toBe('refused');
-          if (verdict.kind === 'refused') {
-            const problem = verdict.error.problems.find((p) => p.where === 'layers[0].dense.weight');
-            expect(problem?.message).toMatch(dtype === 0 ? /dtype is not set/ : new RegExp(`unknown dtype code ${dtype}\\b`));
-          }
-        },
-      ),
+      fc.property(fc.oneof(fc.constant(0), fc.integer({ min: 4, max: 0x7fffffff }), fc.integer({ min: -0x80000000, max: -1 })), (dtype) => {
+        const raw = rawOf(tinyDoc());
+        raw.layers[0].dense!.weight!.dtype = dtype;
+        const verdict = decodeHostile(reframe(encodePayload(raw)), 'dtype.tdn');
+        expect(verdict.kind).toBe('refused');
+        if (verdict.kind === 'refused') {
+          const problem = verdict.error.problems.find((p) => p.where === 'layers[0].dense.weight');
+          expect(problem?.message).toMatch(dtype === 0 ? /dtype is not set/ : new RegExp(`unknown dtype code ${dtype}\\b`));
+        }
+      }),
       { seed: 0x7e0d09, numRuns: 100 },
     );
   });
@@ -389,7 +376,28 @@ describe('crafted payloads with a correct CRC', () => {
         const dataTagAt = honest.length - 10;
         expect(honest[dataTagAt]).toBe(0x1a);
         const lying = Uint8Array.from([...honest.subarray(0, dataTagAt), 0x1a, ...varint(BigInt(8 + extraClaim)), ...new Uint8Array(8)]);
-        const dense = [0x08, 0x01, 0x10, 0x04, 0x22, ...varint(BigInt(lying.length)), ...lying, 0x2a, 0x0b, 0x08, 0x01, 0x12, 0x01, 0x01, 0x1a, 0x04, 0, 0, 0x80, 0x3e];
+        const dense = [
+          0x08,
+          0x01,
+          0x10,
+          0x04,
+          0x22,
+          ...varint(BigInt(lying.length)),
+          ...lying,
+          0x2a,
+          0x0b,
+          0x08,
+          0x01,
+          0x12,
+          0x01,
+          0x01,
+          0x1a,
+          0x04,
+          0,
+          0,
+          0x80,
+          0x3e,
+        ];
         const entry = [0x0a, ...varint(BigInt(dense.length)), ...dense];
         const payload = Uint8Array.from([0x08, 0x02, 0x32, ...varint(BigInt(entry.length)), ...entry]);
         const verdict = decodeHostile(reframe(payload), 'nested-lie.tdn');

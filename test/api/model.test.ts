@@ -33,7 +33,10 @@ describe('TendonModel.run', () => {
   it('takes rows as arrays, a Float32Array with a row count, or a 2-D tensor, and agrees with Mazur 2015', async () => {
     const model = await modelFromDocument(mazurDoc(), { engine: 'js' });
     opened.push(model);
-    const arrays = model.run([[0.05, 0.1], [0.05, 0.1]]);
+    const arrays = model.run([
+      [0.05, 0.1],
+      [0.05, 0.1],
+    ]);
     expect(arrays).toHaveLength(2);
     expect(arrays[0][0]).toBeCloseTo(0.75136507, 6);
     expect(arrays[1][1]).toBeCloseTo(0.772928465, 6);
@@ -53,7 +56,10 @@ describe('TendonModel.run', () => {
     opened.push(model);
     expect(() => model.run([[0.05, 0.1, 3]])).toThrow(ShapeError);
     expect(() => model.run(Float32Array.of(1, 2, 3), 2)).toThrow(ShapeError);
-    const bad = [[0.05, 0.1], [0.05, 'x' as unknown as number]];
+    const bad = [
+      [0.05, 0.1],
+      [0.05, 'x' as unknown as number],
+    ];
     expect(() => model.run(bad)).toThrow(DataError);
     expect(() => model.run(bad)).toThrow(/:2:2: "x" is not a number/);
   });

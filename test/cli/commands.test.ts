@@ -55,7 +55,10 @@ describe('tendon pack / about / score / check on NumPy-written tensors', () => {
     await writeFile(input, '{"i1": 0.05, "i2": 0.10}\n[0.05, 0.10]\n'.split('\n')[0] + '\n{"i1": 0.05, "i2": 0.10}\n');
     const out = join(dir, 'out.jsonl');
     expect((await runCli('score', model, '-i', input, '-o', out, '--engine', 'js')).code).toBe(0);
-    const rows = (await readFile(out, 'utf8')).trim().split('\n').map((l) => JSON.parse(l));
+    const rows = (await readFile(out, 'utf8'))
+      .trim()
+      .split('\n')
+      .map((l) => JSON.parse(l));
     expect(rows).toHaveLength(2);
     expect(rows[0].o1).toBeCloseTo(0.75136507, 6);
   });
@@ -70,7 +73,10 @@ describe('tendon pack / about / score / check on NumPy-written tensors', () => {
     const json = JSON.parse((await runCli('about', model, '--json')).out);
     // 2x2 weights + 2 biases, twice.
     expect(json.parameters).toBe(12);
-    expect(json.layers.map((l: { tensors: { shape: number[] }[] }) => l.tensors[0].shape)).toEqual([[2, 2], [2, 2]]);
+    expect(json.layers.map((l: { tensors: { shape: number[] }[] }) => l.tensors[0].shape)).toEqual([
+      [2, 2],
+      [2, 2],
+    ]);
     expect(json.features).toEqual(['i1', 'i2']);
   });
 
@@ -152,7 +158,16 @@ describe('one-line errors and exit codes', () => {
 
   it('a spec with several problems reports them all at once', async () => {
     const spec = join(dir, 'bad-spec.json');
-    await writeFile(spec, JSON.stringify({ inputs: 2, layers: [{ kind: 'dense', size: 0, activation: 'swish' }, { kind: 'dropout', rate: 2 }] }));
+    await writeFile(
+      spec,
+      JSON.stringify({
+        inputs: 2,
+        layers: [
+          { kind: 'dense', size: 0, activation: 'swish' },
+          { kind: 'dropout', rate: 2 },
+        ],
+      }),
+    );
     const r = await runCli('pack', spec, '-o', join(dir, 'x.tendon'));
     expect(r.code).toBe(2);
     expect(r.err).toMatch(/layers\[0\]\.size/);

@@ -38,7 +38,31 @@ beforeAll(async () => {
     }),
   );
   model = join(dir, 'iris.tendon');
-  const r = await runCli('tune', join(dir, 'spec.json'), '--data', join(dir, 'iris.csv'), '--target', 'species', '-o', model, '--epochs', '60', '--batch', '16', '--lr', '0.01', '--holdout', '0.3', '--seed', '3', '--calibrate', '--log', 'text', '--engine', 'js');
+  const r = await runCli(
+    'tune',
+    join(dir, 'spec.json'),
+    '--data',
+    join(dir, 'iris.csv'),
+    '--target',
+    'species',
+    '-o',
+    model,
+    '--epochs',
+    '60',
+    '--batch',
+    '16',
+    '--lr',
+    '0.01',
+    '--holdout',
+    '0.3',
+    '--seed',
+    '3',
+    '--calibrate',
+    '--log',
+    'text',
+    '--engine',
+    'js',
+  );
   if (r.code !== 0) throw new Error(r.err);
 });
 
@@ -47,7 +71,25 @@ describe('tune --calibrate', () => {
     const { doc, version } = await readModelFile(model);
     expect(doc.temperature).toBeGreaterThan(0);
     expect(version).toEqual({ major: 1, minor: 1 });
-    const r = await runCli('tune', model, '--data', join(dir, 'iris.csv'), '--target', 'species', '-o', join(dir, 'again.tendon'), '--epochs', '1', '--holdout', '0.3', '--calibrate', '--log', 'jsonl', '--engine', 'js');
+    const r = await runCli(
+      'tune',
+      model,
+      '--data',
+      join(dir, 'iris.csv'),
+      '--target',
+      'species',
+      '-o',
+      join(dir, 'again.tendon'),
+      '--epochs',
+      '1',
+      '--holdout',
+      '0.3',
+      '--calibrate',
+      '--log',
+      'jsonl',
+      '--engine',
+      'js',
+    );
     expect(r.code).toBe(0);
     const last = JSON.parse(r.out.trim().split('\n').at(-1)!);
     expect(last.calibration.bins).toBe(15);
@@ -65,7 +107,25 @@ describe('tune --calibrate', () => {
 
   it('the SVG report carries the calibration line, and about prints the temperature', async () => {
     const report = join(dir, 'cal.svg');
-    const r = await runCli('tune', model, '--data', join(dir, 'iris.csv'), '--target', 'species', '-o', join(dir, 'cal.tendon'), '--epochs', '1', '--holdout', '0.3', '--calibrate', '--report', report, '--engine', 'js');
+    const r = await runCli(
+      'tune',
+      model,
+      '--data',
+      join(dir, 'iris.csv'),
+      '--target',
+      'species',
+      '-o',
+      join(dir, 'cal.tendon'),
+      '--epochs',
+      '1',
+      '--holdout',
+      '0.3',
+      '--calibrate',
+      '--report',
+      report,
+      '--engine',
+      'js',
+    );
     expect(r.code).toBe(0);
     const svg = await readFile(report, 'utf8');
     const about = await runCli('about', join(dir, 'cal.tendon'));
@@ -117,7 +177,13 @@ describe('tendon explain', () => {
     const classes = rows.map((line) => {
       const v = line.split(',').map(Number);
       const sum = v.slice(0, 4).reduce((a, b) => a + b, 0);
-      expect(Math.abs(sum - (v[4] - v[5]))).toBeLessThanOrEqual(0.01 * Math.max(Math.abs(v[4] - v[5]), v.slice(0, 4).reduce((a, b) => a + Math.abs(b), 0)));
+      expect(Math.abs(sum - (v[4] - v[5]))).toBeLessThanOrEqual(
+        0.01 *
+          Math.max(
+            Math.abs(v[4] - v[5]),
+            v.slice(0, 4).reduce((a, b) => a + Math.abs(b), 0),
+          ),
+      );
       return v[6];
     });
     // Data rows 1, 60 and 141 are one of each species, far from the class borders; the model gets them right.
@@ -129,7 +195,20 @@ describe('tendon explain', () => {
     await writeFile(base, `${FEATURES.join(',')}\n5.8,3.0,4.3,1.3\n`);
     for (const baseline of ['zeros', base]) {
       const out = join(dir, 'virginica.csv');
-      const r = await runCli('explain', model, '--input', join(dir, 'few.csv'), '--output', out, '--class', 'virginica', '--baseline', baseline, '--steps', '32');
+      const r = await runCli(
+        'explain',
+        model,
+        '--input',
+        join(dir, 'few.csv'),
+        '--output',
+        out,
+        '--class',
+        'virginica',
+        '--baseline',
+        baseline,
+        '--steps',
+        '32',
+      );
       expect(r.code).toBe(0);
       const rows = (await readFile(out, 'utf8')).trim().split('\n').slice(1);
       expect(rows.every((line) => line.split(',')[6] === '2')).toBe(true);
@@ -154,7 +233,24 @@ describe('tendon explain', () => {
 
   it('refuses --baseline mean on a model without stored statistics, saying what to pass', async () => {
     const spec = join(dir, 'bare.json');
-    await writeFile(spec, JSON.stringify({ inputs: 2, layers: [{ kind: 'dense', size: 2, activation: 'softmax', weight: [[1, 0], [0, 1]], bias: [0, 0] }] }));
+    await writeFile(
+      spec,
+      JSON.stringify({
+        inputs: 2,
+        layers: [
+          {
+            kind: 'dense',
+            size: 2,
+            activation: 'softmax',
+            weight: [
+              [1, 0],
+              [0, 1],
+            ],
+            bias: [0, 0],
+          },
+        ],
+      }),
+    );
     const bare = join(dir, 'bare.tendon');
     expect((await runCli('pack', spec, '-o', bare)).code).toBe(0);
     const rows = join(dir, 'two.csv');
@@ -169,6 +265,8 @@ describe('tune --calibrate without hold-out rows', () => {
   it('is a usage error, exit 2, one line', async () => {
     const r = await runCli('tune', model, '--data', join(dir, 'iris.csv'), '--target', 'species', '-o', join(dir, 'z.tendon'), '--calibrate');
     expect(r.code).toBe(2);
-    expect(r.err.trim()).toBe('tendon: --calibrate: needs hold-out rows to fit the temperature on: add --holdout FRACTION or --holdout-file FILE (hint: tendon tune --help lists its options)');
+    expect(r.err.trim()).toBe(
+      'tendon: --calibrate: needs hold-out rows to fit the temperature on: add --holdout FRACTION or --holdout-file FILE (hint: tendon tune --help lists its options)',
+    );
   });
 });

@@ -21,21 +21,61 @@ beforeAll(async () => {
   await writeFile(join(dir, 'iris.csv'), lines.join('\n') + '\n');
   await writeFile(
     join(dir, 'spec.json'),
-    JSON.stringify({ inputs: 4, features: FEATURES, labels: [...new Set(getClasses())], normalise: { method: 'zscore' }, layers: [{ kind: 'dense', size: 8, activation: 'relu' }, { kind: 'dense', size: 3, activation: 'softmax' }] }),
+    JSON.stringify({
+      inputs: 4,
+      features: FEATURES,
+      labels: [...new Set(getClasses())],
+      normalise: { method: 'zscore' },
+      layers: [
+        { kind: 'dense', size: 8, activation: 'relu' },
+        { kind: 'dense', size: 3, activation: 'softmax' },
+      ],
+    }),
   );
 });
 
-const headings = (html: string) => htmlElements(parseHtml(html).doc).filter((e) => e.tagName === 'h2').map(htmlText);
+const headings = (html: string) =>
+  htmlElements(parseHtml(html).doc)
+    .filter((e) => e.tagName === 'h2')
+    .map(htmlText);
 
 describe('--report', () => {
   it('tune writes the whole run as one page, or the curves alone as SVG', async () => {
     const model = join(dir, 'iris.tendon');
     const page = join(dir, 'run.html');
-    const r = await runCli('tune', join(dir, 'spec.json'), '--data', join(dir, 'iris.csv'), '--target', 'species', '-o', model, '--epochs', '8', '--holdout', '0.3', '--seed', '2', '--report', page);
+    const r = await runCli(
+      'tune',
+      join(dir, 'spec.json'),
+      '--data',
+      join(dir, 'iris.csv'),
+      '--target',
+      'species',
+      '-o',
+      model,
+      '--epochs',
+      '8',
+      '--holdout',
+      '0.3',
+      '--seed',
+      '2',
+      '--report',
+      page,
+    );
     expect(r.code).toBe(0);
-    expect(headings(await readFile(page, 'utf8'))).toEqual(['What the run says', 'Loss', 'Accuracy', 'Which classes get mixed up', 'Precision and recall per class', 'Gradient norm per layer', 'Dead ReLU units']);
+    expect(headings(await readFile(page, 'utf8'))).toEqual([
+      'What the run says',
+      'Loss',
+      'Accuracy',
+      'Which classes get mixed up',
+      'Precision and recall per class',
+      'Gradient norm per layer',
+      'Dead ReLU units',
+    ]);
     const svg = join(dir, 'run.svg');
-    expect((await runCli('tune', join(dir, 'spec.json'), '--data', join(dir, 'iris.csv'), '--target', 'species', '-o', model, '--epochs', '3', '--report', svg)).code).toBe(0);
+    expect(
+      (await runCli('tune', join(dir, 'spec.json'), '--data', join(dir, 'iris.csv'), '--target', 'species', '-o', model, '--epochs', '3', '--report', svg))
+        .code,
+    ).toBe(0);
     expect(await readFile(svg, 'utf8')).toMatch(/^<\?xml[^>]*>\n<svg xmlns="http:\/\/www\.w3\.org\/2000\/svg"/);
   });
 

@@ -62,7 +62,11 @@ describe('tendon score --shard K/N', () => {
           at += a.data.length;
         }
         expect(at).toBe(fullArray.data.length);
-        expect(Buffer.from(joined.buffer).equals(Buffer.from((fullArray.data as Float32Array).buffer, (fullArray.data as Float32Array).byteOffset, fullArray.data.byteLength))).toBe(true);
+        expect(
+          Buffer.from(joined.buffer).equals(
+            Buffer.from((fullArray.data as Float32Array).buffer, (fullArray.data as Float32Array).byteOffset, fullArray.data.byteLength),
+          ),
+        ).toBe(true);
       } else if (out === 'csv') {
         // Each part has the header; the rows under it, in order, are the full run's rows.
         const [header, ...rows] = full.toString('utf8').trimEnd().split('\n');

@@ -42,10 +42,36 @@ describe('tendon tune', () => {
   it('trains a model from a spec with no weights to >= 95% hold-out accuracy on Iris (common practice), writing a JSON-lines log and an SVG report', async () => {
     const out = join(dir, 'iris.tendon');
     const report = join(dir, 'iris.svg');
-    const r = await runCli('tune', join(dir, 'iris-spec.json'), '--data', join(dir, 'iris.csv'), '--target', 'species', '-o', out, '--epochs', '150', '--batch', '16', '--lr', '0.01', '--holdout', '0.3', '--seed', '3', '--report', report, '--engine', 'js');
+    const r = await runCli(
+      'tune',
+      join(dir, 'iris-spec.json'),
+      '--data',
+      join(dir, 'iris.csv'),
+      '--target',
+      'species',
+      '-o',
+      out,
+      '--epochs',
+      '150',
+      '--batch',
+      '16',
+      '--lr',
+      '0.01',
+      '--holdout',
+      '0.3',
+      '--seed',
+      '3',
+      '--report',
+      report,
+      '--engine',
+      'js',
+    );
     expect(r.err).toBe('');
     expect(r.code).toBe(0);
-    const records = r.out.trim().split('\n').map((l) => JSON.parse(l));
+    const records = r.out
+      .trim()
+      .split('\n')
+      .map((l) => JSON.parse(l));
     const epochs = records.filter((x) => 'epoch' in x);
     expect(epochs).toHaveLength(150);
     expect(epochs[epochs.length - 1].holdout.accuracy).toBeGreaterThanOrEqual(0.95);
@@ -65,7 +91,24 @@ describe('tendon tune', () => {
     const parent = join(dir, 'iris.tendon');
     const before = await readFile(parent);
     const out = join(dir, 'iris-tuned.tendon');
-    const r = await runCli('tune', parent, '--data', join(dir, 'iris.csv'), '--target', 'species', '-o', out, '--epochs', '2', '--anchor', '0.1', '--freeze', '0', '--engine', 'js');
+    const r = await runCli(
+      'tune',
+      parent,
+      '--data',
+      join(dir, 'iris.csv'),
+      '--target',
+      'species',
+      '-o',
+      out,
+      '--epochs',
+      '2',
+      '--anchor',
+      '0.1',
+      '--freeze',
+      '0',
+      '--engine',
+      'js',
+    );
     expect(r.code).toBe(0);
     expect(Buffer.compare(await readFile(parent), before)).toBe(0);
     const parentRead = await readModelFile(parent);
@@ -98,7 +141,27 @@ describe('tendon tune', () => {
   it('Ctrl-C (SIGINT) stops after the current batch and saves nothing', async () => {
     const cli = join(import.meta.dirname, '..', '..', 'dist', 'cli.js');
     const out = join(dir, 'interrupted.tendon');
-    const child = spawn(process.execPath, [cli, 'tune', join(dir, 'iris-spec.json'), '--data', join(dir, 'iris.csv'), '--target', 'species', '-o', out, '--epochs', '100000', '--batch', '1', '--engine', 'js'], { stdio: ['ignore', 'pipe', 'pipe'] });
+    const child = spawn(
+      process.execPath,
+      [
+        cli,
+        'tune',
+        join(dir, 'iris-spec.json'),
+        '--data',
+        join(dir, 'iris.csv'),
+        '--target',
+        'species',
+        '-o',
+        out,
+        '--epochs',
+        '100000',
+        '--batch',
+        '1',
+        '--engine',
+        'js',
+      ],
+      { stdio: ['ignore', 'pipe', 'pipe'] },
+    );
     let stderr = '';
     let stdout = '';
     child.stderr.on('data', (b) => (stderr += b));

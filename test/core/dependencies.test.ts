@@ -42,7 +42,11 @@ function areaOf(path: string): string {
 /** Relative module specifiers of static imports, re-exports and dynamic imports. */
 export function importedSpecifiers(text: string): string[] {
   const found: string[] = [];
-  const patterns = [/(?:^|\n)\s*(?:import|export)\s[^;]*?from\s*['"](\.[^'"]+)['"]/g, /(?:^|\n)\s*import\s*['"](\.[^'"]+)['"]/g, /import\(\s*['"](\.[^'"]+)['"]\s*\)/g];
+  const patterns = [
+    /(?:^|\n)\s*(?:import|export)\s[^;]*?from\s*['"](\.[^'"]+)['"]/g,
+    /(?:^|\n)\s*import\s*['"](\.[^'"]+)['"]/g,
+    /import\(\s*['"](\.[^'"]+)['"]\s*\)/g,
+  ];
   for (const pattern of patterns) for (const m of text.matchAll(pattern)) found.push(m[1]);
   return found;
 }
@@ -75,7 +79,9 @@ describe('dependency directions (DEVELOPERS.md, "Dependencies point one way")', 
   const edges = crossAreaEdges();
 
   it('finds the imports it checks (the parser sees static, re-export and dynamic imports)', () => {
-    expect(importedSpecifiers(`import { a } from './a.js';\nexport { b } from '../b/index.js';\nimport './side.js';\nconst c = await import('./c.js');`)).toEqual(['./a.js', '../b/index.js', './side.js', './c.js']);
+    expect(
+      importedSpecifiers(`import { a } from './a.js';\nexport { b } from '../b/index.js';\nimport './side.js';\nconst c = await import('./c.js');`),
+    ).toEqual(['./a.js', '../b/index.js', './side.js', './c.js']);
     // The façade reads files through format/ and runs models through engine/.
     expect(edges).toContainEqual(expect.objectContaining({ from: 'tendon', to: 'engine' }));
     expect(edges.length).toBeGreaterThan(50);

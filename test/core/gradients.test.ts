@@ -52,7 +52,11 @@ function expectMatchesFD(analytic: ArrayLike<number>, f: () => number, data: Flo
 }
 
 function quantisedMatrix(rng: SeededRng, rows: number, cols: number): Mat64 {
-  return mat64(rows, cols, Float64Array.from({ length: rows * cols }, () => quantise(rng.normal())));
+  return mat64(
+    rows,
+    cols,
+    Float64Array.from({ length: rows * cols }, () => quantise(rng.normal())),
+  );
 }
 
 function quantisedDense(rng: SeededRng, inputs: number, units: number, activation: ActivationName): Layer {
@@ -95,7 +99,11 @@ describe('dense backward against finite differences (common practice)', () => {
     const layer = quantisedDense(rng, 4, 3, activation);
     if (layer.kind !== 'dense') throw new Error('unreachable');
     const x = quantisedMatrix(rng, 5, 4);
-    const g = mat64(5, 3, Float64Array.from({ length: 15 }, () => rng.normal()));
+    const g = mat64(
+      5,
+      3,
+      Float64Array.from({ length: 15 }, () => rng.normal()),
+    );
     const ref = layerKind('dense').reference;
     const loss = () => weighted(ref.forward(layer, x, ctx, 0).y.data, g.data);
     const back = ref.backward(layer, ref.forward(layer, x, ctx, 0).saved, g);
@@ -115,7 +123,11 @@ describe('dense backward against finite differences (common practice)', () => {
     const layer = quantisedDense(rng, 4, 3, 'tanh');
     if (layer.kind !== 'dense') throw new Error('unreachable');
     const x = quantisedMatrix(rng, 5, 4);
-    const g = mat64(5, 3, Float64Array.from({ length: 15 }, () => rng.normal()));
+    const g = mat64(
+      5,
+      3,
+      Float64Array.from({ length: 15 }, () => rng.normal()),
+    );
     const ref = layerKind('dense').reference;
     const loss = () => weighted(ref.forward(layer, x, ctx, 0).z!.data, g.data);
     const back = ref.backward(layer, ref.forward(layer, x, ctx, 0).saved, g, { dyIsPreActivation: true });
@@ -142,7 +154,11 @@ describe('dense backward against finite differences (common practice)', () => {
       return s;
     };
     const p = ref.forward(layer, x, ctx, 0);
-    const dz = mat64(5, 3, p.y.data.map((v, i) => v - targets[i]));
+    const dz = mat64(
+      5,
+      3,
+      p.y.data.map((v, i) => v - targets[i]),
+    );
     const back = ref.backward(layer, p.saved, dz, { dyIsPreActivation: true });
     expectMatchesFD(back.grads[0], crossEntropy, layer.weight, 'dW');
     expectMatchesFD(back.dx.data, crossEntropy, x.data, 'dx');
@@ -165,7 +181,11 @@ describe('batchnorm backward against finite differences (common practice)', () =
     const layer = quantisedBatchNorm(rng, 4);
     if (layer.kind !== 'batchnorm') throw new Error('unreachable');
     const x = quantisedMatrix(rng, 6, 4);
-    const g = mat64(6, 4, Float64Array.from({ length: 24 }, () => rng.normal()));
+    const g = mat64(
+      6,
+      4,
+      Float64Array.from({ length: 24 }, () => rng.normal()),
+    );
     const ref = layerKind('batchnorm').reference;
     const loss = () => weighted(ref.forward(layer, x, ctx, 0).y.data, g.data);
     const back = ref.backward(layer, ref.forward(layer, x, ctx, 0).saved, g);
@@ -209,7 +229,11 @@ describe('dropout backward against finite differences (common practice)', () => 
     const rng = new SeededRng(51);
     const layer = dropoutOf(0.5);
     const x = quantisedMatrix(rng, 6, 5);
-    const g = mat64(6, 5, Float64Array.from({ length: 30 }, () => rng.normal()));
+    const g = mat64(
+      6,
+      5,
+      Float64Array.from({ length: 30 }, () => rng.normal()),
+    );
     const ctx = trainingContext(4);
     const ref = layerKind('dropout').reference;
     const loss = () => weighted(ref.forward(layer, x, ctx, 0).y.data, g.data);

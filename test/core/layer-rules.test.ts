@@ -7,14 +7,24 @@ import { buildFromSpec } from '../../src/spec/spec.js';
 const noFiles = { loadTensorFile: () => Promise.reject(new Error('no files')) };
 
 function bnDoc(momentum: number) {
-  const bn = { kind: 'batchnorm' as const, gamma: Float32Array.of(1, 1), beta: Float32Array.of(0, 0), runningMean: Float32Array.of(0, 0), runningVariance: Float32Array.of(1, 1), epsilon: 1e-5, momentum };
+  const bn = {
+    kind: 'batchnorm' as const,
+    gamma: Float32Array.of(1, 1),
+    beta: Float32Array.of(0, 0),
+    runningMean: Float32Array.of(0, 0),
+    runningVariance: Float32Array.of(1, 1),
+    epsilon: 1e-5,
+    momentum,
+  };
   return docOf(2, [bn, denseOf([1, 0, 0, 1], [0, 0], 'linear')]);
 }
 
 /** What each reader says of a batch-norm momentum: validation, the file check, and the spec behind pack. */
 async function verdicts(momentum: number): Promise<{ validate: string; file: string; spec: string }> {
   const doc = bnDoc(momentum);
-  const validate = modelProblems(doc).map((p) => p.message).join('; ');
+  const validate = modelProblems(doc)
+    .map((p) => p.message)
+    .join('; ');
   let file = '';
   try {
     decodeModel(encodeModel(doc), '(file)');

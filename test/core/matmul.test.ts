@@ -33,7 +33,14 @@ describe('reference matrix products against ml-matrix', () => {
     const rng = new SeededRng(n + k + m);
     const a = randomMatrix(rng, n, k);
     const b = randomMatrix(rng, n, m);
-    expect(maxDiff(matMulTransA64(a, n, k, b, m), toMatrix(a, n, k).transpose().mmul(toMatrix(b, n, m)))).toBeLessThan(1e-12);
+    expect(
+      maxDiff(
+        matMulTransA64(a, n, k, b, m),
+        toMatrix(a, n, k)
+          .transpose()
+          .mmul(toMatrix(b, n, m)),
+      ),
+    ).toBeLessThan(1e-12);
     const c = randomMatrix(rng, m, k);
     expect(maxDiff(matMulTransB64(a, n, k, c, m), toMatrix(a, n, k).mmul(toMatrix(c, m, k).transpose()))).toBeLessThan(1e-12);
   });

@@ -9,10 +9,7 @@ import { denseOf, docOf } from '../fixtures/models.js';
 // W[i][j] is input i -> unit j, row-major [inputs, units]:
 //   hidden: w1 (i1->h1) = W[0][0], w3 (i1->h2) = W[0][1], w2 (i2->h1) = W[1][0], w4 (i2->h2) = W[1][1]
 //   output: w5 (h1->o1) = W[0][0], w7 (h1->o2) = W[0][1], w6 (h2->o1) = W[1][0], w8 (h2->o2) = W[1][1]
-const doc = docOf(2, [
-  denseOf([0.15, 0.25, 0.2, 0.3], [0.35, 0.35], 'sigmoid'),
-  denseOf([0.4, 0.5, 0.45, 0.55], [0.6, 0.6], 'sigmoid'),
-]);
+const doc = docOf(2, [denseOf([0.15, 0.25, 0.2, 0.3], [0.35, 0.35], 'sigmoid'), denseOf([0.4, 0.5, 0.45, 0.55], [0.6, 0.6], 'sigmoid')]);
 const input = [0.05, 0.1];
 const targets = [0.01, 0.99];
 const expected = { hidden: [0.593269992, 0.596884378], out: [0.75136507, 0.772928465], eTotal: 0.298371109 };

@@ -29,19 +29,24 @@ describe.each([
   afterAll(() => session.dispose());
   const ref = normalise64(norm, mat64(rows, 3, Float64Array.from(x))).data;
 
-  it(method === 'zscore' ? 'gives mean 0 and standard deviation 1 per feature (common practice)' : 'maps each feature onto [0, 1] with both ends reached (common practice)', () => {
-    for (const c of [0, 2]) {
-      const v = [0, 1, 2, 3].map((r) => ref[r * 3 + c]);
-      if (method === 'zscore') {
-        const m = v.reduce((a, b) => a + b, 0) / rows;
-        expect(m).toBeCloseTo(0, 14);
-        expect(Math.sqrt(v.reduce((a, b) => a + (b - m) ** 2, 0) / rows)).toBeCloseTo(1, 14);
-      } else {
-        expect(Math.min(...v)).toBe(0);
-        expect(Math.max(...v)).toBe(1);
+  it(
+    method === 'zscore'
+      ? 'gives mean 0 and standard deviation 1 per feature (common practice)'
+      : 'maps each feature onto [0, 1] with both ends reached (common practice)',
+    () => {
+      for (const c of [0, 2]) {
+        const v = [0, 1, 2, 3].map((r) => ref[r * 3 + c]);
+        if (method === 'zscore') {
+          const m = v.reduce((a, b) => a + b, 0) / rows;
+          expect(m).toBeCloseTo(0, 14);
+          expect(Math.sqrt(v.reduce((a, b) => a + (b - m) ** 2, 0) / rows)).toBeCloseTo(1, 14);
+        } else {
+          expect(Math.min(...v)).toBe(0);
+          expect(Math.max(...v)).toBe(1);
+        }
       }
-    }
-  });
+    },
+  );
 
   it('maps a constant feature to 0 on both paths', () => {
     const engine = session.run(Float32Array.from(x), rows);

@@ -49,7 +49,18 @@ describe('a toy activation registered through the catalogue alone', () => {
   it('is an activation name while registered, and not before (the hook is what adds it)', () => {
     expect(isActivationName('softsign')).toBe(true);
     expect(isActivationName('softsign2')).toBe(false);
-    const plain = { usesAlpha: false, init: 'glorot' as const, refForward: (z: Float64Array) => z, refBackward: (_z: Float64Array, _y: Float64Array, dy: Float64Array) => dy, engineForward: (z: tf.Tensor2D) => z, engineBackward: (_z: tf.Tensor2D, _y: tf.Tensor2D, dy: tf.Tensor2D) => dy, f32: pointwiseF32((z) => z, () => 1) };
+    const plain = {
+      usesAlpha: false,
+      init: 'glorot' as const,
+      refForward: (z: Float64Array) => z,
+      refBackward: (_z: Float64Array, _y: Float64Array, dy: Float64Array) => dy,
+      engineForward: (z: tf.Tensor2D) => z,
+      engineBackward: (_z: tf.Tensor2D, _y: tf.Tensor2D, dy: tf.Tensor2D) => dy,
+      f32: pointwiseF32(
+        (z) => z,
+        () => 1,
+      ),
+    };
     // Codes are never reused (7 is softmax's), and a name is registered once.
     expect(() => registerActivation({ ...plain, name: 'other', code: 7 })).toThrow(/code 7 is already taken/);
     expect(() => registerActivation({ ...plain, name: 'softsign', code: 100 })).toThrow(/already in the catalogue/);
@@ -121,6 +132,10 @@ describe('a toy activation registered through the catalogue alone', () => {
     const spec = { inputs: 2, layers: [{ kind: 'dense', size: 2, activation: 'softsign' }] };
     const doc = await buildFromSpec(spec, 'toy.json', { loadTensorFile: () => Promise.reject(new Error('no files')) });
     expect(doc.layers[0]).toMatchObject({ kind: 'dense', activation: 'softsign' });
-    await expect(buildFromSpec({ inputs: 2, layers: [{ kind: 'dense', size: 2, activation: 'softsine' }] }, 'toy.json', { loadTensorFile: () => Promise.reject(new Error('no files')) })).rejects.toThrow(/softsign/);
+    await expect(
+      buildFromSpec({ inputs: 2, layers: [{ kind: 'dense', size: 2, activation: 'softsine' }] }, 'toy.json', {
+        loadTensorFile: () => Promise.reject(new Error('no files')),
+      }),
+    ).rejects.toThrow(/softsign/);
   });
 });

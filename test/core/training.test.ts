@@ -28,7 +28,11 @@ describe('training passes over a whole network', () => {
   afterAll(() => session.dispose());
 
   const f = referenceForwardTrain(doc, toMat64(x, rows, 5), ctx);
-  const dz = mat64(rows, 3, f.y.data.map((p, i) => p - targets[i]));
+  const dz = mat64(
+    rows,
+    3,
+    f.y.data.map((p, i) => p - targets[i]),
+  );
   const back = referenceBackwardTape(doc, f.tape, dz, { dyIsPreActivation: true });
 
   it('the float64 tape gives the cross-entropy gradient of every parameter (common practice: finite differences)', () => {
@@ -36,21 +40,23 @@ describe('training passes over a whole network', () => {
     const h = 2 ** -16;
     let worst = 0;
     doc.layers.forEach((layer, li) => {
-      layerKind(layer.kind).trainable(layer, modelWidths(doc)[li], li).forEach((p, pi) => {
-        for (let i = 0; i < p.data.length; i += 3) {
-          const keep = p.data[i];
-          p.data[i] = keep + h;
-          const up = crossEntropy();
-          const stepUp = p.data[i];
-          p.data[i] = keep - h;
-          const down = crossEntropy();
-          const stepDown = p.data[i];
-          p.data[i] = keep;
-          const fd = (up - down) / (stepUp - stepDown);
-          const a = back.grads[li][pi][i];
-          worst = Math.max(worst, Math.abs(a - fd) / Math.max(Math.abs(a), Math.abs(fd), 1e-6));
-        }
-      });
+      layerKind(layer.kind)
+        .trainable(layer, modelWidths(doc)[li], li)
+        .forEach((p, pi) => {
+          for (let i = 0; i < p.data.length; i += 3) {
+            const keep = p.data[i];
+            p.data[i] = keep + h;
+            const up = crossEntropy();
+            const stepUp = p.data[i];
+            p.data[i] = keep - h;
+            const down = crossEntropy();
+            const stepDown = p.data[i];
+            p.data[i] = keep;
+            const fd = (up - down) / (stepUp - stepDown);
+            const a = back.grads[li][pi][i];
+            worst = Math.max(worst, Math.abs(a - fd) / Math.max(Math.abs(a), Math.abs(fd), 1e-6));
+          }
+        });
     });
     expect(worst).toBeLessThan(1e-6);
   });
@@ -74,7 +80,9 @@ describe('training passes over a whole network', () => {
     const eg = session.backward(ef.tape, Float32Array.from(dz.data), { dyIsPreActivation: true });
     eg.dx.forEach((v, i) => expect(withinTolerance(v, back.dx.data[i]), `dx[${i}]`).toBe(true));
     eg.grads.forEach((list, li) =>
-      list.forEach((g, pi) => g.forEach((v, i) => expect(withinTolerance(v, back.grads[li][pi][i]), `grads[${li}][${pi}][${i}]: ${v} vs ${back.grads[li][pi][i]}`).toBe(true))),
+      list.forEach((g, pi) =>
+        g.forEach((v, i) => expect(withinTolerance(v, back.grads[li][pi][i]), `grads[${li}][${pi}][${i}]: ${v} vs ${back.grads[li][pi][i]}`).toBe(true)),
+      ),
     );
     expect(eg.grads[2]).toEqual([]);
   });

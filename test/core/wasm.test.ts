@@ -33,7 +33,13 @@ describe('wasm engine', () => {
   // Common practice: a float32 path matches a float64 path within a float32 tolerance.
   it.each([...ACTIVATIONS])('parity with the float64 reference, %s, batchnorm and dropout mixed in', (activation) => {
     const rng = new SeededRng(activation.length + 300);
-    const layers: Layer[] = [randomDense(rng, 20, 64, activation), randomBatchNorm(rng, 64), dropoutOf(0.3), randomDense(rng, 64, 64, activation), randomDense(rng, 64, 5, activation)];
+    const layers: Layer[] = [
+      randomDense(rng, 20, 64, activation),
+      randomBatchNorm(rng, 64),
+      dropoutOf(0.3),
+      randomDense(rng, 64, 64, activation),
+      randomDense(rng, 64, 5, activation),
+    ];
     const doc = docOf(20, layers, activation.length % 2 ? zscoreOf(rng, 20) : minmaxOf(rng, 20));
     const report = parityReport(doc, randomInputs(doc, 128, 3), 128);
     expect(report.pass, JSON.stringify(report.output)).toBe(true);
@@ -56,7 +62,9 @@ describe('wasm engine', () => {
     const back = referenceBackwardTape(doc, ref.tape, toMat64(dy, 5, 2));
     f.y.forEach((v, i) => expect(withinTolerance(v, ref.y.data[i]), `y[${i}]`).toBe(true));
     g.dx.forEach((v, i) => expect(withinTolerance(v, back.dx.data[i]), `dx[${i}]`).toBe(true));
-    g.grads.forEach((list, li) => list.forEach((t, pi) => t.forEach((v, i) => expect(withinTolerance(v, back.grads[li][pi][i]), `grads[${li}][${pi}][${i}]`).toBe(true))));
+    g.grads.forEach((list, li) =>
+      list.forEach((t, pi) => t.forEach((v, i) => expect(withinTolerance(v, back.grads[li][pi][i]), `grads[${li}][${pi}][${i}]`).toBe(true))),
+    );
   });
 
   it('a session refuses to run after the process switched backend', async () => {

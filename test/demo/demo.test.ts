@@ -29,7 +29,9 @@ describe('tendon demo', () => {
     expect(outcome.explained).not.toBeNull();
     expect(outcome.explained!.top).toHaveLength(3);
     expect(outcome.explained!.gap).toBeLessThan(0.01);
-    expect(lines.join('\n')).toMatch(/why new loaf \d+ was flagged "(under|over)" .*: [a-z0-9 ]+ [+-]\d\.\d\d, [a-z0-9 ]+ [+-]\d\.\d\d, [a-z0-9 ]+ [+-]\d\.\d\d/);
+    expect(lines.join('\n')).toMatch(
+      /why new loaf \d+ was flagged "(under|over)" .*: [a-z0-9 ]+ [+-]\d\.\d\d, [a-z0-9 ]+ [+-]\d\.\d\d, [a-z0-9 ]+ [+-]\d\.\d\d/,
+    );
     expect(lines.join('\n')).toContain('not causes in the world');
     // Calibration before and after on new loaves (Guo et al. 2017; invented data pins the demo's numbers' direction).
     expect(outcome.calibration.temperature).toBeGreaterThan(0);

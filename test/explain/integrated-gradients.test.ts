@@ -37,7 +37,7 @@ function rowsNear(doc: ModelDoc, rows: number, seed: number): Float64Array {
   });
 }
 
-describe('integrated gradients: linear model (the paper: a_i = (x_i - x\'_i) w_i exactly)', () => {
+describe("integrated gradients: linear model (the paper: a_i = (x_i - x'_i) w_i exactly)", () => {
   it('equals (x - baseline) · w for every feature and output, at any number of steps', () => {
     const w = [0.5, -1.25, 2, 0, 0.75, -0.5]; // [3 inputs, 2 outputs]
     const doc = docOf(3, [denseOf(w, [0.1, -0.2], 'linear')]);
@@ -70,22 +70,25 @@ describe('integrated gradients: linear model (the paper: a_i = (x_i - x\'_i) w_i
 });
 
 describe('integrated gradients: completeness on deep models with every activation', () => {
-  it.each(ACTIVATIONS.map((a) => [a]))('%s hidden layers: attributions sum to score - baseline score within 1%% (of the larger of that difference and sum |a_i|)', (activation) => {
-    const doc = deepDoc(activation, 20 + ACTIVATIONS.indexOf(activation));
-    const rows = 12;
-    const x = rowsNear(doc, rows, 5);
-    const baseline = Float64Array.from(doc.normalise?.method === 'zscore' ? doc.normalise.mean! : new Float64Array(4));
-    const e = explainRows(doc, x, rows, { output: 'top', baseline, steps: 64 });
-    expect(e.overTolerance).toBe(0);
-    for (let r = 0; r < rows; r++) {
-      let sum = 0;
-      for (let i = 0; i < 4; i++) sum += e.attributions[r * 4 + i];
-      let size = 0;
-      for (let i = 0; i < 4; i++) size += Math.abs(e.attributions[r * 4 + i]);
-      const delta = e.score[r] - e.baselineScore[r];
-      expect(Math.abs(sum - delta)).toBeLessThanOrEqual(0.01 * Math.max(Math.abs(delta), size));
-    }
-  });
+  it.each(ACTIVATIONS.map((a) => [a]))(
+    '%s hidden layers: attributions sum to score - baseline score within 1%% (of the larger of that difference and sum |a_i|)',
+    (activation) => {
+      const doc = deepDoc(activation, 20 + ACTIVATIONS.indexOf(activation));
+      const rows = 12;
+      const x = rowsNear(doc, rows, 5);
+      const baseline = Float64Array.from(doc.normalise?.method === 'zscore' ? doc.normalise.mean! : new Float64Array(4));
+      const e = explainRows(doc, x, rows, { output: 'top', baseline, steps: 64 });
+      expect(e.overTolerance).toBe(0);
+      for (let r = 0; r < rows; r++) {
+        let sum = 0;
+        for (let i = 0; i < 4; i++) sum += e.attributions[r * 4 + i];
+        let size = 0;
+        for (let i = 0; i < 4; i++) size += Math.abs(e.attributions[r * 4 + i]);
+        const delta = e.score[r] - e.baselineScore[r];
+        expect(Math.abs(sum - delta)).toBeLessThanOrEqual(0.01 * Math.max(Math.abs(delta), size));
+      }
+    },
+  );
 
   it('on a smooth model the midpoint rule closes the gap as 1/steps² (tanh; 4x the steps, about 16x smaller)', () => {
     const doc = deepDoc('tanh', 7, 'minmax');

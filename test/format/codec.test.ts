@@ -283,38 +283,80 @@ describe('content checks report every problem at once', () => {
     ['unknown dtype code', (r) => void (r.layers[0].dense!.weight!.dtype = 9), 'layers[0].dense.weight', /unknown dtype code 9/],
     ['weight not 2-D', (r) => void (r.layers[0].dense!.weight!.shape = [12]), 'layers[0].dense.weight', /2-D/],
     ['weight columns != size', (r) => void (r.layers[0].dense!.weight!.shape = [6, 2]), 'layers[0].dense.weight', /size is 4/],
-    ['weight rows != incoming width', (r) => {
-      const w = r.layers[3].dense!.weight!;
-      w.shape = [2, 5];
-      w.data = w.data.subarray(0, 40);
-    }, 'layers[3].dense.weight', /takes 2 inputs, but layers\[1\] \(batchnorm\) gives width 4/],
-    ['non-finite weight', (r) => void new DataView(r.layers[0].dense!.weight!.data.buffer, r.layers[0].dense!.weight!.data.byteOffset).setFloat32(4, Infinity, true), 'layers[0].dense.weight', /non-finite/],
+    [
+      'weight rows != incoming width',
+      (r) => {
+        const w = r.layers[3].dense!.weight!;
+        w.shape = [2, 5];
+        w.data = w.data.subarray(0, 40);
+      },
+      'layers[3].dense.weight',
+      /takes 2 inputs, but layers\[1\] \(batchnorm\) gives width 4/,
+    ],
+    [
+      'non-finite weight',
+      (r) => void new DataView(r.layers[0].dense!.weight!.data.buffer, r.layers[0].dense!.weight!.data.byteOffset).setFloat32(4, Infinity, true),
+      'layers[0].dense.weight',
+      /non-finite/,
+    ],
     ['missing bias', (r) => void (r.layers[0].dense!.bias = null), 'layers[0].dense.bias', /missing/],
-    ['negative running variance', (r) => void new DataView(r.layers[1].batchnorm!.running_variance!.data.buffer, r.layers[1].batchnorm!.running_variance!.data.byteOffset).setFloat32(8, -0.5, true), 'layers[1].batchnorm.running_variance', /negative/],
-    ['batchnorm vectors of unequal length', (r) => {
-      const gamma = r.layers[1].batchnorm!.gamma!;
-      gamma.shape = [3];
-      gamma.data = gamma.data.subarray(0, 12);
-    }, 'layers[1].batchnorm', /unequal lengths/],
+    [
+      'negative running variance',
+      (r) =>
+        void new DataView(r.layers[1].batchnorm!.running_variance!.data.buffer, r.layers[1].batchnorm!.running_variance!.data.byteOffset).setFloat32(
+          8,
+          -0.5,
+          true,
+        ),
+      'layers[1].batchnorm.running_variance',
+      /negative/,
+    ],
+    [
+      'batchnorm vectors of unequal length',
+      (r) => {
+        const gamma = r.layers[1].batchnorm!.gamma!;
+        gamma.shape = [3];
+        gamma.data = gamma.data.subarray(0, 12);
+      },
+      'layers[1].batchnorm',
+      /unequal lengths/,
+    ],
     ['no layer kind set', (r) => void (r.layers[2] = {}), 'layers[2]', /no layer kind/],
     ['normalisation of the wrong length', (r) => void r.zscore!.mean.push(1), 'zscore.mean', /expected 3/],
     ['labels count != outputs', (r) => void r.output_labels.push('maybe'), 'output_labels', /3 labels for 2 outputs/],
     ['bad provenance checksum', (r) => void (r.lineage[0].checksum = 'XYZ'), 'lineage[0].checksum', /hex/],
-    ['i8 scales count != columns', (r) => {
-      const w = r.layers[0].dense!.weight!;
-      w.dtype = DTYPE_CODES.i8;
-      w.data = w.data.subarray(0, 12);
-      w.scales = [1, 1];
-    }, 'layers[0].dense.weight', /2 scales, expected one per column \(4\)/],
+    [
+      'i8 scales count != columns',
+      (r) => {
+        const w = r.layers[0].dense!.weight!;
+        w.dtype = DTYPE_CODES.i8;
+        w.data = w.data.subarray(0, 12);
+        w.scales = [1, 1];
+      },
+      'layers[0].dense.weight',
+      /2 scales, expected one per column \(4\)/,
+    ],
     // A zero scale would silently zero its column's codes; negative, NaN and infinite ones are nonsense.
-    ...([['zero', 0], ['negative', -0.5], ['NaN', Number.NaN], ['infinite', Infinity]] as const).map(
+    ...(
+      [
+        ['zero', 0],
+        ['negative', -0.5],
+        ['NaN', Number.NaN],
+        ['infinite', Infinity],
+      ] as const
+    ).map(
       ([what, bad]) =>
-        [`i8 ${what} scale`, (r: RawModel) => {
-          const w = r.layers[0].dense!.weight!;
-          w.dtype = DTYPE_CODES.i8;
-          w.data = w.data.subarray(0, 12);
-          w.scales = [0.5, 0.25, bad, 1];
-        }, 'layers[0].dense.weight.scales', /1 zero, negative or non-finite scale value \(first at element 2/] as [string, (r: RawModel) => void, string, RegExp],
+        [
+          `i8 ${what} scale`,
+          (r: RawModel) => {
+            const w = r.layers[0].dense!.weight!;
+            w.dtype = DTYPE_CODES.i8;
+            w.data = w.data.subarray(0, 12);
+            w.scales = [0.5, 0.25, bad, 1];
+          },
+          'layers[0].dense.weight.scales',
+          /1 zero, negative or non-finite scale value \(first at element 2/,
+        ] as [string, (r: RawModel) => void, string, RegExp],
     ),
   ])('%s', (_name, edit, where, message) => {
     const file = crafted(everyKindDoc(), edit);

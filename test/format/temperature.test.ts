@@ -17,8 +17,10 @@ import { thrown } from './helpers.js';
  * copied from FORMAT.md section 8 (65 bytes, checksum 5bf7abeb).
  */
 const OLD_FILE = Uint8Array.from(
-  ('54 4e 44 4e 01 00 00 00 31 00 00 00 eb ab f7 5b 08 02 32 25 0a 23 08 01 10 04 22 10 08 01 12 02 ' +
-    '02 01 1a 08 00 00 00 3f 00 00 80 bf 2a 0b 08 01 12 01 01 1a 04 00 00 80 3e 3a 06 0a 04 74 69 6e 79')
+  (
+    '54 4e 44 4e 01 00 00 00 31 00 00 00 eb ab f7 5b 08 02 32 25 0a 23 08 01 10 04 22 10 08 01 12 02 ' +
+    '02 01 1a 08 00 00 00 3f 00 00 80 bf 2a 0b 08 01 12 01 01 1a 04 00 00 80 3e 3a 06 0a 04 74 69 6e 79'
+  )
     .split(' ')
     .map((h) => parseInt(h, 16)),
 );

@@ -25,7 +25,21 @@ const ARITHS: Int8Arith[] = [...(relaxedDotAvailable() ? (['relaxed'] as const) 
 interface Harness {
   readonly mem: ArrayBuffer;
   quantise(src: number, sStride: number, rows: number, width: number, dst: number, dStride: number, params: number): void;
-  dense(x: number, xs: number, p: number, w: number, cs: number, ws: number, b: number, y: number, ys: number, rows: number, groups: number, outP: number, relu: number): void;
+  dense(
+    x: number,
+    xs: number,
+    p: number,
+    w: number,
+    cs: number,
+    ws: number,
+    b: number,
+    y: number,
+    ys: number,
+    rows: number,
+    groups: number,
+    outP: number,
+    relu: number,
+  ): void;
 }
 
 function harness(arith: Int8Arith, bytes: number): Harness {
@@ -37,7 +51,18 @@ function harness(arith: Int8Arith, bytes: number): Harness {
 }
 
 /** Run quantise then dense over rows x kP floats against [inputs, units] codes; returns y, codes and params. */
-function runTile(arith: Int8Arith, x: Float32Array, rows: number, kP: number, codes: Int8Array, scales: Float32Array, bias: Float32Array, inputs: number, units: number, relu: boolean) {
+function runTile(
+  arith: Int8Arith,
+  x: Float32Array,
+  rows: number,
+  kP: number,
+  codes: Int8Array,
+  scales: Float32Array,
+  bias: Float32Array,
+  inputs: number,
+  units: number,
+  relu: boolean,
+) {
   const nP = Math.ceil(units / 16) * 16;
   const cb = CODE_BYTES[arith];
   const packed = packInt8Weights(codes, inputs, units, kP, nP, arith);
@@ -47,7 +72,14 @@ function runTile(arith: Int8Arith, x: Float32Array, rows: number, kP: number, co
     top = Math.ceil((top + n) / 64) * 64;
     return at;
   };
-  const X = take(rows * kP * 4), Q = take(rows * kP * cb), P = take(rows * 8), W = take(packed.length), CS = take(nP * 4), WS = take(nP * 4), B = take(nP * 4), Y = take(rows * nP * 4);
+  const X = take(rows * kP * 4),
+    Q = take(rows * kP * cb),
+    P = take(rows * 8),
+    W = take(packed.length),
+    CS = take(nP * 4),
+    WS = take(nP * 4),
+    B = take(nP * 4),
+    Y = take(rows * nP * 4);
   const h = harness(arith, top);
   const f32 = new Float32Array(h.mem);
   f32.set(x, X / 4);
@@ -62,7 +94,12 @@ function runTile(arith: Int8Arith, x: Float32Array, rows: number, kP: number, co
   h.quantise(X, kP * 4, rows, kP, Q, kP * cb, P);
   h.dense(Q, kP * cb, P, W, CS, WS, B, Y, nP * 4, rows, kP / 4, nP, relu ? 1 : 0);
   const q = cb === 1 ? new Uint8Array(h.mem, Q, rows * kP) : new Int16Array(h.mem, Q, rows * kP);
-  return { y: new Float32Array(h.mem, Y, rows * nP), q: Array.from(q), params: { scale: new Float32Array(h.mem, P, rows * 2), zero: new Int32Array(h.mem, P, rows * 2) }, nP };
+  return {
+    y: new Float32Array(h.mem, Y, rows * nP),
+    q: Array.from(q),
+    params: { scale: new Float32Array(h.mem, P, rows * 2), zero: new Int32Array(h.mem, P, rows * 2) },
+    nP,
+  };
 }
 
 function randomCodes(rng: SeededRng, n: number): Int8Array {

@@ -22,7 +22,13 @@ function i8Of(doc: ModelDoc): ModelDoc {
 describe.each(ARITHS)('Int8Session (%s)', (arith) => {
   it.each([...ACTIVATIONS])('within the derived int8 bound of the float64 reference, every layer, %s, batchnorm and dropout mixed in', (activation) => {
     const rng = new SeededRng(activation.length * 7 + 11);
-    const layers: Layer[] = [randomDense(rng, 20, 40, activation), randomBatchNorm(rng, 40), dropoutOf(0.3), randomDense(rng, 40, 33, 'relu'), randomDense(rng, 33, 5, activation)];
+    const layers: Layer[] = [
+      randomDense(rng, 20, 40, activation),
+      randomBatchNorm(rng, 40),
+      dropoutOf(0.3),
+      randomDense(rng, 40, 33, 'relu'),
+      randomDense(rng, 33, 5, activation),
+    ];
     const doc = i8Of(docOf(20, layers, activation.length % 2 ? zscoreOf(rng, 20) : minmaxOf(rng, 20)));
     const session = new Int8Session(doc, { arith });
     const report = int8ParityReport(doc, randomInputs(doc, 61, 3), 61, session);
@@ -38,7 +44,10 @@ describe.each(ARITHS)('Int8Session (%s)', (arith) => {
   it('the bound catches a wrong answer: a bias off by 0.5 fails parity', () => {
     const rng = new SeededRng(3);
     const doc = i8Of(docOf(30, [randomDense(rng, 30, 20, 'relu'), randomDense(rng, 20, 4, 'linear')]));
-    const wrong: ModelDoc = { ...doc, layers: doc.layers.map((l, i) => (i === 1 && l.kind === 'dense' ? { ...l, bias: l.bias.map((b, j) => (j === 2 ? b + 0.5 : b)) } : l)) };
+    const wrong: ModelDoc = {
+      ...doc,
+      layers: doc.layers.map((l, i) => (i === 1 && l.kind === 'dense' ? { ...l, bias: l.bias.map((b, j) => (j === 2 ? b + 0.5 : b)) } : l)),
+    };
     const session = new Int8Session(wrong, { arith });
     const report = int8ParityReport(doc, randomInputs(doc, 32, 1), 32, session);
     session.dispose();
@@ -73,7 +82,9 @@ describe.each(ARITHS)('Int8Session (%s)', (arith) => {
   // overlapped (they did once: a third of the rows came out wrong).
   it('two threads give the same bits as one on wide-then-narrow layers, 2000 rows', async () => {
     const rng = new SeededRng(40);
-    const doc = i8Of(docOf(300, [randomDense(rng, 300, 256, 'relu'), randomDense(rng, 256, 128, 'relu'), randomDense(rng, 128, 10, 'softmax')], zscoreOf(rng, 300)));
+    const doc = i8Of(
+      docOf(300, [randomDense(rng, 300, 256, 'relu'), randomDense(rng, 256, 128, 'relu'), randomDense(rng, 128, 10, 'softmax')], zscoreOf(rng, 300)),
+    );
     const rows = 2000;
     const x = randomInputs(doc, rows, 9);
     const one = new Int8Session(doc, { arith });
@@ -87,7 +98,13 @@ describe.each(ARITHS)('Int8Session (%s)', (arith) => {
 
   it('two threads give the same bits as one, rows not a multiple of the tile, several chunks', async () => {
     const rng = new SeededRng(4);
-    const doc = i8Of(docOf(50, [randomDense(rng, 50, 70, 'relu'), randomBatchNorm(rng, 70), randomDense(rng, 70, 30, 'tanh'), randomDense(rng, 30, 6, 'softmax')], zscoreOf(rng, 50)));
+    const doc = i8Of(
+      docOf(
+        50,
+        [randomDense(rng, 50, 70, 'relu'), randomBatchNorm(rng, 70), randomDense(rng, 70, 30, 'tanh'), randomDense(rng, 30, 6, 'softmax')],
+        zscoreOf(rng, 50),
+      ),
+    );
     const rows = 301;
     const x = randomInputs(doc, rows, 8);
     const one = new Int8Session(doc, { arith, chunkRows: 128 });

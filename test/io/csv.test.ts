@@ -17,13 +17,48 @@ function tokenize(text: string, pieceSize = text.length || 1): { cells: string[]
 describe('CSV records (RFC 4180 section 2)', () => {
   // Every case is also fed one character at a time, so state carried across pieces is checked.
   const cases: [string, string, string[][]][] = [
-    ['rule 1: CRLF line ends', 'aaa,bbb,ccc\r\nzzz,yyy,xxx\r\n', [['aaa', 'bbb', 'ccc'], ['zzz', 'yyy', 'xxx']]],
-    ['rule 2: last record without a line break', 'aaa,bbb,ccc\r\nzzz,yyy,xxx', [['aaa', 'bbb', 'ccc'], ['zzz', 'yyy', 'xxx']]],
+    [
+      'rule 1: CRLF line ends',
+      'aaa,bbb,ccc\r\nzzz,yyy,xxx\r\n',
+      [
+        ['aaa', 'bbb', 'ccc'],
+        ['zzz', 'yyy', 'xxx'],
+      ],
+    ],
+    [
+      'rule 2: last record without a line break',
+      'aaa,bbb,ccc\r\nzzz,yyy,xxx',
+      [
+        ['aaa', 'bbb', 'ccc'],
+        ['zzz', 'yyy', 'xxx'],
+      ],
+    ],
     ['rule 5: quoted fields', '"aaa","bbb","ccc"\r\n', [['aaa', 'bbb', 'ccc']]],
-    ['rule 6: line break and comma inside quotes', '"aaa","b\r\nbb","c,cc"\r\nzzz,yyy,xxx', [['aaa', 'b\r\nbb', 'c,cc'], ['zzz', 'yyy', 'xxx']]],
+    [
+      'rule 6: line break and comma inside quotes',
+      '"aaa","b\r\nbb","c,cc"\r\nzzz,yyy,xxx',
+      [
+        ['aaa', 'b\r\nbb', 'c,cc'],
+        ['zzz', 'yyy', 'xxx'],
+      ],
+    ],
     ['rule 7: doubled quote', '"aaa","b""bb","ccc"', [['aaa', 'b"bb', 'ccc']]],
-    ['LF line ends (common practice)', 'a,b\n1,2\n', [['a', 'b'], ['1', '2']]],
-    ['empty fields', ',\n"",x\n', [['', ''], ['', 'x']]],
+    [
+      'LF line ends (common practice)',
+      'a,b\n1,2\n',
+      [
+        ['a', 'b'],
+        ['1', '2'],
+      ],
+    ],
+    [
+      'empty fields',
+      ',\n"",x\n',
+      [
+        ['', ''],
+        ['', 'x'],
+      ],
+    ],
     ['trailing comma opens an empty last field', 'a,b,', [['a', 'b', '']]],
     ['blank lines skipped (common practice)', 'a\n\n\r\nb\n', [['a'], ['b']]],
     ['a lone quoted empty cell is a record', '""\n', [['']]],
@@ -250,7 +285,10 @@ describe('CSV separators, unnamed and skipped columns', () => {
 
   it('reads a .tsv file with tabs even when the header holds a comma', async () => {
     const t = await readTable(file('t.tsv', 'a, b\tc\n1\t2\n'));
-    expect([t.columns, Array.from(t.data)]).toEqual([['a, b', 'c'], [1, 2]]);
+    expect([t.columns, Array.from(t.data)]).toEqual([
+      ['a, b', 'c'],
+      [1, 2],
+    ]);
   });
 
   it('never parses skipped columns nor unnamed ones: blanks and words there are fine, NaN in their slots', async () => {

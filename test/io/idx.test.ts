@@ -16,7 +16,7 @@ function idxBytes(typeCode: number, dims: number[], data: number[], elementSize:
   return out;
 }
 
-describe('IDX (layout from LeCun\'s MNIST page)', () => {
+describe("IDX (layout from LeCun's MNIST page)", () => {
   it('reads a label vector, magic 0x00000801', () => {
     const bytes = idxBytes(0x08, [4], [7, 2, 1, 0], 1, (v, a, x) => v.setUint8(a, x));
     expect(bytes.readUInt32BE(0)).toBe(0x00000801); // the label files' magic number

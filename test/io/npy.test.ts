@@ -1,16 +1,7 @@
 import { spawnSync } from 'node:child_process';
 import { readFileSync } from 'node:fs';
 import { describe, expect, it } from 'vitest';
-import {
-  decodeNpy,
-  encodeNpy,
-  formatNpyHeader,
-  openNpyRowWriter,
-  parseNpyDict,
-  readNpy,
-  readTable,
-  writeNpy,
-} from '../../src/io/index.js';
+import { decodeNpy, encodeNpy, formatNpyHeader, openNpyRowWriter, parseNpyDict, readNpy, readTable, writeNpy } from '../../src/io/index.js';
 import { captureDataError, FIXTURES, seededRandom, tempFolder } from './helpers.js';
 
 const file = tempFolder();
@@ -20,7 +11,8 @@ const hasNumpy = spawnSync('python3', ['-c', 'import numpy'], { encoding: 'utf8'
 
 /** Loads `path` with NumPy and prints dtype, shape and values as JSON. */
 function numpyLoad(path: string): { dtype: string; shape: number[]; values: number[] } {
-  const script = 'import json,sys,numpy as np; a=np.load(sys.argv[1]); print(json.dumps({"dtype": a.dtype.str, "shape": list(a.shape), "values": a.ravel().astype(float).tolist()}))';
+  const script =
+    'import json,sys,numpy as np; a=np.load(sys.argv[1]); print(json.dumps({"dtype": a.dtype.str, "shape": list(a.shape), "values": a.ravel().astype(float).tolist()}))';
   const run = spawnSync('python3', ['-c', script, path], { encoding: 'utf8' });
   if (run.status !== 0) throw new Error(`numpy could not load ${path}: ${run.stderr}`);
   return JSON.parse(run.stdout);
@@ -46,7 +38,10 @@ describe('NPY reading (files written by NumPy, NEP 1)', () => {
     expect(Array.from((await readNpy(fixture('f4-1d.npy'))).data)).toEqual([1.5, -2.25, 3]);
     const u1 = await readNpy(fixture('u1-2d.npy'));
     expect(u1.data).toBeInstanceOf(Uint8Array);
-    expect([u1.shape, Array.from(u1.data)]).toEqual([[2, 3], [0, 1, 2, 3, 4, 5]]);
+    expect([u1.shape, Array.from(u1.data)]).toEqual([
+      [2, 3],
+      [0, 1, 2, 3, 4, 5],
+    ]);
     const i4 = await readNpy(fixture('i4-1d.npy'));
     expect(i4.data).toBeInstanceOf(Int32Array);
     expect(Array.from(i4.data)).toEqual([-3, 0, 7]);

@@ -89,7 +89,7 @@ describe('table writers', () => {
     expect(back.data).toEqual(values);
     if (hasNumpy) {
       const run = spawnSync('python3', ['-c', 'import sys,numpy as np; a=np.load(sys.argv[1]); print(a.dtype.str, a.shape)', path], { encoding: 'utf8' });
-      expect(run.stdout.trim()).toBe("<f4 (5, 4)");
+      expect(run.stdout.trim()).toBe('<f4 (5, 4)');
     }
   });
 

@@ -42,11 +42,35 @@ describe.skipIf(!wanted)('Fashion-MNIST as a 133 MB CSV (opt-in: TENDON_FASHION=
         features,
         labels: ['T-shirt/top', 'Trouser', 'Pullover', 'Dress', 'Coat', 'Sandal', 'Shirt', 'Sneaker', 'Bag', 'Ankle boot'],
         normalise: { method: 'zscore' },
-        layers: [{ kind: 'dense', size: 16, activation: 'relu' }, { kind: 'dense', size: 10, activation: 'softmax' }],
+        layers: [
+          { kind: 'dense', size: 16, activation: 'relu' },
+          { kind: 'dense', size: 10, activation: 'softmax' },
+        ],
       }),
     );
     // GNU time's %M: the peak resident set size in KiB.
-    const run = spawnSync('/usr/bin/time', ['-f', 'peak-kib %M', process.execPath, CLI, 'tune', spec, '--data', csv, '--target', 'label', '-o', join(dir, 'f.tendon'), '--epochs', '1', '--log', 'text'], { encoding: 'utf8' });
+    const run = spawnSync(
+      '/usr/bin/time',
+      [
+        '-f',
+        'peak-kib %M',
+        process.execPath,
+        CLI,
+        'tune',
+        spec,
+        '--data',
+        csv,
+        '--target',
+        'label',
+        '-o',
+        join(dir, 'f.tendon'),
+        '--epochs',
+        '1',
+        '--log',
+        'text',
+      ],
+      { encoding: 'utf8' },
+    );
     expect(run.status).toBe(0);
     expect(run.stdout).toContain(`on ${rows.toLocaleString('en-US')} rows of`);
     const peak = Number(/peak-kib (\d+)/.exec(run.stderr)?.[1]) * 1024;

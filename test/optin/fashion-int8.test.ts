@@ -34,9 +34,21 @@ describe.skipIf(!wanted)('Fashion-MNIST on the int8 engine (opt-in: TENDON_FASHI
     const [xi, yi, xt, yt] = await Promise.all(
       ['train-images-idx3-ubyte.gz', 'train-labels-idx1-ubyte.gz', 't10k-images-idx3-ubyte.gz', 't10k-labels-idx1-ubyte.gz'].map((f) => readIdx(`${DIR}/${f}`)),
     );
-    const spec = { inputs: 784, normalise: { method: 'minmax' as const }, layers: [{ kind: 'dense', size: 256, activation: 'relu' }, { kind: 'dense', size: 128, activation: 'relu' }, { kind: 'dense', size: 10, activation: 'softmax' }] };
+    const spec = {
+      inputs: 784,
+      normalise: { method: 'minmax' as const },
+      layers: [
+        { kind: 'dense', size: 256, activation: 'relu' },
+        { kind: 'dense', size: 128, activation: 'relu' },
+        { kind: 'dense', size: 10, activation: 'softmax' },
+      ],
+    };
     const doc = await buildFromSpec(spec, 'fashion.json', { seed: 1, loadTensorFile: () => Promise.reject(new Error('none')) });
-    const trained = await tune(doc, { x: Float32Array.from(xi.data), rows: xi.dims[0], y: Int32Array.from(yi.data) }, { epochs: 3, batch: 64, lr: 0.001, seed: 1 });
+    const trained = await tune(
+      doc,
+      { x: Float32Array.from(xi.data), rows: xi.dims[0], y: Int32Array.from(yi.data) },
+      { epochs: 3, batch: 64, lr: 0.001, seed: 1 },
+    );
     const x = Float32Array.from(xt.data);
     const rows = xt.dims[0];
     const labels = Int32Array.from(yt.data);
@@ -48,7 +60,9 @@ describe.skipIf(!wanted)('Fashion-MNIST on the int8 engine (opt-in: TENDON_FASHI
     const a32 = accuracy(parent, labels, 10);
     const a8 = accuracy(y, labels, 10);
     const agree = topClassAgreement(y, parent, rows, 10);
-    console.log(`Fashion-MNIST test: float32 ${(100 * a32).toFixed(2)}%, int8 (${int8.kernel}) ${(100 * a8).toFixed(2)}%, top class agrees on ${(100 * agree).toFixed(2)}%`);
+    console.log(
+      `Fashion-MNIST test: float32 ${(100 * a32).toFixed(2)}%, int8 (${int8.kernel}) ${(100 * a8).toFixed(2)}%, top class agrees on ${(100 * agree).toFixed(2)}%`,
+    );
     expect(a32).toBeGreaterThanOrEqual(0.85);
     expect(a32 - a8).toBeLessThanOrEqual(0.003);
     expect(agree).toBeGreaterThanOrEqual(0.995);

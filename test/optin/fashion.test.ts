@@ -22,7 +22,15 @@ describe.skipIf(!wanted)('Fashion-MNIST (opt-in: TENDON_FASHION=1)', () => {
       ['train-images-idx3-ubyte.gz', 'train-labels-idx1-ubyte.gz', 't10k-images-idx3-ubyte.gz', 't10k-labels-idx1-ubyte.gz'].map((f) => readIdx(`${DIR}/${f}`)),
     );
     const doc = await buildFromSpec(
-      { inputs: 784, normalise: { method: 'minmax' }, layers: [{ kind: 'dense', size: 256, activation: 'relu' }, { kind: 'dense', size: 128, activation: 'relu' }, { kind: 'dense', size: 10, activation: 'softmax' }] },
+      {
+        inputs: 784,
+        normalise: { method: 'minmax' },
+        layers: [
+          { kind: 'dense', size: 256, activation: 'relu' },
+          { kind: 'dense', size: 128, activation: 'relu' },
+          { kind: 'dense', size: 10, activation: 'softmax' },
+        ],
+      },
       'fashion.json',
       { seed: 1, loadTensorFile: () => Promise.reject(new Error('none')) },
     );

@@ -89,7 +89,13 @@ function countNear(img: Image, hex: string, tolerance: number): number {
   const [r, g, b] = hexToRgb(hex).map((v) => Math.round(v * 255));
   let n = 0;
   for (let i = 0; i < img.rgba.length; i += 4) {
-    if (img.rgba[i + 3] > 200 && Math.abs(img.rgba[i] - r) <= tolerance && Math.abs(img.rgba[i + 1] - g) <= tolerance && Math.abs(img.rgba[i + 2] - b) <= tolerance) n++;
+    if (
+      img.rgba[i + 3] > 200 &&
+      Math.abs(img.rgba[i] - r) <= tolerance &&
+      Math.abs(img.rgba[i + 1] - g) <= tolerance &&
+      Math.abs(img.rgba[i + 2] - b) <= tolerance
+    )
+      n++;
   }
   return n;
 }
@@ -108,7 +114,11 @@ describe.skipIf(!enabled)('report rendered by rsvg-convert (opt-in: TENDON_RENDE
   it('the tune curves render to a PNG that is not blank and shows the first two series colours', async () => {
     const names = getDistinctClasses();
     const doc = docOf(4, [denseSpec(16, 'relu'), denseSpec(3, 'softmax')], emptyZscore());
-    const run = await tune(doc, { x: Float32Array.from(getNumbers().flat()), rows: 150, y: Int32Array.from(getClasses().map((c) => names.indexOf(c))) }, { epochs: 20, batch: 16, lr: 0.01, seed: 3, holdout: 0.3 });
+    const run = await tune(
+      doc,
+      { x: Float32Array.from(getNumbers().flat()), rows: 150, y: Int32Array.from(getClasses().map((c) => names.indexOf(c))) },
+      { epochs: 20, batch: 16, lr: 0.01, seed: 3, holdout: 0.3 },
+    );
     const dir = await mkdtemp(join(tmpdir(), 'tendon-render-'));
     const svg = join(dir, 'run.svg');
     const png = join(dir, 'run.png');
@@ -129,7 +139,10 @@ describe.skipIf(!enabled)('report rendered by rsvg-convert (opt-in: TENDON_RENDE
 
   it('a blank SVG renders blank by the same measure (the check can fail)', async () => {
     const dir = await mkdtemp(join(tmpdir(), 'tendon-render-'));
-    await writeFile(join(dir, 'blank.svg'), '<svg xmlns="http://www.w3.org/2000/svg" width="100" height="100"><rect width="100" height="100" fill="#ffffff"/></svg>');
+    await writeFile(
+      join(dir, 'blank.svg'),
+      '<svg xmlns="http://www.w3.org/2000/svg" width="100" height="100"><rect width="100" height="100" fill="#ffffff"/></svg>',
+    );
     expect(spawnSync('rsvg-convert', ['-o', join(dir, 'blank.png'), join(dir, 'blank.svg')]).status).toBe(0);
     expect(inked(decodePng(await readFile(join(dir, 'blank.png'))))).toBe(0);
   });

@@ -34,8 +34,19 @@ export interface Dataset {
 // Feature names as scikit-learn's sklearn/datasets/_base.py (same Debian package) gives them.
 const IRIS_FEATURES = ['sepal length (cm)', 'sepal width (cm)', 'petal length (cm)', 'petal width (cm)'];
 const WINE_FEATURES = [
-  'alcohol', 'malic_acid', 'ash', 'alcalinity_of_ash', 'magnesium', 'total_phenols', 'flavanoids',
-  'nonflavanoid_phenols', 'proanthocyanins', 'color_intensity', 'hue', 'od280/od315_of_diluted_wines', 'proline',
+  'alcohol',
+  'malic_acid',
+  'ash',
+  'alcalinity_of_ash',
+  'magnesium',
+  'total_phenols',
+  'flavanoids',
+  'nonflavanoid_phenols',
+  'proanthocyanins',
+  'color_intensity',
+  'hue',
+  'od280/od315_of_diluted_wines',
+  'proline',
 ];
 const CANCER_PARTS = ['radius', 'texture', 'perimeter', 'area', 'smoothness', 'compactness', 'concavity', 'concave points', 'symmetry', 'fractal dimension'];
 const CANCER_FEATURES = [...CANCER_PARTS.map((p) => `mean ${p}`), ...CANCER_PARTS.map((p) => `${p} error`), ...CANCER_PARTS.map((p) => `worst ${p}`)];

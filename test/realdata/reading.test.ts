@@ -86,7 +86,11 @@ describe('multi-output targets are matched to the output labels by name (Linneru
 
   it('a user names a target that is not an output label: refused, naming it and the labels', async () => {
     const t = datasetTable(ds);
-    const renamed = writeCsv(path('linnerud-renamed.csv'), t.header.map((h) => (h === 'Pulse' ? 'pulse_bpm' : h)), t.cells);
+    const renamed = writeCsv(
+      path('linnerud-renamed.csv'),
+      t.header.map((h) => (h === 'Pulse' ? 'pulse_bpm' : h)),
+      t.cells,
+    );
     const e = await dataError(() => loadTrainingData(doc, renamed, ['pulse_bpm', 'Weight', 'Waist']));
     expect(e.detail).toMatch(/--target "pulse_bpm" is not among the model's output labels \("Weight", "Waist", "Pulse"\)/);
   });
@@ -325,9 +329,15 @@ describe('CSV files as users have them (Breast Cancer Wisconsin; Diabetes, Efron
     const tr = datasetTable(ds, { rows: train, classes: 'name' });
     const te = datasetTable(ds, { rows: test, classes: 'name' });
     const trainFile = writeCsv(path('cancer-train.csv'), tr.header, tr.cells);
-    const testFile = writeCsv(path('cancer-test.csv'), te.header, te.cells.map((r, i) => (i % 3 === 0 ? [...r.slice(0, -1), ''] : r)));
+    const testFile = writeCsv(
+      path('cancer-test.csv'),
+      te.header,
+      te.cells.map((r, i) => (i % 3 === 0 ? [...r.slice(0, -1), ''] : r)),
+    );
     const model = path('cancer.tendon');
-    expect((await runCli('tune', spec, '--data', trainFile, '--target', 'target', '-o', model, '--epochs', '1', '--engine', 'js', '--log', 'text')).code).toBe(0);
+    expect((await runCli('tune', spec, '--data', trainFile, '--target', 'target', '-o', model, '--epochs', '1', '--engine', 'js', '--log', 'text')).code).toBe(
+      0,
+    );
     const scored = await runCli('score', model, '--input', testFile, '--output', path('cancer-scores.csv'));
     expect(scored.err).toMatch(new RegExp(`^scored ${test.length} rows`));
     const checked = await runCli('check', model, '--input', testFile, '--engine', 'js');

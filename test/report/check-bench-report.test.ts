@@ -21,11 +21,13 @@ beforeAll(async () => {
 /** Value at the end of each bar of `svg`, read through its own axis, keyed by group and series. */
 function barValues(svg: XmlElement, log: boolean): Map<string, number> {
   const axis = readAxis(svg, 'x', log);
-  return new Map(byClass(svg, 'bar').map((r) => [`${r.getAttribute('data-group')}|${r.getAttribute('data-series')}`, axis.invert(num(r, 'x') + num(r, 'width'))]));
+  return new Map(
+    byClass(svg, 'bar').map((r) => [`${r.getAttribute('data-group')}|${r.getAttribute('data-series')}`, axis.invert(num(r, 'x') + num(r, 'width'))]),
+  );
 }
 
 describe('check --report FILE.html', () => {
-  it('draws each layer\'s largest error where the parity report puts it, and the tolerance as a line', async () => {
+  it("draws each layer's largest error where the parity report puts it, and the tolerance as a line", async () => {
     const doc = denseStackDoc([6, 12, 3], 4, 'tanh', 'softmax');
     const report = parityReport(doc, randomInputs(doc, 64, 1), 64);
     const file = join(dir, 'check.html');
@@ -42,7 +44,12 @@ describe('check --report FILE.html', () => {
       if (want[i] > 0) expect(Math.abs(Math.log10(got.get(`${label}|max abs error`)!) - Math.log10(want[i]))).toBeLessThan(1e-3);
     });
     const axis = readAxis(abs, 'x', true);
-    expect(ticksAreRound(axis.ticks.map((t) => t.value), true)).toBe(true);
+    expect(
+      ticksAreRound(
+        axis.ticks.map((t) => t.value),
+        true,
+      ),
+    ).toBe(true);
     const mark = byClass(abs, 'mark')[0].getElementsByTagName('line')[0] as unknown as XmlElement;
     expect(axis.invert(num(mark, 'x1'))).toBeCloseTo(report.tolerance.abs, 8);
     const verdict = htmlElements(page).find((e) => e.attrs.some((a) => a.name === 'class' && a.value.startsWith('verdict')))!;
@@ -58,7 +65,15 @@ describe('check --report FILE.html on a broken engine', () => {
     await useEngine('js');
     const inner = openRunner(doc, 'js');
     // A fault injected after the engine ran: layer 0's outputs all moved by 0.01.
-    const broken: Runner = { engine: inner.engine, inputs: inner.inputs, outputs: inner.outputs, chunkRows: inner.chunkRows, run: (x: Float32Array, rows: number) => inner.run(x, rows), runLayers: (x: Float32Array, rows: number) => inner.runLayers(x, rows).map((l, i) => (i === 0 ? l.map((v) => v + 0.01) : l)), dispose: () => inner.dispose() };
+    const broken: Runner = {
+      engine: inner.engine,
+      inputs: inner.inputs,
+      outputs: inner.outputs,
+      chunkRows: inner.chunkRows,
+      run: (x: Float32Array, rows: number) => inner.run(x, rows),
+      runLayers: (x: Float32Array, rows: number) => inner.runLayers(x, rows).map((l, i) => (i === 0 ? l.map((v) => v + 0.01) : l)),
+      dispose: () => inner.dispose(),
+    };
     const report = parityReport(doc, randomInputs(doc, 32, 1), 32, { runner: broken });
     inner.dispose();
     expect(report.pass).toBe(false);
@@ -90,18 +105,40 @@ describe('bench --report FILE.html', () => {
     const close = (a: number, b: number) => expect(Math.abs(Math.log10(a) - Math.log10(b))).toBeLessThan(1e-3);
     for (const r of rows) close(got.get(`batch ${r.batch}|js engine`)!, r.rowsPerSec);
     for (const b of baselines.rows) close(got.get(`batch ${b.batch}|${b.name}`)!, b.rowsPerSec!);
-    expect(ticksAreRound(readAxis(chart, 'x', true).ticks.map((t) => t.value), true)).toBe(true);
+    expect(
+      ticksAreRound(
+        readAxis(chart, 'x', true).ticks.map((t) => t.value),
+        true,
+      ),
+    ).toBe(true);
     // The table gives the ratio of the engine to each baseline, from the same numbers.
-    const cells = htmlElements(page).filter((e) => e.tagName === 'th').map(htmlText);
+    const cells = htmlElements(page)
+      .filter((e) => e.tagName === 'th')
+      .map(htmlText);
     expect(cells).toContain('js engine ÷ float64 reference');
   });
 });
 
 describe('barChart (the reusable horizontal bars, e.g. for attributions)', () => {
   it('puts negative values left of zero and positive ones right, on a linear axis with round ticks', () => {
-    const svg = parseSvg(barChart({ title: 'attribution', valueTitle: 'effect on the score', series: ['row 1'], groups: [{ label: 'temp', values: [0.42] }, { label: 'hour', values: [-0.13] }] }));
+    const svg = parseSvg(
+      barChart({
+        title: 'attribution',
+        valueTitle: 'effect on the score',
+        series: ['row 1'],
+        groups: [
+          { label: 'temp', values: [0.42] },
+          { label: 'hour', values: [-0.13] },
+        ],
+      }),
+    );
     const axis = readAxis(svg, 'x', false);
-    expect(ticksAreRound(axis.ticks.map((t) => t.value), false)).toBe(true);
+    expect(
+      ticksAreRound(
+        axis.ticks.map((t) => t.value),
+        false,
+      ),
+    ).toBe(true);
     const zero = axis.ticks.find((t) => t.value === 0)!.pixel;
     const [temp, hour] = byClass(svg, 'bar');
     expect(num(temp, 'x')).toBeCloseTo(zero, 2);

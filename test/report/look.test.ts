@@ -39,7 +39,8 @@ describe('the palette (src/report/look.ts)', () => {
   });
   it.each(VISIONS)('every pair of series colours stays >= 20 CIE76 ΔE apart for %s vision', (vision) => {
     const seen = SERIES_COLOURS.map((c) => (vision ? seenWith(c, vision) : c));
-    for (let i = 0; i < seen.length; i++) for (let j = i + 1; j < seen.length; j++) expect(deltaE(seen[i], seen[j]), `${SERIES_COLOURS[i]} / ${SERIES_COLOURS[j]}`).toBeGreaterThanOrEqual(20);
+    for (let i = 0; i < seen.length; i++)
+      for (let j = i + 1; j < seen.length; j++) expect(deltaE(seen[i], seen[j]), `${SERIES_COLOURS[i]} / ${SERIES_COLOURS[j]}`).toBeGreaterThanOrEqual(20);
   });
   it('the first two series (training and hold-out) differ in grey too', () => {
     expect(deltaE(greyOf(SERIES_COLOURS[0]), greyOf(SERIES_COLOURS[1]))).toBeGreaterThan(15);

@@ -15,7 +15,10 @@ export type { XmlElement };
 /** Parse SVG strictly; throws on any warning or error. */
 export function parseSvg(markup: string): XmlElement {
   const problems: string[] = [];
-  const doc = new DOMParser({ onError: (level: string, message: string) => void problems.push(`${level}: ${message}`) }).parseFromString(markup, 'image/svg+xml');
+  const doc = new DOMParser({ onError: (level: string, message: string) => void problems.push(`${level}: ${message}`) }).parseFromString(
+    markup,
+    'image/svg+xml',
+  );
   if (problems.length) throw new Error(`SVG does not parse cleanly: ${problems.join('; ')}`);
   const root = doc.documentElement;
   if (!root || root.tagName !== 'svg') throw new Error('no <svg> root');

@@ -45,7 +45,15 @@ describe('axes (src/report/scale.ts)', () => {
     expect(linearAxis([1, 3], 0, 100, { minStep: 1 }).ticks).toEqual([1, 2, 3]);
   });
   it('tick labels parse back to the tick value', () => {
-    const cases: [number, number, boolean][] = [[0.2, 0.2, false], [250000, 50000, false], [1e-5, Number.NaN, false], [3000000, 1e6, false], [0.4, 0.2, true], [0.05, 0.05, true], [0.001, 0.0005, false]];
+    const cases: [number, number, boolean][] = [
+      [0.2, 0.2, false],
+      [250000, 50000, false],
+      [1e-5, Number.NaN, false],
+      [3000000, 1e6, false],
+      [0.4, 0.2, true],
+      [0.05, 0.05, true],
+      [0.001, 0.0005, false],
+    ];
     for (const [v, step, pct] of cases) expect(labelValue(tickText(v, step, pct)), `${v}`).toBeCloseTo(v, 12);
   });
   it('value labels keep three significant digits', () => {

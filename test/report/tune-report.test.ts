@@ -66,7 +66,7 @@ function ticksOf(svg: XmlElement, which: 'x' | 'y', log: boolean): number[] {
 }
 
 describe('tune --report FILE.svg: the curves alone', () => {
-  it('is well-formed SVG whose lines map back to the run\'s losses, accuracies and gradient norms, on round ticks', async () => {
+  it("is well-formed SVG whose lines map back to the run's losses, accuracies and gradient norms, on round ticks", async () => {
     const file = join(dir, 'run.svg');
     await writeTuneReport(file, 'iris-spec.json', run);
     const root = parseSvg(await readFile(file, 'utf8'));
@@ -74,13 +74,35 @@ describe('tune --report FILE.svg: the curves alone', () => {
     expect(svgs).toHaveLength(3);
     const h = run.history;
     const loss = chart(svgs, 'Loss per epoch');
-    expectSeries(loss, 'training', h.map((e) => [e.epoch + 1, e.train.loss]));
-    expectSeries(loss, 'hold-out', h.map((e) => [e.epoch + 1, e.holdout!.loss]));
+    expectSeries(
+      loss,
+      'training',
+      h.map((e) => [e.epoch + 1, e.train.loss]),
+    );
+    expectSeries(
+      loss,
+      'hold-out',
+      h.map((e) => [e.epoch + 1, e.holdout!.loss]),
+    );
     const acc = chart(svgs, 'Accuracy per epoch');
-    expectSeries(acc, 'hold-out', h.map((e) => [e.epoch + 1, e.holdout!.accuracy!]));
+    expectSeries(
+      acc,
+      'hold-out',
+      h.map((e) => [e.epoch + 1, e.holdout!.accuracy!]),
+    );
     const grad = chart(svgs, 'Gradient norm per layer');
-    expectSeries(grad, 'layer 0 (relu, 16)', h.map((e) => [e.epoch + 1, e.gradientNorms[0]]), true);
-    expectSeries(grad, 'layer 1 (softmax, 3)', h.map((e) => [e.epoch + 1, e.gradientNorms[1]]), true);
+    expectSeries(
+      grad,
+      'layer 0 (relu, 16)',
+      h.map((e) => [e.epoch + 1, e.gradientNorms[0]]),
+      true,
+    );
+    expectSeries(
+      grad,
+      'layer 1 (softmax, 3)',
+      h.map((e) => [e.epoch + 1, e.gradientNorms[1]]),
+      true,
+    );
     for (const c of [loss, acc]) {
       expect(ticksAreRound(ticksOf(c, 'y', false), false)).toBe(true);
       expect(ticksAreRound(ticksOf(c, 'x', false), false)).toBe(true);
@@ -116,7 +138,10 @@ describe('tune --report FILE.html: the whole run', () => {
         if (a.name !== 'xmlns') expect(a.value, `${e.tagName} ${a.name}`).not.toMatch(/(https?|ftp|file|data):/i);
       }
     }
-    const css = elements.filter((e) => e.tagName === 'style').map(htmlText).join('');
+    const css = elements
+      .filter((e) => e.tagName === 'style')
+      .map(htmlText)
+      .join('');
     expect(css).not.toMatch(/@import|@font-face|url\(/);
     // Pattern fills point inside the page only.
     for (const m of page.matchAll(/url\(([^)]*)\)/g)) expect(m[1].startsWith('#'), m[0]).toBe(true);
@@ -127,9 +152,21 @@ describe('tune --report FILE.html: the whole run', () => {
   it('holds loss, accuracy, the confusion matrix, precision and recall, gradient norms and dead ReLU units, each true to the run', () => {
     const svgs = svgsOfPage(parsed.doc);
     const h = run.history;
-    expectSeries(chart(svgs, 'Loss per epoch'), 'training', h.map((e) => [e.epoch + 1, e.train.loss]));
-    expectSeries(chart(svgs, 'Accuracy per epoch'), 'training', h.map((e) => [e.epoch + 1, e.train.accuracy!]));
-    expectSeries(chart(svgs, 'Dead ReLU share per layer'), 'layer 0 (relu, 16)', h.map((e) => [e.epoch + 1, e.deadRelu[0]]));
+    expectSeries(
+      chart(svgs, 'Loss per epoch'),
+      'training',
+      h.map((e) => [e.epoch + 1, e.train.loss]),
+    );
+    expectSeries(
+      chart(svgs, 'Accuracy per epoch'),
+      'training',
+      h.map((e) => [e.epoch + 1, e.train.accuracy!]),
+    );
+    expectSeries(
+      chart(svgs, 'Dead ReLU share per layer'),
+      'layer 0 (relu, 16)',
+      h.map((e) => [e.epoch + 1, e.deadRelu[0]]),
+    );
 
     // The heat map shows the hold-out confusion of the saved epoch, count by count.
     const confusion = h[run.bestEpoch].holdout!.confusion!;
@@ -141,7 +178,12 @@ describe('tune --report FILE.html: the whole run', () => {
     // Bars read back through the value axis equal precision and recall counted from the matrix here.
     const bars = chart(svgs, 'Precision and recall, hold-out rows');
     const axis = readAxis(bars, 'x', false);
-    expect(ticksAreRound(axis.ticks.map((t) => t.value), false)).toBe(true);
+    expect(
+      ticksAreRound(
+        axis.ticks.map((t) => t.value),
+        false,
+      ),
+    ).toBe(true);
     for (const rect of byClass(bars, 'bar')) {
       const c = names.indexOf(rect.getAttribute('data-group')!);
       const column = confusion.reduce((a, r) => a + r[c], 0);
@@ -152,12 +194,14 @@ describe('tune --report FILE.html: the whole run', () => {
     expect(byClass(bars, 'bar')).toHaveLength(6);
   });
 
-  it('says the run\'s findings in plain words, each with what to do', async () => {
+  it("says the run's findings in plain words, each with what to do", async () => {
     const file = join(dir, 'raw.html');
     await writeTuneReport(file, 'raw.json', raw);
     const { doc, errors } = parseHtml(await readFile(file, 'utf8'));
     expect(errors).toEqual([]);
-    const items = htmlElements(doc).filter((e) => e.tagName === 'li').map(htmlText);
+    const items = htmlElements(doc)
+      .filter((e) => e.tagName === 'li')
+      .map(htmlText);
     const rawInputs = raw.diagnostics.find((d) => d.code === 'raw_inputs')!;
     expect(rawInputs).toBeDefined();
     const said = items.find((t) => t.startsWith('Inputs are not on a common scale'));
@@ -169,7 +213,14 @@ describe('tune --report FILE.html: the whole run', () => {
 });
 
 describe('curveFindings (src/report/tune.ts)', () => {
-  const epoch = (e: number, train: number, held: number): TuneEpochView => ({ epoch: e, trainLoss: train, holdoutLoss: held, trainAccuracy: null, holdoutAccuracy: null, gradientNorms: {} });
+  const epoch = (e: number, train: number, held: number): TuneEpochView => ({
+    epoch: e,
+    trainLoss: train,
+    holdoutLoss: held,
+    trainAccuracy: null,
+    holdoutAccuracy: null,
+    gradientNorms: {},
+  });
   it('calls a hold-out loss that rose from its best while training loss fell overfitting, and points at --stop-after when the last epoch was kept', () => {
     const curves = [epoch(0, 1, 1), epoch(1, 0.5, 0.6), epoch(2, 0.3, 0.7), epoch(3, 0.2, 0.9)];
     const f = curveFindings(curves, 3);

@@ -40,7 +40,11 @@ afterAll(async () => {
 });
 
 const score = (authorization?: string) =>
-  call(`${running.url}/v1/score`, { method: 'POST', headers: { 'content-type': 'application/json', ...(authorization ? { authorization } : {}) }, body: JSON.stringify({ rows: [ROW] }) });
+  call(`${running.url}/v1/score`, {
+    method: 'POST',
+    headers: { 'content-type': 'application/json', ...(authorization ? { authorization } : {}) },
+    body: JSON.stringify({ rows: [ROW] }),
+  });
 
 describe('a bearer token', () => {
   it('missing: 401 with a WWW-Authenticate challenge', async () => {
@@ -83,9 +87,17 @@ describe('a bearer token', () => {
     expect(logs.join('\n')).not.toContain(TOKEN);
   });
 
-  it('an authorize hook of the service\'s own is used as is; one that throws is a 401, logged without the header', async () => {
+  it("an authorize hook of the service's own is used as is; one that throws is a 401, logged without the header", async () => {
     const own = await startServer({ modelPath, port: 0, watch: false, log: (l) => logs.push(l), authorize: (req) => req.headers['x-team'] === 'bakery' });
-    const throwing = await startServer({ modelPath, port: 0, watch: false, log: (l) => logs.push(l), authorize: () => { throw new Error('directory down'); } });
+    const throwing = await startServer({
+      modelPath,
+      port: 0,
+      watch: false,
+      log: (l) => logs.push(l),
+      authorize: () => {
+        throw new Error('directory down');
+      },
+    });
     try {
       expect((await call(`${own.url}/v1/about`, { headers: { 'x-team': 'bakery' } })).status).toBe(200);
       expect((await call(`${own.url}/v1/about`, { headers: { 'x-team': 'other' } })).status).toBe(401);
@@ -106,7 +118,9 @@ describe('listening beyond loopback', () => {
 
   it('startServer refuses 0.0.0.0 with neither authorize nor open', async () => {
     await expect(startServer({ modelPath, host: '0.0.0.0', port: 0, watch: false, log: () => undefined })).rejects.toThrow(UsageError);
-    await expect(startServer({ modelPath, host: '0.0.0.0', port: 0, watch: false, log: () => undefined })).rejects.toThrow(/0\.0\.0\.0 is not a loopback address/);
+    await expect(startServer({ modelPath, host: '0.0.0.0', port: 0, watch: false, log: () => undefined })).rejects.toThrow(
+      /0\.0\.0\.0 is not a loopback address/,
+    );
   });
 
   it('tendon serve --host 0.0.0.0: exit 2 without --token-file or --open; a bad token file is a usage error too', async () => {

@@ -88,7 +88,12 @@ describe('CSV bodies', () => {
   });
 
   it('without a header the columns are the model inputs in order; answered in JSON by default', async () => {
-    const res = await post(loaves(3).map((r) => r.join(',')).join('\n') + '\n', 'text/csv');
+    const res = await post(
+      loaves(3)
+        .map((r) => r.join(','))
+        .join('\n') + '\n',
+      'text/csv',
+    );
     expect(res.status).toBe(200);
     expect(((await res.json()) as any).outputs).toEqual(expectedOutputs(loaves(3)));
   });
@@ -123,26 +128,110 @@ const f4 = (values: number[]) => Buffer.from(new Float32Array(values).buffer);
 const goodNpy = fixture('loaves-f4.npy');
 
 const REFUSALS: [string, () => Promise<Response>, number, RegExp][] = [
-  ['an unsupported Content-Type: 415 listing the accepted ones', () => post('<rows/>', 'application/xml'), 415, /^Content-Type "application\/xml" is not accepted; send one of application\/json, application\/x-npy, text\/csv$/],
-  ['NPY in Fortran order', () => post(fixture('loaves-fortran.npy'), 'application/x-npy'), 400, /^NPY array is in Fortran \(column-major\) order; send C \(row-major\) order$/],
+  [
+    'an unsupported Content-Type: 415 listing the accepted ones',
+    () => post('<rows/>', 'application/xml'),
+    415,
+    /^Content-Type "application\/xml" is not accepted; send one of application\/json, application\/x-npy, text\/csv$/,
+  ],
+  [
+    'NPY in Fortran order',
+    () => post(fixture('loaves-fortran.npy'), 'application/x-npy'),
+    400,
+    /^NPY array is in Fortran \(column-major\) order; send C \(row-major\) order$/,
+  ],
   ['NPY big-endian', () => post(fixture('loaves-big-endian.npy'), 'application/x-npy'), 400, /^NPY dtype '>f4' is big-endian; send float32/],
-  ['NPY int32', () => post(fixture('loaves-i4.npy'), 'application/x-npy'), 400, /^NPY dtype '<i4' is not accepted; send float32 \('<f4'\) or float64 \('<f8'\), little-endian$/],
+  [
+    'NPY int32',
+    () => post(fixture('loaves-i4.npy'), 'application/x-npy'),
+    400,
+    /^NPY dtype '<i4' is not accepted; send float32 \('<f4'\) or float64 \('<f8'\), little-endian$/,
+  ],
   ['NPY 1-D', () => post(fixture('loaves-1d.npy'), 'application/x-npy'), 400, /^NPY shape \(7,\) is not 2-D; send \[rows, 7\]$/],
-  ['NPY of the wrong width', () => post(fixture('loaves-width-5.npy'), 'application/x-npy'), 400, /^NPY shape \(2, 5\): the model takes 7 inputs per row, not 5$/],
-  ['NPY data shorter than the header declares', () => post(goodNpy.subarray(0, goodNpy.length - 4), 'application/x-npy'), 400, /^NPY header declares \(5, 7\) of '<f4', 140 data bytes, but the body carries 136$/],
-  ['NPY data longer than the header declares', () => post(Buffer.concat([goodNpy, f4([1])]), 'application/x-npy'), 400, /^NPY header declares \(5, 7\) of '<f4', 140 data bytes, but the body carries 144$/],
-  ['an NPY header length past the body', () => post(npyWith("{'descr': '<f4', 'fortran_order': False, 'shape': (1, 7), }", f4(loaf(0)), 60000), 'application/x-npy'), 400, /^NPY header says it is 60000 bytes long, but the body ends \d+ bytes after its start$/],
-  ['an NPY shape past the row limit (nothing allocated for it)', () => post(npyWith("{'descr': '<f4', 'fortran_order': False, 'shape': (100000000, 7), }", f4(loaf(0))), 'application/x-npy'), 413, /^NPY shape \(100000000, 7\): 100000000 rows pass the limit of 50 per request$/],
-  ['NPY with 0 rows', () => post(npyWith("{'descr': '<f4', 'fortran_order': False, 'shape': (0, 7), }", new Uint8Array(0)), 'application/x-npy'), 400, /^NPY shape has 0 rows; send at least one row$/],
-  ['a body that is not NPY', () => post('{"rows": [[1]]}', 'application/x-npy'), 400, /^body: not an NPY file \(it does not start with the magic bytes \\x93NUMPY\)$/],
-  ['an NPY header that is not a dict', () => post(npyWith('nonsense', new Uint8Array(0)), 'application/x-npy'), 400, /^body: NPY header expected "\{" at offset 0/],
-  ['NaN in NPY', () => post(npyWith("{'descr': '<f4', 'fortran_order': False, 'shape': (1, 7), }", f4([NaN, 1, 2, 3, 4, 5, 6])), 'application/x-npy'), 400, /^rows\[0\]\[0\] \(zone1_temp_c\): NaN is not a finite float32 number$/],
-  ['a float64 past float32 in NPY', () => post(npyWith("{'descr': '<f8', 'fortran_order': False, 'shape': (1, 7), }", Buffer.from(new Float64Array([1, 1e39, 2, 3, 4, 5, 6]).buffer)), 'application/x-npy'), 400, /^rows\[0\]\[1\] \(zone2_temp_c\): 1e\+39 is not a finite float32 number$/],
-  ['CSV missing a feature column', () => post('zone1_temp_c,zone2_temp_c\n1,2\n', 'text/csv'), 400, /^body:1: missing feature columns "zone3_temp_c", .* \(the header has: "zone1_temp_c", "zone2_temp_c"\)$/],
-  ['a CSV cell that is not a number', () => post(`${BAKERY_FEATURES.join(',')}\nhot,1,2,3,4,5,6\n`, 'text/csv'), 400, /^body:2:1: cell "hot" in column "zone1_temp_c" is not a number$/],
+  [
+    'NPY of the wrong width',
+    () => post(fixture('loaves-width-5.npy'), 'application/x-npy'),
+    400,
+    /^NPY shape \(2, 5\): the model takes 7 inputs per row, not 5$/,
+  ],
+  [
+    'NPY data shorter than the header declares',
+    () => post(goodNpy.subarray(0, goodNpy.length - 4), 'application/x-npy'),
+    400,
+    /^NPY header declares \(5, 7\) of '<f4', 140 data bytes, but the body carries 136$/,
+  ],
+  [
+    'NPY data longer than the header declares',
+    () => post(Buffer.concat([goodNpy, f4([1])]), 'application/x-npy'),
+    400,
+    /^NPY header declares \(5, 7\) of '<f4', 140 data bytes, but the body carries 144$/,
+  ],
+  [
+    'an NPY header length past the body',
+    () => post(npyWith("{'descr': '<f4', 'fortran_order': False, 'shape': (1, 7), }", f4(loaf(0)), 60000), 'application/x-npy'),
+    400,
+    /^NPY header says it is 60000 bytes long, but the body ends \d+ bytes after its start$/,
+  ],
+  [
+    'an NPY shape past the row limit (nothing allocated for it)',
+    () => post(npyWith("{'descr': '<f4', 'fortran_order': False, 'shape': (100000000, 7), }", f4(loaf(0))), 'application/x-npy'),
+    413,
+    /^NPY shape \(100000000, 7\): 100000000 rows pass the limit of 50 per request$/,
+  ],
+  [
+    'NPY with 0 rows',
+    () => post(npyWith("{'descr': '<f4', 'fortran_order': False, 'shape': (0, 7), }", new Uint8Array(0)), 'application/x-npy'),
+    400,
+    /^NPY shape has 0 rows; send at least one row$/,
+  ],
+  [
+    'a body that is not NPY',
+    () => post('{"rows": [[1]]}', 'application/x-npy'),
+    400,
+    /^body: not an NPY file \(it does not start with the magic bytes \\x93NUMPY\)$/,
+  ],
+  [
+    'an NPY header that is not a dict',
+    () => post(npyWith('nonsense', new Uint8Array(0)), 'application/x-npy'),
+    400,
+    /^body: NPY header expected "\{" at offset 0/,
+  ],
+  [
+    'NaN in NPY',
+    () => post(npyWith("{'descr': '<f4', 'fortran_order': False, 'shape': (1, 7), }", f4([NaN, 1, 2, 3, 4, 5, 6])), 'application/x-npy'),
+    400,
+    /^rows\[0\]\[0\] \(zone1_temp_c\): NaN is not a finite float32 number$/,
+  ],
+  [
+    'a float64 past float32 in NPY',
+    () =>
+      post(
+        npyWith("{'descr': '<f8', 'fortran_order': False, 'shape': (1, 7), }", Buffer.from(new Float64Array([1, 1e39, 2, 3, 4, 5, 6]).buffer)),
+        'application/x-npy',
+      ),
+    400,
+    /^rows\[0\]\[1\] \(zone2_temp_c\): 1e\+39 is not a finite float32 number$/,
+  ],
+  [
+    'CSV missing a feature column',
+    () => post('zone1_temp_c,zone2_temp_c\n1,2\n', 'text/csv'),
+    400,
+    /^body:1: missing feature columns "zone3_temp_c", .* \(the header has: "zone1_temp_c", "zone2_temp_c"\)$/,
+  ],
+  [
+    'a CSV cell that is not a number',
+    () => post(`${BAKERY_FEATURES.join(',')}\nhot,1,2,3,4,5,6\n`, 'text/csv'),
+    400,
+    /^body:2:1: cell "hot" in column "zone1_temp_c" is not a number$/,
+  ],
   ['a ragged CSV row', () => post('1,2,3,4,5,6,7\n1,2,3\n', 'text/csv'), 400, /^body:2: row has 3 cells, expected 7 \(the first row has 7\)$/],
   ['CSV of the wrong width without a header', () => post('1,2,3\n', 'text/csv'), 400, /^body:1: has 3 columns, but the model takes 7 inputs/],
-  ['CSV past the row limit', () => post(Array.from({ length: MAX_ROWS + 1 }, () => loaf(0).join(',')).join('\n'), 'text/csv'), 413, /^body: 51 rows pass the limit of 50 per request$/],
+  [
+    'CSV past the row limit',
+    () => post(Array.from({ length: MAX_ROWS + 1 }, () => loaf(0).join(',')).join('\n'), 'text/csv'),
+    413,
+    /^body: 51 rows pass the limit of 50 per request$/,
+  ],
   ['an empty CSV body', () => post('', 'text/csv'), 400, /^body: empty; send at least one CSV row$/],
 ];
 
@@ -184,7 +273,8 @@ const head = (length: number) => `POST /v1/score HTTP/1.1\r\nhost: x\r\ncontent-
 describe('bodies that lie about their length, beside a well-behaved client', () => {
   it('a truncated NPY body and a Content-Length shorter than the body end in 400; a concurrent client gets every answer right', async () => {
     const before = parseExposition((await call(url('/v1/counters'))).text).samples;
-    const count400 = (samples: typeof before) => samples.find((s) => s.name === 'tendon_requests_total' && s.labels.route === '/v1/score' && s.labels.status === '400')?.value ?? 0;
+    const count400 = (samples: typeof before) =>
+      samples.find((s) => s.name === 'tendon_requests_total' && s.labels.route === '/v1/score' && s.labels.status === '400')?.value ?? 0;
     const good = (async () => {
       const failures: string[] = [];
       for (let i = 0; i < 20; i++) {

@@ -24,7 +24,15 @@ beforeAll(async () => {
   model = await openModel(modelPath);
   mkdirSync(join(bundles, 'examples'));
   // The .proto text loader, as in tsup.config.ts: the schema is embedded from formats/tendon.proto.
-  const common = { bundle: true, platform: 'node', format: 'esm', packages: 'external', target: 'node20', logLevel: 'silent', loader: { '.proto': 'text' } } as const;
+  const common = {
+    bundle: true,
+    platform: 'node',
+    format: 'esm',
+    packages: 'external',
+    target: 'node20',
+    logLevel: 'silent',
+    loader: { '.proto': 'text' },
+  } as const;
   await build({ ...common, entryPoints: [join(root, 'src/index.ts')], outfile: join(bundles, 'dist/index.js') });
   await build({ ...common, entryPoints: [join(root, 'src/cli/bin.ts')], outfile: join(bundles, 'dist/cli.js') });
   // Beside cli.js, where the pool looks for its worker script by default (as in the real dist/).
@@ -78,7 +86,9 @@ describe('tendon serve', () => {
   });
 
   it('as a process with --workers 2: says so, answers like model.run, and SIGTERM exits 0', async () => {
-    const child = spawn(process.execPath, [join(bundles, 'dist/cli.js'), 'serve', modelPath, '--port', '0', '--no-watch', '--workers', '2'], { stdio: ['ignore', 'pipe', 'pipe'] });
+    const child = spawn(process.execPath, [join(bundles, 'dist/cli.js'), 'serve', modelPath, '--port', '0', '--no-watch', '--workers', '2'], {
+      stdio: ['ignore', 'pipe', 'pipe'],
+    });
     let out = '';
     let err = '';
     child.stderr.on('data', (d: Buffer) => (err += d.toString()));
@@ -103,7 +113,9 @@ describe('tendon serve', () => {
   });
 
   it('as a process: SIGTERM while requests are queued answers them, then exits 0', async () => {
-    const child = spawn(process.execPath, [join(bundles, 'dist/cli.js'), 'serve', modelPath, '--port', '0', '--no-watch'], { stdio: ['ignore', 'pipe', 'pipe'] });
+    const child = spawn(process.execPath, [join(bundles, 'dist/cli.js'), 'serve', modelPath, '--port', '0', '--no-watch'], {
+      stdio: ['ignore', 'pipe', 'pipe'],
+    });
     let out = '';
     let err = '';
     child.stderr.on('data', (d: Buffer) => (err += d.toString()));
@@ -148,11 +160,16 @@ describe('examples/bakery-spec.json', () => {
   });
 });
 
-describe('examples/service.mjs (the embedded handler next to the service\'s own routes)', () => {
+describe("examples/service.mjs (the embedded handler next to the service's own routes)", () => {
   it('answers its own routes and the model under /ml; a background fine-tune is swapped in only when it beats the current model on held-out rows', async () => {
     const logs: string[] = [];
-    const mod: { startService: (o: { port: number; dir: string; log: (l: string) => void }) => Promise<{ url: string; refreshed(): Promise<{ swapped: boolean; before: number; after: number } | null>; stop(): Promise<void> }> } =
-      await import(join(bundles, 'examples/service.mjs'));
+    const mod: {
+      startService: (o: {
+        port: number;
+        dir: string;
+        log: (l: string) => void;
+      }) => Promise<{ url: string; refreshed(): Promise<{ swapped: boolean; before: number; after: number } | null>; stop(): Promise<void> }>;
+    } = await import(join(bundles, 'examples/service.mjs'));
     const service = await mod.startService({ port: 0, dir, log: (l) => logs.push(l) });
     try {
       expect((await call(`${service.url}/orders/today`)).json).toEqual({ orders: 42 });

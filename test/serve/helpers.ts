@@ -26,7 +26,10 @@ export function postJson(url: string, body: unknown): Promise<Answer> {
 }
 
 /** A raw request with node:http, for bodies fetch will not send (chunked, oversized, invalid UTF-8). */
-export function rawRequest(url: string, options: { method: string; headers?: Record<string, string>; chunks: (Buffer | string)[] }): Promise<{ status: number; headers: Record<string, string | string[] | undefined>; text: string }> {
+export function rawRequest(
+  url: string,
+  options: { method: string; headers?: Record<string, string>; chunks: (Buffer | string)[] },
+): Promise<{ status: number; headers: Record<string, string | string[] | undefined>; text: string }> {
   return new Promise((resolve, reject) => {
     const req = request(url, { method: options.method, headers: options.headers }, (res) => {
       let text = '';

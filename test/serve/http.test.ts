@@ -127,16 +127,38 @@ describe('bad requests get their status code and a message naming the row and fi
     { name: 'a row too long', body: '{"rows": [[1,2,3,4,5,6,7], [1,2,3,4,5,6,7,8]]}', status: 400, message: /^rows\[1\]: expected 7 numbers, got 8$/ },
     { name: 'non-number', body: '{"rows": [[1,2,3,"wet",5,6,7]]}', status: 400, message: /^rows\[0\]\[3\] \(humidity_pct\): not a number \(got "wet"\)$/ },
     { name: 'null value', body: '{"rows": [[1,2,3,4,null,6,7]]}', status: 400, message: /^rows\[0\]\[4\] \(belt_speed_m_min\): not a number \(got null\)$/ },
-    { name: 'overflow', body: '{"rows": [[1,2,3,4,5,6,1e999]]}', status: 400, message: /^rows\[0\]\[6\] \(proof_time_min\): Infinity is not a finite float32 number$/ },
-    { name: 'beyond float32', body: '{"rows": [[1e39,2,3,4,5,6,7]]}', status: 400, message: /^rows\[0\]\[0\] \(zone1_temp_c\): 1e\+39 is not a finite float32 number$/ },
+    {
+      name: 'overflow',
+      body: '{"rows": [[1,2,3,4,5,6,1e999]]}',
+      status: 400,
+      message: /^rows\[0\]\[6\] \(proof_time_min\): Infinity is not a finite float32 number$/,
+    },
+    {
+      name: 'beyond float32',
+      body: '{"rows": [[1e39,2,3,4,5,6,7]]}',
+      status: 400,
+      message: /^rows\[0\]\[0\] \(zone1_temp_c\): 1e\+39 is not a finite float32 number$/,
+    },
     {
       name: 'unknown feature',
-      body: JSON.stringify({ rows: [Object.fromEntries(BAKERY_FEATURES.map((f) => [f, 1])), { ...Object.fromEntries(BAKERY_FEATURES.map((f) => [f, 1])), oven_colour: 3 }] }),
+      body: JSON.stringify({
+        rows: [Object.fromEntries(BAKERY_FEATURES.map((f) => [f, 1])), { ...Object.fromEntries(BAKERY_FEATURES.map((f) => [f, 1])), oven_colour: 3 }],
+      }),
       status: 400,
       message: /^rows\[1\]\.oven_colour: unknown feature \(the model's features: zone1_temp_c, /,
     },
-    { name: 'missing feature', body: JSON.stringify({ rows: [{ zone1_temp_c: 1 }] }), status: 400, message: /^rows\[0\]: missing features zone2_temp_c, zone3_temp_c, humidity_pct/ },
-    { name: 'a string row', body: '{"rows": ["1,2,3"]}', status: 400, message: /^rows\[0\]: expected an array of 7 numbers or an object keyed by feature name, got "1,2,3"/ },
+    {
+      name: 'missing feature',
+      body: JSON.stringify({ rows: [{ zone1_temp_c: 1 }] }),
+      status: 400,
+      message: /^rows\[0\]: missing features zone2_temp_c, zone3_temp_c, humidity_pct/,
+    },
+    {
+      name: 'a string row',
+      body: '{"rows": ["1,2,3"]}',
+      status: 400,
+      message: /^rows\[0\]: expected an array of 7 numbers or an object keyed by feature name, got "1,2,3"/,
+    },
     { name: '__proto__ key', body: '{"rows": [{"__proto__": 1}]}', status: 400, message: /^rows\[0\]\.__proto__: unknown feature/ },
   ];
   it.each(cases)('$name -> $status', async ({ body, status, message }) => {
@@ -154,7 +176,11 @@ describe('bad requests get their status code and a message naming the row and fi
 
   it('a chunked body over the limit answers 413 once the limit is passed', async () => {
     const chunk = Buffer.from(' '.repeat(1024));
-    const a = await rawRequest(url('/v1/score'), { method: 'POST', headers: { 'content-type': 'application/json', 'transfer-encoding': 'chunked' }, chunks: [chunk, chunk, chunk, chunk, chunk] });
+    const a = await rawRequest(url('/v1/score'), {
+      method: 'POST',
+      headers: { 'content-type': 'application/json', 'transfer-encoding': 'chunked' },
+      chunks: [chunk, chunk, chunk, chunk, chunk],
+    });
     expect(a.status).toBe(413);
     expect(JSON.parse(a.text).error.message).toMatch(/request body of more than \d+ bytes passes the limit of 4096 bytes/);
   });

@@ -17,20 +17,27 @@ const sameBits = (a: Float32Array, b: Float32Array) => a.length === b.length && 
 describe('parseNumberRows', () => {
   it('gives bit for bit what JSON.parse + Math.fround give, for doubles of every magnitude and their shortest spelling (property)', () => {
     fc.assert(
-      fc.property(fc.array(fc.array(fc.double({ noNaN: true, noDefaultInfinity: true, min: -3e38, max: 3e38 }), { minLength: 3, maxLength: 3 }), { minLength: 1, maxLength: 20 }), (rows) => {
-        const text = JSON.stringify({ rows });
-        const fast = parseNumberRows(bytes(text), 3, 20);
-        const general = parseScoreBody(text, shape);
-        expect(fast).not.toBeNull();
-        expect(fast!.rows).toBe(general.rows);
-        expect(sameBits(fast!.x, general.x)).toBe(true);
-      }),
+      fc.property(
+        fc.array(fc.array(fc.double({ noNaN: true, noDefaultInfinity: true, min: -3e38, max: 3e38 }), { minLength: 3, maxLength: 3 }), {
+          minLength: 1,
+          maxLength: 20,
+        }),
+        (rows) => {
+          const text = JSON.stringify({ rows });
+          const fast = parseNumberRows(bytes(text), 3, 20);
+          const general = parseScoreBody(text, shape);
+          expect(fast).not.toBeNull();
+          expect(fast!.rows).toBe(general.rows);
+          expect(sameBits(fast!.x, general.x)).toBe(true);
+        },
+      ),
       { numRuns: 300 },
     );
   });
 
   it('hand-picked spellings: exponents, long fractions, negative zero, whitespace of every kind', () => {
-    const text = '\r\n{ "rows" :\t[ [ 0.1 , -0 , 1e-7 ] ,[1.5E+3,-2.5e-3,123456789012345678],\n[0.30000000000000004, 3.4028234663852886e38, 1.401298464324817e-45] ] }\n';
+    const text =
+      '\r\n{ "rows" :\t[ [ 0.1 , -0 , 1e-7 ] ,[1.5E+3,-2.5e-3,123456789012345678],\n[0.30000000000000004, 3.4028234663852886e38, 1.401298464324817e-45] ] }\n';
     const fast = parseNumberRows(bytes(text), 3, 20)!;
     expect(sameBits(fast.x, parseScoreBody(text, shape).x)).toBe(true);
     expect(Object.is(fast.x[1], -0)).toBe(true);

@@ -18,10 +18,12 @@ afterAll(() => rmSync(dir, { recursive: true, force: true }));
 const LOAF = [214, 231, 219, 44, 1.6, 790, 56];
 
 /** A runner that waits `ms` before running, so batches are in flight while the test acts. */
-const slow = (ms: number): ModelBatchRunner => async (m, x, rows) => {
-  await sleep(ms);
-  return m.run(x, rows);
-};
+const slow =
+  (ms: number): ModelBatchRunner =>
+  async (m, x, rows) => {
+    await sleep(ms);
+    return m.run(x, rows);
+  };
 
 async function twoModels(name: string): Promise<{ path: string; a: TendonModel; b: TendonModel; aPath: string; bPath: string }> {
   const aPath = join(dir, `${name}-a.tendon`);
@@ -34,11 +36,14 @@ async function twoModels(name: string): Promise<{ path: string; a: TendonModel; 
 }
 
 describe('hot swap', () => {
-  it('under concurrent load drops no request: every answer is 200 and exactly the old or the new model\'s', async () => {
+  it("under concurrent load drops no request: every answer is 200 and exactly the old or the new model's", async () => {
     const { path, a, b } = await twoModels('load');
     const logs: string[] = [];
     const running = await startServer({ modelPath: path, port: 0, log: (l) => logs.push(l), batcher: { maxWaitMs: 1, maxBatchRows: 16 } });
-    const byChecksum = new Map([[a.checksum, a], [b.checksum, b]]);
+    const byChecksum = new Map([
+      [a.checksum, a],
+      [b.checksum, b],
+    ]);
     let swapping = true;
     const swapper = (async () => {
       for (let i = 0; i < 6; i++) {
@@ -149,7 +154,14 @@ describe('hot swap', () => {
 describe('load shedding and shutdown', () => {
   it('a full queue answers 503 with Retry-After', async () => {
     const { path, a } = await twoModels('busy');
-    const running = await startServer({ modelPath: path, port: 0, runBatch: slow(200), batcher: { maxQueueRows: 2, maxBatchRows: 1, maxWaitMs: 0 }, retryAfterSeconds: 2, log: () => undefined });
+    const running = await startServer({
+      modelPath: path,
+      port: 0,
+      runBatch: slow(200),
+      batcher: { maxQueueRows: 2, maxBatchRows: 1, maxWaitMs: 0 },
+      retryAfterSeconds: 2,
+      log: () => undefined,
+    });
     const answers = await Promise.all(Array.from({ length: 6 }, () => postJson(`${running.url}/v1/score`, { rows: [LOAF] })));
     const statuses = answers.map((x) => x.status).sort();
     // One batch runs, two rows wait; the rest find the queue full.

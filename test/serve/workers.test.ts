@@ -70,7 +70,14 @@ function osThreads(): number {
 }
 
 async function served(path: string, workers: number, extra: { workerScript?: string } = {}): Promise<RunningServer> {
-  return startServer({ modelPath: path, port: 0, workers, workerScript: extra.workerScript ?? script, log: () => undefined, batcher: { maxWaitMs: 1, maxBatchRows: 16 } });
+  return startServer({
+    modelPath: path,
+    port: 0,
+    workers,
+    workerScript: extra.workerScript ?? script,
+    log: () => undefined,
+    batcher: { maxWaitMs: 1, maxBatchRows: 16 },
+  });
 }
 
 async function until(check: () => boolean, ms = 3000): Promise<boolean> {
@@ -100,14 +107,16 @@ describe('serving on worker threads', () => {
       }
       const ref = referenceForward(docA, toMat64(Float32Array.from(rows.flat()), rows.length, WIDTHS[0])).y.data;
       let worst = 0;
-      pooled!.forEach((answer, r) => (answer.json.outputs[0] as number[]).forEach((v, j) => (worst = Math.max(worst, Math.abs(v - ref[r * WIDTHS.at(-1)! + j]!)))));
+      pooled!.forEach((answer, r) =>
+        (answer.json.outputs[0] as number[]).forEach((v, j) => (worst = Math.max(worst, Math.abs(v - ref[r * WIDTHS.at(-1)! + j]!)))),
+      );
       expect(worst).toBeLessThan(1e-5);
     } finally {
       await Promise.all([one.close(), two.close()]);
     }
   });
 
-  it('hot swap under load with N=2 drops no request; every answer is exactly the old or the new model\'s; old pools close', async () => {
+  it("hot swap under load with N=2 drops no request; every answer is exactly the old or the new model's; old pools close", async () => {
     const path = join(dir, 'swapping.tendon');
     await writeModelFile(path, docA);
     const running = await served(path, 2);
@@ -195,23 +204,26 @@ describe('serving on worker threads', () => {
     }
   });
 
-  it.runIf(existsSync('/proc/self/status'))('graceful shutdown answers what is in flight and ends every worker thread (counted by the OS, /proc/self/status)', async () => {
-    const before = osThreads();
-    const running = await served(aPath, 2);
-    expect(osThreads()).toBeGreaterThanOrEqual(before + 2);
-    const rows = Array.from({ length: 40 }, (_, i) => rowOf(600 + i));
-    const inFlight = rows.map((row) => postJson(`${running.url}/v1/score`, { rows: [row] }).catch(() => null));
-    await sleep(5);
-    await running.close();
-    const answers = await Promise.all(inFlight);
-    for (const [i, answer] of answers.entries()) {
-      if (answer === null) continue;
-      expect([200, 503]).toContain(answer.status);
-      if (answer.status === 200) expect(answer.json.outputs).toEqual(a.run([rows[i]!]));
-    }
-    expect(running.handler.liveWorkers).toBe(0);
-    expect(osThreads()).toBeLessThanOrEqual(before);
-  });
+  it.runIf(existsSync('/proc/self/status'))(
+    'graceful shutdown answers what is in flight and ends every worker thread (counted by the OS, /proc/self/status)',
+    async () => {
+      const before = osThreads();
+      const running = await served(aPath, 2);
+      expect(osThreads()).toBeGreaterThanOrEqual(before + 2);
+      const rows = Array.from({ length: 40 }, (_, i) => rowOf(600 + i));
+      const inFlight = rows.map((row) => postJson(`${running.url}/v1/score`, { rows: [row] }).catch(() => null));
+      await sleep(5);
+      await running.close();
+      const answers = await Promise.all(inFlight);
+      for (const [i, answer] of answers.entries()) {
+        if (answer === null) continue;
+        expect([200, 503]).toContain(answer.status);
+        if (answer.status === 200) expect(answer.json.outputs).toEqual(a.run([rows[i]!]));
+      }
+      expect(running.handler.liveWorkers).toBe(0);
+      expect(osThreads()).toBeLessThanOrEqual(before);
+    },
+  );
 
   it('a worker script that cannot start fails `ready` and keeps no thread', async () => {
     const handler = createRequestHandler({ model: aPath, workers: 2, workerScript: join(dir, 'missing-worker.js'), log: () => undefined });
@@ -227,7 +239,9 @@ describe('serving on worker threads', () => {
     expect(workerCount(3)).toBe(3);
     expect(() => workerCount(-1)).toThrow(/whole number >= 0, got -1/);
     expect(() => workerCount(1.5)).toThrow(RuntimeFailure);
-    expect(() => createRequestHandler({ model: a, workers: 2, runBatch: (m, x, rows) => m.run(x, rows) })).toThrow(/runBatch cannot be combined with workers = 2/);
+    expect(() => createRequestHandler({ model: a, workers: 2, runBatch: (m, x, rows) => m.run(x, rows) })).toThrow(
+      /runBatch cannot be combined with workers = 2/,
+    );
   });
 });
 

@@ -31,7 +31,10 @@ describe('SimdRunner (own WebAssembly SIMD dense kernel)', () => {
       const k = instantiateDenseKernel(1 << 20, { fused });
       const f = new Float32Array(k.memory.buffer);
       const rng = new SeededRng(4);
-      const xo = 0, wo = 4096, bo = 32768, yo = 40960;
+      const xo = 0,
+        wo = 4096,
+        bo = 32768,
+        yo = 40960;
       for (let i = 0; i < rows * nIn; i++) f[xo + i] = rng.normal();
       for (let i = 0; i < nIn * outP; i++) f[wo + i] = rng.normal();
       for (let i = 0; i < outP; i++) f[bo + i] = rng.normal();
@@ -92,7 +95,11 @@ describe('SimdRunner (own WebAssembly SIMD dense kernel)', () => {
       layers,
       normalise: { method: 'zscore', mean: Float64Array.from([1, -2, 0.5, 3, 0, 10]), std: Float64Array.from([2, 0.5, 1, 4, 0, 3]), m2: null, count: 100 },
     };
-    const minmax: ModelDoc = { ...base, layers, normalise: { method: 'minmax', min: Float64Array.from([-1, -2, -3, 0, 5, 1]), max: Float64Array.from([1, 2, 3, 4, 5, 9]), count: 100 } };
+    const minmax: ModelDoc = {
+      ...base,
+      layers,
+      normalise: { method: 'minmax', min: Float64Array.from([-1, -2, -3, 0, 5, 1]), max: Float64Array.from([1, 2, 3, 4, 5, 9]), count: 100 },
+    };
     expect(worstAgainstReference(zscore, 17, 1)).toBeLessThan(TOL);
     expect(worstAgainstReference(minmax, 17, 2)).toBeLessThan(TOL);
   });
@@ -103,7 +110,11 @@ describe('SimdRunner (own WebAssembly SIMD dense kernel)', () => {
   });
 
   it.each(forms)('gives a row the same bits whatever else shares its batch (4-row tiles and single rows sum alike; fused %s)', (fused) => {
-    for (const widths of [[7, 32, 16, 3], [513, 40, 3], [784, 64, 10]]) {
+    for (const widths of [
+      [7, 32, 16, 3],
+      [513, 40, 3],
+      [784, 64, 10],
+    ]) {
       const doc = denseStackDoc(widths, 3);
       const fast = new SimdRunner(doc, { kernel: { fused } });
       const rows = 11; // two 4-row tiles and three single rows
@@ -123,7 +134,7 @@ describe('SimdRunner (own WebAssembly SIMD dense kernel)', () => {
     expect(() => fast.run(new Float32Array(4), 1)).toThrow(/disposed/);
   });
 
-  it('reports each layer\'s output for the parity check, the last equal to run', () => {
+  it("reports each layer's output for the parity check, the last equal to run", () => {
     const doc = denseStackDoc([6, 12, 5, 3], 2);
     const fast = new SimdRunner(doc);
     const x = seededRows(9, 6, 3);

@@ -120,7 +120,13 @@ describe('SimdTrainer (own kernel) gradients against the float64 reference backw
     const doc: ModelDoc = {
       ...base,
       layers: [base.layers[0]!, { kind: 'dropout', rate: 0.25 }, base.layers[1]!],
-      normalise: { method: 'zscore', mean: Float64Array.from({ length: 784 }, () => rng.normal()), std: Float64Array.from({ length: 784 }, () => 0.5 + rng.next()), m2: null, count: 10 },
+      normalise: {
+        method: 'zscore',
+        mean: Float64Array.from({ length: 784 }, () => rng.normal()),
+        std: Float64Array.from({ length: 784 }, () => 0.5 + rng.next()),
+        m2: null,
+        count: 10,
+      },
     };
     compare(doc, 64, true, 8);
   });
@@ -142,7 +148,15 @@ describe('SimdTrainer (own kernel) gradients against the float64 reference backw
 
   it('refuses batch normalisation with an EngineRefusal naming the layer, its kind and the engine', () => {
     const doc = denseStackDoc([4, 8, 2], 1);
-    const bn = { kind: 'batchnorm' as const, gamma: new Float32Array(8).fill(1), beta: new Float32Array(8), runningMean: new Float32Array(8), runningVariance: new Float32Array(8).fill(1), epsilon: 1e-3, momentum: 0.9 };
+    const bn = {
+      kind: 'batchnorm' as const,
+      gamma: new Float32Array(8).fill(1),
+      beta: new Float32Array(8),
+      runningMean: new Float32Array(8),
+      runningVariance: new Float32Array(8).fill(1),
+      epsilon: 1e-3,
+      momentum: 0.9,
+    };
     let thrown: unknown = null;
     try {
       new SimdTrainer({ ...doc, layers: [doc.layers[0]!, bn, doc.layers[1]!] }, { preActivation: true });

@@ -25,7 +25,17 @@ export function workerScript(): string {
   execFileSync(
     join(root, 'node_modules', '.bin', 'esbuild'),
     // --loader:.proto=text as in tsup.config.ts: the schema is embedded from formats/tendon.proto.
-    ['src/engine/worker-entry.ts', '--bundle', '--platform=node', '--format=esm', '--target=node20', '--packages=external', '--loader:.proto=text', `--outfile=${out}`, '--log-level=warning'],
+    [
+      'src/engine/worker-entry.ts',
+      '--bundle',
+      '--platform=node',
+      '--format=esm',
+      '--target=node20',
+      '--packages=external',
+      '--loader:.proto=text',
+      `--outfile=${out}`,
+      '--log-level=warning',
+    ],
     { cwd: root },
   );
   bundled = out;
@@ -42,7 +52,17 @@ export function parseWorkerScript(): string {
   mkdirSync(dirname(out), { recursive: true });
   execFileSync(
     join(root, 'node_modules', '.bin', 'esbuild'),
-    ['src/serve/parse-worker.ts', '--bundle', '--platform=node', '--format=esm', '--target=node20', '--packages=external', '--loader:.proto=text', `--outfile=${out}`, '--log-level=warning'],
+    [
+      'src/serve/parse-worker.ts',
+      '--bundle',
+      '--platform=node',
+      '--format=esm',
+      '--target=node20',
+      '--packages=external',
+      '--loader:.proto=text',
+      `--outfile=${out}`,
+      '--log-level=warning',
+    ],
     { cwd: root },
   );
   bundledParser = out;

@@ -29,7 +29,12 @@ describe('temperature scaling on an over-fitted MNIST network', () => {
     expect([train.rows, calib.rows, test.rows]).toEqual([400, 600, 1500]);
     // 400 rows, 784-128-10, 80 epochs of Adam: training loss near 0, far past the best hold-out epoch.
     const res = await tune(docOf(784, [denseSpec(128, 'relu'), denseSpec(10, 'softmax')]), train, {
-      epochs: 80, batch: 32, lr: 0.002, seed: 5, holdoutData: calib, calibrate: true,
+      epochs: 80,
+      batch: 32,
+      lr: 0.002,
+      seed: 5,
+      holdoutData: calib,
+      calibrate: true,
     });
     const fit = res.calibration!;
     expect(res.history.at(-1)!.train.accuracy).toBe(1);
@@ -43,7 +48,9 @@ describe('temperature scaling on an over-fitted MNIST network', () => {
     const after = referenceForward(res.doc, toMat64(test.x, test.rows, 784)).y.data;
     const eceBefore = expectedCalibrationError(before, test.rows, 10, test.y);
     const eceAfter = expectedCalibrationError(after, test.rows, 10, test.y);
-    console.log(`MNIST over-fit: T = ${fit.temperature.toFixed(3)}, test ECE ${eceBefore.toFixed(4)} -> ${eceAfter.toFixed(4)}, calibration-row NLL ${fit.nllBefore.toFixed(3)} -> ${fit.nllAfter.toFixed(3)}`);
+    console.log(
+      `MNIST over-fit: T = ${fit.temperature.toFixed(3)}, test ECE ${eceBefore.toFixed(4)} -> ${eceAfter.toFixed(4)}, calibration-row NLL ${fit.nllBefore.toFixed(3)} -> ${fit.nllAfter.toFixed(3)}`,
+    );
     expect(eceAfter).toBeLessThan(eceBefore);
     expect(Array.from(argmaxRows(after, test.rows, 10))).toEqual(Array.from(argmaxRows(before, test.rows, 10)));
   });

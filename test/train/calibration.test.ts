@@ -97,7 +97,11 @@ describe('tune with calibrate', () => {
   const y = Int32Array.from({ length: rows }, (_, r) => (x[r * 2] + 0.5 * x[r * 2 + 1] + 0.8 * rng.normal() > 0 ? 1 : 0));
 
   it('a single sigmoid output gets a temperature: the model then answers sigmoid(z / T)', async () => {
-    const res = await tune(docOf(2, [denseSpec(8, 'tanh'), denseSpec(1, 'sigmoid')]), { x, rows, y }, { epochs: 30, batch: 16, lr: 0.01, seed: 1, holdout: 0.3, calibrate: true });
+    const res = await tune(
+      docOf(2, [denseSpec(8, 'tanh'), denseSpec(1, 'sigmoid')]),
+      { x, rows, y },
+      { epochs: 30, batch: 16, lr: 0.01, seed: 1, holdout: 0.3, calibrate: true },
+    );
     const t = res.doc.temperature!;
     expect(t).toBe(res.calibration!.temperature);
     const z = referenceLogits(res.doc, x, rows);
@@ -107,7 +111,11 @@ describe('tune with calibrate', () => {
 
   it('stores no temperature when every hold-out row is right (the NLL keeps falling as T -> 0, no minimum inside the range)', async () => {
     const easy = Int32Array.from({ length: rows }, (_, r) => (x[r * 2] > 0 ? 1 : 0));
-    const res = await tune(docOf(2, [denseSpec(1, 'sigmoid')]), { x, rows, y: easy }, { epochs: 200, batch: 16, lr: 0.1, seed: 1, holdout: 0.3, calibrate: true });
+    const res = await tune(
+      docOf(2, [denseSpec(1, 'sigmoid')]),
+      { x, rows, y: easy },
+      { epochs: 200, batch: 16, lr: 0.1, seed: 1, holdout: 0.3, calibrate: true },
+    );
     expect(res.history.at(-1)!.holdout!.accuracy).toBe(1);
     expect(res.calibration!.atBound).toBe(true);
     expect(res.calibration!.temperature).toBeLessThan(0.011);
@@ -116,7 +124,11 @@ describe('tune with calibrate', () => {
 
   it('is refused for regression targets and without hold-out rows (TuneConfigError, exit 2)', async () => {
     const values = Float32Array.from({ length: rows }, (_, r) => x[r * 2]);
-    await expect(tune(docOf(2, [denseSpec(1, 'linear')]), { x, rows, y: values }, { epochs: 1, holdout: 0.3, calibrate: true })).rejects.toThrow(/calibrate: a temperature applies to a softmax or sigmoid output layer/);
-    await expect(tune(docOf(2, [denseSpec(1, 'sigmoid')]), { x, rows, y }, { epochs: 1, calibrate: true })).rejects.toThrow(/calibrate: fitting a temperature needs hold-out rows/);
+    await expect(tune(docOf(2, [denseSpec(1, 'linear')]), { x, rows, y: values }, { epochs: 1, holdout: 0.3, calibrate: true })).rejects.toThrow(
+      /calibrate: a temperature applies to a softmax or sigmoid output layer/,
+    );
+    await expect(tune(docOf(2, [denseSpec(1, 'sigmoid')]), { x, rows, y }, { epochs: 1, calibrate: true })).rejects.toThrow(
+      /calibrate: fitting a temperature needs hold-out rows/,
+    );
   });
 });

@@ -35,7 +35,15 @@ function relativeGap(a: readonly number[], b: readonly number[]): number {
   return worst / Math.max(scale, 1e-30);
 }
 
-const batchnorm = (): Layer => ({ kind: 'batchnorm', gamma: new Float32Array(0), beta: new Float32Array(0), runningMean: new Float32Array(0), runningVariance: new Float32Array(0), epsilon: 1e-5, momentum: 0.9 });
+const batchnorm = (): Layer => ({
+  kind: 'batchnorm',
+  gamma: new Float32Array(0),
+  beta: new Float32Array(0),
+  runningMean: new Float32Array(0),
+  runningVariance: new Float32Array(0),
+  epsilon: 1e-5,
+  momentum: 0.9,
+});
 
 describe('the fast training path (src/train/tune.ts on src/engine/fast/simd-trainer.ts)', () => {
   it('is the default for a dense model when WebAssembly SIMD is there, and the tfjs engine otherwise', async () => {
@@ -84,12 +92,20 @@ describe('the fast training path (src/train/tune.ts on src/engine/fast/simd-trai
   // The whole loop against the float64 reference path: the same seeded masks, shuffles and
   // replay rows, so float32 rounding is the only difference (from memory: float32 keeps ~7 digits).
   const wholeRuns: [string, TuneRunOptions][] = [
-    ['momentum (Nesterov), decoupled decay, clipping, anchor, a frozen tensor', { optimizer: 'momentum', nesterov: true, lr: 0.05, weightDecay: 0.01, clip: 0.5, anchor: 0.1, freezeTensors: ['layers[3].bias'] }],
+    [
+      'momentum (Nesterov), decoupled decay, clipping, anchor, a frozen tensor',
+      { optimizer: 'momentum', nesterov: true, lr: 0.05, weightDecay: 0.01, clip: 0.5, anchor: 0.1, freezeTensors: ['layers[3].bias'] },
+    ],
     ['Adam, l2 decay, a frozen layer, replay', { optimizer: 'adam', lr: 0.01, weightDecay: 0.001, decayMode: 'l2', freeze: [0], replayPerBatch: 0.5 }],
   ];
   it.each(wholeRuns)('agrees with the float64 reference path through a whole run: %s', async (_name, extra) => {
     const data = blobs(48, 4, 3, 6);
-    const parent = (await tune(docOf(4, [denseSpec(12, 'relu'), { kind: 'dropout', rate: 0.25 }, denseSpec(6, 'softplus'), denseSpec(3, 'softmax')]), data, { epochs: 1, path: 'reference' })).doc;
+    const parent = (
+      await tune(docOf(4, [denseSpec(12, 'relu'), { kind: 'dropout', rate: 0.25 }, denseSpec(6, 'softplus'), denseSpec(3, 'softmax')]), data, {
+        epochs: 1,
+        path: 'reference',
+      })
+    ).doc;
     const opts: TuneRunOptions = { epochs: 3, batch: 8, seed: 7, holdout: 0.25, replay: extra.replayPerBatch ? blobs(12, 4, 3, 8) : undefined, ...extra };
     const fast = await tune(parent, data, { ...opts, path: 'fast' });
     const ref = await tune(parent, data, { ...opts, path: 'reference' });
@@ -125,7 +141,14 @@ describe('the fast training path (src/train/tune.ts on src/engine/fast/simd-trai
     const make = (rows: number) => ({ x: Float32Array.from(normals(rng, rows * 3)), rows, y: Float32Array.from(normals(rng, rows)) });
     const train = make(16);
     const hold = make(16);
-    const res = await tune(docOf(3, [denseSpec(32, 'tanh'), denseSpec(1, 'linear')]), train, { epochs: 200, batch: 16, lr: 0.03, path: 'fast', holdoutData: hold, stopAfter: 5 });
+    const res = await tune(docOf(3, [denseSpec(32, 'tanh'), denseSpec(1, 'linear')]), train, {
+      epochs: 200,
+      batch: 16,
+      lr: 0.03,
+      path: 'fast',
+      holdoutData: hold,
+      stopAfter: 5,
+    });
     expect(res.path).toBe('fast');
     expect(res.stoppedEarly).toBe(true);
     const losses = res.history.map((h) => h.holdout!.loss);
@@ -159,7 +182,13 @@ describe('the fast training path (src/train/tune.ts on src/engine/fast/simd-trai
   it('a huge learning rate throws DivergenceError with finite last good weights', async () => {
     const rng = seededRng(11);
     const data = { x: Float32Array.from(normals(rng, 40, 0, 10)), rows: 20, y: Float32Array.from(normals(rng, 20, 0, 100)) };
-    const caught = await tune(docOf(2, [denseSpec(8, 'linear'), denseSpec(1, 'linear')]), data, { epochs: 50, batch: 20, optimizer: 'sgd', lr: 1e6, path: 'fast' }).then(
+    const caught = await tune(docOf(2, [denseSpec(8, 'linear'), denseSpec(1, 'linear')]), data, {
+      epochs: 50,
+      batch: 20,
+      optimizer: 'sgd',
+      lr: 1e6,
+      path: 'fast',
+    }).then(
       () => null,
       (e: unknown) => e,
     );
@@ -171,12 +200,17 @@ describe('the fast training path (src/train/tune.ts on src/engine/fast/simd-trai
   it('stops after the current batch when aborted', async () => {
     const controller = new AbortController();
     let batches = 0;
-    const res = await tune(docOf(3, [denseSpec(2, 'softmax')]), blobs(40, 3, 2, 12), { epochs: 3, batch: 4, path: 'fast' }, {
-      signal: controller.signal,
-      onBatch: () => {
-        if (++batches === 3) controller.abort();
+    const res = await tune(
+      docOf(3, [denseSpec(2, 'softmax')]),
+      blobs(40, 3, 2, 12),
+      { epochs: 3, batch: 4, path: 'fast' },
+      {
+        signal: controller.signal,
+        onBatch: () => {
+          if (++batches === 3) controller.abort();
+        },
       },
-    });
+    );
     expect(res.aborted).toBe(true);
     expect(res.path).toBe('fast');
     expect(batches).toBe(3);

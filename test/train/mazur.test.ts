@@ -27,7 +27,11 @@ describe('one SGD step on the 2-2-2 network (src/train/tune.ts; Mazur 2015 worke
     ['fast', 6],
   ] as const)('tune on the %s path stores all eight weights to float32 precision (%i digits)', async (path, digits) => {
     const start = mazurDoc();
-    const { doc, history, path: used } = await tune(
+    const {
+      doc,
+      history,
+      path: used,
+    } = await tune(
       start,
       { x: Float64Array.of(0.05, 0.1), rows: 1, y: Float64Array.of(0.01, 0.99) },
       { path, optimizer: 'sgd', lr: 0.5, epochs: 1, batch: 1, loss: 'half_sse', freezeTensors: ['layers[0].bias', 'layers[1].bias'] },

@@ -50,7 +50,11 @@ describe('target scaling: y = z·std + mean folded into the last dense layer', (
   it('attaching a scaling to a model that already answers in target units leaves its answers unchanged', () => {
     const rng = new SeededRng(5);
     const doc = docOf(3, [randomDense(rng, 3, 8, 'relu'), randomDense(rng, 8, 2, 'linear')]);
-    const x = mat64(4, 3, Float64Array.from({ length: 12 }, () => rng.normal()));
+    const x = mat64(
+      4,
+      3,
+      Float64Array.from({ length: 12 }, () => rng.normal()),
+    );
     const before = referenceForward(doc, x).y.data;
     const work = cloneDoc(doc);
     attachTargetScaling(work, { mean: Float64Array.of(120, -3), std: Float64Array.of(40, 0.25) });

@@ -21,7 +21,10 @@ function blobs(rows: number, features: number, classes: number, seed: number) {
   return { x, rows, y };
 }
 
-const weightsOf = (doc: ModelDoc) => doc.layers.flatMap((l) => (l.kind === 'dense' ? [...l.weight, ...l.bias] : l.kind === 'batchnorm' ? [...l.gamma, ...l.beta, ...l.runningMean, ...l.runningVariance] : []));
+const weightsOf = (doc: ModelDoc) =>
+  doc.layers.flatMap((l) =>
+    l.kind === 'dense' ? [...l.weight, ...l.bias] : l.kind === 'batchnorm' ? [...l.gamma, ...l.beta, ...l.runningMean, ...l.runningVariance] : [],
+  );
 
 describe('tune loop (src/train/tune.ts)', () => {
   it.each([
@@ -31,9 +34,14 @@ describe('tune loop (src/train/tune.ts)', () => {
   ])('batch %i over 10 rows makes ceil(n/k) = %i updates per epoch (common practice)', async (k, updates) => {
     const data = blobs(10, 3, 2, 1);
     const perEpoch: number[] = [0, 0];
-    const { history } = await tune(docOf(3, [denseSpec(2, 'softmax')]), data, { epochs: 2, batch: k, optimizer: 'sgd', lr: 0.1, path: 'reference' }, {
-      onBatch: (p) => perEpoch[p.epoch]++,
-    });
+    const { history } = await tune(
+      docOf(3, [denseSpec(2, 'softmax')]),
+      data,
+      { epochs: 2, batch: k, optimizer: 'sgd', lr: 0.1, path: 'reference' },
+      {
+        onBatch: (p) => perEpoch[p.epoch]++,
+      },
+    );
     expect(perEpoch).toEqual([updates, updates]);
     expect(history.map((h) => h.updates)).toEqual([updates, updates]);
   });
@@ -41,7 +49,20 @@ describe('tune loop (src/train/tune.ts)', () => {
   it('repeats bit for bit from the seed, with dropout and batch norm, on the engine (common practice)', async () => {
     const data = blobs(60, 4, 3, 2);
     const spec = () =>
-      docOf(4, [denseSpec(8, 'relu'), { kind: 'batchnorm', gamma: new Float32Array(0), beta: new Float32Array(0), runningMean: new Float32Array(0), runningVariance: new Float32Array(0), epsilon: 1e-5, momentum: 0.9 }, { kind: 'dropout', rate: 0.3 }, denseSpec(3, 'softmax')]);
+      docOf(4, [
+        denseSpec(8, 'relu'),
+        {
+          kind: 'batchnorm',
+          gamma: new Float32Array(0),
+          beta: new Float32Array(0),
+          runningMean: new Float32Array(0),
+          runningVariance: new Float32Array(0),
+          epsilon: 1e-5,
+          momentum: 0.9,
+        },
+        { kind: 'dropout', rate: 0.3 },
+        denseSpec(3, 'softmax'),
+      ]);
     const opts = { epochs: 3, batch: 8, lr: 0.01, seed: 5, holdout: 0.2 };
     const a = await tune(spec(), data, opts);
     const b = await tune(spec(), data, opts);
@@ -68,7 +89,13 @@ describe('tune loop (src/train/tune.ts)', () => {
     const first = await tune(docOf(3, [denseSpec(4, 'tanh'), denseSpec(2, 'softmax')], emptyZscore()), data, { epochs: 1, path: 'reference' });
     const parent = first.doc;
     const before = structuredClone(parent);
-    const second = await tune(parent, data, { epochs: 2, lr: 0.05, path: 'reference', normalisation: 'continue', parent: { checksum: '0badf00d', source: 'a.tdn' } });
+    const second = await tune(parent, data, {
+      epochs: 2,
+      lr: 0.05,
+      path: 'reference',
+      normalisation: 'continue',
+      parent: { checksum: '0badf00d', source: 'a.tdn' },
+    });
     expect(parent).toEqual(before);
     expect(weightsOf(second.doc)).not.toEqual(weightsOf(parent));
     expect(second.doc.provenance.at(-1)).toMatchObject({ checksum: '0badf00d', source: 'a.tdn', action: 'fine-tuned' });
@@ -114,7 +141,12 @@ describe('tune loop (src/train/tune.ts)', () => {
   it('replay mixes earlier rows into every batch', async () => {
     const data = blobs(12, 3, 2, 8);
     const rows: number[] = [];
-    await tune(docOf(3, [denseSpec(2, 'softmax')]), data, { epochs: 1, batch: 4, path: 'reference', replay: blobs(5, 3, 2, 9), replayPerBatch: 2 }, { onBatch: (p) => rows.push(p.rows) });
+    await tune(
+      docOf(3, [denseSpec(2, 'softmax')]),
+      data,
+      { epochs: 1, batch: 4, path: 'reference', replay: blobs(5, 3, 2, 9), replayPerBatch: 2 },
+      { onBatch: (p) => rows.push(p.rows) },
+    );
     expect(rows).toEqual([6, 6, 6]);
   });
 
@@ -125,7 +157,12 @@ describe('tune loop (src/train/tune.ts)', () => {
     const train = make(16);
     const hold = make(16);
     const res = await tune(docOf(3, [denseSpec(32, 'tanh'), denseSpec(1, 'linear')]), train, {
-      epochs: 200, batch: 16, lr: 0.03, path: 'reference', holdoutData: hold, stopAfter: 5,
+      epochs: 200,
+      batch: 16,
+      lr: 0.03,
+      path: 'reference',
+      holdoutData: hold,
+      stopAfter: 5,
     });
     expect(res.stoppedEarly).toBe(true);
     const losses = res.history.map((h) => h.holdout!.loss);
@@ -157,12 +194,17 @@ describe('tune loop (src/train/tune.ts)', () => {
   it('stops after the current batch when aborted', async () => {
     const controller = new AbortController();
     let batches = 0;
-    const res = await tune(docOf(3, [denseSpec(2, 'softmax')]), blobs(40, 3, 2, 12), { epochs: 3, batch: 4, path: 'reference' }, {
-      signal: controller.signal,
-      onBatch: () => {
-        if (++batches === 3) controller.abort();
+    const res = await tune(
+      docOf(3, [denseSpec(2, 'softmax')]),
+      blobs(40, 3, 2, 12),
+      { epochs: 3, batch: 4, path: 'reference' },
+      {
+        signal: controller.signal,
+        onBatch: () => {
+          if (++batches === 3) controller.abort();
+        },
       },
-    });
+    );
     expect(res.aborted).toBe(true);
     expect(batches).toBe(3);
     expect(res.history).toHaveLength(0);
@@ -184,7 +226,9 @@ describe('tune loop (src/train/tune.ts)', () => {
       ['tanh', 'half_sse', normals(rng, 10), 2],
     ] as const;
     for (const [activation, loss, y, outs] of cases) {
-      const doc = (await tune(docOf(3, [denseSpec(4, 'softplus'), denseSpec(outs, activation)]), { x, rows: 5, y }, { epochs: 1, lr: 1e-9, path: 'reference', loss })).doc;
+      const doc = (
+        await tune(docOf(3, [denseSpec(4, 'softplus'), denseSpec(outs, activation)]), { x, rows: 5, y }, { epochs: 1, lr: 1e-9, path: 'reference', loss })
+      ).doc;
       const { grads } = gradientsOf(doc, x, y, { rows: 5, loss });
       const w = (doc.layers[0] as DenseLayer).weight;
       for (const k of [0, 5, 11]) {

@@ -35,7 +35,15 @@ describe('foldModel', () => {
     // feature 0: gamma 2, beta 0.5, mean 1, var 3, eps 1 -> a = 2 / sqrt(4) = 1, c = 0.5 - 1·1 = -0.5
     // feature 1: gamma 1, beta 0, mean -2, var 0.24, eps 1 -> a = 1 / sqrt(1.24), c = 2 / sqrt(1.24)
     const doc = docOf(2, [
-      { kind: 'batchnorm', gamma: Float32Array.of(2, 1), beta: Float32Array.of(0.5, 0), runningMean: Float32Array.of(1, -2), runningVariance: Float32Array.of(3, 0.24), epsilon: 1, momentum: 0.9 },
+      {
+        kind: 'batchnorm',
+        gamma: Float32Array.of(2, 1),
+        beta: Float32Array.of(0.5, 0),
+        runningMean: Float32Array.of(1, -2),
+        runningVariance: Float32Array.of(3, 0.24),
+        epsilon: 1,
+        momentum: 0.9,
+      },
       { kind: 'dense', size: 2, activation: 'relu', alpha: 0, weight: Float32Array.of(1, 0, 0, 1), bias: Float32Array.of(0, 0) },
     ]);
     const { doc: folded } = foldModel(doc);
@@ -51,7 +59,12 @@ describe('foldModel', () => {
     const { doc: folded, steps } = foldModel(doc);
     expect(folded.layers.map((l) => l.kind)).toEqual(['dense', 'dense']);
     expect(folded.normalise).toBeNull();
-    expect(steps.filter((s) => s.folded).map((s) => s.step).sort()).toEqual(['dropout', 'normalisation']);
+    expect(
+      steps
+        .filter((s) => s.folded)
+        .map((s) => s.step)
+        .sort(),
+    ).toEqual(['dropout', 'normalisation']);
     const c = parity(doc, folded);
     // Measured: max abs error 1.2e-6 on 512 rows, against FLOAT32_TOLERANCE abs 1e-4.
     expect(c.maxAbs).toBeLessThan(1e-5);
@@ -65,7 +78,11 @@ describe('foldModel', () => {
 
   it('min-max normalisation, batch norm after a linear layer and a chain of linear layers collapse to one layer', () => {
     const rng = new SeededRng(11);
-    const doc = docOf(5, [randomDense(rng, 5, 8, 'linear'), randomBatchNorm(rng, 8), randomDense(rng, 8, 6, 'linear'), randomDense(rng, 6, 2, 'sigmoid')], wideMinmaxOf(rng, 5));
+    const doc = docOf(
+      5,
+      [randomDense(rng, 5, 8, 'linear'), randomBatchNorm(rng, 8), randomDense(rng, 8, 6, 'linear'), randomDense(rng, 6, 2, 'sigmoid')],
+      wideMinmaxOf(rng, 5),
+    );
     const { doc: folded, steps } = foldModel(doc);
     expect(folded.layers).toHaveLength(1);
     expect(steps.find((s) => s.step === 'batchnorm')?.reason).toMatch(/before it/);
@@ -76,7 +93,11 @@ describe('foldModel', () => {
 
   it('batch norm after a ReLU layer folds into the dense layer after it; answers within float32 tolerance', () => {
     const rng = new SeededRng(5);
-    const doc = docOf(6, [randomDense(rng, 6, 12, 'relu'), randomBatchNorm(rng, 12), { kind: 'dropout', rate: 0.3 }, randomDense(rng, 12, 4, 'tanh')], wideZscoreOf(rng, 6));
+    const doc = docOf(
+      6,
+      [randomDense(rng, 6, 12, 'relu'), randomBatchNorm(rng, 12), { kind: 'dropout', rate: 0.3 }, randomDense(rng, 12, 4, 'tanh')],
+      wideZscoreOf(rng, 6),
+    );
     const { doc: folded, steps } = foldModel(doc);
     expect(folded.layers.map((l) => l.kind)).toEqual(['dense', 'dense']);
     expect(steps.find((s) => s.step === 'batchnorm')).toMatchObject({ folded: true, layers: [1] });
@@ -106,7 +127,15 @@ describe('foldModel', () => {
     const rng = new SeededRng(21);
     const doc = docOf(
       16,
-      [randomDense(rng, 16, 64, 'linear'), randomDense(rng, 64, 32, 'leaky_relu'), randomBatchNorm(rng, 32), { kind: 'dropout', rate: 0.2 }, randomDense(rng, 32, 32, 'linear'), randomBatchNorm(rng, 32), randomDense(rng, 32, 10, 'softmax')],
+      [
+        randomDense(rng, 16, 64, 'linear'),
+        randomDense(rng, 64, 32, 'leaky_relu'),
+        randomBatchNorm(rng, 32),
+        { kind: 'dropout', rate: 0.2 },
+        randomDense(rng, 32, 32, 'linear'),
+        randomBatchNorm(rng, 32),
+        randomDense(rng, 32, 10, 'softmax'),
+      ],
       wideZscoreOf(rng, 16),
     );
     const { doc: folded } = foldModel(doc);

@@ -175,16 +175,38 @@ describe('the storage verdict follows the per-value rule (src/check/tolerance.ts
     expect(d.pass).toBe(true);
     // Worst value: min(6e-4 / 0.05, 0.6 / 0.05) = 0.012; value 1: min(0.02, 0.002) = 0.002.
     expect(d.worstRatio).toBeCloseTo(0.012, 10);
-    expect(costVerdict({ rows: 1, maxAbs: d.maxAbs, maxRel: d.maxRel, worstRow: 0, worstCol: 0, topClassAgreement: null, worstRatio: d.worstRatio, tolerance: i8, pass: d.pass })).toBe(
-      'within (worst value at 1% of its bound)',
-    );
+    expect(
+      costVerdict({
+        rows: 1,
+        maxAbs: d.maxAbs,
+        maxRel: d.maxRel,
+        worstRow: 0,
+        worstCol: 0,
+        topClassAgreement: null,
+        worstRatio: d.worstRatio,
+        tolerance: i8,
+        pass: d.pass,
+      }),
+    ).toBe('within (worst value at 1% of its bound)');
   });
 
   it('a value past both bounds is BROKEN, with how far: |11 - 10| = 1 is 20x abs 0.05 and 0.1 / 0.05 = 2x rel, so 2x', () => {
     const d = compareMatrices(Float64Array.of(11), Float64Array.of(10), 1, i8);
     expect(d.pass).toBe(false);
     expect(d.worstRatio).toBeCloseTo(2, 10);
-    expect(costVerdict({ rows: 1, maxAbs: d.maxAbs, maxRel: d.maxRel, worstRow: 0, worstCol: 0, topClassAgreement: null, worstRatio: d.worstRatio, tolerance: i8, pass: d.pass })).toBe('BROKEN (worst value 2.00x its bound)');
+    expect(
+      costVerdict({
+        rows: 1,
+        maxAbs: d.maxAbs,
+        maxRel: d.maxRel,
+        worstRow: 0,
+        worstCol: 0,
+        topClassAgreement: null,
+        worstRatio: d.worstRatio,
+        tolerance: i8,
+        pass: d.pass,
+      }),
+    ).toBe('BROKEN (worst value 2.00x its bound)');
   });
 
   it('about --costs prints the bound beside each verdict and the rule under the table', async () => {

@@ -27,7 +27,11 @@ export const about: Command = {
     const engine = read.doc.storage === 'i8' && bestInt8Arith() !== null ? 'int8' : 'fast';
     const runs = { engine, kernel: kernelDescription(engine) };
     const line = `engine under --engine auto: ${runs.engine} (${runs.kernel})\n`;
-    io.out(f.json ? JSON.stringify({ ...facts, runs, ...(costs ? { storageCosts: costs } : {}) }, null, 2) + '\n' : describe(facts) + line + (costs ? '\n' + describeStorageCosts(costs) : ''));
+    io.out(
+      f.json
+        ? JSON.stringify({ ...facts, runs, ...(costs ? { storageCosts: costs } : {}) }, null, 2) + '\n'
+        : describe(facts) + line + (costs ? '\n' + describeStorageCosts(costs) : ''),
+    );
     return 0;
   },
 };

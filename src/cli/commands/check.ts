@@ -18,9 +18,13 @@ const flags = {
   seed: { kind: 'integer', help: 'seed for the random rows', default: 1 },
   engine: { kind: 'string', help: 'auto, fast, int8, wasm or js', default: 'auto' },
   json: { kind: 'boolean', help: 'print the report as JSON' },
-  target: { kind: 'string', short: 't', help: 'with --input: the class column; also report accuracy and calibration error (ECE, 15 bins) on those labelled rows' },
+  target: {
+    kind: 'string',
+    short: 't',
+    help: 'with --input: the class column; also report accuracy and calibration error (ECE, 15 bins) on those labelled rows',
+  },
   report: { kind: 'string', help: 'also write the per-layer errors against the tolerance as one HTML page (FILE.html)' },
-  against: { kind: 'string', help: 'judge MODEL against its parent file instead (both on the float64 reference path; tolerance by MODEL\'s storage)' },
+  against: { kind: 'string', help: "judge MODEL against its parent file instead (both on the float64 reference path; tolerance by MODEL's storage)" },
 } as const;
 
 /** At most this many rows of an input file are checked: the float64 reference is slow by design. */
@@ -46,9 +50,16 @@ export const check: Command = {
       const input = f.input ? await readInput(model, f.input) : undefined;
       const report = model.check(input ?? { x: randomInputs(model.doc, rows, f.seed ?? 1), rows });
       const labelled = f.input && f.target !== undefined ? await labelledQuality(model, f.input, f.target) : null;
-      if (f.json) io.out(JSON.stringify({ model: path, engine: model.engine, kernel: model.kernel, ...report, ...(labelled ? { labelled } : {}) }, null, 2) + '\n');
+      if (f.json)
+        io.out(JSON.stringify({ model: path, engine: model.engine, kernel: model.kernel, ...report, ...(labelled ? { labelled } : {}) }, null, 2) + '\n');
       else {
-        io.out(describeParity(report, `${path} on the ${model.engine} engine (${model.kernel}), ${report.output.rows} rows${f.input ? ` from ${f.input}` : ' (seeded random, not representative of real inputs)'}`, model.engine === 'int8'));
+        io.out(
+          describeParity(
+            report,
+            `${path} on the ${model.engine} engine (${model.kernel}), ${report.output.rows} rows${f.input ? ` from ${f.input}` : ' (seeded random, not representative of real inputs)'}`,
+            model.engine === 'int8',
+          ),
+        );
         if (labelled) io.out(describeLabelled(labelled, f.input ?? ''));
       }
       if (f.report) await writeCheckReport(f.report, path, model.engine, report, f.input ? `from ${f.input}` : '(seeded random)');
@@ -100,7 +111,16 @@ export function describeParity(report: ParityReport, title: string, integer = fa
 }
 
 /** `check MODEL --against PARENT`: the two models' outputs on the same rows, both on the float64 reference path. */
-async function checkAgainst(path: string, parentPath: string, rows: number, seed: number, input: string | undefined, json: boolean, io: { out(t: string): void }, reportPath?: string): Promise<number> {
+async function checkAgainst(
+  path: string,
+  parentPath: string,
+  rows: number,
+  seed: number,
+  input: string | undefined,
+  json: boolean,
+  io: { out(t: string): void },
+  reportPath?: string,
+): Promise<number> {
   const [child, parent] = await Promise.all([readModelFile(path), readModelFile(parentPath)]);
   // Rows are drawn around the PARENT's statistics: a folded child no longer keeps its own.
   const x = input ? await readInput({ doc: parent.doc, inputs: parent.doc.inputs }, input) : { x: randomInputs(parent.doc, rows, seed), rows };

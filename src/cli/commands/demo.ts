@@ -4,7 +4,7 @@ import type { Command } from '../command.js';
 import { parseEngine } from './engine-flag.js';
 
 const flags = {
-  dir: { kind: 'string', help: 'folder for the demo\'s model files (default: a new temporary folder)' },
+  dir: { kind: 'string', help: "folder for the demo's model files (default: a new temporary folder)" },
   seed: { kind: 'integer', help: 'seed of the invented data and the initial weights', default: 7 },
   engine: { kind: 'string', help: 'auto, fast, int8, wasm or js', default: 'auto' },
 } as const;

@@ -22,8 +22,12 @@ import { inputChunks } from '../model-input.js';
 const flags = {
   input: { kind: 'string', short: 'i', help: 'rows to explain: .csv, .jsonl or .npy (2-D)' },
   output: { kind: 'string', short: 'o', help: 'where to write one attribution row per input row: .csv, .jsonl or .npy' },
-  class: { kind: 'string', help: 'the output explained: top (each row\'s top output), a label, or an index', default: 'top' },
-  steps: { kind: 'integer', help: `integration steps, 1 to 10000 (rows over a 1% completeness gap are redone with more, up to ${AUTO_STEPS_LIMIT})`, default: DEFAULT_STEPS },
+  class: { kind: 'string', help: "the output explained: top (each row's top output), a label, or an index", default: 'top' },
+  steps: {
+    kind: 'integer',
+    help: `integration steps, 1 to 10000 (rows over a 1% completeness gap are redone with more, up to ${AUTO_STEPS_LIMIT})`,
+    default: DEFAULT_STEPS,
+  },
   baseline: { kind: 'string', help: 'what a row is compared with: mean (the stored average input), zeros, or a file holding one row', default: 'mean' },
 } as const;
 
@@ -32,7 +36,7 @@ const CHUNK_ROWS = 256;
 
 export const explain: Command = {
   name: 'explain',
-  summary: 'per-feature attributions of each row\'s answer (integrated gradients on the float64 reference path)',
+  summary: "per-feature attributions of each row's answer (integrated gradients on the float64 reference path)",
   usage: 'tendon explain MODEL --input ROWS --output OUT.csv [--class top|LABEL|INDEX] [--steps N] [--baseline mean|zeros|FILE]',
   flags,
   async run(argv, io) {
@@ -104,7 +108,8 @@ async function baselineOf(doc: ModelDoc, value: string): Promise<Float64Array> {
     for (let r = 0; r < chunk.rows; r++) rows.push(chunk.x.subarray(r * doc.inputs, (r + 1) * doc.inputs));
     if (rows.length > 1) break;
   }
-  if (rows.length !== 1) throw new UsageError('--baseline', `${value} holds ${rows.length === 0 ? 'no rows' : 'more than one row'}; give a file with exactly one baseline row`);
+  if (rows.length !== 1)
+    throw new UsageError('--baseline', `${value} holds ${rows.length === 0 ? 'no rows' : 'more than one row'}; give a file with exactly one baseline row`);
   return checkBaselineRow(doc, rows[0], '--baseline');
 }
 

@@ -28,7 +28,9 @@ export const pack: Command = {
     const store = f.store === undefined ? undefined : parseStore(f.store);
     const doc = await buildModelFromSpecFile(specPath, { seed: f.seed, store });
     const written = await writeModelFile(out, doc);
-    io.out(`packed ${out}: ${doc.layers.length} layers, ${doc.inputs} inputs, stored ${doc.storage}, ${bytesText(written.bytes)}, checksum ${written.checksum}\n`);
+    io.out(
+      `packed ${out}: ${doc.layers.length} layers, ${doc.inputs} inputs, stored ${doc.storage}, ${bytesText(written.bytes)}, checksum ${written.checksum}\n`,
+    );
     return 0;
   },
 };

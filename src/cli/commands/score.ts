@@ -15,7 +15,7 @@ const flags = {
   batch: { kind: 'integer', help: 'rows read and scored at a time (bounds memory)', default: 4096 },
   engine: { kind: 'string', help: 'auto, fast, int8, wasm or js', default: 'auto' },
   shard: { kind: 'string', help: 'K/N: score only the K-th (1-based) of N contiguous row ranges, for one task of an indexed batch job' },
-  drift: { kind: 'boolean', help: 'after scoring, print per-feature drift against the model\'s normalisation statistics to stderr' },
+  drift: { kind: 'boolean', help: "after scoring, print per-feature drift against the model's normalisation statistics to stderr" },
 } as const;
 
 export const score: Command = {

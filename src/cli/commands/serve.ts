@@ -21,7 +21,8 @@ const flags = {
 export const serve: Command = {
   name: 'serve',
   summary: 'serve a model over HTTP on loopback: score, about, alive, ready and counters routes; hot swap on file change or SIGHUP',
-  usage: 'tendon serve MODEL [--port P] [--host H] [--body-limit BYTES] [--batch-rows N] [--wait-ms MS] [--queue-rows N] [--drift-k K] [--workers N|auto] [--no-watch] [--token-file FILE | --open]',
+  usage:
+    'tendon serve MODEL [--port P] [--host H] [--body-limit BYTES] [--batch-rows N] [--wait-ms MS] [--queue-rows N] [--drift-k K] [--workers N|auto] [--no-watch] [--token-file FILE | --open]',
   flags,
   async run(argv, io) {
     const { flags: f, positionals } = parseArgs(argv, flags);
@@ -40,7 +41,10 @@ export const serve: Command = {
     if (f['token-file'] !== undefined && f.open) throw new UsageError('--open', 'cannot be combined with --token-file; choose one');
     const token = f['token-file'] !== undefined ? await readToken(f['token-file']) : null;
     if (!isLoopbackHost(host) && !token && !f.open) {
-      throw new UsageError('--host', `${host} is not a loopback address, so other machines could call the endpoint: give --token-file FILE (clients send Authorization: Bearer TOKEN), or --open to serve without a token`);
+      throw new UsageError(
+        '--host',
+        `${host} is not a loopback address, so other machines could call the endpoint: give --token-file FILE (clients send Authorization: Bearer TOKEN), or --open to serve without a token`,
+      );
     }
     const running = await startServer({
       modelPath,

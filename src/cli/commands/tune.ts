@@ -37,8 +37,14 @@ const flags = {
   'replay-share': { kind: 'number', help: 'replay rows per batch: a count, or a fraction of the batch', default: 0.25 },
   normalisation: { kind: 'string', help: 'a fitted normalise block: keep (frozen) or continue over the new rows', default: 'keep' },
   loss: { kind: 'string', help: 'override the loss chosen from the output activation' },
-  'raw-targets': { kind: 'boolean', help: 'regression: train on the targets as given (default: each target scaled to mean 0, sd 1 inside the model; answers stay in target units)' },
-  report: { kind: 'string', help: 'FILE.html: the whole run as one page (curves, confusion, per-class results, gradients, findings); FILE.svg: the curves alone' },
+  'raw-targets': {
+    kind: 'boolean',
+    help: 'regression: train on the targets as given (default: each target scaled to mean 0, sd 1 inside the model; answers stay in target units)',
+  },
+  report: {
+    kind: 'string',
+    help: 'FILE.html: the whole run as one page (curves, confusion, per-class results, gradients, findings); FILE.svg: the curves alone',
+  },
   log: { kind: 'string', help: 'per-epoch log: text or jsonl (default: text on a terminal, jsonl otherwise)' },
   calibrate: { kind: 'boolean', help: 'after training, fit a calibration temperature on the hold-out rows and store it (needs --holdout or --holdout-file)' },
   'keep-interrupted': { kind: 'boolean', help: 'on Ctrl-C, save what is complete as OUT.interrupted' },
@@ -48,14 +54,18 @@ const flags = {
 export const tune: Command = {
   name: 'tune',
   summary: 'train or fine-tune a model (a model file, or a JSON spec) on local data with mini-batch gradient descent',
-  usage: 'tendon tune MODEL|SPEC.json --data FILE --target COLUMN[,COLUMN] -o OUT [--epochs N] [--batch K] [--lr X] [--optimizer sgd|momentum|adam] [--seed S] [--holdout FRACTION | --holdout-file FILE] [--freeze LAYERS] [--anchor STRENGTH] [--calibrate] [--report FILE]',
+  usage:
+    'tendon tune MODEL|SPEC.json --data FILE --target COLUMN[,COLUMN] -o OUT [--epochs N] [--batch K] [--lr X] [--optimizer sgd|momentum|adam] [--seed S] [--holdout FRACTION | --holdout-file FILE] [--freeze LAYERS] [--anchor STRENGTH] [--calibrate] [--report FILE]',
   flags,
   async run(argv, io) {
     const { flags: f, positionals } = parseArgs(argv, flags);
     const modelPath = requirePositional(positionals, 0, 'the model file (or a JSON spec)');
     noExtraPositionals(positionals, 1);
     const dataPath = requireFlag(f.data, 'data');
-    const targets = requireFlag(f.target, 'target').split(',').map((t) => t.trim()).filter(Boolean);
+    const targets = requireFlag(f.target, 'target')
+      .split(',')
+      .map((t) => t.trim())
+      .filter(Boolean);
     const out = requireFlag(f.out, 'out');
     if (f.holdout !== undefined && f['holdout-file'] !== undefined) throw new UsageError('--holdout', 'give --holdout or --holdout-file, not both');
     if (f.calibrate && f.holdout === undefined && f['holdout-file'] === undefined) {
@@ -96,7 +106,10 @@ export const tune: Command = {
       signal: io.signal,
       onBatch: (p) => {
         const seconds = (performance.now() - started) / 1000;
-        bar.update(`epoch ${p.epoch + 1}/${f.epochs ?? 10}  batch ${p.batch + 1}/${p.batches}  loss ${sci(p.loss)}  ${grouped(p.rows / Math.max(seconds, 1e-9))} rows/s`, (p.batch + 1) / p.batches);
+        bar.update(
+          `epoch ${p.epoch + 1}/${f.epochs ?? 10}  batch ${p.batch + 1}/${p.batches}  loss ${sci(p.loss)}  ${grouped(p.rows / Math.max(seconds, 1e-9))} rows/s`,
+          (p.batch + 1) / p.batches,
+        );
       },
       onEpoch: (e) => (log === 'jsonl' ? io.out(JSON.stringify(epochJson(e)) + '\n') : say(epochText(e))),
     }).catch((error: unknown) => {
@@ -118,15 +131,38 @@ export const tune: Command = {
     const c = result.calibration;
     if (log === 'jsonl') {
       const calibration = c
-        ? { stored: !c.atBound, temperature: c.temperature, atBound: c.atBound, rows: c.rows, nllBefore: c.nllBefore, nllAfter: c.nllAfter, eceBefore: c.eceBefore, eceAfter: c.eceAfter, bins: ECE_BINS }
+        ? {
+            stored: !c.atBound,
+            temperature: c.temperature,
+            atBound: c.atBound,
+            rows: c.rows,
+            nllBefore: c.nllBefore,
+            nllAfter: c.nllAfter,
+            eceBefore: c.eceBefore,
+            eceAfter: c.eceAfter,
+            bins: ECE_BINS,
+          }
         : null;
-      io.out(JSON.stringify({ saved: out, checksum: written.checksum, epochs: result.history.length, bestEpoch: result.bestEpoch + 1, stoppedEarly: result.stoppedEarly, path: result.path, calibration, droppedTemperature: result.droppedTemperature }) + '\n');
+      io.out(
+        JSON.stringify({
+          saved: out,
+          checksum: written.checksum,
+          epochs: result.history.length,
+          bestEpoch: result.bestEpoch + 1,
+          stoppedEarly: result.stoppedEarly,
+          path: result.path,
+          calibration,
+          droppedTemperature: result.droppedTemperature,
+        }) + '\n',
+      );
     } else {
       io.out(summary + '\n');
       if (c) io.out(`${calibrationText(c)}\n${c.atBound ? '' : `note: ${CALIBRATION_CAUTION}\n`}`);
     }
     if (result.droppedTemperature !== null) {
-      io.err(`note: the input model's calibration temperature ${result.droppedTemperature.toFixed(4)} was dropped: it was fitted to the old weights; add --calibrate to fit a new one\n`);
+      io.err(
+        `note: the input model's calibration temperature ${result.droppedTemperature.toFixed(4)} was dropped: it was fitted to the old weights; add --calibrate to fit a new one\n`,
+      );
     }
     return 0;
   },
@@ -231,7 +267,9 @@ function epochJson(e: EpochRecord) {
     accuracy: e.train.accuracy,
     rmse: e.train.rmse,
     mae: e.train.mae,
-    holdout: e.holdout ? { loss: e.holdout.loss, accuracy: e.holdout.accuracy, rmse: e.holdout.rmse, mae: e.holdout.mae, confusion: e.holdout.confusion } : null,
+    holdout: e.holdout
+      ? { loss: e.holdout.loss, accuracy: e.holdout.accuracy, rmse: e.holdout.rmse, mae: e.holdout.mae, confusion: e.holdout.confusion }
+      : null,
     gradientNorms: e.gradientNorms,
     deadRelu: e.deadRelu,
     lr: e.lr,
@@ -246,7 +284,10 @@ function printDiagnostics(diagnostics: TuneResult['diagnostics'], log: 'text' | 
     const where = d.layer !== undefined ? ` (layer ${d.layer})` : '';
     const text = `warning${where}: ${d.message}${d.hint ? ` — hint: ${d.hint}` : ''}`;
     // Epochs are counted from 1 wherever the command line shows them.
-    if (log === 'jsonl') io.out(JSON.stringify({ warning: d.code, layer: d.layer ?? null, epoch: d.epoch === undefined ? null : d.epoch + 1, message: d.message, hint: d.hint }) + '\n');
+    if (log === 'jsonl')
+      io.out(
+        JSON.stringify({ warning: d.code, layer: d.layer ?? null, epoch: d.epoch === undefined ? null : d.epoch + 1, message: d.message, hint: d.hint }) + '\n',
+      );
     else io.err(text + '\n');
   }
 }

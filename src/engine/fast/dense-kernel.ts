@@ -15,7 +15,14 @@ import { setFlagsFromString } from 'node:v8';
 import { Code, I32, V128, moduleBytes, type FunctionDef } from './wasm-emit.js';
 
 // Parameters of dense(x, w, b, y, rows, nIn, outP, relu): byte addresses and counts.
-const X = 0, W = 1, B = 2, Y = 3, ROWS = 4, NIN = 5, OUTP = 6, RELU = 7;
+const X = 0,
+  W = 1,
+  B = 2,
+  Y = 3,
+  ROWS = 4,
+  NIN = 5,
+  OUTP = 6,
+  RELU = 7;
 
 /**
  * Inputs per k block. A block's W panel (KB x 8 floats) stays in L1 while the row tiles stream
@@ -77,14 +84,25 @@ function denseLocals(): DenseLocals {
   // Locals after the 8 parameters, i32 first, then v128.
   let next = 8;
   const i32Local = (): number => next++;
-  const R = i32Local(), J = i32Local(), K = i32Local(), WP = i32Local(), YP = i32Local();
-  const XSTRIDE = i32Local(), WSTRIDE = i32Local();
-  const K0 = i32Local(), KLEN = i32Local(), LAST = i32Local(), TAIL = i32Local();
+  const R = i32Local(),
+    J = i32Local(),
+    K = i32Local(),
+    WP = i32Local(),
+    YP = i32Local();
+  const XSTRIDE = i32Local(),
+    WSTRIDE = i32Local();
+  const K0 = i32Local(),
+    KLEN = i32Local(),
+    LAST = i32Local(),
+    TAIL = i32Local();
   const XP = Array.from({ length: TILE_ROWS }, i32Local);
   const i32Count = next - 8;
   const v128Local = (): number => next++;
   const ACC = Array.from({ length: 2 * TILE_ROWS }, v128Local);
-  const W0 = v128Local(), W1 = v128Local(), S = v128Local(), ZERO = v128Local();
+  const W0 = v128Local(),
+    W1 = v128Local(),
+    S = v128Local(),
+    ZERO = v128Local();
   const v128Count = next - 8 - i32Count;
   return { R, J, K, WP, YP, XSTRIDE, WSTRIDE, K0, KLEN, LAST, TAIL, XP, ACC, W0, W1, S, ZERO, i32Count, v128Count };
 }
@@ -185,7 +203,11 @@ function emitTile(e: DenseEmit, tileRows: number): void {
   emitTileStart(e, tileRows);
   // Row pointers into x, at column K0.
   c.get(X).get(l.R).get(l.XSTRIDE).mul().add().get(l.K0).i32(4).mul().add().set(XP[0]);
-  for (let t = 1; t < tileRows; t++) c.get(XP[t - 1]).get(l.XSTRIDE).add().set(XP[t]);
+  for (let t = 1; t < tileRows; t++)
+    c.get(XP[t - 1])
+      .get(l.XSTRIDE)
+      .add()
+      .set(XP[t]);
   c.get(W).get(l.K0).get(l.WSTRIDE).mul().add().get(l.J).i32(4).mul().add().set(l.WP);
   c.get(l.KLEN).set(l.K);
   c.block().loop();
@@ -207,8 +229,12 @@ function emitTile(e: DenseEmit, tileRows: number): void {
   c.end();
   // Store: y[(R + t) * outP + J ...].
   for (let t = 0; t < tileRows; t++) {
-    c.get(l.YP).get(ACC[2 * t]).v128Store(0);
-    c.get(l.YP).get(ACC[2 * t + 1]).v128Store(16);
+    c.get(l.YP)
+      .get(ACC[2 * t])
+      .v128Store(0);
+    c.get(l.YP)
+      .get(ACC[2 * t + 1])
+      .v128Store(16);
     if (t < tileRows - 1) c.get(l.YP).get(l.WSTRIDE).add().set(l.YP);
   }
 }
@@ -231,8 +257,12 @@ function emitTileStart({ c, l }: DenseEmit, tileRows: number): void {
   {
     c.get(l.YP).set(l.WP);
     for (let t = 0; t < tileRows; t++) {
-      c.get(l.WP).v128Load(0).set(ACC[2 * t]);
-      c.get(l.WP).v128Load(16).set(ACC[2 * t + 1]);
+      c.get(l.WP)
+        .v128Load(0)
+        .set(ACC[2 * t]);
+      c.get(l.WP)
+        .v128Load(16)
+        .set(ACC[2 * t + 1]);
       c.get(l.WP).get(l.WSTRIDE).add().set(l.WP);
     }
   }
@@ -289,8 +319,29 @@ function emitRowMultiplyAdd({ c, fused, l }: DenseEmit): void {
   {
     for (let q = 0; q < 4; q++) {
       c.get(l.YP).get(l.J).add();
-      if (fused) c.get(l.S).get(l.WP).get(l.J).add().v128Load(16 * q).get(l.YP).get(l.J).add().v128Load(16 * q).f32x4RelaxedMadd();
-      else c.get(l.YP).get(l.J).add().v128Load(16 * q).get(l.S).get(l.WP).get(l.J).add().v128Load(16 * q).f32x4Mul().f32x4Add();
+      if (fused)
+        c.get(l.S)
+          .get(l.WP)
+          .get(l.J)
+          .add()
+          .v128Load(16 * q)
+          .get(l.YP)
+          .get(l.J)
+          .add()
+          .v128Load(16 * q)
+          .f32x4RelaxedMadd();
+      else
+        c.get(l.YP)
+          .get(l.J)
+          .add()
+          .v128Load(16 * q)
+          .get(l.S)
+          .get(l.WP)
+          .get(l.J)
+          .add()
+          .v128Load(16 * q)
+          .f32x4Mul()
+          .f32x4Add();
       c.v128Store(16 * q);
     }
     c.get(l.J).i32(64).add().tee(l.J).get(l.WSTRIDE).ltU().brIf(0);

@@ -9,12 +9,30 @@
  * backend's matrix product. Parity with the float64 reference is held in the tests.
  */
 import { EngineRefusal, ShapeError } from '../../errors.js';
-import { activationKind, inputShiftScale, layerKind, modelWidths, validateModel, type ActivationF32, type ModelDoc, type SimdInference } from '../../model/index.js';
+import {
+  activationKind,
+  inputShiftScale,
+  layerKind,
+  modelWidths,
+  validateModel,
+  type ActivationF32,
+  type ModelDoc,
+  type SimdInference,
+} from '../../model/index.js';
 import type { Runner } from '../runner.js';
 import { instantiateDenseKernel, padded, type DenseKernel, type KernelOptions } from './dense-kernel.js';
 
 type Step =
-  | { readonly op: 'dense'; readonly w: number; readonly b: number; readonly nIn: number; readonly out: number; readonly outP: number; readonly activation: ActivationF32; readonly alpha: number }
+  | {
+      readonly op: 'dense';
+      readonly w: number;
+      readonly b: number;
+      readonly nIn: number;
+      readonly out: number;
+      readonly outP: number;
+      readonly activation: ActivationF32;
+      readonly alpha: number;
+    }
   | { readonly op: 'affine'; readonly scale: Float32Array; readonly shift: Float32Array };
 
 /**

@@ -14,7 +14,16 @@
  * training at about 1-2 thousand rows/s for 784-256-10.
  */
 import { EngineRefusal, ShapeError } from '../../errors.js';
-import { activationKind, inputShiftScale, layerKind, modelWidths, validateModel, type ForwardContext, type ModelDoc, type SimdTraining } from '../../model/index.js';
+import {
+  activationKind,
+  inputShiftScale,
+  layerKind,
+  modelWidths,
+  validateModel,
+  type ForwardContext,
+  type ModelDoc,
+  type SimdTraining,
+} from '../../model/index.js';
 import { instantiateDenseKernel, padded, type DenseKernel } from './dense-kernel.js';
 
 /** Rows per piece in `evaluate`: bounds kernel memory on large hold-out sets. */

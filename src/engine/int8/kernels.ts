@@ -67,12 +67,30 @@ class Locals {
  * scale NaN, so every output of that row is NaN (never a finite guess).
  */
 export function quantiseFunction(arith: Int8Arith): FunctionDef {
-  const SRC = 0, SSTRIDE = 1, ROWS = 2, WIDTH = 3, DST = 4, DSTRIDE = 5, PARAMS = 6;
+  const SRC = 0,
+    SSTRIDE = 1,
+    ROWS = 2,
+    WIDTH = 3,
+    DST = 4,
+    DSTRIDE = 5,
+    PARAMS = 6;
   const l = new Locals(7);
-  const R = l.add(I32), C = l.add(I32), SP = l.add(I32), DP = l.add(I32), Z = l.add(I32);
-  const MN = l.add(F32), MX = l.add(F32), S = l.add(F32), INV = l.add(F32);
-  const VMIN = l.add(V128), VMAX = l.add(V128), V = l.add(V128), VINV = l.add(V128), VZ = l.add(V128);
-  const LO = l.add(V128), HI = l.add(V128);
+  const R = l.add(I32),
+    C = l.add(I32),
+    SP = l.add(I32),
+    DP = l.add(I32),
+    Z = l.add(I32);
+  const MN = l.add(F32),
+    MX = l.add(F32),
+    S = l.add(F32),
+    INV = l.add(F32);
+  const VMIN = l.add(V128),
+    VMAX = l.add(V128),
+    V = l.add(V128),
+    VINV = l.add(V128),
+    VZ = l.add(V128);
+  const LO = l.add(V128),
+    HI = l.add(V128);
   const c = new Code();
   c.i32(0).set(R);
   c.block().loop();
@@ -90,8 +108,30 @@ export function quantiseFunction(arith: Int8Arith): FunctionDef {
       c.get(C).i32(16).add().tee(C).get(WIDTH).i32(4).mul().ltU().brIf(0);
     }
     c.end().end();
-    c.get(VMIN).f32x4ExtractLane(0).get(VMIN).f32x4ExtractLane(1).f32Min().get(VMIN).f32x4ExtractLane(2).get(VMIN).f32x4ExtractLane(3).f32Min().f32Min().set(MN);
-    c.get(VMAX).f32x4ExtractLane(0).get(VMAX).f32x4ExtractLane(1).f32Max().get(VMAX).f32x4ExtractLane(2).get(VMAX).f32x4ExtractLane(3).f32Max().f32Max().set(MX);
+    c.get(VMIN)
+      .f32x4ExtractLane(0)
+      .get(VMIN)
+      .f32x4ExtractLane(1)
+      .f32Min()
+      .get(VMIN)
+      .f32x4ExtractLane(2)
+      .get(VMIN)
+      .f32x4ExtractLane(3)
+      .f32Min()
+      .f32Min()
+      .set(MN);
+    c.get(VMAX)
+      .f32x4ExtractLane(0)
+      .get(VMAX)
+      .f32x4ExtractLane(1)
+      .f32Max()
+      .get(VMAX)
+      .f32x4ExtractLane(2)
+      .get(VMAX)
+      .f32x4ExtractLane(3)
+      .f32Max()
+      .f32Max()
+      .set(MX);
     // scale = (max - min) / 127, or 1 for an all-zero row (any scale decodes zeros to zero).
     c.get(MX).get(MN).f32Sub().f32(127).f32Div().set(S);
     c.f32(1).get(S).get(S).f32(0).f32Eq().select().set(S);
@@ -121,7 +161,10 @@ export function quantiseFunction(arith: Int8Arith): FunctionDef {
         c.get(DP).get(LO).get(HI).i8x16NarrowI16x8U().i32(127).i8x16Splat().i8x16MinU().v128Store(0);
         c.get(DP).i32(16).add().set(DP);
       } else {
-        for (const [half, at] of [[LO, 0], [HI, 16]] as const) {
+        for (const [half, at] of [
+          [LO, 0],
+          [HI, 16],
+        ] as const) {
           c.get(DP).get(half).i32(127).i16x8Splat().i16x8MinS().v128Zero().i16x8MaxS().v128Store(at);
         }
         c.get(DP).i32(32).add().set(DP);
@@ -176,11 +219,21 @@ interface DenseI8Emit {
 export function denseInt8Function(arith: Int8Arith, tileRows = TILE_ROWS, colVectors = COL_VECTORS): FunctionDef {
   const { W, ROWS, GROUPS, OUTP, RELU } = DENSE_I8_PARAMS;
   const locals = new Locals(13);
-  const R0 = locals.add(I32), J = locals.add(I32), G = locals.add(I32), WP = locals.add(I32), WPANEL = locals.add(I32), PANELBYTES = locals.add(I32), YP = locals.add(I32), PP = locals.add(I32);
+  const R0 = locals.add(I32),
+    J = locals.add(I32),
+    G = locals.add(I32),
+    WP = locals.add(I32),
+    WPANEL = locals.add(I32),
+    PANELBYTES = locals.add(I32),
+    YP = locals.add(I32),
+    PP = locals.add(I32);
   const XP = locals.many(I32, tileRows);
   const ACC = locals.many(V128, tileRows * colVectors);
   const WV = locals.many(V128, colVectors);
-  const S = locals.add(V128), LOWER = locals.add(V128), ZS = locals.add(V128), SS = locals.add(V128);
+  const S = locals.add(V128),
+    LOWER = locals.add(V128),
+    ZS = locals.add(V128),
+    SS = locals.add(V128);
   const c = new Code();
   const groupBytes = 16 * colVectors * (arith === 'relaxed' ? 1 : 2);
   const xGroupBytes = 4 * CODE_BYTES[arith];
@@ -215,7 +268,10 @@ export function denseInt8Function(arith: Int8Arith, tileRows = TILE_ROWS, colVec
       c.br(0);
     }
     c.end().end();
-    c.get(J).i32(4 * colVectors).add().set(J);
+    c.get(J)
+      .i32(4 * colVectors)
+      .add()
+      .set(J);
     c.get(WPANEL).get(PANELBYTES).add().set(WPANEL);
     c.br(0);
   }
@@ -230,7 +286,11 @@ function emitInt8Tile(e: DenseI8Emit, rows: number): void {
   const { R0, G, WP, WPANEL, XP, ACC } = e.l;
   for (let a = 0; a < rows * colVectors; a++) c.v128Zero().set(ACC[a]);
   c.get(X).get(R0).get(XSTRIDE).mul().add().set(XP[0]);
-  for (let t = 1; t < rows; t++) c.get(XP[t - 1]).get(XSTRIDE).add().set(XP[t]);
+  for (let t = 1; t < rows; t++)
+    c.get(XP[t - 1])
+      .get(XSTRIDE)
+      .add()
+      .set(XP[t]);
   c.get(WPANEL).set(WP);
   c.get(GROUPS).set(G);
   c.block().loop();
@@ -248,7 +308,10 @@ function emitInt8Tile(e: DenseI8Emit, rows: number): void {
 function emitInt8GroupProducts({ c, arith, colVectors, l }: DenseI8Emit, rows: number): void {
   const { WP, XP, ACC, WV, S } = l;
   if (arith === 'relaxed') {
-    for (let v = 0; v < colVectors; v++) c.get(WP).v128Load(16 * v).set(WV[v]);
+    for (let v = 0; v < colVectors; v++)
+      c.get(WP)
+        .v128Load(16 * v)
+        .set(WV[v]);
     for (let t = 0; t < rows; t++) {
       c.get(XP[t]).load32Splat(0).set(S);
       for (let v = 0; v < colVectors; v++) {
@@ -258,9 +321,14 @@ function emitInt8GroupProducts({ c, arith, colVectors, l }: DenseI8Emit, rows: n
     }
   } else {
     for (let h = 0; h < 2; h++) {
-      for (let v = 0; v < colVectors; v++) c.get(WP).v128Load(16 * (colVectors * h + v)).set(WV[v]);
+      for (let v = 0; v < colVectors; v++)
+        c.get(WP)
+          .v128Load(16 * (colVectors * h + v))
+          .set(WV[v]);
       for (let t = 0; t < rows; t++) {
-        c.get(XP[t]).load32Splat(4 * h).set(S);
+        c.get(XP[t])
+          .load32Splat(4 * h)
+          .set(S);
         for (let v = 0; v < colVectors; v++) {
           const acc = ACC[t * colVectors + v];
           c.get(acc).get(WV[v]).get(S).i32x4DotI16x8S().i32x4Add().set(acc);
@@ -280,13 +348,36 @@ function emitInt8Epilogue({ c, colVectors, l }: DenseI8Emit, rows: number): void
     c.get(PP).load32Splat(0).set(SS);
     c.get(Y).get(R0).i32(t).add().get(YSTRIDE).mul().add().get(J).i32(4).mul().add().set(YP);
     for (let v = 0; v < colVectors; v++) {
-      c.get(ACC[t * colVectors + v]).get(ZS).get(CSUM).get(J).i32(4).mul().add().v128Load(16 * v).i32x4Mul().i32x4Sub();
+      c.get(ACC[t * colVectors + v])
+        .get(ZS)
+        .get(CSUM)
+        .get(J)
+        .i32(4)
+        .mul()
+        .add()
+        .v128Load(16 * v)
+        .i32x4Mul()
+        .i32x4Sub();
       c.f32x4ConvertI32x4().get(SS).f32x4Mul();
-      c.get(WS).get(J).i32(4).mul().add().v128Load(16 * v).f32x4Mul();
-      c.get(B).get(J).i32(4).mul().add().v128Load(16 * v).f32x4Add();
+      c.get(WS)
+        .get(J)
+        .i32(4)
+        .mul()
+        .add()
+        .v128Load(16 * v)
+        .f32x4Mul();
+      c.get(B)
+        .get(J)
+        .i32(4)
+        .mul()
+        .add()
+        .v128Load(16 * v)
+        .f32x4Add();
       c.get(LOWER).f32x4Max();
       c.set(S);
-      c.get(YP).get(S).v128Store(16 * v);
+      c.get(YP)
+        .get(S)
+        .v128Store(16 * v);
     }
   }
 }
@@ -297,9 +388,16 @@ function emitInt8Epilogue({ c, colVectors, l }: DenseI8Emit, rows: number): void
  * 'shift-scale' is (x - shift) · scale (the model's input normalisation, as the fast engine does it).
  */
 export function affineFunction(name: string, order: 'scale-shift' | 'shift-scale'): FunctionDef {
-  const X = 0, STRIDE = 1, ROWS = 2, WIDTH = 3, SCALE = 4, SHIFT = 5;
+  const X = 0,
+    STRIDE = 1,
+    ROWS = 2,
+    WIDTH = 3,
+    SCALE = 4,
+    SHIFT = 5;
   const l = new Locals(6);
-  const R = l.add(I32), C = l.add(I32), XP = l.add(I32);
+  const R = l.add(I32),
+    C = l.add(I32),
+    XP = l.add(I32);
   const c = new Code();
   c.i32(0).set(R);
   c.block().loop();

@@ -15,7 +15,10 @@ export const linear: ActivationKind = {
   engineForward: (z) => tf.clone(z),
   engineBackward: (_z, _y, dy) => tf.clone(dy),
   f32: {
-    ...pointwiseF32((z) => z, () => 1),
+    ...pointwiseF32(
+      (z) => z,
+      () => 1,
+    ),
     // Nothing to do after the kernel's product.
     forward: () => undefined,
   },

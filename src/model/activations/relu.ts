@@ -23,5 +23,9 @@ export const relu: ActivationKind = {
   engineBackward: (z, _y, dy) => tf.where(tf.greater(z, 0), dy, tf.zerosLike(dy)),
   // Fused into the kernel's store. Backward asks only whether z > 0, which is whether y > 0,
   // so a caller may hand y in z's place.
-  f32: pointwiseF32((z) => (z > 0 ? z : 0), (z) => (z > 0 ? 1 : 0), 'relu'),
+  f32: pointwiseF32(
+    (z) => (z > 0 ? z : 0),
+    (z) => (z > 0 ? 1 : 0),
+    'relu',
+  ),
 };

@@ -192,16 +192,32 @@ export const batchnorm: LayerKind<BatchNormLayer> = {
   outputWidth: (_layer, inputWidth) => inputWidth,
   tensors,
   trainable: params,
-  clone: (layer) => ({ ...layer, gamma: layer.gamma.slice(), beta: layer.beta.slice(), runningMean: layer.runningMean.slice(), runningVariance: layer.runningVariance.slice() }),
+  clone: (layer) => ({
+    ...layer,
+    gamma: layer.gamma.slice(),
+    beta: layer.beta.slice(),
+    runningMean: layer.runningMean.slice(),
+    runningVariance: layer.runningVariance.slice(),
+  }),
   // The identity: gamma 1, beta 0, running mean 0, running variance 1.
   fillEmpty: (layer, width) =>
     layer.gamma.length === 0
-      ? { ...layer, gamma: new Float32Array(width).fill(1), beta: new Float32Array(width), runningMean: new Float32Array(width), runningVariance: new Float32Array(width).fill(1) }
+      ? {
+          ...layer,
+          gamma: new Float32Array(width).fill(1),
+          beta: new Float32Array(width),
+          runningMean: new Float32Array(width),
+          runningVariance: new Float32Array(width).fill(1),
+        }
       : null,
   describe: (layer) => `epsilon ${layer.epsilon}, momentum ${layer.momentum}`,
   validate,
   reference: { forward: (layer, x, ctx) => refForward(layer, x, ctx), backward: (layer, saved, dy) => refBackward(layer, saved, dy) },
-  engine: { upload: engineUpload, forward: (layer, w, x, ctx) => engineForward(layer, w, x, ctx), backward: (layer, w, s, dy) => engineBackward(layer, w, s, dy) },
+  engine: {
+    upload: engineUpload,
+    forward: (layer, w, x, ctx) => engineForward(layer, w, x, ctx),
+    backward: (layer, w, s, dy) => engineBackward(layer, w, s, dy),
+  },
   simd: {
     inference: (layer) => ({ op: 'affine', ...batchNormAffine(layer) }),
     training: { refused: 'fast training runs dense and dropout layers only' },

@@ -47,9 +47,7 @@ function refBackward(layer: DenseLayer, saved: unknown, dy: Mat64, opts?: Backwa
   if (!isDenseSaved(saved)) throw new Error('dense backward: saved is not from a dense reference forward');
   const { x, z, y } = saved;
   const units = layer.size;
-  const dz = opts?.dyIsPreActivation
-    ? dy.data
-    : activationKind(layer.activation).refBackward(z, y, dy.data, x.rows, units, layer.alpha);
+  const dz = opts?.dyIsPreActivation ? dy.data : activationKind(layer.activation).refBackward(z, y, dy.data, x.rows, units, layer.alpha);
   const dW = matMulTransA64(x.data, x.rows, x.cols, dz, units);
   const db = columnSums64(dz, x.rows, units);
   const dx = matMulTransB64(dz, x.rows, units, layer.weight, x.cols);
@@ -124,8 +122,10 @@ export const dense: LayerKind<DenseLayer> = {
   trainable: params,
   clone: (layer) => ({ ...layer, weight: layer.weight.slice(), bias: layer.bias.slice() }),
   // He / Glorot weights from the seeded generator, zero biases; alpha as given.
-  fillEmpty: (layer, inputWidth, rng) => (layer.weight.length === 0 ? { ...initDense(inputWidth, layer.size, layer.activation, rng, layer.alpha), alpha: layer.alpha } : null),
-  describe: (layer) => (isActivationName(layer.activation) && activationKind(layer.activation).usesAlpha ? `${layer.activation} (alpha ${layer.alpha})` : layer.activation),
+  fillEmpty: (layer, inputWidth, rng) =>
+    layer.weight.length === 0 ? { ...initDense(inputWidth, layer.size, layer.activation, rng, layer.alpha), alpha: layer.alpha } : null,
+  describe: (layer) =>
+    isActivationName(layer.activation) && activationKind(layer.activation).usesAlpha ? `${layer.activation} (alpha ${layer.alpha})` : layer.activation,
   validate,
   reference: { forward: (layer, x) => refForward(layer, x), backward: refBackward },
   engine: { upload: engineUpload, forward: (layer, w, x, ctx) => engineForward(layer, w, x, ctx), backward: engineBackward },

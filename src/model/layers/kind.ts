@@ -94,7 +94,14 @@ export interface EngineBackward {
  * map y = scale ⊙ x + shift (float64 here, rounded to float32 once), or nothing.
  */
 export type SimdInference =
-  | { readonly op: 'dense'; readonly weight: Float32Array; readonly bias: Float32Array; readonly size: number; readonly activation: ActivationName; readonly alpha: number }
+  | {
+      readonly op: 'dense';
+      readonly weight: Float32Array;
+      readonly bias: Float32Array;
+      readonly size: number;
+      readonly activation: ActivationName;
+      readonly alpha: number;
+    }
   | { readonly op: 'affine'; readonly scale: Float64Array; readonly shift: Float64Array }
   | { readonly op: 'identity' };
 
@@ -103,7 +110,16 @@ export type SimdInference =
  * `layer` (the optimiser changes them in place), or a dropout mask drawn from the context.
  */
 export type SimdTraining =
-  | { readonly op: 'dense'; readonly layer: { readonly size: number; readonly activation: ActivationName; readonly alpha: number; readonly weight: Float32Array; readonly bias: Float32Array } }
+  | {
+      readonly op: 'dense';
+      readonly layer: {
+        readonly size: number;
+        readonly activation: ActivationName;
+        readonly alpha: number;
+        readonly weight: Float32Array;
+        readonly bias: Float32Array;
+      };
+    }
   | { readonly op: 'mask'; readonly rate: number };
 
 /** A layer kind's part in the fast engine; a null half means that engine refuses it, naming why. */
