@@ -1,6 +1,6 @@
 /**
  * `--report FILE`: which picture a file name asks for, and the small adapters from a run's
- * results (tune, check, bench) to the report module's plain records. The pages are drawn in
+ * results (tune, check, bench, explain) to the report module's plain records. The pages are drawn in
  * src/report; this file only chooses, maps and writes.
  */
 import { writeFile } from 'node:fs/promises';
@@ -9,9 +9,10 @@ import type { BaselineRow, BenchRow } from '../bench/index.js';
 import type { ParityReport } from '../check/index.js';
 import { UsageError } from '../errors.js';
 import type { ModelDoc } from '../model/index.js';
-import { benchPage, checkPage, tuneCurvesSvg, tunePage, valueText } from '../report/index.js';
+import { benchPage, checkPage, explainPage, tuneCurvesSvg, tunePage, valueText } from '../report/index.js';
 import type { OutputComparison } from '../transform/index.js';
 import type { TuneResult } from '../train/tune.js';
+import { percent } from './format.js';
 
 export type ReportFormat = 'svg' | 'html';
 
@@ -138,6 +139,49 @@ export async function writeBenchReport(
         ...baselines.rows.map((b) => ({ name: b.name, kind: 'baseline' as const, batch: b.batch, rowsPerSec: b.rowsPerSec })),
       ],
       notes: baselines.notes,
+    }),
+  );
+}
+
+/** What an explain run gathered for its report, besides the rows it wrote. */
+export interface ExplainSummary {
+  readonly features: readonly string[];
+  readonly rows: number;
+  /** Sum of |attribution| per feature over all rows. */
+  readonly sumAbs: Float64Array;
+  /** The first row's attributions and its explained output index, or null when no row was read. */
+  readonly first: { readonly attributions: Float64Array; readonly output: number } | null;
+  readonly labels?: readonly string[];
+  /** Steps asked for, and the most any row used. */
+  readonly steps: number;
+  readonly mostSteps: number;
+  /** The baseline, in words ("the stored average input"). */
+  readonly baseline: string;
+  readonly worstGap: number;
+  readonly caution: string;
+}
+
+/** Write an explain run (mean |attribution| per feature, the first row's attributions) as an HTML page. */
+export async function writeExplainReport(path: string, modelPath: string, s: ExplainSummary): Promise<void> {
+  const gap = percent(s.worstGap, 2);
+  const cls = s.first === null ? '' : (s.labels?.[s.first.output] ?? `output ${s.first.output}`);
+  await writeFile(
+    path,
+    explainPage({
+      title: `tendon explain ${modelPath}`,
+      lead: `${modelPath} on ${s.rows} rows, ${s.steps} steps${s.mostSteps > s.steps ? ` (up to ${s.mostSteps} on rows redone)` : ''}, against ${s.baseline}; largest completeness gap ${gap}.`,
+      facts: [
+        ['model', modelPath],
+        ['rows', String(s.rows)],
+        ['steps', s.mostSteps > s.steps ? `${s.steps} (up to ${s.mostSteps})` : String(s.steps)],
+        ['baseline', s.baseline],
+        ['largest completeness gap', gap],
+      ],
+      features: s.features,
+      meanAbs: Array.from(s.sumAbs, (v) => (s.rows > 0 ? v / s.rows : 0)),
+      firstRow: s.first === null ? null : Array.from(s.first.attributions),
+      firstClass: cls,
+      caution: s.caution,
     }),
   );
 }

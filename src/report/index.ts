@@ -1,6 +1,6 @@
 /**
  * Reports as pictures: tendon's look (look.ts), axes with round ticks (scale.ts), the charts
- * (line, horizontal bars, heat map), the HTML page, and the tune / check / bench reports.
+ * (line, horizontal bars, heat map), the HTML page, and the tune / check / bench / explain reports.
  * Pure functions: numbers in, markup out; nothing here imports tfjs or touches files.
  */
 export * from './look.js';
@@ -30,3 +30,4 @@ export {
 } from './tune.js';
 export { checkPage, type CheckReportInput, type ParityRowView } from './check.js';
 export { benchPage, type BenchReportInput, type BenchMeasure } from './bench.js';
+export { explainPage, EXPLAIN_TOP_FEATURES, type ExplainReportInput } from './explain.js';

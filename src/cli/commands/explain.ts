@@ -18,6 +18,7 @@ import { noExtraPositionals, parseArgs, requireFlag, requirePositional } from '.
 import type { Command } from '../command.js';
 import { grouped, percent } from '../format.js';
 import { inputChunks } from '../model-input.js';
+import { reportFormat, writeExplainReport, type ExplainSummary } from '../report-files.js';
 
 const flags = {
   input: { kind: 'string', short: 'i', help: 'rows to explain: .csv, .jsonl or .npy (2-D)' },
@@ -29,6 +30,7 @@ const flags = {
     default: DEFAULT_STEPS,
   },
   baseline: { kind: 'string', help: 'what a row is compared with: mean (the stored average input), zeros, or a file holding one row', default: 'mean' },
+  report: { kind: 'string', help: 'also write the attributions per feature (all rows, and the first row) as one HTML page (FILE.html)' },
 } as const;
 
 /** Rows explained at a time: the float64 path runs steps x rows points per chunk. */
@@ -37,7 +39,7 @@ const CHUNK_ROWS = 256;
 export const explain: Command = {
   name: 'explain',
   summary: "per-feature attributions of each row's answer (integrated gradients on the float64 reference path)",
-  usage: 'tendon explain MODEL --input ROWS --output OUT.csv [--class top|LABEL|INDEX] [--steps N] [--baseline mean|zeros|FILE]',
+  usage: 'tendon explain MODEL --input ROWS --output OUT.csv [--class top|LABEL|INDEX] [--steps N] [--baseline mean|zeros|FILE] [--report FILE.html]',
   flags,
   async run(argv, io) {
     const { flags: f, positionals } = parseArgs(argv, flags);
@@ -46,6 +48,7 @@ export const explain: Command = {
     const input = requireFlag(f.input, 'input');
     const output = requireFlag(f.output, 'output');
     const steps = checkSteps(f.steps ?? DEFAULT_STEPS, '--steps');
+    if (f.report) reportFormat(f.report, false);
     const { doc } = await readModelFile(path);
     validateModel(doc, path);
     const choice = parseClassChoice(doc, f.class ?? 'top', '--class');
@@ -60,6 +63,8 @@ export const explain: Command = {
     let over = 0;
     let worst = 0;
     let mostSteps = steps;
+    const sumAbs = new Float64Array(doc.inputs);
+    let first: ExplainSummary['first'] = null;
     const started = performance.now();
     try {
       for await (const chunk of inputChunks(doc, input, CHUNK_ROWS)) {
@@ -76,7 +81,9 @@ export const explain: Command = {
           if (e.steps[r] > steps) raised++;
           worst = Math.max(worst, e.gaps[r]);
           mostSteps = Math.max(mostSteps, e.steps[r]);
+          for (let j = 0; j < doc.inputs; j++) sumAbs[j] += Math.abs(out[o + j]);
         }
+        if (first === null && chunk.rows > 0) first = { attributions: out.slice(0, doc.inputs), output: e.classes[0] };
         over += e.overTolerance;
         await writer.write(chunk.rows, out);
         rows += chunk.rows;
@@ -97,6 +104,22 @@ export const explain: Command = {
           : `; ${grouped(over)} rows still pass ${percent(GAP_TOLERANCE, 0)} at ${mostSteps} steps and their attributions are approximate (try --steps ${Math.min(10_000, mostSteps * 4)})\n`) +
         `note: ${ATTRIBUTION_CAUTION}\n`,
     );
+    if (f.report) {
+      const baseline = `the ${describeBaseline(baselineName)}`;
+      const labels = doc.labels ?? undefined;
+      await writeExplainReport(f.report, path, {
+        features: names,
+        rows,
+        sumAbs,
+        first,
+        labels,
+        steps,
+        mostSteps,
+        baseline,
+        worstGap: worst,
+        caution: ATTRIBUTION_CAUTION,
+      });
+    }
     return 0;
   },
 };
