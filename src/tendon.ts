@@ -5,7 +5,7 @@
 import * as tf from '@tensorflow/tfjs-core';
 import { int8ParityReport, parityReport, randomInputs, type ParityReport } from './check/index.js';
 import {
-  Int8Session,
+  Int8Runner,
   TfjsRunner,
   ensureEngine,
   kernelDescription,
@@ -133,7 +133,7 @@ export class TendonModel {
   }
   /** Which kernel runs the model, in words. */
   get kernel(): string {
-    return this.runner instanceof Int8Session ? this.runner.kernel : kernelDescription(this.runner.engine);
+    return this.runner instanceof Int8Runner ? this.runner.kernel : kernelDescription(this.runner.engine);
   }
   get inputs(): number {
     return this.doc.inputs;
@@ -190,7 +190,7 @@ export class TendonModel {
     const rows = input?.rows ?? 256;
     const x = input?.x ?? randomInputs(this.doc, rows, seed);
     // The integer engine is held to the tolerance its quantisation steps allow (check/tolerance.ts).
-    if (this.runner instanceof Int8Session) return int8ParityReport(this.doc, x, rows, this.runner);
+    if (this.runner instanceof Int8Runner) return int8ParityReport(this.doc, x, rows, this.runner);
     return parityReport(this.doc, x, rows, { runner: this.runner });
   }
 

@@ -12,10 +12,10 @@ import * as tf from '@tensorflow/tfjs-core';
 import {
   bestInt8Arith,
   engineFallbackReason,
-  Int8Session,
+  Int8Runner,
   kernelDescription,
   openRunner,
-  SharedSession,
+  SharedMemoryRunner,
   useEngine,
   type EngineName,
   type Runner,
@@ -275,10 +275,10 @@ async function measureThreads(run: SuiteRun): Promise<void> {
       open: (threads: number) => { run(x: Float32Array, n: number): Float32Array; ready(): Promise<void>; dispose(): void };
     }[] = [];
     for (const threads of [1, 2]) {
-      cases.push({ name: 'fast', threads, batch: 256, open: (t) => new SharedSession(f32Doc, { arith: 'f32', threads: t }) });
-      cases.push({ name: 'int8', threads, batch: 256, open: (t) => new Int8Session(i8Doc, { threads: t }) });
+      cases.push({ name: 'fast', threads, batch: 256, open: (t) => new SharedMemoryRunner(f32Doc, { arith: 'f32', threads: t }) });
+      cases.push({ name: 'int8', threads, batch: 256, open: (t) => new Int8Runner(i8Doc, { threads: t }) });
     }
-    cases.push({ name: 'int8', threads: 1, batch: 1, open: (t) => new Int8Session(i8Doc, { threads: t }) });
+    cases.push({ name: 'int8', threads: 1, batch: 1, open: (t) => new Int8Runner(i8Doc, { threads: t }) });
     for (const c of cases) {
       run.opts.log(`threads ${c.name} x${c.threads} batch ${c.batch}`);
       const session = c.open(c.threads);

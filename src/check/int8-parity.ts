@@ -13,7 +13,7 @@ import { FLOAT32_TOLERANCE, INT8_LIPSCHITZ, int8Allowed, int8RoundingVariance, r
 /**
  * Run the integer engine (`session`) and the reference on `x` (rows x inputs raw features).
  * The report's `tolerance.abs` is the widest per-element allowance met anywhere.
- * @example int8ParityReport(doc, randomInputs(doc, 256, 1), 256, new Int8Session(doc)).pass
+ * @example int8ParityReport(doc, randomInputs(doc, 256, 1), 256, new Int8Runner(doc)).pass
  */
 export function int8ParityReport(doc: ModelDoc, x: Float32Array, rows: number, session: Pick<Runner, 'runLayers'>): ParityReport {
   const widths = modelWidths(doc);

@@ -6,6 +6,6 @@ export { ENGINE_CHOICES, kernelDescription, resolveEngine, type EngineChoice, ty
 export { SimdRunner, type SimdRunnerOptions } from './fast/simd-runner.js';
 export { SimdTrainer, simdTrainBlocker, type SimdTape, type SimdTrainForward } from './fast/simd-trainer.js';
 export { wasmSimdAvailable } from './fast/dense-kernel.js';
-export { Int8Session, type Int8SessionOptions } from './int8/int8-session.js';
-export { SharedSession, type SharedArith, type SharedSessionOptions } from './shared-session.js';
+export { Int8Runner, type Int8RunnerOptions } from './int8/int8-runner.js';
+export { SharedMemoryRunner, type SharedArith, type SharedMemoryRunnerOptions } from './shared-memory-runner.js';
 export { bestInt8Arith, INT8_KERNEL_NAMES, MAX_INT8_INPUTS, type Int8Arith } from './int8/kernels.js';

@@ -4,7 +4,7 @@
  * A `Runner` takes raw feature rows and gives outputs; every engine implements it:
  * - `TfjsRunner` (tfjs-runner.ts): the tfjs `js` and `wasm` backends;
  * - `SimdRunner` (fast/simd-runner.ts): our own WebAssembly SIMD kernel, engine `fast`;
- * - `Int8Session` (int8/int8-session.ts): integer arithmetic on int8 weights, engine `int8`.
+ * - `Int8Runner` (int8/int8-runner.ts): integer arithmetic on int8 weights, engine `int8`.
  * Training is a separate concern with its own classes (`TfjsTrainer`, `SimdTrainer`).
  *
  * The façade (src/tendon.ts), parity (src/check), the benchmarks (src/bench) and the worker
@@ -15,7 +15,7 @@ import type { RuntimeEngine } from './choice.js';
 import { SimdRunner } from './fast/simd-runner.js';
 import type { KernelOptions } from './fast/dense-kernel.js';
 import { TfjsRunner } from './tfjs-runner.js';
-import { Int8Session } from './int8/int8-session.js';
+import { Int8Runner } from './int8/int8-runner.js';
 
 export interface Runner {
   /** What runs the model: 'js' or 'wasm' (tfjs), 'fast' (our own kernel). */
@@ -68,7 +68,7 @@ export function openRunner(stored: ModelDoc, engine: RuntimeEngine, opts: Runner
     case 'fast':
       return new SimdRunner(doc, opts);
     case 'int8':
-      return new Int8Session(doc, { chunkRows: opts.chunkRows, source: opts.source, threads: opts.threads });
+      return new Int8Runner(doc, { chunkRows: opts.chunkRows, source: opts.source, threads: opts.threads });
     case 'js':
     case 'wasm': {
       const runner = new TfjsRunner(doc, opts);

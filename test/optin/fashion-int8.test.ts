@@ -9,7 +9,7 @@
 import { existsSync } from 'node:fs';
 import { describe, expect, it } from 'vitest';
 import { topClassAgreement } from '../../src/check/index.js';
-import { Int8Session, SimdRunner, useEngine } from '../../src/engine/index.js';
+import { Int8Runner, SimdRunner, useEngine } from '../../src/engine/index.js';
 import { readIdx } from '../../src/io/index.js';
 import { buildFromSpec } from '../../src/spec/spec.js';
 import { tune } from '../../src/train/tune.js';
@@ -53,7 +53,7 @@ describe.skipIf(!wanted)('Fashion-MNIST on the int8 engine (opt-in: TENDON_FASHI
     const rows = xt.dims[0];
     const labels = Int32Array.from(yt.data);
     const parent = new SimdRunner(trained.doc).run(x, rows);
-    const int8 = new Int8Session(shrinkModel(trained.doc, 'i8'), { threads: 2 });
+    const int8 = new Int8Runner(shrinkModel(trained.doc, 'i8'), { threads: 2 });
     await int8.ready();
     const y = int8.run(x, rows);
     int8.dispose();

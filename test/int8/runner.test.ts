@@ -5,9 +5,9 @@ import { describe, expect, it } from 'vitest';
 import { docOf, dropoutOf, minmaxOf, randomBatchNorm, randomDense, zscoreOf } from '../fixtures/models.js';
 import { int8ParityReport, randomInputs, topClassAgreement } from '../../src/check/index.js';
 import { SimdRunner } from '../../src/engine/fast/simd-runner.js';
-import { Int8Session } from '../../src/engine/int8/int8-session.js';
+import { Int8Runner } from '../../src/engine/int8/int8-runner.js';
 import { i16DotAvailable, MAX_INT8_INPUTS, relaxedDotAvailable, type Int8Arith } from '../../src/engine/int8/kernels.js';
-import { SharedSession } from '../../src/engine/shared-session.js';
+import { SharedMemoryRunner } from '../../src/engine/shared-memory-runner.js';
 import { ModelFileError } from '../../src/errors.js';
 import { storedCodesOf } from '../../src/format/int8.js';
 import { ACTIVATIONS, SeededRng, type Layer, type ModelDoc } from '../../src/model/index.js';
@@ -19,7 +19,7 @@ function i8Of(doc: ModelDoc): ModelDoc {
   return shrinkModel(doc, 'i8', { at: '2026-01-01T00:00:00Z' });
 }
 
-describe.each(ARITHS)('Int8Session (%s)', (arith) => {
+describe.each(ARITHS)('Int8Runner (%s)', (arith) => {
   it.each([...ACTIVATIONS])('within the derived int8 bound of the float64 reference, every layer, %s, batchnorm and dropout mixed in', (activation) => {
     const rng = new SeededRng(activation.length * 7 + 11);
     const layers: Layer[] = [
@@ -30,7 +30,7 @@ describe.each(ARITHS)('Int8Session (%s)', (arith) => {
       randomDense(rng, 33, 5, activation),
     ];
     const doc = i8Of(docOf(20, layers, activation.length % 2 ? zscoreOf(rng, 20) : minmaxOf(rng, 20)));
-    const session = new Int8Session(doc, { arith });
+    const session = new Int8Runner(doc, { arith });
     const report = int8ParityReport(doc, randomInputs(doc, 61, 3), 61, session);
     session.dispose();
     expect(report.pass, JSON.stringify(report.layers)).toBe(true);
@@ -48,7 +48,7 @@ describe.each(ARITHS)('Int8Session (%s)', (arith) => {
       ...doc,
       layers: doc.layers.map((l, i) => (i === 1 && l.kind === 'dense' ? { ...l, bias: l.bias.map((b, j) => (j === 2 ? b + 0.5 : b)) } : l)),
     };
-    const session = new Int8Session(wrong, { arith });
+    const session = new Int8Runner(wrong, { arith });
     const report = int8ParityReport(doc, randomInputs(doc, 32, 1), 32, session);
     session.dispose();
     expect(report.layers[1].pass).toBe(false);
@@ -60,10 +60,10 @@ describe.each(ARITHS)('Int8Session (%s)', (arith) => {
     const layer = doc.layers[0];
     if (layer.kind !== 'dense') throw new Error('dense expected');
     expect(storedCodesOf(layer.weight, 12, 8)).not.toBeNull();
-    expect(new Int8Session(doc, { arith }).storedCodes).toBe(true);
+    expect(new Int8Runner(doc, { arith }).storedCodes).toBe(true);
     // A float32 document has no stored codes: explicitly asked for, it is quantised at open, and says so.
     const f32 = docOf(12, [randomDense(rng, 12, 8, 'relu')]);
-    expect(new Int8Session(f32, { arith }).storedCodes).toBe(false);
+    expect(new Int8Runner(f32, { arith }).storedCodes).toBe(false);
   });
 
   it('top class agrees with the float32 parent on >= 97% of 512 seeded rows (seeded inputs, not representative of real data)', () => {
@@ -71,7 +71,7 @@ describe.each(ARITHS)('Int8Session (%s)', (arith) => {
     const parent = docOf(64, [randomDense(rng, 64, 128, 'relu'), randomDense(rng, 128, 64, 'relu'), randomDense(rng, 64, 10, 'softmax')], zscoreOf(rng, 64));
     const x = randomInputs(parent, 512, 5);
     const fast = new SimdRunner(parent).run(x, 512);
-    const session = new Int8Session(i8Of(parent), { arith });
+    const session = new Int8Runner(i8Of(parent), { arith });
     const y = session.run(x, 512);
     session.dispose();
     expect(topClassAgreement(y, fast, 512, 10)).toBeGreaterThanOrEqual(0.97);
@@ -87,8 +87,8 @@ describe.each(ARITHS)('Int8Session (%s)', (arith) => {
     );
     const rows = 2000;
     const x = randomInputs(doc, rows, 9);
-    const one = new Int8Session(doc, { arith });
-    const two = new Int8Session(doc, { arith, threads: 2 });
+    const one = new Int8Runner(doc, { arith });
+    const two = new Int8Runner(doc, { arith, threads: 2 });
     await two.ready();
     const a = one.run(x, rows);
     for (let round = 0; round < 3; round++) expect(Buffer.from(two.run(x, rows).buffer).equals(Buffer.from(a.buffer)), `round ${round}`).toBe(true);
@@ -107,8 +107,8 @@ describe.each(ARITHS)('Int8Session (%s)', (arith) => {
     );
     const rows = 301;
     const x = randomInputs(doc, rows, 8);
-    const one = new Int8Session(doc, { arith, chunkRows: 128 });
-    const two = new Int8Session(doc, { arith, threads: 2, chunkRows: 128 });
+    const one = new Int8Runner(doc, { arith, chunkRows: 128 });
+    const two = new Int8Runner(doc, { arith, threads: 2, chunkRows: 128 });
     await two.ready();
     expect(two.threads).toBe(2);
     const a = one.run(x, rows);
@@ -127,8 +127,8 @@ describe('shared-memory sessions', () => {
     const rng = new SeededRng(12);
     const doc = docOf(40, [randomDense(rng, 40, 64, 'relu'), randomDense(rng, 64, 9, 'sigmoid')], minmaxOf(rng, 40));
     const x = randomInputs(doc, 200, 2);
-    const one = new SharedSession(doc, { arith: 'f32' });
-    const two = new SharedSession(doc, { arith: 'f32', threads: 2 });
+    const one = new SharedMemoryRunner(doc, { arith: 'f32' });
+    const two = new SharedMemoryRunner(doc, { arith: 'f32', threads: 2 });
     await two.ready();
     const a = one.run(x, 200);
     const b = two.run(x, 200);
@@ -143,8 +143,8 @@ describe('shared-memory sessions', () => {
     const rng = new SeededRng(41);
     const doc = docOf(300, [randomDense(rng, 300, 256, 'relu'), randomDense(rng, 256, 128, 'relu'), randomDense(rng, 128, 10, 'linear')]);
     const x = randomInputs(doc, 2000, 3);
-    const one = new SharedSession(doc, { arith: 'f32' });
-    const two = new SharedSession(doc, { arith: 'f32', threads: 2 });
+    const one = new SharedMemoryRunner(doc, { arith: 'f32' });
+    const two = new SharedMemoryRunner(doc, { arith: 'f32', threads: 2 });
     await two.ready();
     const a = one.run(x, 2000);
     for (let round = 0; round < 3; round++) expect(Buffer.from(two.run(x, 2000).buffer).equals(Buffer.from(a.buffer)), `round ${round}`).toBe(true);
@@ -154,7 +154,7 @@ describe('shared-memory sessions', () => {
 
   it('a disposed session refuses to run', () => {
     const rng = new SeededRng(1);
-    const s = new SharedSession(docOf(4, [randomDense(rng, 4, 2, 'linear')]), { arith: 'f32', threads: 2 });
+    const s = new SharedMemoryRunner(docOf(4, [randomDense(rng, 4, 2, 'linear')]), { arith: 'f32', threads: 2 });
     s.dispose();
     expect(() => s.run(new Float32Array(4), 1)).toThrow(/disposed/);
   });
@@ -166,7 +166,7 @@ describe('refusals', () => {
     const doc = docOf(inputs, [{ kind: 'dense', size: 1, activation: 'linear', alpha: 0, weight: new Float32Array(inputs), bias: new Float32Array(1) }]);
     let error: unknown = null;
     try {
-      new Int8Session(doc);
+      new Int8Runner(doc);
     } catch (e) {
       error = e;
     }

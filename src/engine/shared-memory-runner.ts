@@ -48,7 +48,7 @@ import { ThreadTeam, type Share } from './threads.js';
 
 export type SharedArith = 'f32' | Int8Arith;
 
-export interface SharedSessionOptions {
+export interface SharedMemoryRunnerOptions {
   readonly arith: SharedArith;
   /** Threads, the caller included. Default 1. */
   readonly threads?: number;
@@ -76,7 +76,7 @@ interface ActivationPass {
 /** Where each dense layer's integer codes came from, for what `show` says. */
 export type CodesOrigin = 'stored' | 'quantised at open';
 
-export class SharedSession {
+export class SharedMemoryRunner {
   readonly inputs: number;
   readonly outputs: number;
   readonly chunkRows: number;
@@ -94,7 +94,7 @@ export class SharedSession {
 
   constructor(
     readonly doc: ModelDoc,
-    opts: SharedSessionOptions,
+    opts: SharedMemoryRunnerOptions,
   ) {
     const source = opts.source ?? '(model)';
     validateModel(doc, source);
@@ -137,7 +137,7 @@ export class SharedSession {
     this.mem = new Float32Array(memory.buffer);
     this.segmentFns = segmentDefs.map((def) => {
       const fn = instance.exports[def.name];
-      if (typeof fn !== 'function') throw new Error(`shared session: segment ${def.name} missing from the module`);
+      if (typeof fn !== 'function') throw new Error(`shared-memory runner: segment ${def.name} missing from the module`);
       return (row0: number, rows: number) => void fn(row0, rows);
     });
     this.team =
@@ -166,9 +166,9 @@ export class SharedSession {
    * @throws ShapeError when data does not hold rows x inputs values.
    */
   run(data: Float32Array, rows: number): Float32Array {
-    if (this.disposed) throw new Error('SharedSession.run: this session was disposed');
+    if (this.disposed) throw new Error('SharedMemoryRunner.run: this runner was disposed');
     if (!(Number.isInteger(rows) && rows >= 0) || data.length !== rows * this.inputs) {
-      throw new ShapeError('input', [`${rows} x ${this.inputs} = ${rows * this.inputs} values`], [data.length], 'SharedSession.run');
+      throw new ShapeError('input', [`${rows} x ${this.inputs} = ${rows * this.inputs} values`], [data.length], 'SharedMemoryRunner.run');
     }
     const out = new Float32Array(rows * this.outputs);
     const mem = this.mem;

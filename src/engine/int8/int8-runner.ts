@@ -1,7 +1,7 @@
 /**
  * Inference in integer arithmetic: int8 weights (the codes an i8 file stores), activations
  * quantised per row on the fly, 32-bit integer sums, dequantise + bias + ReLU fused at the store
- * (see kernels.ts for the arithmetic and its overflow bound). The same surface as FastSession,
+ * (see kernels.ts for the arithmetic and its overflow bound). The same surface as SimdRunner,
  * plus which kernel runs and on how many threads.
  *
  * Per row, not per batch: a per-batch activation range would make a row's answer depend on the
@@ -9,10 +9,10 @@
  */
 import type { ModelDoc } from '../../model/index.js';
 import type { Runner } from '../runner.js';
-import { SharedSession } from '../shared-session.js';
+import { SharedMemoryRunner } from '../shared-memory-runner.js';
 import { bestInt8Arith, INT8_KERNEL_NAMES, type Int8Arith } from './kernels.js';
 
-export interface Int8SessionOptions {
+export interface Int8RunnerOptions {
   /** Threads, the caller included. Default 1. */
   readonly threads?: number;
   /** Rows per pass; default 256 per thread. */
@@ -25,30 +25,30 @@ export interface Int8SessionOptions {
 
 /**
  * @example
- * const s = new Int8Session(doc, { threads: 2 });
+ * const s = new Int8Runner(doc, { threads: 2 });
  * await s.ready();
  * const y = s.run(features, rows); // Float32Array rows x outputs
  * s.kernel // "relaxed i8 dot, i16x8.relaxed_dot_i8x16_i7x16_s"
  * @throws ModelFileError when the document is not usable or a layer is too wide for 32-bit sums;
  *   Error when this runtime has no WebAssembly SIMD.
  */
-export class Int8Session implements Runner {
+export class Int8Runner implements Runner {
   readonly engine = 'int8' as const;
   readonly inputs: number;
   readonly outputs: number;
   readonly arith: Int8Arith;
-  private readonly shared: SharedSession;
-  private readonly options: Int8SessionOptions;
+  private readonly shared: SharedMemoryRunner;
+  private readonly options: Int8RunnerOptions;
 
   constructor(
     readonly doc: ModelDoc,
-    opts: Int8SessionOptions = {},
+    opts: Int8RunnerOptions = {},
   ) {
     const arith = opts.arith ?? bestInt8Arith();
     if (arith === null) throw new Error('the int8 engine needs WebAssembly SIMD, which this runtime lacks');
     this.arith = arith;
     this.options = opts;
-    this.shared = new SharedSession(doc, { arith, threads: opts.threads, chunkRows: opts.chunkRows, source: opts.source });
+    this.shared = new SharedMemoryRunner(doc, { arith, threads: opts.threads, chunkRows: opts.chunkRows, source: opts.source });
     this.inputs = this.shared.inputs;
     this.outputs = this.shared.outputs;
   }
@@ -89,7 +89,7 @@ export class Int8Session implements Runner {
     return this.doc.layers.map((_, i) => {
       if (i === this.doc.layers.length - 1) return this.run(data, rows);
       const prefix: ModelDoc = { ...this.doc, layers: this.doc.layers.slice(0, i + 1), labels: null };
-      const cut = new Int8Session(prefix, { ...this.options, threads: 1 });
+      const cut = new Int8Runner(prefix, { ...this.options, threads: 1 });
       try {
         return cut.run(data, rows);
       } finally {
