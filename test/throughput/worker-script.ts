@@ -11,7 +11,35 @@ import { dirname, join, resolve } from 'node:path';
 import { fileURLToPath } from 'node:url';
 
 const root = resolve(dirname(fileURLToPath(import.meta.url)), '../..');
-let bundled: string | null = null;
+const bundles = new Map<string, string>();
+
+/**
+ * `entry` bundled from the sources once per test process, with the same options as the build
+ * (--loader:.proto=text as in tsup.config.ts: the schema is embedded from formats/tendon.proto).
+ */
+function bundledFromSources(entry: string, name: string): string {
+  const done = bundles.get(entry);
+  if (done) return done;
+  const out = join(root, 'node_modules', '.cache', 'tendon-test', `${name}-${process.pid}.js`);
+  mkdirSync(dirname(out), { recursive: true });
+  execFileSync(
+    join(root, 'node_modules', '.bin', 'esbuild'),
+    [
+      entry,
+      '--bundle',
+      '--platform=node',
+      '--format=esm',
+      '--target=node20',
+      '--packages=external',
+      '--loader:.proto=text',
+      `--outfile=${out}`,
+      '--log-level=warning',
+    ],
+    { cwd: root },
+  );
+  bundles.set(entry, out);
+  return out;
+}
 
 export function workerScript(): string {
   if (process.env.TENDON_TEST_WORKER === 'dist') {
@@ -19,52 +47,11 @@ export function workerScript(): string {
     if (!existsSync(built)) throw new Error('TENDON_TEST_WORKER=dist but dist/worker.js is missing: run `npm run build` first');
     return built;
   }
-  if (bundled) return bundled;
-  const out = join(root, 'node_modules', '.cache', 'tendon-test', `worker-${process.pid}.js`);
-  mkdirSync(dirname(out), { recursive: true });
-  execFileSync(
-    join(root, 'node_modules', '.bin', 'esbuild'),
-    // --loader:.proto=text as in tsup.config.ts: the schema is embedded from formats/tendon.proto.
-    [
-      'src/engine/worker-entry.ts',
-      '--bundle',
-      '--platform=node',
-      '--format=esm',
-      '--target=node20',
-      '--packages=external',
-      '--loader:.proto=text',
-      `--outfile=${out}`,
-      '--log-level=warning',
-    ],
-    { cwd: root },
-  );
-  bundled = out;
-  return out;
+  return bundledFromSources('src/engine/worker-entry.ts', 'worker');
 }
-
-let bundledParser: string | null = null;
 
 /** The parse thread script, bundled from the sources like the worker entry (or dist/parse-worker.js with TENDON_TEST_WORKER=dist). */
 export function parseWorkerScript(): string {
   if (process.env.TENDON_TEST_WORKER === 'dist') return join(root, 'dist', 'parse-worker.js');
-  if (bundledParser) return bundledParser;
-  const out = join(root, 'node_modules', '.cache', 'tendon-test', `parse-worker-${process.pid}.js`);
-  mkdirSync(dirname(out), { recursive: true });
-  execFileSync(
-    join(root, 'node_modules', '.bin', 'esbuild'),
-    [
-      'src/serve/parse-worker.ts',
-      '--bundle',
-      '--platform=node',
-      '--format=esm',
-      '--target=node20',
-      '--packages=external',
-      '--loader:.proto=text',
-      `--outfile=${out}`,
-      '--log-level=warning',
-    ],
-    { cwd: root },
-  );
-  bundledParser = out;
-  return out;
+  return bundledFromSources('src/serve/parse-worker.ts', 'parse-worker');
 }
