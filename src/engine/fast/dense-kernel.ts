@@ -359,6 +359,16 @@ export function relaxedMaddAvailable(): boolean {
   if (relaxedMadd !== null) return relaxedMadd;
   const probe = new Code().get(0).get(1).get(2).f32x4RelaxedMadd();
   const bytes = moduleBytes(1, [{ name: 'probe', params: [V128, V128, V128], results: [V128], locals: [], code: probe }]);
+  relaxedMadd = validatesWithRelaxedSimd(bytes);
+  return relaxedMadd;
+}
+
+/**
+ * Whether `bytes` (a module using relaxed SIMD) validates here. Node 20's V8 has relaxed SIMD
+ * behind a flag: when the module does not validate as things are, the flag is switched on
+ * (process-wide, before any such module is compiled) and the module tried again.
+ */
+export function validatesWithRelaxedSimd(bytes: Uint8Array): boolean {
   const validate = (): boolean => {
     try {
       return wasmApi().validate(bytes);
@@ -366,15 +376,13 @@ export function relaxedMaddAvailable(): boolean {
       return false;
     }
   };
-  if (!validate()) {
-    try {
-      setFlagsFromString('--experimental-wasm-relaxed-simd');
-    } catch {
-      // No such flag on this runtime: the plain kernel serves.
-    }
+  if (validate()) return true;
+  try {
+    setFlagsFromString('--experimental-wasm-relaxed-simd');
+  } catch {
+    // No such flag on this runtime: the kernels without relaxed SIMD serve.
   }
-  relaxedMadd = validate();
-  return relaxedMadd;
+  return validate();
 }
 
 /** The little of the WebAssembly JS API used here (this project's TypeScript libs do not declare it). */

@@ -27,8 +27,7 @@
  * (padded) inputs. A wider layer is refused by the session, by name.
  */
 import { Code, F32, I32, V128, moduleBytes, type FunctionDef } from '../fast/wasm-emit.js';
-import { wasmApi } from '../fast/dense-kernel.js';
-import { setFlagsFromString } from 'node:v8';
+import { validatesWithRelaxedSimd, wasmApi } from '../fast/dense-kernel.js';
 
 /** Widest (padded) input width whose int32 accumulators cannot overflow; see the bound above. */
 export const MAX_INT8_INPUTS = 132096;
@@ -544,21 +543,7 @@ export function relaxedDotAvailable(): boolean {
   const code = new Code().get(0).get(0).v128Load(32).get(0).v128Load(0).get(0).v128Load(16);
   code.i16x8RelaxedDotI8x16I7x16S().i32x4ExtaddPairwiseI16x8S().i32x4Add().v128Store(48);
   const bytes = moduleBytes(1, [{ name: 'probe', params: [I32], locals: [], code }]);
-  const validate = (): boolean => {
-    try {
-      return wasmApi().validate(bytes);
-    } catch {
-      return false;
-    }
-  };
-  if (!validate()) {
-    try {
-      setFlagsFromString('--experimental-wasm-relaxed-simd');
-    } catch {
-      // No such flag here: the i16 dot serves.
-    }
-  }
-  relaxedDot = validate() && knownAnswer(bytes);
+  relaxedDot = validatesWithRelaxedSimd(bytes) && knownAnswer(bytes);
   return relaxedDot;
 }
 
