@@ -59,7 +59,11 @@ describe('parse threads', () => {
       expect(Array.from(ok.x)).toEqual(loaf(0).map(Math.fround));
       // End the only thread while it holds a request, as a crash would.
       const threads = (pool as unknown as { threads: { worker: import('node:worker_threads').Worker }[] }).threads;
-      const pending = pool.parse('json', Buffer.from(JSON.stringify({ rows: Array.from({ length: 10 }, () => loaf(1)) })), shape);
+      // A body large enough (200,000 rows) that the thread is still parsing it when it is ended:
+      // a 10-row body can be answered before terminate() lands.
+      const big = { ...shape, maxRows: 200_000 };
+      const body = Buffer.from(JSON.stringify({ rows: Array.from({ length: 200_000 }, () => loaf(1)) }));
+      const pending = pool.parse('json', body, big);
       await threads[0]!.worker.terminate();
       await expect(pending).rejects.toThrow(/a parse thread exited with code 1 while parsing this request/);
       const again = await pool.parse('csv', Buffer.from(loaf(2).join(',')), shape);
