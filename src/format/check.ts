@@ -2,16 +2,28 @@
  * Payload objects -> ModelDoc, checking everything on the way and collecting every problem.
  * Problems name the payload field they are about, e.g. "layers[1].dense.weight".
  *
- * The running width is tracked through the layers (dense: its size; batchnorm and dropout:
- * unchanged) so each layer's incoming width is checked here too, and the file check needs
- * nothing from the model layer.
+ * Each layer is read by its kind's declared fields (src/model/layers/<kind>.ts, `stored`): no
+ * kind is named here. The running width is tracked through the layers (a kind's output count,
+ * or unchanged) so each layer's incoming width is checked here too.
  */
 import type { Problem } from '../errors.js';
-import { BATCHNORM_RULES, DROPOUT_RATE_RULE, activationByCode, activationNames, activationKind } from '../model/index.js';
-import { LAYER_KINDS } from '../model/types.js';
-import type { BatchNormLayer, DenseLayer, Layer, ModelDoc, ModelMeta, Normalisation, Provenance, StorageCodec, TargetScaling } from '../model/types.js';
-import { type RawBatchNorm, type RawDense, type RawLayer, type RawMinMax, type RawModel, type RawTargetScaling, type RawZScore } from './payload.js';
-import { decodeTensor, formatShape, type DecodedTensor } from './tensor.js';
+import {
+  COUNT_RULE,
+  activationByCode,
+  activationKind,
+  activationNames,
+  isCount,
+  isLayerKindName,
+  layerKindNames,
+  shapeInWords,
+  storedForm,
+  type AnyField,
+  type AnyStoredForm,
+  type FieldValues,
+} from '../model/index.js';
+import type { Layer, LayerKindName, ModelDoc, ModelMeta, Normalisation, Provenance, StorageCodec, TargetScaling } from '../model/types.js';
+import { type RawField, type RawLayer, type RawMinMax, type RawModel, type RawTargetScaling, type RawTensor, type RawZScore } from './payload.js';
+import { CODEC_OF_DTYPE, decodeTensor, formatShape } from './tensor.js';
 
 /** The width flowing into the next layer and where it came from, for messages. */
 interface Width {
@@ -19,129 +31,131 @@ interface Width {
   from: string;
 }
 
-function checkDense(raw: RawDense, where: string, width: Width, problems: Problem[]): DenseLayer | null {
-  const before = problems.length;
-  const sizeOk = Number.isInteger(raw.size) && raw.size >= 1;
-  if (!sizeOk) problems.push({ where: `${where}.size`, message: `size must be at least 1, got ${raw.size}` });
+type TensorField = AnyField & { type: 'tensor' };
 
-  const activation = activationByCode(raw.activation)?.name;
-  if (activation === undefined) {
-    const known = activationNames()
-      .map((name) => `${activationKind(name).code} = ${name}`)
-      .join(', ');
-    problems.push({
-      where: `${where}.activation`,
-      message: raw.activation === 0 ? 'activation is not set' : `unknown activation code ${raw.activation} (known: ${known})`,
-    });
+/** Rank and the dimensions a count names; problems say which. Returns whether the rank is right (so the 'in' dimension can be read). */
+function shapeAgrees(field: TensorField, shape: number[], values: FieldValues, where: string, problems: Problem[]): boolean {
+  if (shape.length !== field.shape.length) {
+    problems.push({ where, message: `must be ${field.shape.length}-D ${shapeInWords(field)}, got shape ${formatShape(shape)}` });
+    return false;
   }
-  if (!Number.isFinite(raw.alpha)) problems.push({ where: `${where}.alpha`, message: `alpha must be finite, got ${raw.alpha}` });
-
-  const weight = decodeTensor(raw.weight, `${where}.weight`, problems);
-  if (weight) {
-    if (weight.shape.length !== 2) {
-      problems.push({ where: `${where}.weight`, message: `must be 2-D [inputs, size], got shape ${formatShape(weight.shape)}` });
-    } else {
-      if (sizeOk && weight.shape[1] !== raw.size) {
-        problems.push({ where: `${where}.weight`, message: `shape ${formatShape(weight.shape)} has ${weight.shape[1]} columns, but size is ${raw.size}` });
-      }
-      if (width.value !== null && weight.shape[0] !== width.value) {
-        problems.push({
-          where: `${where}.weight`,
-          message: `shape ${formatShape(weight.shape)} takes ${weight.shape[0]} inputs, but ${width.from} gives width ${width.value}`,
-        });
-      }
-    }
-  }
-  const bias = decodeTensor(raw.bias, `${where}.bias`, problems);
-  if (bias && sizeOk && (bias.shape.length !== 1 || bias.shape[0] !== raw.size)) {
-    problems.push({ where: `${where}.bias`, message: `shape ${formatShape(bias.shape)}, expected [${raw.size}] (size)` });
-  }
-
-  // Keep checking later layers against the width this one declares, even if it is broken.
-  width.value = sizeOk ? raw.size : weight && weight.shape.length === 2 ? weight.shape[1] : null;
-  width.from = `${where.replace(/\.dense$/, '')} (dense)`;
-  if (problems.length > before || !weight || !bias || activation === undefined) return null;
-  return { kind: 'dense', size: raw.size, activation, alpha: raw.alpha, weight: weight.data, bias: bias.data };
+  field.shape.forEach((dim, d) => {
+    const count = values[dim];
+    if (dim === 'in' || typeof count !== 'number' || shape[d] === count) return;
+    const message =
+      shape.length === 1
+        ? `shape ${formatShape(shape)}, expected [${count}] (${dim})`
+        : `shape ${formatShape(shape)} has ${shape[d]} ${d === shape.length - 1 ? 'columns' : 'rows'}, but ${dim} is ${count}`;
+    problems.push({ where, message });
+  });
+  return true;
 }
 
-const BATCHNORM_VECTORS = ['gamma', 'beta', 'running_mean', 'running_variance'] as const;
+/** A scalar field's value, or a problem naming the rule it breaks. */
+function checkScalar(field: Exclude<AnyField, TensorField>, value: number, where: string, values: FieldValues, problems: Problem[]): void {
+  if (field.type === 'activation') {
+    const name = activationByCode(value)?.name;
+    if (name !== undefined) values[field.key] = name;
+    else {
+      const known = activationNames()
+        .map((n) => `${activationKind(n).code} = ${n}`)
+        .join(', ');
+      problems.push({ where, message: value === 0 ? 'activation is not set' : `unknown activation code ${value} (known: ${known})` });
+    }
+    return;
+  }
+  const rule = field.type === 'count' ? COUNT_RULE : field.rule;
+  if (rule.ok(value)) values[field.key] = value;
+  else problems.push({ where, message: `${field.proto} must be ${rule.rule}, got ${value}` });
+}
 
-function checkBatchNorm(raw: RawBatchNorm, where: string, width: Width, problems: Problem[]): BatchNormLayer | null {
+/** A tensor that decoded with the declared rank. */
+interface Decoded {
+  readonly field: TensorField;
+  readonly shape: number[];
+}
+
+/**
+ * One layer's message by its kind's declared fields, in their order; then the incoming width
+ * its tensors take against the width arriving, and the width it passes on (`width`, updated even
+ * when the layer is broken, so later layers are still checked).
+ */
+function checkFields(kind: LayerKindName, raw: Record<string, RawField>, where: string, width: Width, problems: Problem[]): Layer | null {
   const before = problems.length;
-  const vectors: Partial<Record<(typeof BATCHNORM_VECTORS)[number], DecodedTensor>> = {};
-  for (const name of BATCHNORM_VECTORS) {
-    const tensor = decodeTensor(raw[name], `${where}.${name}`, problems);
-    if (tensor === null) continue;
-    if (tensor.shape.length !== 1) {
-      problems.push({ where: `${where}.${name}`, message: `must be 1-D, got shape ${formatShape(tensor.shape)}` });
+  const form = storedForm(kind);
+  const values: FieldValues = { kind };
+  // Counts first: tensor shapes name them whatever the order of the fields.
+  for (const field of form.fields) if (field.type === 'count' && isCount(raw[field.proto])) values[field.key] = raw[field.proto];
+  const decoded: Decoded[] = [];
+  for (const field of form.fields) {
+    const at = `${where}.${field.proto}`;
+    if (field.type !== 'tensor') {
+      checkScalar(field, raw[field.proto] as number, at, values, problems);
       continue;
     }
-    vectors[name] = tensor;
+    const tensor = decodeTensor(raw[field.proto] as RawTensor | null, at, problems);
+    if (tensor === null || !shapeAgrees(field, tensor.shape, values, at, problems)) continue;
+    const rule = field.each;
+    const bad = rule ? tensor.data.findIndex((v) => !rule.ok(v)) : -1;
+    if (rule && bad >= 0) {
+      const count = tensor.data.reduce((n, v) => n + (rule.ok(v) ? 0 : 1), 0);
+      problems.push({ where: at, message: `${count} value${count === 1 ? '' : 's'} not ${rule.rule} (first at element ${bad}: ${tensor.data[bad]})` });
+    }
+    values[field.key] = tensor.data;
+    decoded.push({ field, shape: tensor.shape });
   }
-  const lengths = BATCHNORM_VECTORS.filter((n) => vectors[n]).map((n) => [n, vectors[n]!.shape[0]] as const);
-  if (new Set(lengths.map(([, len]) => len)).size > 1) {
-    problems.push({ where, message: `vectors have unequal lengths: ${lengths.map(([n, len]) => `${n} ${len}`).join(', ')}` });
-  } else if (lengths.length > 0 && width.value !== null && lengths[0][1] !== width.value) {
-    problems.push({ where, message: `vectors have length ${lengths[0][1]}, but ${width.from} gives width ${width.value}` });
-  }
-  const variance = vectors.running_variance;
-  if (variance) {
-    const negative = variance.data.findIndex((v) => v < 0);
-    if (negative >= 0) {
-      const count = variance.data.reduce((n, v) => n + (v < 0 ? 1 : 0), 0);
-      problems.push({
-        where: `${where}.running_variance`,
-        message: `${count} negative value${count === 1 ? '' : 's'} (first at element ${negative}: ${variance.data[negative]})`,
-      });
+  const inputs = decoded.flatMap(({ field, shape }) => (field.shape.includes('in') ? [{ proto: field.proto, shape, width: shape[field.shape.indexOf('in')] }] : []));
+  checkIncomingWidth(inputs, where, width, problems);
+  passWidthOn(form, values, decoded, where, kind, width);
+  return problems.length > before ? null : (values as unknown as Layer);
+}
+
+/** The incoming width every tensor takes: one width between them, and the one arriving. */
+function checkIncomingWidth(inputs: { proto: string; shape: number[]; width: number }[], where: string, width: Width, problems: Problem[]): void {
+  if (new Set(inputs.map((t) => t.width)).size > 1) {
+    problems.push({ where, message: `tensors have unequal lengths along the input width: ${inputs.map((t) => `${t.proto} ${t.width}`).join(', ')}` });
+  } else if (inputs.length > 0 && width.value !== null && inputs[0].width !== width.value) {
+    const [one] = inputs;
+    if (inputs.length === 1) {
+      problems.push({ where: `${where}.${one.proto}`, message: `shape ${formatShape(one.shape)} takes ${one.width} inputs, but ${width.from} gives width ${width.value}` });
+    } else {
+      problems.push({ where, message: `tensors take ${one.width} inputs, but ${width.from} gives width ${width.value}` });
     }
   }
-  for (const name of ['epsilon', 'momentum'] as const) {
-    if (!BATCHNORM_RULES[name].ok(raw[name]))
-      problems.push({ where: `${where}.${name}`, message: `${name} must be ${BATCHNORM_RULES[name].rule}, got ${raw[name]}` });
+}
+
+/** The width after the layer: its count (else the tensor dimension that count names), or the incoming width. */
+function passWidthOn(form: AnyStoredForm, values: FieldValues, decoded: Decoded[], where: string, kind: string, width: Width): void {
+  const output = form.output;
+  const carrier = decoded.find((t) => t.field.shape.includes(output));
+  if (output !== 'in') {
+    const counted = values[output];
+    width.value = typeof counted === 'number' ? counted : carrier ? carrier.shape[carrier.field.shape.indexOf(output)] : null;
+  } else if (width.value === null && carrier) {
+    width.value = carrier.shape[carrier.field.shape.indexOf('in')];
   }
-  if (width.value === null && lengths.length > 0) width.value = lengths[0][1];
-  width.from = `${where.replace(/\.batchnorm$/, '')} (batchnorm)`;
-  const { gamma, beta, running_mean, running_variance } = vectors;
-  if (problems.length > before || !gamma || !beta || !running_mean || !running_variance) return null;
-  return {
-    kind: 'batchnorm',
-    gamma: gamma.data,
-    beta: beta.data,
-    runningMean: running_mean.data,
-    runningVariance: running_variance.data,
-    epsilon: raw.epsilon,
-    momentum: raw.momentum,
-  };
+  // A layer whose fields carry a width (a count it passes on, or tensors over the incoming width) is where the next width comes from.
+  if (output !== 'in' || form.fields.some((f) => f.type === 'tensor' && f.shape.includes('in'))) width.from = `${where.replace(/\.[a-z_]+$/, '')} (${kind})`;
 }
 
 function checkLayer(raw: RawLayer, index: number, width: Width, problems: Problem[], codecs: StorageCodec[]): Layer | null {
   const where = `layers[${index}]`;
-  switch (raw.kind) {
-    case 'dense': {
-      const layer = raw.dense ? checkDense(raw.dense, `${where}.dense`, width, problems) : null;
-      const dtype = raw.dense?.weight?.dtype;
-      if (dtype === 2) codecs.push('f16');
-      else if (dtype === 3) codecs.push('i8');
-      else codecs.push('f32');
-      return layer;
-    }
-    case 'batchnorm':
-      return raw.batchnorm ? checkBatchNorm(raw.batchnorm, `${where}.batchnorm`, width, problems) : null;
-    case 'dropout': {
-      const rate = raw.dropout?.rate ?? 0;
-      if (!DROPOUT_RATE_RULE.ok(rate)) {
-        problems.push({ where: `${where}.dropout.rate`, message: `rate must be ${DROPOUT_RATE_RULE.rule}, got ${rate}` });
-        return null;
-      }
-      return { kind: 'dropout', rate };
-    }
-    case undefined:
-      problems.push({ where, message: `no layer kind is set (expected ${LAYER_KINDS.join(', ')})` });
-      return null;
-    default:
-      // Every kind has a case above: a new one fails to compile here until it does.
-      throw new Error(`checkLayer: unhandled layer kind ${String(raw.kind satisfies never)}`);
+  const kind: string | undefined = raw.kind;
+  if (kind === undefined) {
+    problems.push({ where, message: `no layer kind is set (expected ${layerKindNames().join(', ')})` });
+    return null;
   }
+  if (!isLayerKindName(kind)) {
+    problems.push({ where, message: `unknown layer kind "${kind}" (expected ${layerKindNames().join(', ')})` });
+    width.value = null;
+    return null;
+  }
+  // One typed adapter: the member of the oneof the kind names, read by its declared field names.
+  const params = (raw as Record<string, unknown>)[kind] as Record<string, RawField> | null | undefined;
+  // The storage a file was written with is that of the tensors stored in the model's codec (all share one).
+  const stored = storedForm(kind).fields.find((f) => f.type === 'tensor' && f.storage === 'model');
+  if (stored) codecs.push(CODEC_OF_DTYPE.get((params?.[stored.proto] as RawTensor | null | undefined)?.dtype ?? 0) ?? 'f32');
+  return params ? checkFields(kind, params, `${where}.${kind}`, width, problems) : null;
 }
 
 function checkStats(
@@ -280,7 +294,7 @@ export function checkPayload(raw: RawModel): { doc: ModelDoc | null; problems: P
       layers: layers.filter((l): l is Layer => l !== null),
       meta,
       provenance,
-      // The storage a file was written with is that of its dense weights (all share one).
+      // The storage a file was written with is that of its tensors stored in the model's codec (all share one).
       storage: codecs[0] ?? 'f32',
       ...(temperature !== 0 ? { temperature } : {}),
     },

@@ -6,12 +6,12 @@
  * precision (f32 / float64): they are small, and rounding them shifts every output.
  */
 import { ModelFileError, type Problem } from '../errors.js';
-import { activationKind, isActivationName } from '../model/index.js';
+import { activationCode, fieldShape, storedForm, type AnyField, type FieldValues } from '../model/index.js';
 import type { Layer, ModelDoc, StorageCodec } from '../model/types.js';
 import { checkPayload } from './check.js';
 import { crcHex } from './crc32.js';
 import { FORMAT_VERSION, frame, openFrame, type FormatVersion } from './header.js';
-import { decodePayload, encodePayload, type RawLayer, type RawModel, type RawTensor } from './payload.js';
+import { decodePayload, encodePayload, type RawField, type RawLayer, type RawModel, type RawTensor } from './payload.js';
 import { encodeTensor } from './tensor.js';
 
 function tensorOrProblems(values: Float32Array, shape: readonly number[], codec: StorageCodec, where: string, problems: Problem[]): RawTensor | null {
@@ -23,44 +23,48 @@ function tensorOrProblems(values: Float32Array, shape: readonly number[], codec:
   return result;
 }
 
+/** A tensor field's file form: its declared shape (the incoming width from the value count), in its storage codec. */
+function encodeField(field: AnyField & { type: 'tensor' }, values: FieldValues, storage: StorageCodec, where: string, problems: Problem[]): RawTensor | null {
+  const data = values[field.key] as Float32Array;
+  const counts = field.shape.filter((dim) => dim !== 'in');
+  const known = counts.reduce((n, dim) => n * (values[dim] as number), 1);
+  const inWidth = field.shape.includes('in') ? data.length / known : 0;
+  if (!Number.isInteger(inWidth)) {
+    problems.push({ where, message: `${data.length} values do not divide into ${known} columns (${counts.join(' x ')})` });
+    return null;
+  }
+  const shape = fieldShape(field, values, inWidth);
+  if (shape === null) return null;
+  return tensorOrProblems(data, shape, field.storage === 'model' ? storage : 'f32', where, problems);
+}
+
+/** A layer's LayerEntry: the member named by its kind, each declared field under its proto name. */
 function encodeLayer(layer: Layer, index: number, storage: StorageCodec, problems: Problem[]): RawLayer {
   const where = `layers[${index}].${layer.kind}`;
-  switch (layer.kind) {
-    case 'dense': {
-      const rows = layer.size > 0 ? layer.weight.length / layer.size : NaN;
-      if (!Number.isInteger(rows)) {
-        problems.push({ where: `${where}.weight`, message: `${layer.weight.length} values do not divide into ${layer.size} columns (size)` });
+  // One typed adapter: the layer read by the field names its kind declares.
+  const values = layer as unknown as FieldValues;
+  const params: Record<string, RawField> = {};
+  for (const field of storedForm(layer.kind).fields) {
+    const at = `${where}.${field.proto}`;
+    switch (field.type) {
+      case 'count':
+      case 'number':
+        params[field.proto] = values[field.key] as number;
+        break;
+      case 'activation': {
+        const code = activationCode(values[field.key]);
+        if (code === undefined) problems.push({ where: at, message: `unknown activation "${String(values[field.key])}"` });
+        params[field.proto] = code ?? 0;
+        break;
       }
-      const activation = isActivationName(layer.activation) ? activationKind(layer.activation).code : undefined;
-      if (activation === undefined) {
-        problems.push({ where: `${where}.activation`, message: `unknown activation "${layer.activation}"` });
-      }
-      return {
-        dense: {
-          size: layer.size,
-          activation: activation ?? 0,
-          alpha: layer.alpha,
-          weight: Number.isInteger(rows) ? tensorOrProblems(layer.weight, [rows, layer.size], storage, `${where}.weight`, problems) : null,
-          bias: tensorOrProblems(layer.bias, [layer.bias.length], 'f32', `${where}.bias`, problems),
-        },
-      };
+      case 'tensor':
+        params[field.proto] = encodeField(field, values, storage, at, problems);
+        break;
+      default:
+        throw new Error(`encodeLayer: unknown field type ${String(field satisfies never)}`);
     }
-    case 'batchnorm': {
-      const vector = (values: Float32Array, name: string): RawTensor | null => tensorOrProblems(values, [values.length], 'f32', `${where}.${name}`, problems);
-      return {
-        batchnorm: {
-          gamma: vector(layer.gamma, 'gamma'),
-          beta: vector(layer.beta, 'beta'),
-          running_mean: vector(layer.runningMean, 'running_mean'),
-          running_variance: vector(layer.runningVariance, 'running_variance'),
-          epsilon: layer.epsilon,
-          momentum: layer.momentum,
-        },
-      };
-    }
-    case 'dropout':
-      return { dropout: { rate: layer.rate } };
   }
+  return { [layer.kind]: params };
 }
 
 function orEmpty(values: Float64Array | null): number[] {

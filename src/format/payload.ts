@@ -4,6 +4,7 @@
  * (snake_case), so messages and FORMAT.md read the same.
  */
 import protobuf from 'protobufjs';
+import type { BuiltInStoredForms } from '../model/index.js';
 import type { LayerKindName, StorageCodec } from '../model/types.js';
 import { PAYLOAD_MESSAGE, TENDON_SCHEMA } from './schema.js';
 
@@ -23,34 +24,21 @@ export interface RawTensor {
   scales: number[];
 }
 
-export interface RawDense {
-  size: number;
-  activation: number;
-  alpha: number;
-  weight: RawTensor | null;
-  bias: RawTensor | null;
-}
+/** One stored field of a layer message: a tensor, or a number (counts, rules, activation codes). */
+export type RawField = RawTensor | number | null;
 
-export interface RawBatchNorm {
-  gamma: RawTensor | null;
-  beta: RawTensor | null;
-  running_mean: RawTensor | null;
-  running_variance: RawTensor | null;
-  epsilon: number;
-  momentum: number;
-}
+/** A layer's message typed by its kind's declared fields (src/model/layers/<kind>.ts): `proto` name -> value. */
+type RawParams<S extends { readonly fields: readonly { readonly proto: string; readonly type: string }[] }> = {
+  [F in S['fields'][number] as F['proto']]: F extends { readonly type: 'tensor' } ? RawTensor | null : number;
+};
 
-export interface RawDropout {
-  rate: number;
-}
-
-export interface RawLayer {
+export interface RawLayerKind {
   /** Which member of the oneof is set (the oneof's names are the layer kind names); absent when none is. */
   kind?: LayerKindName;
-  dense?: RawDense | null;
-  batchnorm?: RawBatchNorm | null;
-  dropout?: RawDropout | null;
 }
+
+/** One LayerEntry: the oneof's member for each kind, named by the kind. */
+export type RawLayer = RawLayerKind & { [K in LayerKindName]?: RawParams<BuiltInStoredForms[K]> | null };
 
 export interface RawZScore {
   mean: number[];
@@ -101,14 +89,29 @@ export interface RawModel {
 }
 
 let payloadType: protobuf.Type | null = null;
+let schemaText = TENDON_SCHEMA;
 
 /** The payload message type, parsed from the embedded schema once. */
 export function payloadSchema(): protobuf.Type {
   if (payloadType === null) {
     // keepCase: field names stay as written in the .proto (running_mean, not runningMean).
-    payloadType = protobuf.parse(TENDON_SCHEMA, { keepCase: true }).root.lookupType(PAYLOAD_MESSAGE);
+    payloadType = protobuf.parse(schemaText, { keepCase: true }).root.lookupType(PAYLOAD_MESSAGE);
   }
   return payloadType;
+}
+
+/**
+ * Test hook: read and write payloads with another schema text, e.g. formats/tendon.proto with
+ * the message of a layer kind a test registers (`registerLayerKind`). Returns the function that
+ * goes back to the embedded schema.
+ */
+export function usePayloadSchema(text: string): () => void {
+  schemaText = text;
+  payloadType = null;
+  return () => {
+    schemaText = TENDON_SCHEMA;
+    payloadType = null;
+  };
 }
 
 /** Serialise a payload object. */

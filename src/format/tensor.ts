@@ -17,7 +17,8 @@ export interface DecodedTensor {
   readonly codec: StorageCodec;
 }
 
-const CODEC_BY_CODE = new Map<number, StorageCodec>((Object.keys(DTYPE_CODES) as StorageCodec[]).map((codec) => [DTYPE_CODES[codec], codec]));
+/** The storage codec of each dtype code in the file. */
+export const CODEC_OF_DTYPE = new Map<number, StorageCodec>((Object.keys(DTYPE_CODES) as StorageCodec[]).map((codec) => [DTYPE_CODES[codec], codec]));
 
 /** "[2, 3]" */
 export function formatShape(shape: readonly number[]): string {
@@ -90,7 +91,7 @@ export function decodeTensor(raw: RawTensor | null | undefined, where: string, p
     problems.push({ where, message: 'tensor is missing' });
     return null;
   }
-  const codec = CODEC_BY_CODE.get(raw.dtype);
+  const codec = CODEC_OF_DTYPE.get(raw.dtype);
   if (codec === undefined) {
     problems.push({
       where,

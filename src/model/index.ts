@@ -8,6 +8,7 @@ export type {
   EngineBackward,
   EngineForward,
   ForwardContext,
+  AnyLayer,
   LayerKind,
   SimdInference,
   SimdPart,
@@ -17,9 +18,18 @@ export type {
   RefForward,
   Rng,
 } from './layers/kind.js';
-export { isLayerKindName, layerKind } from './layers/catalogue.js';
-export { BATCHNORM_RULES, batchNormAffine } from './layers/batchnorm.js';
-export { DROPOUT_RATE_RULE } from './layers/dropout.js';
+export {
+  isLayerKindName,
+  layerKind,
+  layerKindNames,
+  layerOutputWidth,
+  registerLayerKind,
+  storedForm,
+  type BuiltInStoredForms,
+} from './layers/catalogue.js';
+export { COUNT_RULE, activationCode, fieldShape, isCount, shapeInWords, storedFieldProblems, widthAfter } from './layers/fields.js';
+export type { AnyField, AnyStoredForm, FieldValues, LayerField, StoredForm, ValueRule } from './layers/fields.js';
+export { batchNormAffine } from './layers/batchnorm.js';
 export { mat64, matMul64 } from './layers/mat64.js';
 export { SeededRng, fisherYates } from './rng.js';
 export { DEFAULT_LEAKY_ALPHA, initDense } from './init.js';

@@ -1,6 +1,6 @@
 /** Whole-model checks: widths chain from layer to layer, and every stored number is usable. */
 import { ModelFileError, type Problem } from '../errors.js';
-import { isLayerKindName, layerKind } from './layers/catalogue.js';
+import { isLayerKindName, layerKind, layerOutputWidth } from './layers/catalogue.js';
 import { finiteProblems, isPositiveInt } from './layers/checks.js';
 import { temperatureProblems } from './temperature.js';
 import { targetScalingProblems } from './target-scaling.js';
@@ -39,7 +39,7 @@ export function modelProblems(doc: ModelDoc): Problem[] {
     }
     const kind = layerKind(layer.kind);
     problems.push(...kind.validate(layer, width, `layers[${i}] (${layer.kind})`));
-    width = kind.outputWidth(layer, width);
+    width = layerOutputWidth(layer, width);
   });
 
   if (doc.labels && problems.every((p) => !p.where.startsWith('layers')) && doc.labels.length !== width) {
@@ -90,7 +90,7 @@ function normalisationProblems(doc: ModelDoc): Problem[] {
  */
 export function modelWidths(doc: ModelDoc): number[] {
   const widths = [doc.inputs];
-  for (const layer of doc.layers) widths.push(layerKind(layer.kind).outputWidth(layer, widths[widths.length - 1]));
+  for (const layer of doc.layers) widths.push(layerOutputWidth(layer, widths[widths.length - 1]));
   return widths;
 }
 

@@ -3,13 +3,25 @@
  * the spec is collected and reported together, each naming its place (e.g. `layers[1].weight`).
  *
  * A tensor is an inline (nested) array or a path to a .npy file, relative to the spec's folder.
- * A dense layer without weights is initialised from the seed.
+ * Each layer's fields, their rules and defaults are its kind's declared fields (`stored` in
+ * src/model/layers/<kind>.ts); a tensor declared 'drawn' (dense weights) that the spec leaves
+ * out gets the kind's starting values from the seed.
  */
 import { dirname, resolve } from 'node:path';
 import { ModelFileError, type Problem } from '../errors.js';
-import { BATCHNORM_RULES, DROPOUT_RATE_RULE, activationNames, isActivationName, isLayerKindName } from '../model/index.js';
-import { STORAGE_CODECS, type Layer, type LayerKindName, type ModelDoc, type Normalisation, type StorageCodec } from '../model/types.js';
-import { DEFAULT_LEAKY_ALPHA, initDense } from '../model/init.js';
+import {
+  COUNT_RULE,
+  activationNames,
+  fieldShape,
+  isActivationName,
+  isLayerKindName,
+  layerKind,
+  layerKindNames,
+  storedForm,
+  type AnyField,
+  type FieldValues,
+} from '../model/index.js';
+import { STORAGE_CODECS, type Layer, type ModelDoc, type Normalisation, type StorageCodec } from '../model/types.js';
 import { SeededRng } from '../model/rng.js';
 
 /** A loaded tensor: its shape and values in row-major order. */
@@ -32,8 +44,6 @@ export interface SpecOptions {
 }
 
 const DEFAULT_SEED = 1;
-const DEFAULT_BN_EPSILON = 1e-5;
-const DEFAULT_BN_MOMENTUM = 0.9;
 
 /**
  * @example const doc = await buildFromSpec(JSON.parse(text), 'spec.json', { loadTensorFile })
@@ -81,9 +91,9 @@ export async function buildFromSpec(spec: unknown, specPath: string, options: Sp
       width = undefined;
       continue;
     }
-    const layer = await buildLayer(raw, where, width, { rng, here, options, fail, loadVector });
+    const layer = await buildLayer(raw, where, width, { rng, here, options, fail, problems, loadVector });
     if (layer) {
-      layers.push(layer.layer);
+      if (layer.layer) layers.push(layer.layer);
       width = layer.outputWidth;
     } else {
       width = undefined;
@@ -148,6 +158,8 @@ interface LayerContext {
   readonly here: string;
   readonly options: SpecOptions;
   readonly fail: Fail;
+  /** Every problem so far (a layer is built only when it added none). */
+  readonly problems: readonly Problem[];
   readonly loadVector: (value: unknown, where: string, length: number | undefined) => Promise<Float64Array | undefined>;
 }
 
@@ -156,105 +168,74 @@ async function buildLayer(
   where: string,
   width: number | undefined,
   ctx: LayerContext,
-): Promise<{ layer: Layer; outputWidth: number | undefined } | undefined> {
-  const { fail, loadVector } = ctx;
-  // Typed by every layer kind: a new kind fails to compile here until it lists its spec fields.
-  const allowed: Record<LayerKindName, string[]> = {
-    dense: ['kind', 'size', 'activation', 'weight', 'bias', 'alpha'],
-    batchnorm: ['kind', 'gamma', 'beta', 'mean', 'variance', 'epsilon', 'momentum'],
-    dropout: ['kind', 'rate'],
-  };
+): Promise<{ layer: Layer | undefined; outputWidth: number | undefined } | undefined> {
+  const { fail } = ctx;
   const kind = raw.kind;
   if (typeof kind !== 'string' || !isLayerKindName(kind)) {
-    return fail(`${where}.kind`, `must be one of ${Object.keys(allowed).join(', ')}, got ${JSON.stringify(kind)}`);
+    return fail(`${where}.kind`, `must be one of ${layerKindNames().join(', ')}, got ${JSON.stringify(kind)}`);
   }
+  // A layer's spec fields are its kind's declared fields (src/model/layers/<kind>.ts), under their spec names.
+  const form = storedForm(kind);
+  const allowed = ['kind', ...form.fields.map((f) => f.spec)];
   for (const key of Object.keys(raw)) {
-    if (!allowed[kind].includes(key)) fail(`${where}.${key}`, `is not a field of a ${kind} layer (fields: ${allowed[kind].join(', ')})`);
+    if (!allowed.includes(key)) fail(`${where}.${key}`, `is not a field of a ${kind} layer (fields: ${allowed.join(', ')})`);
   }
+  const before = ctx.problems.length;
+  const values: FieldValues = { kind };
+  for (const field of form.fields) if (field.type !== 'tensor') readScalar(field, raw[field.spec], `${where}.${field.spec}`, values, fail);
+  if (form.fields.some((f) => f.type === 'count' && values[f.key] === undefined)) return undefined;
+  const outputWidth = form.output === 'in' ? width : (values[form.output] as number);
+  if (width === undefined) return { layer: undefined, outputWidth };
 
-  if (kind === 'dropout') {
-    const rate = raw.rate === undefined ? 0.5 : raw.rate;
-    if (!DROPOUT_RATE_RULE.ok(rate)) return fail(`${where}.rate`, `must be a number ${DROPOUT_RATE_RULE.rule}, got ${JSON.stringify(raw.rate)}`);
-    return { layer: { kind: 'dropout', rate }, outputWidth: width };
-  }
-
-  if (kind === 'batchnorm') return buildBatchnorm(raw, where, width, ctx);
-
-  // Every other kind returned above: a new kind fails to compile here until it has its branch.
-  if (kind !== 'dense') throw new Error(`buildLayer: unhandled layer kind ${String(kind satisfies never)}`);
-  const units = positiveInt(raw.size, `${where}.size`, fail);
-  const activation = raw.activation === undefined ? 'linear' : raw.activation;
-  if (!isActivationName(activation)) {
-    fail(`${where}.activation`, `must be one of ${activationNames().join(', ')}, got ${JSON.stringify(raw.activation)}`);
-  }
-  const alpha = raw.alpha === undefined ? DEFAULT_LEAKY_ALPHA : raw.alpha;
-  if (typeof alpha !== 'number' || !Number.isFinite(alpha)) fail(`${where}.alpha`, `must be a number, got ${JSON.stringify(raw.alpha)}`);
-  if (units === undefined) return undefined;
-  if (width === undefined || !isActivationName(activation) || typeof alpha !== 'number') return { layer: placeholder(units), outputWidth: units };
-  const act = activation;
-
-  let weight: Float32Array | undefined;
-  let bias: Float32Array | undefined;
-  if (raw.weight !== undefined) {
-    const t = await loadTensor(raw.weight, `${where}.weight`, ctx.here, ctx.options.loadTensorFile, fail);
-    if (t) {
-      if (t.shape.length !== 2 || t.shape[0] !== width || t.shape[1] !== units) {
-        fail(`${where}.weight`, `has shape [${t.shape.join(', ')}], expected [${width}, ${units}] (inputs x size)`);
-      } else {
-        weight = Float32Array.from(t.data);
-      }
+  const drawn: string[] = [];
+  for (const field of form.fields) {
+    if (field.type !== 'tensor') continue;
+    const at = `${where}.${field.spec}`;
+    const shape = fieldShape(field, values, width) ?? [];
+    if (raw[field.spec] === undefined) {
+      if (field.start === 'drawn') drawn.push(field.key);
+      values[field.key] = field.start === 'drawn' ? new Float32Array(0) : new Float32Array(shape.reduce((a, b) => a * b, 1)).fill(field.start);
+      continue;
     }
+    const data = shape.length === 1 ? await ctx.loadVector(raw[field.spec], at, shape[0]) : await loadShaped(raw[field.spec], at, shape, field, ctx);
+    if (!data) continue;
+    const rule = field.each;
+    if (rule) Array.from(data).forEach((v, j) => (rule.ok(v) ? undefined : fail(`${at}[${j}]`, `must be ${rule.rule}, got ${v}`)));
+    values[field.key] = Float32Array.from(data);
   }
-  if (raw.bias !== undefined) {
-    const b = await loadVector(raw.bias, `${where}.bias`, units);
-    if (b) bias = Float32Array.from(b);
-  }
-  if (raw.weight === undefined) {
-    const init = initDense(width, units, act, ctx.rng, alpha);
-    weight = init.weight;
-    if (raw.bias === undefined) bias = init.bias;
-  } else if (raw.bias === undefined) {
-    bias = new Float32Array(units);
-  }
-  if (!weight || !bias) return { layer: placeholder(units), outputWidth: units };
-  return { layer: { kind: 'dense', size: units, activation: act, alpha, weight, bias }, outputWidth: units };
+  if (ctx.problems.length > before) return { layer: undefined, outputWidth };
+  // One typed adapter: the document built field by field by the names its kind declares.
+  const layer = values as unknown as Layer;
+  if (drawn.length === 0) return { layer, outputWidth };
+  // Starting values the kind draws from the seed (dense: He / Glorot weights), for the fields the spec left out.
+  const filled = (layerKind(kind).fillEmpty(layer as never, width, ctx.rng) ?? layer) as unknown as FieldValues;
+  for (const key of drawn) values[key] = filled[key];
+  return { layer, outputWidth };
 }
 
-/** A batchnorm layer: epsilon and momentum in range, and vectors of the layer width (defaults: scale 1, shift 0, mean 0, variance 1). */
-async function buildBatchnorm(
-  raw: Record<string, unknown>,
-  where: string,
-  width: number | undefined,
-  ctx: LayerContext,
-): Promise<{ layer: Layer; outputWidth: number | undefined } | undefined> {
-  const { fail, loadVector } = ctx;
-  const epsilon = raw.epsilon === undefined ? DEFAULT_BN_EPSILON : raw.epsilon;
-  const momentum = raw.momentum === undefined ? DEFAULT_BN_MOMENTUM : raw.momentum;
-  if (!BATCHNORM_RULES.epsilon.ok(epsilon)) fail(`${where}.epsilon`, `must be ${BATCHNORM_RULES.epsilon.rule}, got ${JSON.stringify(raw.epsilon)}`);
-  if (!BATCHNORM_RULES.momentum.ok(momentum)) fail(`${where}.momentum`, `must be ${BATCHNORM_RULES.momentum.rule}, got ${JSON.stringify(raw.momentum)}`);
-  if (width === undefined) return undefined;
-  const vector = async (name: string, fill: number) =>
-    raw[name] === undefined ? new Float64Array(width).fill(fill) : await loadVector(raw[name], `${where}.${name}`, width);
-  const [gamma, beta, mean, variance] = [await vector('gamma', 1), await vector('beta', 0), await vector('mean', 0), await vector('variance', 1)];
-  variance?.forEach((v, j) => (v >= 0 ? undefined : fail(`${where}.variance[${j}]`, `must be >= 0, got ${v}`)));
-  if (!gamma || !beta || !mean || !variance || typeof epsilon !== 'number' || typeof momentum !== 'number') return undefined;
-  return {
-    layer: {
-      kind: 'batchnorm',
-      gamma: Float32Array.from(gamma),
-      beta: Float32Array.from(beta),
-      runningMean: Float32Array.from(mean),
-      runningVariance: Float32Array.from(variance),
-      epsilon,
-      momentum,
-    },
-    outputWidth: width,
-  };
+/** A count, number or activation from the spec, or its default; a problem naming the rule otherwise. */
+function readScalar(field: Exclude<AnyField, { type: 'tensor' }>, given: unknown, where: string, values: FieldValues, fail: Fail): void {
+  if (field.type === 'activation') {
+    const activation = given === undefined ? field.default : given;
+    if (isActivationName(activation)) values[field.key] = activation;
+    else fail(where, `must be one of ${activationNames().join(', ')}, got ${JSON.stringify(given)}`);
+    return;
+  }
+  const value = given === undefined && field.type === 'number' ? field.default : given;
+  const rule = field.type === 'count' ? COUNT_RULE : field.rule;
+  if (typeof value === 'number' && rule.ok(value)) values[field.key] = value;
+  else fail(where, `must be ${rule.rule}, got ${JSON.stringify(given)}`);
 }
 
-/** Stands in for a layer with problems so later layers are still checked against its width. */
-function placeholder(units: number): Layer {
-  return { kind: 'dense', size: units, activation: 'linear', alpha: 0, weight: new Float32Array(0), bias: new Float32Array(units) };
+/** A tensor of more than one dimension, of exactly the declared shape. */
+async function loadShaped(value: unknown, where: string, shape: number[], field: AnyField & { type: 'tensor' }, ctx: LayerContext): Promise<ArrayLike<number> | undefined> {
+  const t = await loadTensor(value, where, ctx.here, ctx.options.loadTensorFile, ctx.fail);
+  if (!t) return undefined;
+  if (t.shape.length !== shape.length || t.shape.some((d, i) => d !== shape[i])) {
+    const words = field.shape.map((dim) => (dim === 'in' ? 'inputs' : dim)).join(' x ');
+    return ctx.fail(where, `has shape [${t.shape.join(', ')}], expected [${shape.join(', ')}] (${words})`);
+  }
+  return t.data;
 }
 
 async function loadTensor(value: unknown, where: string, here: string, loadFile: TensorFileLoader, fail: Fail): Promise<LoadedTensor | undefined> {

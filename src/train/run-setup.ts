@@ -10,6 +10,7 @@ import {
   attachTargetScaling,
   fitTargetScaling,
   layerKind,
+  layerOutputWidth,
   scalableOutputLayer,
   type ActivationName,
   type ForwardContext,
@@ -67,7 +68,7 @@ export function initialiseEmpty(doc: ModelDoc, rng: SeededRng): void {
   doc.layers.forEach((layer, i) => {
     const filled = layerKind(layer.kind).fillEmpty(layer, width, rng);
     if (filled) doc.layers[i] = filled;
-    width = layerKind(doc.layers[i].kind).outputWidth(doc.layers[i], width);
+    width = layerOutputWidth(doc.layers[i], width);
   });
 }
 

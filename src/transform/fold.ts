@@ -20,6 +20,7 @@ import { checksumOf, encodeModel } from '../format/index.js';
 import {
   inputAffine,
   layerKind,
+  layerOutputWidth,
   validateModel,
   type ActivationName,
   type Layer,
@@ -145,7 +146,7 @@ function toWork(doc: ModelDoc): Work[] {
   let width = doc.inputs;
   return doc.layers.map((layer, i): Work => {
     const inputs = width;
-    width = layerKind(layer.kind).outputWidth(layer, width);
+    width = layerOutputWidth(layer, width);
     const part = layerKind(layer.kind).simd.inference;
     if (typeof part !== 'function') return { kind: 'kept', origin: [i], layer };
     const form = part(layer);

@@ -309,7 +309,7 @@ describe('content checks report every problem at once', () => {
           true,
         ),
       'layers[1].batchnorm.running_variance',
-      /negative/,
+      /^1 value not >= 0 \(first at element 2: -0\.5\)$/,
     ],
     [
       'batchnorm vectors of unequal length',

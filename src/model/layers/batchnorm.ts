@@ -9,22 +9,29 @@
  * Engine saved: [xhat, batchInvStd] (training) or [xhat] (inference).
  */
 import * as tf from '@tensorflow/tfjs-core';
-import type { Problem } from '../../errors.js';
 import type { BatchNormLayer, ParamRef } from '../types.js';
-import { finiteProblems } from './checks.js';
+import { storedFieldProblems, type StoredForm } from './fields.js';
 import { as2D } from './engine-util.js';
 import type { EngineBackward, EngineForward, ForwardContext, LayerKind, Mat64, RefBackward, RefForward } from './kind.js';
 import { mat64 } from './mat64.js';
 
 /**
- * The one home of the attribute rules, used by validation, the file check and the spec:
- * epsilon finite and > 0 (it keeps 1/sqrt(var + eps) finite); momentum in [0, 1], where 1 keeps
- * the running statistics as they are (frozen) and 0 replaces them with each batch's.
+ * What a batch normalisation layer stores (formats/tendon.proto, BatchNormParams), with the one
+ * home of its rules: epsilon finite and > 0 (it keeps 1/sqrt(var + eps) finite); momentum in
+ * [0, 1], where 1 keeps the running statistics as they are (frozen) and 0 replaces them with
+ * each batch's. A spec that leaves the vectors out gets the identity (1, 0, 0, 1).
  */
-export const BATCHNORM_RULES = {
-  epsilon: { ok: (v: unknown): v is number => typeof v === 'number' && Number.isFinite(v) && v > 0, rule: 'a finite number > 0' },
-  momentum: { ok: (v: unknown): v is number => typeof v === 'number' && v >= 0 && v <= 1, rule: 'in [0, 1]' },
-} as const;
+const STORED = {
+  output: 'in',
+  fields: [
+    { type: 'tensor', key: 'gamma', proto: 'gamma', spec: 'gamma', shape: ['in'], storage: 'f32', start: 1 },
+    { type: 'tensor', key: 'beta', proto: 'beta', spec: 'beta', shape: ['in'], storage: 'f32', start: 0 },
+    { type: 'tensor', key: 'runningMean', proto: 'running_mean', spec: 'mean', shape: ['in'], storage: 'f32', start: 0 },
+    { type: 'tensor', key: 'runningVariance', proto: 'running_variance', spec: 'variance', shape: ['in'], storage: 'f32', start: 1, each: { ok: (v) => v >= 0, rule: '>= 0' } },
+    { type: 'number', key: 'epsilon', proto: 'epsilon', spec: 'epsilon', rule: { ok: (v) => Number.isFinite(v) && v > 0, rule: 'a finite number > 0' }, default: 1e-5 },
+    { type: 'number', key: 'momentum', proto: 'momentum', spec: 'momentum', rule: { ok: (v) => v >= 0 && v <= 1, rule: 'in [0, 1]' }, default: 0.9 },
+  ],
+} as const satisfies StoredForm<BatchNormLayer>;
 
 interface BatchNormSaved {
   readonly mode: 'training' | 'inference';
@@ -166,30 +173,10 @@ function engineBackward(_layer: BatchNormLayer, weights: tf.Tensor[], saved: tf.
   return { dx: as2D(tf.mul(g, inner), 'batchnorm dx'), grads: [dgamma, dbeta] };
 }
 
-function validate(layer: BatchNormLayer, inputWidth: number, where: string): Problem[] {
-  const problems: Problem[] = [];
-  const named: [string, Float32Array][] = [
-    ['gamma', layer.gamma],
-    ['beta', layer.beta],
-    ['runningMean', layer.runningMean],
-    ['runningVariance', layer.runningVariance],
-  ];
-  for (const [name, data] of named) {
-    if (data.length !== inputWidth) problems.push({ where, message: `${name} has ${data.length} values, expected [${inputWidth}]` });
-    else problems.push(...finiteProblems(data, name, where));
-  }
-  const negative = layer.runningVariance.findIndex((v) => v < 0);
-  if (negative >= 0) problems.push({ where, message: `runningVariance[${negative}] is ${layer.runningVariance[negative]}; a variance cannot be negative` });
-  for (const name of ['epsilon', 'momentum'] as const) {
-    if (!BATCHNORM_RULES[name].ok(layer[name])) problems.push({ where, message: `${name} must be ${BATCHNORM_RULES[name].rule}, got ${layer[name]}` });
-  }
-  return problems;
-}
-
 /** The batch normalisation layer kind. */
-export const batchnorm: LayerKind<BatchNormLayer> = {
+export const batchnorm: LayerKind<BatchNormLayer, typeof STORED> = {
   kind: 'batchnorm',
-  outputWidth: (_layer, inputWidth) => inputWidth,
+  stored: STORED,
   tensors,
   trainable: params,
   clone: (layer) => ({
@@ -211,7 +198,7 @@ export const batchnorm: LayerKind<BatchNormLayer> = {
         }
       : null,
   describe: (layer) => `epsilon ${layer.epsilon}, momentum ${layer.momentum}`,
-  validate,
+  validate: (layer, inputWidth, where) => storedFieldProblems(STORED, layer, inputWidth, where),
   reference: { forward: (layer, x, ctx) => refForward(layer, x, ctx), backward: (layer, saved, dy) => refBackward(layer, saved, dy) },
   engine: {
     upload: engineUpload,

@@ -6,13 +6,25 @@
  */
 import * as tf from '@tensorflow/tfjs-core';
 import type { Problem } from '../../errors.js';
-import { activationKind, activationNames, isActivationName } from '../activations/catalogue.js';
+import { activationKind, isActivationName } from '../activations/catalogue.js';
 import type { DenseLayer, ParamRef } from '../types.js';
 import { as2D } from './engine-util.js';
 import type { BackwardOptions, EngineBackward, EngineForward, LayerKind, Mat64, RefBackward, RefForward } from './kind.js';
 import { columnSums64, mat64, matMul64, matMulTransA64, matMulTransB64 } from './mat64.js';
-import { finiteProblems, isPositiveInt } from './checks.js';
-import { initDense } from '../init.js';
+import { storedFieldProblems, type StoredForm } from './fields.js';
+import { DEFAULT_LEAKY_ALPHA, initDense } from '../init.js';
+
+/** What a dense layer stores (formats/tendon.proto, DenseParams); `size` is its output width. */
+const STORED = {
+  output: 'size',
+  fields: [
+    { type: 'count', key: 'size', proto: 'size', spec: 'size' },
+    { type: 'activation', key: 'activation', proto: 'activation', spec: 'activation', default: 'linear' },
+    { type: 'tensor', key: 'weight', proto: 'weight', spec: 'weight', shape: ['in', 'size'], storage: 'model', start: 'drawn' },
+    { type: 'tensor', key: 'bias', proto: 'bias', spec: 'bias', shape: ['size'], storage: 'f32', start: 0 },
+    { type: 'number', key: 'alpha', proto: 'alpha', spec: 'alpha', rule: { ok: Number.isFinite, rule: 'a finite number' }, default: DEFAULT_LEAKY_ALPHA },
+  ],
+} as const satisfies StoredForm<DenseLayer>;
 
 interface DenseSaved {
   readonly x: Mat64;
@@ -87,37 +99,18 @@ function engineBackward(layer: DenseLayer, weights: tf.Tensor[], saved: tf.Tenso
 }
 
 function validate(layer: DenseLayer, inputWidth: number, where: string): Problem[] {
-  const problems: Problem[] = [];
-  if (!isPositiveInt(layer.size)) {
-    problems.push({ where, message: `size must be a positive integer, got ${layer.size}` });
-    return problems;
-  }
-  const known = isActivationName(layer.activation);
-  if (!known) {
-    problems.push({ where, message: `unknown activation "${String(layer.activation)}" (expected one of ${activationNames().join(', ')})` });
-  }
-  const slope = known && activationKind(layer.activation).usesAlpha;
-  if (!Number.isFinite(layer.alpha) || (slope && layer.alpha < 0)) {
-    problems.push({ where, message: `alpha must be a finite number${slope ? ' >= 0' : ''}, got ${layer.alpha}` });
-  }
-  const wantW = inputWidth * layer.size;
-  if (layer.weight.length !== wantW) {
-    problems.push({ where, message: `weight has ${layer.weight.length} values, expected [${inputWidth}, ${layer.size}] = ${wantW}` });
-  } else {
-    problems.push(...finiteProblems(layer.weight, 'weight', where));
-  }
-  if (layer.bias.length !== layer.size) {
-    problems.push({ where, message: `bias has ${layer.bias.length} values, expected [${layer.size}]` });
-  } else {
-    problems.push(...finiteProblems(layer.bias, 'bias', where));
+  const problems = storedFieldProblems(STORED, layer, inputWidth, where);
+  // Beyond the declared rule: a slope for negative inputs is not negative.
+  if (isActivationName(layer.activation) && activationKind(layer.activation).usesAlpha && layer.alpha < 0) {
+    problems.push({ where, message: `alpha must be a finite number >= 0, got ${layer.alpha}` });
   }
   return problems;
 }
 
 /** The dense layer kind. */
-export const dense: LayerKind<DenseLayer> = {
+export const dense: LayerKind<DenseLayer, typeof STORED> = {
   kind: 'dense',
-  outputWidth: (layer) => layer.size,
+  stored: STORED,
   tensors: params,
   trainable: params,
   clone: (layer) => ({ ...layer, weight: layer.weight.slice(), bias: layer.bias.slice() }),

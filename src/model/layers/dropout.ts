@@ -5,14 +5,20 @@
  * Reference saved: the mask as float64, or null at inference. Engine saved: [mask] or [].
  */
 import * as tf from '@tensorflow/tfjs-core';
-import type { Problem } from '../../errors.js';
 import type { DropoutLayer } from '../types.js';
 import { as2D } from './engine-util.js';
+import { storedFieldProblems, type StoredForm } from './fields.js';
 import type { LayerKind, Mat64 } from './kind.js';
 import { mat64 } from './mat64.js';
 
-/** The one home of the rate rule: rate 1 would zero everything and make the 1/(1-rate) scale infinite. */
-export const DROPOUT_RATE_RULE = { ok: (v: unknown): v is number => typeof v === 'number' && v >= 0 && v < 1, rule: 'in [0, 1)' } as const;
+/**
+ * What a dropout layer stores (formats/tendon.proto, DropoutParams), with the one home of the
+ * rate rule: rate 1 would zero everything and make the 1/(1-rate) scale infinite.
+ */
+const STORED = {
+  output: 'in',
+  fields: [{ type: 'number', key: 'rate', proto: 'rate', spec: 'rate', rule: { ok: (v) => v >= 0 && v < 1, rule: 'in [0, 1)' }, default: 0.5 }],
+} as const satisfies StoredForm<DropoutLayer>;
 
 function refBackward(saved: unknown, dy: Mat64) {
   if (saved === null) return { dx: mat64(dy.rows, dy.cols, Float64Array.from(dy.data)), grads: [] };
@@ -22,20 +28,16 @@ function refBackward(saved: unknown, dy: Mat64) {
   return { dx: mat64(dy.rows, dy.cols, dx), grads: [] };
 }
 
-function validate(layer: DropoutLayer, _inputWidth: number, where: string): Problem[] {
-  return DROPOUT_RATE_RULE.ok(layer.rate) ? [] : [{ where, message: `rate must be ${DROPOUT_RATE_RULE.rule}, got ${layer.rate}` }];
-}
-
 /** The dropout layer kind. */
-export const dropout: LayerKind<DropoutLayer> = {
+export const dropout: LayerKind<DropoutLayer, typeof STORED> = {
   kind: 'dropout',
-  outputWidth: (_layer, inputWidth) => inputWidth,
+  stored: STORED,
   tensors: () => [],
   trainable: () => [],
   clone: (layer) => ({ ...layer }),
   fillEmpty: () => null,
   describe: (layer) => `rate ${layer.rate}`,
-  validate,
+  validate: (layer, inputWidth, where) => storedFieldProblems(STORED, layer, inputWidth, where),
   reference: {
     forward(layer, x, ctx, index) {
       if (!ctx.training) return { y: mat64(x.rows, x.cols, Float64Array.from(x.data)), saved: null };

@@ -10,6 +10,12 @@ import type * as tf from '@tensorflow/tfjs-core';
 import type { Problem } from '../../errors.js';
 import type { SeededRng } from '../rng.js';
 import type { ActivationName, Layer, ParamRef } from '../types.js';
+import type { StoredForm } from './fields.js';
+
+/** What every layer document has: its kind's name. The built-in kinds make up `Layer`. */
+export interface AnyLayer {
+  readonly kind: string;
+}
 
 /** A rows x cols float64 matrix, row-major. */
 export interface Mat64 {
@@ -123,15 +129,19 @@ export type SimdTraining =
   | { readonly op: 'mask'; readonly rate: number };
 
 /** A layer kind's part in the fast engine; a null half means that engine refuses it, naming why. */
-export interface SimdPart<L extends Layer> {
+export interface SimdPart<L extends AnyLayer> {
   readonly inference: ((layer: L) => SimdInference) | { readonly refused: string };
   readonly training: ((layer: L) => SimdTraining) | { readonly refused: string };
 }
 
-export interface LayerKind<L extends Layer = Layer> {
+/** `S` keeps the literal declarations of a built-in kind, from which format/payload.ts types its message. */
+export interface LayerKind<L extends AnyLayer = Layer, S extends StoredForm<L> = StoredForm<L>> {
   readonly kind: L['kind'];
-  /** Width of the output for a given input width. */
-  outputWidth(layer: L, inputWidth: number): number;
+  /**
+   * Its stored fields, declared once: the codec, the file check, the spec and validation read
+   * them (fields.ts), and its output width follows from them (`layerOutputWidth`).
+   */
+  readonly stored: S;
   /** Every stored tensor of the layer with its shape (for the file, `tendon about`, validation). */
   tensors(layer: L, inputWidth: number, index: number): ParamRef[];
   /** Tensors updated by gradient descent, in a fixed order; gradients come back in this order. */
@@ -145,7 +155,10 @@ export interface LayerKind<L extends Layer = Layer> {
   fillEmpty(layer: L, inputWidth: number, rng: SeededRng): L | null;
   /** Its attributes in a few words, for `tendon about` (e.g. "relu", "rate 0.2"). */
   describe(layer: L): string;
-  /** Problems with attributes and tensor sizes; `where` is e.g. "layers[2] (dense)". */
+  /**
+   * Problems with attributes and tensor sizes; `where` is e.g. "layers[2] (dense)". Start from
+   * `storedFieldProblems` (the declared rules) and add what a single field cannot say.
+   */
   validate(layer: L, inputWidth: number, where: string): Problem[];
 
   readonly reference: {
