@@ -22,17 +22,9 @@
  */
 import { ModelFileError, ShapeError } from '../errors.js';
 import { quantiseColumns, storedCodesOf, type Int8Matrix } from '../format/int8.js';
-import {
-  activationKind,
-  batchNormAffine,
-  inputShiftScale,
-  modelWidths,
-  validateModel,
-  type ActivationName,
-  type DenseLayer,
-  type ModelDoc,
-} from '../model/index.js';
+import { activationKind, inputShiftScale, modelWidths, validateModel, type ActivationName, type ModelDoc, type SimdInference } from '../model/index.js';
 import { denseFunction, padded, relaxedMaddAvailable, wasmApi } from './fast/dense-kernel.js';
+import { simdInferencePlan } from './fast/simd-runner.js';
 import { Code, I32, moduleBytes, type FunctionDef } from './fast/wasm-emit.js';
 import {
   affineFunction,
@@ -228,6 +220,9 @@ class ConstantLayout {
   }
 }
 
+/** A dense layer as the kernels take it (its kind's `simd.inference` form). */
+type DenseOp = Extract<SimdInference, { op: 'dense' }>;
+
 const f32Bytes = (a: Float32Array): Uint8Array => new Uint8Array(a.buffer, a.byteOffset, a.byteLength);
 
 /** One step of the module with the addresses of its constants. */
@@ -274,10 +269,11 @@ function planSteps(
   let width = inP;
   let maxWidth = width;
   const problems: { where: string; message: string }[] = [];
-  doc.layers.forEach((layer, index) => {
-    if (layer.kind === 'dense') {
+  // Each layer as its kind's kernel operation (the catalogue); a kind without one is refused here, by name.
+  simdInferencePlan(doc, arith === 'f32' ? 'fast' : 'int8').forEach((op, index) => {
+    if (op.op === 'dense') {
       const realIn = widths[index];
-      if (arith === 'f32') steps.push(denseF32Step(layer, realIn, width, constants));
+      if (arith === 'f32') steps.push(denseF32Step(op, realIn, width, constants));
       else {
         if (width > MAX_INT8_INPUTS) {
           problems.push({
@@ -286,34 +282,33 @@ function planSteps(
           });
           return;
         }
-        steps.push(denseInt8Step(layer, realIn, width, arith, constants, codes));
+        steps.push(denseInt8Step(op, realIn, width, arith, constants, codes));
       }
-      width = padded(layer.size);
+      width = padded(op.size);
       maxWidth = Math.max(maxWidth, width);
-    } else if (layer.kind === 'batchnorm') {
-      // Inference form folded in float64 like the fast engine: y = x · scale + shift.
-      const folded = batchNormAffine(layer);
+    } else if (op.op === 'affine') {
+      // Folded in float64 by the layer kind, rounded to float32 once here.
       const scale = new Float32Array(width);
       const shift = new Float32Array(width);
-      scale.set(folded.scale);
-      shift.set(folded.shift);
+      scale.set(op.scale);
+      shift.set(op.shift);
       steps.push({ kind: 'affine', scale: constants.place(f32Bytes(scale)), shift: constants.place(f32Bytes(shift)), width });
     }
-    // dropout: identity at inference.
+    // identity (dropout at inference): no step.
   });
   if (problems.length > 0) throw new ModelFileError(source, problems);
   return { steps, maxWidth };
 }
 
 /** The bias padded to outP columns, placed. */
-function placeBias(layer: DenseLayer, outP: number, constants: ConstantLayout): number {
+function placeBias(layer: DenseOp, outP: number, constants: ConstantLayout): number {
   const bias = new Float32Array(outP);
   bias.set(layer.bias);
   return constants.place(f32Bytes(bias));
 }
 
 /** A float32 dense step: the weights as the document holds them, padded to width x outP. */
-function denseF32Step(layer: DenseLayer, realIn: number, width: number, constants: ConstantLayout): Step {
+function denseF32Step(layer: DenseOp, realIn: number, width: number, constants: ConstantLayout): Step {
   const outP = padded(layer.size);
   const relu = layer.activation === 'relu';
   const w = new Float32Array(width * outP);
@@ -335,7 +330,7 @@ function denseF32Step(layer: DenseLayer, realIn: number, width: number, constant
 }
 
 /** An integer dense step: the stored codes, else the layer quantised the way `shrink` does. */
-function denseInt8Step(layer: DenseLayer, realIn: number, width: number, arith: Int8Arith, constants: ConstantLayout, codes: CodesOrigin[]): Step {
+function denseInt8Step(layer: DenseOp, realIn: number, width: number, arith: Int8Arith, constants: ConstantLayout, codes: CodesOrigin[]): Step {
   const outP = padded(layer.size);
   const stored = storedCodesOf(layer.weight, realIn, layer.size);
   const m: Int8Matrix = stored ?? quantiseColumns(layer.weight, realIn, layer.size);

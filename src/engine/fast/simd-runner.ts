@@ -36,13 +36,14 @@ type Step =
   | { readonly op: 'affine'; readonly scale: Float32Array; readonly shift: Float32Array };
 
 /**
- * Each layer as the kernel's operations, from its own kind (the catalogue).
- * @throws EngineRefusal naming the first layer this engine cannot run.
+ * Each layer as the kernel's operations, from its own kind (the catalogue); the fast engine and
+ * the shared-memory runner behind int8 (and fast on threads) run these and nothing else.
+ * @throws EngineRefusal naming `engine`, the first layer it cannot run and its kind.
  */
-export function simdInferencePlan(doc: ModelDoc): SimdInference[] {
+export function simdInferencePlan(doc: ModelDoc, engine: 'fast' | 'int8' = 'fast'): SimdInference[] {
   return doc.layers.map((layer, i) => {
     const part = layerKind(layer.kind).simd.inference;
-    if (typeof part !== 'function') throw new EngineRefusal('fast', i, layer.kind, `${part.refused}; open the model with --engine js or wasm`);
+    if (typeof part !== 'function') throw new EngineRefusal(engine, i, layer.kind, `${part.refused}; open the model with --engine js or wasm`);
     return part(layer);
   });
 }
