@@ -11,7 +11,7 @@ import type { Layer, ModelDoc, StorageCodec } from '../model/types.js';
 import { checkPayload } from './check.js';
 import { crcHex } from './crc32.js';
 import { FORMAT_VERSION, frame, openFrame, type FormatVersion } from './header.js';
-import { decodePayload, encodePayload, type RawField, type RawLayer, type RawModel, type RawTensor } from './payload.js';
+import { decodePayload, encodePayload, schemaHasLayerKind, type RawField, type RawLayer, type RawModel, type RawTensor } from './payload.js';
 import { encodeTensor } from './tensor.js';
 
 function tensorOrProblems(values: Float32Array, shape: readonly number[], codec: StorageCodec, where: string, problems: Problem[]): RawTensor | null {
@@ -41,6 +41,11 @@ function encodeField(field: AnyField & { type: 'tensor' }, values: FieldValues, 
 /** A layer's LayerEntry: the member named by its kind, each declared field under its proto name. */
 function encodeLayer(layer: Layer, index: number, storage: StorageCodec, problems: Problem[]): RawLayer {
   const where = `layers[${index}].${layer.kind}`;
+  if (!schemaHasLayerKind(layer.kind)) {
+    // protobufjs would drop the member silently and write an entry with no kind.
+    problems.push({ where: `layers[${index}]`, message: `the file format has no message for layer kind "${layer.kind}" (formats/tendon.proto, LayerEntry)` });
+    return {};
+  }
   // One typed adapter: the layer read by the field names its kind declares.
   const values = layer as unknown as FieldValues;
   const params: Record<string, RawField> = {};

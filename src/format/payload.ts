@@ -6,7 +6,7 @@
 import protobuf from 'protobufjs';
 import type { BuiltInStoredForms } from '../model/index.js';
 import type { LayerKindName, StorageCodec } from '../model/types.js';
-import { PAYLOAD_MESSAGE, TENDON_SCHEMA } from './schema.js';
+import { LAYER_ENTRY_MESSAGE, PAYLOAD_MESSAGE, TENDON_SCHEMA } from './schema.js';
 
 // Activation enum codes live with each activation (its `code`, src/model/activations/); 0
 // means "not set" and is refused.
@@ -98,6 +98,12 @@ export function payloadSchema(): protobuf.Type {
     payloadType = protobuf.parse(schemaText, { keepCase: true }).root.lookupType(PAYLOAD_MESSAGE);
   }
   return payloadType;
+}
+
+/** Whether the schema's LayerEntry has a member for a layer kind (a kind without one cannot be written). */
+export function schemaHasLayerKind(kind: string): boolean {
+  const entry = payloadSchema().root.lookupType(LAYER_ENTRY_MESSAGE);
+  return entry.oneofs?.kind?.oneof.includes(kind) ?? false;
 }
 
 /**

@@ -10,3 +10,6 @@ export const TENDON_SCHEMA: string = schemaText;
 
 /** Fully qualified name of the payload message. */
 export const PAYLOAD_MESSAGE = 'tendon.file.v1.TendonModel';
+
+/** Fully qualified name of the message whose `kind` oneof holds one member per layer kind. */
+export const LAYER_ENTRY_MESSAGE = 'tendon.file.v1.LayerEntry';
