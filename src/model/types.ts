@@ -8,9 +8,8 @@
 export const ACTIVATIONS = ['linear', 'relu', 'leaky_relu', 'sigmoid', 'tanh', 'softplus', 'softmax'] as const;
 export type ActivationName = (typeof ACTIVATIONS)[number];
 
-/** Every layer kind, spelt once. */
-export const LAYER_KINDS = ['dense', 'batchnorm', 'dropout'] as const;
-export type LayerKindName = (typeof LAYER_KINDS)[number];
+/** Every built-in layer kind's name (the `Layer` union below; the catalogue is typed by it). */
+export type LayerKindName = Layer['kind'];
 
 /** How a tensor is stored on disk. In memory it is always float32. */
 export const STORAGE_CODECS = ['f32', 'f16', 'i8'] as const;
