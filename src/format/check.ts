@@ -104,7 +104,9 @@ function checkFields(kind: LayerKindName, raw: Record<string, RawField>, where: 
     values[field.key] = tensor.data;
     decoded.push({ field, shape: tensor.shape });
   }
-  const inputs = decoded.flatMap(({ field, shape }) => (field.shape.includes('in') ? [{ proto: field.proto, shape, width: shape[field.shape.indexOf('in')] }] : []));
+  const inputs = decoded.flatMap(({ field, shape }) =>
+    field.shape.includes('in') ? [{ proto: field.proto, shape, width: shape[field.shape.indexOf('in')] }] : [],
+  );
   checkIncomingWidth(inputs, where, width, problems);
   passWidthOn(form, values, decoded, where, kind, width);
   return problems.length > before ? null : (values as unknown as Layer);
@@ -117,7 +119,10 @@ function checkIncomingWidth(inputs: { proto: string; shape: number[]; width: num
   } else if (inputs.length > 0 && width.value !== null && inputs[0].width !== width.value) {
     const [one] = inputs;
     if (inputs.length === 1) {
-      problems.push({ where: `${where}.${one.proto}`, message: `shape ${formatShape(one.shape)} takes ${one.width} inputs, but ${width.from} gives width ${width.value}` });
+      problems.push({
+        where: `${where}.${one.proto}`,
+        message: `shape ${formatShape(one.shape)} takes ${one.width} inputs, but ${width.from} gives width ${width.value}`,
+      });
     } else {
       problems.push({ where, message: `tensors take ${one.width} inputs, but ${width.from} gives width ${width.value}` });
     }

@@ -1,9 +1,11 @@
 /**
  * ModelDoc <-> file bytes (header + protobuf payload).
  *
- * Storage: `doc.storage` chooses how dense weights are stored (f32, f16 or i8 per column);
- * biases, batch-normalisation vectors and normalisation statistics are always written at full
- * precision (f32 / float64): they are small, and rounding them shifts every output.
+ * Each layer is written by its kind's declared fields (`stored` in src/model/layers/<kind>.ts);
+ * no kind is named here. Storage: `doc.storage` chooses how tensors declared with 'model' storage
+ * (dense weights) are stored (f32, f16 or i8 per column); the others (biases, batch-normalisation
+ * vectors) and the normalisation statistics are always written at full precision (f32 /
+ * float64): they are small, and rounding them shifts every output.
  */
 import { ModelFileError, type Problem } from '../errors.js';
 import { activationCode, fieldShape, storedForm, type AnyField, type FieldValues } from '../model/index.js';

@@ -228,7 +228,13 @@ function readScalar(field: Exclude<AnyField, { type: 'tensor' }>, given: unknown
 }
 
 /** A tensor of more than one dimension, of exactly the declared shape. */
-async function loadShaped(value: unknown, where: string, shape: number[], field: AnyField & { type: 'tensor' }, ctx: LayerContext): Promise<ArrayLike<number> | undefined> {
+async function loadShaped(
+  value: unknown,
+  where: string,
+  shape: number[],
+  field: AnyField & { type: 'tensor' },
+  ctx: LayerContext,
+): Promise<ArrayLike<number> | undefined> {
   const t = await loadTensor(value, where, ctx.here, ctx.options.loadTensorFile, ctx.fail);
   if (!t) return undefined;
   if (t.shape.length !== shape.length || t.shape.some((d, i) => d !== shape[i])) {
