@@ -14,47 +14,15 @@
 import { spawn } from 'node:child_process';
 import { mkdtemp, readFile, rename, rm, writeFile } from 'node:fs/promises';
 import { cpus, tmpdir } from 'node:os';
-import { dirname, join } from 'node:path';
-import { fileURLToPath } from 'node:url';
+import { join } from 'node:path';
+import { CLI, HERE, RESULTS, hardDeadline, option, seeded, startChild } from './shared.mjs';
 
-const HERE = dirname(fileURLToPath(import.meta.url));
-const ROOT = join(HERE, '..');
-const CLI = join(ROOT, 'dist', 'cli.js');
-const RESULTS = join(HERE, 'RESULTS.md');
-
-function option(name, fallback) {
-  const i = process.argv.indexOf(`--${name}`);
-  if (i < 0) return fallback;
-  const value = Number(process.argv[i + 1]);
-  if (!(value > 0)) {
-    console.error(`soak: --${name} needs a positive number`);
-    process.exit(2);
-  }
-  return value;
-}
-const SECONDS = option('seconds', 60);
-const CLIENTS = option('clients', 8);
-const MAX_REQUESTS = option('max-requests', 2_000_000);
-const hardStop = setTimeout(
-  () => {
-    console.error('soak: hard deadline passed; stopping');
-    process.exit(1);
-  },
-  (SECONDS + 120 + (process.argv.includes('--no-wire') ? 0 : option('wire-seconds', 4) * option('wire-rounds', 2) * 3 + 240)) * 1000,
-);
-hardStop.unref();
-
-/** mulberry32: seeded uniform numbers in [0, 1), so every run sends the same rows. */
-function seeded(seed) {
-  let a = seed >>> 0;
-  return () => {
-    a = (a + 0x6d2b79f5) >>> 0;
-    let t = a;
-    t = Math.imul(t ^ (t >>> 15), t | 1);
-    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-  };
-}
+const SECONDS = option('soak', 'seconds', 60);
+const CLIENTS = option('soak', 'clients', 8);
+const MAX_REQUESTS = option('soak', 'max-requests', 2_000_000);
+const WIRE_SECONDS = option('soak', 'wire-seconds', 4);
+const WIRE_ROUNDS = option('soak', 'wire-rounds', 2);
+hardDeadline('soak', (SECONDS + 120 + (process.argv.includes('--no-wire') ? 0 : WIRE_SECONDS * WIRE_ROUNDS * 3 + 240)) * 1000);
 
 function run(args, { quiet = true } = {}) {
   return new Promise((resolve, reject) => {
@@ -113,18 +81,8 @@ async function main() {
   const data = join(dir, 'rows.csv');
   await writeFile(data, lines.join('\n') + '\n');
 
-  const server = spawn(process.execPath, [CLI, 'serve', model, '--port', '0'], { stdio: ['ignore', 'pipe', 'pipe'] });
-  let serverLog = '';
-  server.stderr.on('data', (d) => (serverLog += d));
-  const url = await new Promise((resolve, reject) => {
-    let out = '';
-    server.stdout.on('data', (d) => {
-      out += d;
-      const m = /on (http:\/\/127\.0\.0\.1:\d+)/.exec(out);
-      if (m) resolve(m[1]);
-    });
-    server.once('exit', (code) => reject(new Error(`tendon serve exited ${code}: ${serverLog.trim()}`)));
-  });
+  const { child: server, url: served } = startChild([CLI, 'serve', model, '--port', '0'], /on (http:\/\/127\.0\.0\.1:\d+)/);
+  const url = await served;
   console.log(`soak: ${SECONDS} s, ${CLIENTS} clients against ${url} (pid ${server.pid})`);
 
   const started = performance.now();
@@ -294,11 +252,7 @@ async function main() {
     // The wire comparison, same load generator for every server (bench/wire.mjs); it appends its own rows.
     console.log('\nwire: bare node:http server vs tendon serve (JSON, NPY), same load generator');
     wireOk = await new Promise((resolve) => {
-      const child = spawn(
-        process.execPath,
-        [join(HERE, 'wire.mjs'), '--seconds', String(option('wire-seconds', 4)), '--rounds', String(option('wire-rounds', 2))],
-        { stdio: 'inherit' },
-      );
+      const child = spawn(process.execPath, [join(HERE, 'wire.mjs'), '--seconds', String(WIRE_SECONDS), '--rounds', String(WIRE_ROUNDS)], { stdio: 'inherit' });
       child.once('exit', (code) => resolve(code === 0));
     });
   }

@@ -7,42 +7,21 @@
 //
 // Prints a table and appends rows to the wire table in bench/RESULTS.md. Loopback only; every
 // phase stops after --seconds, and a hard deadline ends the process whatever happens.
-import { spawn, execFileSync } from 'node:child_process';
+import { execFileSync } from 'node:child_process';
 import { Agent, request } from 'node:http';
 import { mkdtemp, readFile, rm, writeFile } from 'node:fs/promises';
 import { cpus, tmpdir } from 'node:os';
-import { dirname, join } from 'node:path';
+import { join } from 'node:path';
 import { fileURLToPath } from 'node:url';
+import { CLI, HERE, RESULTS, hardDeadline, option, seeded, startChild } from './shared.mjs';
 
-const HERE = dirname(fileURLToPath(import.meta.url));
-const ROOT = join(HERE, '..');
-const CLI = join(ROOT, 'dist', 'cli.js');
-const RESULTS = join(HERE, 'RESULTS.md');
-
-function option(name, fallback) {
-  const i = process.argv.indexOf(`--${name}`);
-  if (i < 0) return fallback;
-  const value = Number(process.argv[i + 1]);
-  if (!(value > 0)) {
-    console.error(`wire: --${name} needs a positive number`);
-    process.exit(2);
-  }
-  return value;
-}
-const SECONDS = option('seconds', 4);
-const ROUNDS = option('rounds', 2);
-const CLIENTS = option('clients', 8);
-const ROWS = option('rows', 16);
-const WORKERS = option('workers', 2);
+const SECONDS = option('wire', 'seconds', 4);
+const ROUNDS = option('wire', 'rounds', 2);
+const CLIENTS = option('wire', 'clients', 8);
+const ROWS = option('wire', 'rows', 16);
+const WORKERS = option('wire', 'workers', 2);
 const INPUTS = 784;
-const hardStop = setTimeout(
-  () => {
-    console.error('wire: hard deadline passed; stopping');
-    process.exit(1);
-  },
-  (SECONDS * ROUNDS * 4 + 180) * 1000,
-);
-hardStop.unref();
+hardDeadline('wire', (SECONDS * ROUNDS * 4 + 180) * 1000);
 
 /** The CPU's vector features that matter to the kernels, from /proc/cpuinfo (Linux). */
 export async function vectorFeatures() {
@@ -50,34 +29,6 @@ export async function vectorFeatures() {
   const flags = new Set((/^flags\s*:\s*(.*)$/m.exec(info)?.[1] ?? '').split(/\s+/));
   if (flags.size <= 1) return 'unknown';
   return ['avx2', 'avx512f'].map((f) => `${f} ${flags.has(f) ? 'yes' : 'no'}`).join(', ');
-}
-
-/** mulberry32: seeded uniform numbers in [0, 1). */
-function seeded(seed) {
-  let a = seed >>> 0;
-  return () => {
-    a = (a + 0x6d2b79f5) >>> 0;
-    let t = a;
-    t = Math.imul(t ^ (t >>> 15), t | 1);
-    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-  };
-}
-
-function startChild(args, pattern) {
-  const child = spawn(process.execPath, args, { stdio: ['ignore', 'pipe', 'pipe'] });
-  let log = '';
-  child.stderr.on('data', (d) => (log += d));
-  const url = new Promise((resolve, reject) => {
-    let out = '';
-    child.stdout.on('data', (d) => {
-      out += d;
-      const m = pattern.exec(out);
-      if (m) resolve(m[1]);
-    });
-    child.once('exit', (code) => reject(new Error(`${args[1] ?? args[0]} exited ${code}: ${log.trim()}`)));
-  });
-  return { child, url };
 }
 
 /** One request over the keep-alive agent: status and the whole answer. */

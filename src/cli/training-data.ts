@@ -6,16 +6,9 @@
  */
 import { DataError } from '../errors.js';
 import { openTable, resolveColumns, shownCell, shownNames, type ColumnRef, type TableReader } from '../io/index.js';
-import { modelWidths, type ModelDoc } from '../model/index.js';
+import { modelWidths, outputsAreClasses, type ModelDoc } from '../model/index.js';
 import type { TuneData } from '../train/config.js';
 import { namedColumns, otherColumns, tableLayout } from './model-input.js';
-
-/** True when the model's targets are classes: a softmax output, or one sigmoid unit (0 / 1). */
-export function isClassifier(doc: ModelDoc): boolean {
-  const last = [...doc.layers].reverse().find((l) => l.kind === 'dense');
-  if (!last || last.kind !== 'dense') return false;
-  return last.activation === 'softmax' || (last.activation === 'sigmoid' && last.size === 1);
-}
 
 type Layout = Pick<TableReader, 'columns' | 'width'>;
 
@@ -37,7 +30,7 @@ const READ_AHEAD_BYTES = 128 * 1024;
  *   the model does not know, or target names that are not the model's output labels.
  */
 export async function loadTrainingData(doc: ModelDoc, file: string, targets: readonly string[], warn: (message: string) => void = () => {}): Promise<TuneData> {
-  const classes = isClassifier(doc);
+  const classes = outputsAreClasses(doc);
   const refs: ColumnRef[] = targets.map((t) => (/^\d+$/.test(t) ? Number(t) : t));
   const layout = await tableLayout(file);
   const widths = modelWidths(doc);

@@ -4,12 +4,12 @@ import { UsageError } from '../../errors.js';
 import { readModelFile } from '../../format/index.js';
 import { noExtraPositionals, parseArgs, requirePositional } from '../args.js';
 import type { Command } from '../command.js';
-import { parseEngine } from './engine-flag.js';
+import { ENGINE_FLAG, parseEngine } from './engine-flag.js';
 import { reportFormat, writeBenchReport } from '../report-files.js';
 
 const flags = {
   batch: { kind: 'string', help: 'comma-separated rows per call to measure', default: '1,32,256,1024' },
-  engine: { kind: 'string', help: 'auto, fast, int8, wasm or js', default: 'auto' },
+  engine: ENGINE_FLAG,
   ms: { kind: 'integer', help: 'measuring time per batch size, in milliseconds', default: 1000 },
   json: { kind: 'boolean', help: 'print the rows as JSON' },
   report: { kind: 'string', help: 'also time plain tfjs ops and the float64 reference on the same rows and write all as one HTML page (FILE.html)' },

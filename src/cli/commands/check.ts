@@ -1,22 +1,23 @@
 import { INT8_SIGMAS, randomInputs, type ParityReport } from '../../check/index.js';
 import { UsageError } from '../../errors.js';
 import { readModelFile } from '../../format/index.js';
+import { outputsAreClasses } from '../../model/index.js';
 import { compareOutputs, costVerdict, SHRINK_TOLERANCE, type OutputComparison } from '../../transform/index.js';
 import { openModel, type TendonModel } from '../../tendon.js';
 import { noExtraPositionals, parseArgs, requirePositional } from '../args.js';
 import type { Command } from '../command.js';
 import { percent, sci, textTable } from '../format.js';
 import { inputChunks } from '../model-input.js';
-import { isClassifier, loadTrainingData } from '../training-data.js';
+import { loadTrainingData } from '../training-data.js';
 import { CALIBRATION_CAUTION, ECE_BINS, accuracy, argmaxRows, classProbabilities, expectedCalibrationError } from '../../train/index.js';
 import { reportFormat, writeAgainstReport, writeCheckReport } from '../report-files.js';
-import { parseEngine } from './engine-flag.js';
+import { ENGINE_FLAG, parseEngine } from './engine-flag.js';
 
 const flags = {
   input: { kind: 'string', short: 'i', help: 'rows to check on (.csv, .jsonl, .npy); default: seeded random rows' },
   rows: { kind: 'integer', help: 'random rows when no --input is given', default: 256 },
   seed: { kind: 'integer', help: 'seed for the random rows', default: 1 },
-  engine: { kind: 'string', help: 'auto, fast, int8, wasm or js', default: 'auto' },
+  engine: ENGINE_FLAG,
   json: { kind: 'boolean', help: 'print the report as JSON' },
   target: {
     kind: 'string',
@@ -156,7 +157,8 @@ interface LabelledQuality {
 }
 
 async function labelledQuality(model: TendonModel, file: string, target: string): Promise<LabelledQuality> {
-  if (!isClassifier(model.doc)) throw new UsageError('--target', 'accuracy and calibration error need a classifier (a softmax output, or one sigmoid unit)');
+  if (!outputsAreClasses(model.doc))
+    throw new UsageError('--target', 'accuracy and calibration error need a classifier (a softmax output, or one sigmoid unit)');
   const data = await loadTrainingData(model.doc, file, [target]);
   const labels = data.y as Int32Array;
   const y = model.run(Float32Array.from(data.x), data.rows);

@@ -1,12 +1,12 @@
 import { runDemo } from '../../demo/story.js';
 import { noExtraPositionals, parseArgs } from '../args.js';
 import type { Command } from '../command.js';
-import { parseEngine } from './engine-flag.js';
+import { ENGINE_FLAG, parseEngine } from './engine-flag.js';
 
 const flags = {
   dir: { kind: 'string', help: "folder for the demo's model files (default: a new temporary folder)" },
   seed: { kind: 'integer', help: 'seed of the invented data and the initial weights', default: 7 },
-  engine: { kind: 'string', help: 'auto, fast, int8, wasm or js', default: 'auto' },
+  engine: ENGINE_FLAG,
 } as const;
 
 export const demo: Command = {

@@ -9,3 +9,6 @@ export function parseEngine(value: string | undefined): EngineChoice {
 }
 
 export const ENGINE_HELP = 'auto, fast, int8, wasm or js';
+
+/** The --engine flag as the running commands declare it (score, check, bench, demo). */
+export const ENGINE_FLAG = { kind: 'string', help: ENGINE_HELP, default: 'auto' } as const;

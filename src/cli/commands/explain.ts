@@ -14,15 +14,14 @@ import {
 import { readModelFile } from '../../format/index.js';
 import { openTableWriter } from '../../io/index.js';
 import { validateModel, type ModelDoc } from '../../model/index.js';
-import { noExtraPositionals, parseArgs, requireFlag, requirePositional } from '../args.js';
 import type { Command } from '../command.js';
 import { grouped, percent } from '../format.js';
 import { inputChunks } from '../model-input.js';
 import { reportFormat, writeExplainReport, type ExplainSummary } from '../report-files.js';
+import { parseRowFileArgs, rowFileFlags } from './row-files.js';
 
 const flags = {
-  input: { kind: 'string', short: 'i', help: 'rows to explain: .csv, .jsonl or .npy (2-D)' },
-  output: { kind: 'string', short: 'o', help: 'where to write one attribution row per input row: .csv, .jsonl or .npy' },
+  ...rowFileFlags('explain', 'one attribution row per input row'),
   class: { kind: 'string', help: "the output explained: top (each row's top output), a label, or an index", default: 'top' },
   steps: {
     kind: 'integer',
@@ -42,11 +41,7 @@ export const explain: Command = {
   usage: 'tendon explain MODEL --input ROWS --output OUT.csv [--class top|LABEL|INDEX] [--steps N] [--baseline mean|zeros|FILE] [--report FILE.html]',
   flags,
   async run(argv, io) {
-    const { flags: f, positionals } = parseArgs(argv, flags);
-    const path = requirePositional(positionals, 0, 'the model file');
-    noExtraPositionals(positionals, 1);
-    const input = requireFlag(f.input, 'input');
-    const output = requireFlag(f.output, 'output');
+    const { flags: f, path, input, output } = parseRowFileArgs(argv, flags);
     const steps = checkSteps(f.steps ?? DEFAULT_STEPS, '--steps');
     if (f.report) reportFormat(f.report, false);
     const { doc } = await readModelFile(path);

@@ -3,17 +3,16 @@ import { UsageError } from '../../errors.js';
 import { openTableWriter } from '../../io/index.js';
 import { DriftMonitor, describeDrift } from '../../drift/index.js';
 import { openModel } from '../../tendon.js';
-import { noExtraPositionals, parseArgs, requireFlag, requirePositional } from '../args.js';
 import type { Command } from '../command.js';
 import { grouped } from '../format.js';
 import { inputChunks, outputColumns } from '../model-input.js';
-import { parseEngine } from './engine-flag.js';
+import { ENGINE_FLAG, parseEngine } from './engine-flag.js';
+import { parseRowFileArgs, rowFileFlags } from './row-files.js';
 
 const flags = {
-  input: { kind: 'string', short: 'i', help: 'rows to score: .csv, .jsonl or .npy (2-D)' },
-  output: { kind: 'string', short: 'o', help: 'where to write the scores: .csv, .jsonl or .npy' },
+  ...rowFileFlags('score', 'the scores'),
   batch: { kind: 'integer', help: 'rows read and scored at a time (bounds memory)', default: 4096 },
-  engine: { kind: 'string', help: 'auto, fast, int8, wasm or js', default: 'auto' },
+  engine: ENGINE_FLAG,
   shard: { kind: 'string', help: 'K/N: score only the K-th (1-based) of N contiguous row ranges, for one task of an indexed batch job' },
   drift: { kind: 'boolean', help: "after scoring, print per-feature drift against the model's normalisation statistics to stderr" },
 } as const;
@@ -24,11 +23,7 @@ export const score: Command = {
   usage: 'tendon score MODEL --input FILE --output FILE [--batch N] [--engine js|wasm|fast|int8|auto] [--shard K/N] [--drift]',
   flags,
   async run(argv, io) {
-    const { flags: f, positionals } = parseArgs(argv, flags);
-    const path = requirePositional(positionals, 0, 'the model file');
-    noExtraPositionals(positionals, 1);
-    const input = requireFlag(f.input, 'input');
-    const output = requireFlag(f.output, 'output');
+    const { flags: f, path, input, output } = parseRowFileArgs(argv, flags);
     const batch = f.batch ?? 4096;
     if (batch < 1) throw new UsageError('--batch', `must be at least 1, got ${batch}`);
     const shard = f.shard === undefined ? null : parseShard(f.shard);

@@ -1,0 +1,60 @@
+// What the load scripts (soak.mjs, wire.mjs) share: where things are, positive-number options,
+// a hard deadline, seeded rows, and starting a server process that prints its URL.
+import { spawn } from 'node:child_process';
+import { dirname, join } from 'node:path';
+import { fileURLToPath } from 'node:url';
+
+export const HERE = dirname(fileURLToPath(import.meta.url));
+export const ROOT = join(HERE, '..');
+export const CLI = join(ROOT, 'dist', 'cli.js');
+export const RESULTS = join(HERE, 'RESULTS.md');
+
+/** `--name N` from the command line (a positive number), else `fallback`; anything else ends the process (exit 2), naming `tool`. */
+export function option(tool, name, fallback) {
+  const i = process.argv.indexOf(`--${name}`);
+  if (i < 0) return fallback;
+  const value = Number(process.argv[i + 1]);
+  if (!(value > 0)) {
+    console.error(`${tool}: --${name} needs a positive number`);
+    process.exit(2);
+  }
+  return value;
+}
+
+/** End the process (exit 1) after `ms` whatever happens; does not keep it alive. */
+export function hardDeadline(tool, ms) {
+  const timer = setTimeout(() => {
+    console.error(`${tool}: hard deadline passed; stopping`);
+    process.exit(1);
+  }, ms);
+  timer.unref();
+}
+
+/** mulberry32: seeded uniform numbers in [0, 1), so every run sends the same rows. */
+export function seeded(seed) {
+  let a = seed >>> 0;
+  return () => {
+    a = (a + 0x6d2b79f5) >>> 0;
+    let t = a;
+    t = Math.imul(t ^ (t >>> 15), t | 1);
+    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
+    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
+  };
+}
+
+/** A node process running `args`; `url` resolves to the first match of `pattern`'s group 1 on its stdout, and rejects (with its stderr) if it exits first. */
+export function startChild(args, pattern) {
+  const child = spawn(process.execPath, args, { stdio: ['ignore', 'pipe', 'pipe'] });
+  let log = '';
+  child.stderr.on('data', (d) => (log += d));
+  const url = new Promise((resolve, reject) => {
+    let out = '';
+    child.stdout.on('data', (d) => {
+      out += d;
+      const m = pattern.exec(out);
+      if (m) resolve(m[1]);
+    });
+    child.once('exit', (code) => reject(new Error(`${args[1] ?? args[0]} exited ${code}: ${log.trim()}`)));
+  });
+  return { child, url };
+}
