@@ -142,7 +142,7 @@ export interface LayerKind<L extends AnyLayer = Layer, S extends StoredForm<L> =
    * them (fields.ts), and its output width follows from them (`layerOutputWidth`).
    */
   readonly stored: S;
-  /** Every stored tensor of the layer with its shape (for the file, `tendon about`, validation). */
+  /** Every stored tensor of the layer with its shape (for `tendon about` and the tune copies). */
   tensors(layer: L, inputWidth: number, index: number): ParamRef[];
   /** Tensors updated by gradient descent, in a fixed order; gradients come back in this order. */
   trainable(layer: L, inputWidth: number, index: number): ParamRef[];
