@@ -13,7 +13,7 @@
 import * as tf from '@tensorflow/tfjs-core';
 import { afterAll, describe, expect, it } from 'vitest';
 import { parityReport } from '../../src/check/index.js';
-import { SharedMemoryRunner, SimdRunner, openRunner, useEngine, wasmSimdAvailable } from '../../src/engine/index.js';
+import { SharedMemoryRunner, SimdRunner, openRunner, simdTrainBlocker, useEngine, wasmSimdAvailable } from '../../src/engine/index.js';
 import { EngineRefusal, ModelFileError } from '../../src/errors.js';
 import { decodeModel, encodeModel, toPayload } from '../../src/format/codec.js';
 import { frame } from '../../src/format/header.js';
@@ -242,6 +242,8 @@ describe('a toy layer kind registered through the catalogue alone', () => {
       ['fast', () => new SharedMemoryRunner(doc, { arith: 'f32' })],
       ['int8', () => openRunner(doc, 'int8')],
     ];
+    // The fast training path says the same of it (tune then falls back to the tfjs path).
+    expect(simdTrainBlocker(doc)).toBe('layers[1] is clip: the kernel has no clip operation');
     for (const [engine, open] of opens) {
       let refusal: unknown = null;
       try {
