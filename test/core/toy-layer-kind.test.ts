@@ -105,7 +105,7 @@ const clip: LayerKind<ClipLayer> = {
 
 // Step 3: the catalogue line (here the test hook). Step 4: its message in the schema.
 const toy = registerLayerKind(clip);
-const CLIP_SCHEMA = TENDON_SCHEMA.replace('    DropoutParams dropout = 3;\n', '    DropoutParams dropout = 3;\n    ClipParams clip = 4;\n').concat(
+const CLIP_SCHEMA = TENDON_SCHEMA.replace('    DropoutParams dropout = 3;\n', '    DropoutParams dropout = 3;\n    ClipParams clip = 99;\n').concat(
   '\nmessage ClipParams {\n  // Shape [width], width = the incoming width.\n  Tensor gain = 1;\n  // > 0.\n  double limit = 2;\n}\n',
 );
 const restoreSchema = usePayloadSchema(CLIP_SCHEMA);
