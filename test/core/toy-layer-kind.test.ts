@@ -104,6 +104,7 @@ const clip: LayerKind<ClipLayer> = {
 };
 
 // Step 3: the catalogue line (here the test hook). Step 4: its message in the schema.
+const builtIn = layerKindNames();
 const toy = registerLayerKind(clip);
 const CLIP_SCHEMA = TENDON_SCHEMA.replace('    DropoutParams dropout = 3;\n', '    DropoutParams dropout = 3;\n    ClipParams clip = 99;\n').concat(
   '\nmessage ClipParams {\n  // Shape [width], width = the incoming width.\n  Tensor gain = 1;\n  // > 0.\n  double limit = 2;\n}\n',
@@ -127,7 +128,8 @@ const noFiles = { loadTensorFile: () => Promise.reject(new Error('no files')) };
 describe('a toy layer kind registered through the catalogue alone', () => {
   it('is a layer kind while registered (the hook is what adds it), and a name is registered once', () => {
     expect(isLayerKindName('clip')).toBe(true);
-    expect(layerKindNames()).toEqual(['dense', 'batchnorm', 'dropout', 'clip']);
+    expect(layerKindNames()).toEqual([...builtIn, 'clip']);
+    expect(builtIn).toContain('dense');
     expect(() => registerLayerKind(clip)).toThrow(/"clip" is already in the catalogue/);
     expect(modelProblems(doc)).toEqual([]);
   });
