@@ -18,7 +18,16 @@ export type {
   RefForward,
   Rng,
 } from './layers/kind.js';
-export { isLayerKindName, layerKind, layerKindNames, layerOutputWidth, registerLayerKind, storedForm, type BuiltInStoredForms } from './layers/catalogue.js';
+export {
+  isLayerKindName,
+  layerKind,
+  layerKindNames,
+  layerOutputWidth,
+  registerLayerKind,
+  storedForm,
+  type BuiltInStoredForms,
+  type LayerCatalogue,
+} from './layers/catalogue.js';
 export { COUNT_RULE, activationCode, fieldShape, isCount, shapeInWords, storedFieldProblems, widthAfter } from './layers/fields.js';
 export type { AnyField, AnyStoredForm, FieldValues, LayerField, StoredForm, ValueRule } from './layers/fields.js';
 export { batchNormAffine } from './layers/batchnorm.js';

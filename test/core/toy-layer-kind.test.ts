@@ -28,12 +28,16 @@ import {
   registerLayerKind,
   storedFieldProblems,
   type Layer,
+  type LayerCatalogue,
   type LayerKind,
   type Mat64,
   type StoredForm,
 } from '../../src/model/index.js';
 import { referenceForward, toMat64 } from '../../src/reference/index.js';
 import { buildFromSpec } from '../../src/spec/spec.js';
+import { batchnorm } from '../../src/model/layers/batchnorm.js';
+import { dense } from '../../src/model/layers/dense.js';
+import { dropout } from '../../src/model/layers/dropout.js';
 import { denseOf, docOf } from '../fixtures/models.js';
 
 interface ClipLayer {
@@ -126,6 +130,14 @@ const byHand = [1, 1, -1.5, -1.5, 1.5, -1.5];
 const noFiles = { loadTensorFile: () => Promise.reject(new Error('no files')) };
 
 describe('a toy layer kind registered through the catalogue alone', () => {
+  it('the built-in catalogue is typed by every kind: one left out does not compile (held by tsc --noEmit over the tests)', () => {
+    // @ts-expect-error dropout is missing
+    const missing: LayerCatalogue = { dense, batchnorm };
+    const full: LayerCatalogue = { dense, batchnorm, dropout };
+    expect(Object.keys(missing)).toEqual(['dense', 'batchnorm']);
+    expect(Object.keys(full)).toEqual(builtIn);
+  });
+
   it('is a layer kind while registered (the hook is what adds it), and a name is registered once', () => {
     expect(isLayerKindName('clip')).toBe(true);
     expect(layerKindNames()).toEqual([...builtIn, 'clip']);

@@ -7,10 +7,10 @@ import { widthAfter, type AnyStoredForm, type FieldValues } from './fields.js';
 import type { AnyLayer, LayerKind } from './kind.js';
 
 type KindOf<L extends Layer> = LayerKind<L>;
-type Catalogue = { [K in Layer['kind']]: KindOf<Extract<Layer, { kind: K }>> };
+/** The built-in kinds, typed by every layer kind name: a missing entry is a compile error. */
+export type LayerCatalogue = { [K in Layer['kind']]: KindOf<Extract<Layer, { kind: K }>> };
 
-// Typed by every layer kind name: a missing entry is a compile error.
-const BUILT_IN = { dense, batchnorm, dropout } satisfies Catalogue;
+const BUILT_IN = { dense, batchnorm, dropout } satisfies LayerCatalogue;
 
 /** Each built-in kind's stored form with its literal field names (format/payload.ts types the file's messages by them). */
 export type BuiltInStoredForms = { [K in LayerKindName]: (typeof BUILT_IN)[K]['stored'] };
