@@ -24,7 +24,7 @@ import { ModelFileError, ShapeError } from '../errors.js';
 import { quantiseColumns, storedCodesOf, type Int8Matrix } from '../format/int8.js';
 import { activationKind, inputShiftScale, modelWidths, validateModel, type ActivationName, type ModelDoc, type SimdInference } from '../model/index.js';
 import { denseFunction, padded, relaxedMaddAvailable, wasmApi } from './fast/dense-kernel.js';
-import { simdInferencePlan } from './fast/simd-runner.js';
+import { simdInferencePlan } from './fast/simd-plan.js';
 import { Code, I32, moduleBytes, type FunctionDef } from './fast/wasm-emit.js';
 import {
   affineFunction,

@@ -8,19 +8,11 @@
  * much as the arithmetic; at 256 rows this kernel's register tiling beats the tfjs wasm
  * backend's matrix product. Parity with the float64 reference is held in the tests.
  */
-import { EngineRefusal, ShapeError } from '../../errors.js';
-import {
-  activationKind,
-  inputShiftScale,
-  layerKind,
-  modelWidths,
-  validateModel,
-  type ActivationF32,
-  type ModelDoc,
-  type SimdInference,
-} from '../../model/index.js';
+import { ShapeError } from '../../errors.js';
+import { activationKind, inputShiftScale, modelWidths, validateModel, type ActivationF32, type ModelDoc, type SimdInference } from '../../model/index.js';
 import type { Runner } from '../runner.js';
 import { instantiateDenseKernel, padded, type DenseKernel, type KernelOptions } from './dense-kernel.js';
+import { simdInferencePlan } from './simd-plan.js';
 
 type Step =
   | {
@@ -34,19 +26,6 @@ type Step =
       readonly alpha: number;
     }
   | { readonly op: 'affine'; readonly scale: Float32Array; readonly shift: Float32Array };
-
-/**
- * Each layer as the kernel's operations, from its own kind (the catalogue); the fast engine and
- * the shared-memory runner behind int8 (and fast on threads) run these and nothing else.
- * @throws EngineRefusal naming `engine`, the first layer it cannot run and its kind.
- */
-export function simdInferencePlan(doc: ModelDoc, engine: 'fast' | 'int8' = 'fast'): SimdInference[] {
-  return doc.layers.map((layer, i) => {
-    const part = layerKind(layer.kind).simd.inference;
-    if (typeof part !== 'function') throw new EngineRefusal(engine, i, layer.kind, `${part.refused}; open the model with --engine js or wasm`);
-    return part(layer);
-  });
-}
 
 export interface SimdRunnerOptions {
   /** Rows per kernel pass; bounds the activation buffers. Default 256. */
