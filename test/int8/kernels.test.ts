@@ -153,6 +153,34 @@ describe.each(ARITHS)('int8 kernels (%s) against their plain twins', (arith) => 
     for (let n = 0; n < 4; n++) expect(Number.isNaN(y[nP + n])).toBe(false);
   });
 
+  it('quantised codes match the twin on exact ties, infinities and ranges whose 1 / scale overflows or whose width is infinite', () => {
+    const kP = 256;
+    const rows: number[][] = [
+      // Range [-63.5, 63.5]: scale 1, so every x.5 is an exact tie (round half to even).
+      Array.from({ length: kP }, (_, i) => (i < 255 ? -63.5 + i * 0.5 : 0)),
+      // Range [-127, 0]: zero point 127, codes at the top of the range.
+      Array.from({ length: kP }, (_, i) => -((i * 37) % 128)),
+      Array.from({ length: kP }, (_, i) => (i === 5 ? Number.POSITIVE_INFINITY : i - 100)),
+      Array.from({ length: kP }, (_, i) => (i === 7 ? Number.NEGATIVE_INFINITY : 100 - i)),
+      // A range of a few subnormals: scale is subnormal and 1 / scale is +inf.
+      Array.from({ length: kP }, (_, i) => (i % 3) * 1e-42 - 5e-43),
+      // max - min overflows to inf: scale inf, 1 / scale 0.
+      Array.from({ length: kP }, (_, i) => (i % 2 ? 3e38 : -3e38)),
+    ];
+    const x = Float32Array.from(rows.flat());
+    const codes = new Int8Array(kP * 4).fill(3);
+    const { q, params } = runTile(arith, x, rows.length, kP, codes, new Float32Array(4).fill(1), new Float32Array(4), kP, 4, false);
+    rows.forEach((row, r) => {
+      const plain = quantiseRowPlain(Float32Array.from(row));
+      expect(q.slice(r * kP, (r + 1) * kP), `codes of row ${r}`).toEqual(Array.from(plain.codes));
+      expect(params.scale[2 * r], `scale of row ${r}`).toBe(plain.scale);
+      expect(params.zero[2 * r + 1], `zero of row ${r}`).toBe(plain.zero);
+    });
+    // The ties row: 0.5 -> 0, 1.5 -> 2, -0.5 -> -0, 2.5 -> 2, plus the zero point round(63.5) = 64, as IEEE 754 roundTiesToEven does.
+    const tie = (value: number) => q[(value + 63.5) / 0.5];
+    expect([tie(0.5), tie(1.5), tie(-0.5), tie(2.5), tie(-63.5), tie(63.5)]).toEqual([64, 66, 64, 66, 0, 127]);
+  });
+
   it(`the widest accepted layer (${MAX_INT8_INPUTS} inputs) cannot overflow: extreme codes give the exact sums`, () => {
     // Every weight code -128 or +127 (the extremes a reader accepts) and every activation the
     // largest code 127: |Σ| = 16256 · 132096 = 2 147 352 576, just under 2^31 (the bound in kernels.ts).

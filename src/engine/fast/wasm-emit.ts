@@ -287,6 +287,25 @@ export class Code {
   i32x4ExtaddPairwiseI16x8S(): this {
     return this.simd(0x7e);
   }
+  /** f32x4.pmin(a, b) = b < a ? b : a, lane-wise (one minps; a NaN b keeps a). */
+  f32x4Pmin(): this {
+    return this.simd(0xea);
+  }
+  /** f32x4.pmax(a, b) = a < b ? b : a, lane-wise (one maxps; a NaN b keeps a). */
+  f32x4Pmax(): this {
+    return this.simd(0xeb);
+  }
+  /** f32x4.ne: all ones where the lanes differ (a NaN differs from itself). */
+  f32x4Ne(): this {
+    return this.simd(0x42);
+  }
+  v128Or(): this {
+    return this.simd(0x50);
+  }
+  /** v128.any_true: 1 when any bit is set. */
+  v128AnyTrue(): this {
+    return this.simd(0x53);
+  }
 }
 
 function section(id: number, payload: number[]): number[] {
