@@ -17,6 +17,7 @@
  * Measured (js engine, 256 seeded rows, every activation, batchnorm and dropout mixed in, widths up
  * to 784-512-512-10): the largest absolute error was 3.4e-6, about 30 times inside `abs`.
  */
+import { CODE_MAX } from '../engine/index.js';
 import type { ActivationName } from '../model/index.js';
 
 export interface Tolerance {
@@ -52,7 +53,7 @@ export function withinTolerance(a: number, b: number, tol: Tolerance = FLOAT32_T
 /**
  * The integer engine against the float64 reference on the same stored (dequantised) weights.
  * Its one approximation is the per-row quantisation of each dense layer's input: a row whose
- * values span [min(0, min x), max(0, max x)] is rounded to codes with step s = span / 127, an
+ * values span [min(0, min x), max(0, max x)] is rounded to codes with step s = span / CODE_MAX, an
  * error of at most s / 2 per value. Treating those roundings as independent and uniform on
  * [-s/2, s/2] (variance s^2 / 12; common practice for rounding noise), output n of a dense layer
  * carries a standard deviation of
@@ -91,7 +92,7 @@ export function int8RoundingVariance(row: ArrayLike<number>, carriedSigma: numbe
     lo = Math.min(lo, row[i]);
     hi = Math.max(hi, row[i]);
   }
-  const step = (hi - lo + 2 * INT8_SIGMAS * carriedSigma) / 127;
+  const step = (hi - lo + 2 * INT8_SIGMAS * carriedSigma) / CODE_MAX;
   return (step * step) / 12;
 }
 

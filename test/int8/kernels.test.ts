@@ -6,6 +6,7 @@ import { wasmApi } from '../../src/engine/fast/dense-kernel.js';
 import { moduleBytes } from '../../src/engine/fast/wasm-emit.js';
 import {
   CODE_BYTES,
+  CODE_MAX,
   columnSums,
   denseInt8Function,
   denseInt8RowPlain,
@@ -156,10 +157,10 @@ describe.each(ARITHS)('int8 kernels (%s) against their plain twins', (arith) => 
   it('quantised codes match the twin on exact ties, infinities and ranges whose 1 / scale overflows or whose width is infinite', () => {
     const kP = 256;
     const rows: number[][] = [
-      // Range [-63.5, 63.5]: scale 1, so every x.5 is an exact tie (round half to even).
-      Array.from({ length: kP }, (_, i) => (i < 255 ? -63.5 + i * 0.5 : 0)),
-      // Range [-127, 0]: zero point 127, codes at the top of the range.
-      Array.from({ length: kP }, (_, i) => -((i * 37) % 128)),
+      // Range [-31.5, 31.5] over CODE_MAX = 63 steps: scale 1, so every x.5 is an exact tie (round half to even).
+      Array.from({ length: kP }, (_, i) => (i < 127 ? -31.5 + i * 0.5 : 0)),
+      // Range [-63, 0]: zero point 63, codes at the top of the range.
+      Array.from({ length: kP }, (_, i) => -((i * 37) % 64)),
       Array.from({ length: kP }, (_, i) => (i === 5 ? Number.POSITIVE_INFINITY : i - 100)),
       Array.from({ length: kP }, (_, i) => (i === 7 ? Number.NEGATIVE_INFINITY : 100 - i)),
       // A range of a few subnormals: scale is subnormal and 1 / scale is +inf.
@@ -176,14 +177,16 @@ describe.each(ARITHS)('int8 kernels (%s) against their plain twins', (arith) => 
       expect(params.scale[2 * r], `scale of row ${r}`).toBe(plain.scale);
       expect(params.zero[2 * r + 1], `zero of row ${r}`).toBe(plain.zero);
     });
-    // The ties row: 0.5 -> 0, 1.5 -> 2, -0.5 -> -0, 2.5 -> 2, plus the zero point round(63.5) = 64, as IEEE 754 roundTiesToEven does.
-    const tie = (value: number) => q[(value + 63.5) / 0.5];
-    expect([tie(0.5), tie(1.5), tie(-0.5), tie(2.5), tie(-63.5), tie(63.5)]).toEqual([64, 66, 64, 66, 0, 127]);
+    // The ties row: 0.5 -> 0, 1.5 -> 2, -0.5 -> -0, 2.5 -> 2, -31.5 -> -32, 31.5 -> 32, plus the zero point
+    // round(31.5) = 32, as IEEE 754 roundTiesToEven does; 64 is capped at CODE_MAX.
+    expect(CODE_MAX).toBe(63);
+    const tie = (value: number) => q[(value + 31.5) / 0.5];
+    expect([tie(0.5), tie(1.5), tie(-0.5), tie(2.5), tie(-31.5), tie(31.5)]).toEqual([32, 34, 32, 34, 0, 63]);
   });
 
   it(`the widest accepted layer (${MAX_INT8_INPUTS} inputs) cannot overflow: extreme codes give the exact sums`, () => {
     // Every weight code -128 or +127 (the extremes a reader accepts) and every activation the
-    // largest code 127: |Σ| = 16256 · 132096 = 2 147 352 576, just under 2^31 (the bound in kernels.ts).
+    // largest code 63: |Σ| = 8064 · 266304 = 2 147 475 456, just under 2^31 (the bound in kernels.ts).
     const inputs = MAX_INT8_INPUTS;
     const units = 4;
     const codes = new Int8Array(inputs * units);
@@ -192,12 +195,12 @@ describe.each(ARITHS)('int8 kernels (%s) against their plain twins', (arith) => 
       codes[k * units + 1] = 127;
       codes[k * units + 2] = k % 2 ? 127 : -128;
     }
-    const x = new Float32Array(inputs).fill(1); // range [0, 1] -> every code 127, zero point 0
+    const x = new Float32Array(inputs).fill(1); // range [0, 1] -> every code CODE_MAX, zero point 0
     const { y, q, params } = runTile(arith, x, 1, inputs, codes, Float32Array.of(1, 1, 1, 1), new Float32Array(4), inputs, units, false);
-    expect(q[0]).toBe(127);
+    expect(q[0]).toBe(CODE_MAX);
     expect(params.zero[1]).toBe(0);
     const s = params.scale[0];
-    const exact = [-128 * 127 * inputs, 127 * 127 * inputs, (127 * 127 - 128 * 127) * (inputs / 2), 0];
+    const exact = [-128 * CODE_MAX * inputs, 127 * CODE_MAX * inputs, (127 * CODE_MAX - 128 * CODE_MAX) * (inputs / 2), 0];
     expect(Math.abs(exact[0])).toBeLessThan(2 ** 31);
     exact.forEach((sum, n) => expect(y[n], `column ${n}`).toBe(Math.fround(Math.fround(sum) * s)));
   });

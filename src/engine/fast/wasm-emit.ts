@@ -299,6 +299,10 @@ export class Code {
   f32x4Ne(): this {
     return this.simd(0x42);
   }
+  /** i16x8.add: wrapping (callers prove their sums fit). */
+  i16x8Add(): this {
+    return this.simd(0x8e);
+  }
   v128Or(): this {
     return this.simd(0x50);
   }
