@@ -254,6 +254,7 @@ interface DenseI8Emit {
     readonly WV: readonly number[];
     readonly S: number;
     readonly S1: number;
+    readonly ONES: number;
     readonly LOWER: number;
     readonly ZS: number;
     readonly SS: number;
@@ -284,17 +285,19 @@ export function denseInt8Function(arith: Int8Arith, tileRows = TILE_ROWS[arith],
   const WV = locals.many(V128, 2 * colVectors);
   const S = locals.add(V128),
     S1 = locals.add(V128),
+    ONES = locals.add(V128),
     LOWER = locals.add(V128),
     ZS = locals.add(V128),
     SS = locals.add(V128);
   const c = new Code();
   const groupBytes = 16 * colVectors * (arith === 'relaxed' ? 1 : 2);
   const xGroupBytes = 4 * CODE_BYTES[arith];
-  const l = { R0, J, G, WP, WPANEL, PANELBYTES, YP, PP, XP, ACC, WV, S, S1, LOWER, ZS, SS };
+  const l = { R0, J, G, WP, WPANEL, PANELBYTES, YP, PP, XP, ACC, WV, S, S1, ONES, LOWER, ZS, SS };
   const e: DenseI8Emit = { c, arith, colVectors, groupBytes, xGroupBytes, l };
 
   // ReLU as max(v, 0); "no activation" as max(v, -inf), which changes nothing (NaN stays NaN).
   c.f32(0).f32(-Infinity).get(RELU).select().f32x4Splat().set(LOWER);
+  c.i32(1).i16x8Splat().set(ONES);
   c.get(GROUPS).i32(groupBytes).mul().set(PANELBYTES);
 
   // for (J = 0; J < outP; J += PANEL, WPANEL += PANELBYTES)
@@ -372,7 +375,7 @@ function emitInt8Tile(e: DenseI8Emit, rows: number): void {
  * 32256 < 32767, then widened once. i16: one group, as two halves of 2 inputs.
  */
 function emitInt8GroupProducts({ c, arith, colVectors, groupBytes, l }: DenseI8Emit, rows: number): void {
-  const { WP, XP, ACC, WV, S, S1 } = l;
+  const { WP, XP, ACC, WV, S, S1, ONES } = l;
   if (arith === 'relaxed') {
     // Both groups' weight vectors stay in registers; each row's two splats are used at once.
     const W0 = WV.slice(0, colVectors);
@@ -391,7 +394,9 @@ function emitInt8GroupProducts({ c, arith, colVectors, groupBytes, l }: DenseI8E
       for (let v = 0; v < colVectors; v++) {
         const acc = ACC[t * colVectors + v];
         c.get(acc).get(W0[v]).get(S).i16x8RelaxedDotI8x16I7x16S().get(W1[v]).get(S1).i16x8RelaxedDotI8x16I7x16S();
-        c.i16x8Add().i32x4ExtaddPairwiseI16x8S().i32x4Add().set(acc);
+        // Widened as a dot with ones held in a register (V8 11.3 lowers extadd_pairwise to the same
+        // pmaddwd, but against a constant it reloads through a scalar register every time).
+        c.i16x8Add().get(ONES).i32x4DotI16x8S().i32x4Add().set(acc);
       }
     }
   } else {
