@@ -177,13 +177,18 @@ export class SharedMemoryRunner {
     for (let start = 0; start < rows; start += this.chunkRows) {
       const n = Math.min(this.chunkRows, rows - start);
       // The one copy of the rows: into the shared input region (padding columns stay zero).
-      if (this.inP === f) mem.set(data.subarray(start * f, (start + n) * f), xAt);
-      else for (let r = 0; r < n; r++) mem.set(data.subarray((start + r) * f, (start + r + 1) * f), xAt + r * this.inP);
+      const copy = (row0: number, count: number): void => {
+        if (this.inP === f) mem.set(data.subarray((start + row0) * f, (start + row0 + count) * f), xAt + row0 * f);
+        else for (let r = row0; r < row0 + count; r++) mem.set(data.subarray((start + r) * f, (start + r + 1) * f), xAt + r * this.inP);
+      };
       // One split per chunk: every segment, pass and the output copy agree on where rows live.
       const shares: readonly Share[] = this.team ? this.team.split(n) : [{ row0: 0, rows: n }];
+      // The helpers' rows first; the caller copies its own after waking them, while they start.
+      for (const share of shares.slice(1)) copy(share.row0, share.rows);
       this.segmentFns.forEach((segment, s) => {
-        if (this.team) this.team.run(s, shares, segment);
-        else segment(0, n);
+        const own = s === 0 ? (row0: number, count: number) => (copy(row0, count), segment(row0, count)) : segment;
+        if (this.team) this.team.run(s, shares, own);
+        else own(0, n);
         const pass = this.passes[s];
         if (pass) for (const share of shares) activate(mem, pass, share);
       });
