@@ -184,15 +184,24 @@ function rawClient(port, host, request, deadline, tally) {
   });
 }
 
+/** CPU seconds a process has used (user + system, every thread), from /proc; NaN elsewhere. */
+async function cpuSeconds(pid) {
+  const stat = await readFile(`/proc/${pid}/stat`, 'utf8').catch(() => '');
+  const fields = stat.slice(stat.lastIndexOf(')') + 2).split(' ');
+  return fields.length > 13 ? (Number(fields[11]) + Number(fields[12])) / 100 : NaN;
+}
+
 /** CLIENTS connections sending `body` for SECONDS; rows/s, latency quantiles and errors. */
-async function load(url, body, headers) {
+async function load(url, body, headers, pid) {
   const { hostname, port } = new URL(url);
+  const cpuBefore = await cpuSeconds(pid);
   const request = encodeRequest(url, body, headers);
   const tally = { requests: 0, errors: 0, firstError: '', latencies: [] };
   const started = performance.now();
   const deadline = started + SECONDS * 1000;
   await Promise.all(Array.from({ length: CLIENTS }, () => rawClient(Number(port), hostname, request, deadline, tally)));
   const seconds = (performance.now() - started) / 1000;
+  const cpu = (await cpuSeconds(pid)) - cpuBefore;
   const sorted = Float64Array.from(tally.latencies).sort();
   const quantile = (q) => sorted[Math.min(sorted.length - 1, Math.max(0, Math.ceil(q * sorted.length) - 1))] ?? NaN;
   return {
@@ -202,6 +211,7 @@ async function load(url, body, headers) {
     firstError: tally.firstError,
     p50: quantile(0.5),
     p99: quantile(0.99),
+    cpuMsPerRequest: (cpu * 1000) / tally.requests,
   };
 }
 
@@ -267,19 +277,27 @@ export async function measureWire() {
       throw new Error(`answers differ: NPY ${viaNpy.length} values, JSON ${viaJson.length}, worst difference ${worst}`);
 
     const targets = [
-      { name: 'bare', server: 'bare node:http', body: 'JSON', url: urls.bare, payload: jsonBody, headers: JSON_HEADERS },
-      { name: 'json', server: `tendon serve --workers ${WORKERS}`, body: 'JSON', url: urls.tendon, payload: jsonBody, headers: JSON_HEADERS },
-      { name: 'npy', server: `tendon serve --workers ${WORKERS}`, body: 'NPY', url: urls.tendon, payload: npy, headers: NPY_HEADERS },
+      { name: 'bare', server: 'bare node:http', body: 'JSON', pid: bare.child.pid, url: urls.bare, payload: jsonBody, headers: JSON_HEADERS },
+      {
+        name: 'json',
+        server: `tendon serve --workers ${WORKERS}`,
+        body: 'JSON',
+        pid: tendon.child.pid,
+        url: urls.tendon,
+        payload: jsonBody,
+        headers: JSON_HEADERS,
+      },
+      { name: 'npy', server: `tendon serve --workers ${WORKERS}`, body: 'NPY', pid: tendon.child.pid, url: urls.tendon, payload: npy, headers: NPY_HEADERS },
     ].filter((t) => !ONLY || t.name === ONLY);
     const results = [];
     for (let round = 1; round <= ROUNDS; round++) {
       const order = targets.map((_, i) => targets[(i + round - 1) % targets.length]);
       const measured = new Map();
       for (const t of order) {
-        const r = await load(t.url, t.payload, t.headers);
+        const r = await load(t.url, t.payload, t.headers, t.pid);
         measured.set(t, r);
         console.error(
-          `  round ${round}: ${t.server} ${t.body}: ${r.rowsPerSecond.toFixed(0)} rows/s, p50 ${r.p50.toFixed(2)} ms, p99 ${r.p99.toFixed(2)} ms, ${r.errors} errors`,
+          `  round ${round}: ${t.server} ${t.body}: ${r.rowsPerSecond.toFixed(0)} rows/s, p50 ${r.p50.toFixed(2)} ms, p99 ${r.p99.toFixed(2)} ms, server CPU ${r.cpuMsPerRequest.toFixed(2)} ms/request, ${r.errors} errors`,
         );
       }
       const baseline = measured.get(targets[0]).rowsPerSecond;
@@ -328,11 +346,20 @@ if (process.argv[1] === fileURLToPath(import.meta.url)) {
     const vector = await vectorFeatures();
     const date = new Date().toISOString().slice(0, 16).replace('T', ' ');
     console.log(`answers: NPY and bare JSON within ${worst.toExponential(1)} of tendon JSON (limit 1e-6); CPU: ${vector}`);
-    console.log('round | server | body | rows/s | x bare | p50 ms | p99 ms | errors');
+    console.log('round | server | body | rows/s | x bare | p50 ms | p99 ms | server CPU ms/request | errors');
     for (const r of results)
       console.log(
-        `${r.round} | ${r.server} | ${r.body} | ${r.rowsPerSecond.toFixed(0)} | ${r.ratio.toFixed(2)} | ${r.p50.toFixed(2)} | ${r.p99.toFixed(2)} | ${r.errors}${r.firstError ? ` (${r.firstError})` : ''}`,
+        `${r.round} | ${r.server} | ${r.body} | ${r.rowsPerSecond.toFixed(0)} | ${r.ratio.toFixed(2)} | ${r.p50.toFixed(2)} | ${r.p99.toFixed(2)} | ${r.cpuMsPerRequest.toFixed(2)} | ${r.errors}${r.firstError ? ` (${r.firstError})` : ''}`,
       );
+    // Medians over the rounds: one figure per server and body.
+    const median = (values) => values.sort((a, b) => a - b)[Math.floor((values.length - 1) / 2)];
+    for (const key of [...new Set(results.map((r) => `${r.server} | ${r.body}`))]) {
+      const mine = results.filter((r) => `${r.server} | ${r.body}` === key);
+      const pick = (f) => median(mine.map(f));
+      console.log(
+        `median | ${key} | ${pick((r) => r.rowsPerSecond).toFixed(0)} rows/s | x bare ${pick((r) => r.ratio).toFixed(2)} (${mine.map((r) => r.ratio.toFixed(2)).join(', ')}) | p50 ${pick((r) => r.p50).toFixed(2)} ms | p99 ${pick((r) => r.p99).toFixed(2)} ms | server CPU ${pick((r) => r.cpuMsPerRequest).toFixed(2)} ms/request`,
+      );
+    }
     if (process.argv.includes('--record')) {
       await recordRows(
         results.map(
