@@ -64,16 +64,25 @@ class Locals {
  * (a multiple of 16) becomes codes in [0, 127] (one byte, or one i16 for the i16 arithmetic) at
  * dst, and (scale float32, zero int32) at params + 8 · row. A NaN anywhere in a row makes its
  * scale NaN, so every output of that row is NaN (never a finite guess).
+ *
+ * `fixed` (stored activation ranges): quantise_fixed(..., params, range) takes the layer's
+ * (scale f32, 1/scale f32, zero i32) from `range` (see `fixedQuantParams`) instead of measuring
+ * each row, so the range pass is skipped; values outside the range clamp to code 0 or 127 (the
+ * products are narrowed to i16 before the zero point is added, with saturation, so no size of
+ * value wraps around). A row holding a NaN or an infinity gets a NaN scale: clamping those would
+ * turn them into finite guesses.
  */
-export function quantiseFunction(arith: Int8Arith): FunctionDef {
+export function quantiseFunction(arith: Int8Arith, mode: 'row' | 'fixed' = 'row'): FunctionDef {
   const SRC = 0,
     SSTRIDE = 1,
     ROWS = 2,
     WIDTH = 3,
     DST = 4,
     DSTRIDE = 5,
-    PARAMS = 6;
-  const l = new Locals(7);
+    PARAMS = 6,
+    RANGE = 7;
+  const fixed = mode === 'fixed';
+  const l = new Locals(fixed ? 8 : 7);
   const R = l.add(I32),
     C = l.add(I32),
     SP = l.add(I32),
@@ -89,72 +98,48 @@ export function quantiseFunction(arith: Int8Arith): FunctionDef {
     VINV = l.add(V128),
     VZ = l.add(V128);
   const LO = l.add(V128),
-    HI = l.add(V128);
+    HI = l.add(V128),
+    BAD = l.add(V128),
+    T = l.add(V128);
   const c = new Code();
+  if (fixed) {
+    // One range for every row: its scale, reciprocal and zero point, splat once.
+    c.get(RANGE).f32Load(0).set(S);
+    c.get(RANGE).f32Load(4).set(INV);
+    c.get(RANGE).i32Load(8).set(Z);
+    c.get(INV).f32x4Splat().set(VINV);
+    c.get(Z).i16x8Splat().set(VZ);
+  }
   c.i32(0).set(R);
   c.block().loop();
   {
     c.get(R).get(ROWS).geU().brIf(1);
     c.get(SRC).get(R).get(SSTRIDE).mul().add().set(SP);
-    // Pass 1: the row's range, widened to include 0.
-    c.v128Zero().tee(VMIN).set(VMAX);
-    c.i32(0).set(C);
-    c.block().loop();
-    {
-      c.get(SP).get(C).add().v128Load(0).set(V);
-      c.get(VMIN).get(V).f32x4Min().set(VMIN);
-      c.get(VMAX).get(V).f32x4Max().set(VMAX);
-      c.get(C).i32(16).add().tee(C).get(WIDTH).i32(4).mul().ltU().brIf(0);
-    }
-    c.end().end();
-    c.get(VMIN)
-      .f32x4ExtractLane(0)
-      .get(VMIN)
-      .f32x4ExtractLane(1)
-      .f32Min()
-      .get(VMIN)
-      .f32x4ExtractLane(2)
-      .get(VMIN)
-      .f32x4ExtractLane(3)
-      .f32Min()
-      .f32Min()
-      .set(MN);
-    c.get(VMAX)
-      .f32x4ExtractLane(0)
-      .get(VMAX)
-      .f32x4ExtractLane(1)
-      .f32Max()
-      .get(VMAX)
-      .f32x4ExtractLane(2)
-      .get(VMAX)
-      .f32x4ExtractLane(3)
-      .f32Max()
-      .f32Max()
-      .set(MX);
-    // scale = (max - min) / 127, or 1 for an all-zero row (any scale decodes zeros to zero).
-    c.get(MX).get(MN).f32Sub().f32(127).f32Div().set(S);
-    c.f32(1).get(S).get(S).f32(0).f32Eq().select().set(S);
-    c.f32(1).get(S).f32Div().set(INV);
-    c.get(MN).f32Neg().get(INV).f32Mul().f32Nearest().i32TruncSatF32().set(Z);
-    c.get(PARAMS).get(R).i32(8).mul().add().set(DP);
-    c.get(DP).get(S).f32Store(0);
-    c.get(DP).get(Z).i32Store(4);
-    c.get(INV).f32x4Splat().set(VINV);
-    c.get(Z).i32x4Splat().set(VZ);
+    if (!fixed) emitRowRange(c, { SP, C, WIDTH, MN, MX, S, INV, Z, PARAMS, R, DP, VMIN, VMAX, V, VINV, VZ });
+    else c.v128Zero().set(BAD);
     // Pass 2: q = clamp(nearest(x · inv) + zero, 0, 127), 16 values at a time.
     c.get(DST).get(R).get(DSTRIDE).mul().add().set(DP);
     c.i32(0).set(C);
     c.block().loop();
     {
       const quad = (offset: number): void => {
-        c.get(SP).v128Load(offset).get(VINV).f32x4Mul().f32x4Nearest().i32x4TruncSatF32x4().get(VZ).i32x4Add();
+        if (fixed) {
+          // x - x is NaN exactly for NaN and ±infinity.
+          c.get(SP).v128Load(offset).tee(V).get(V).f32x4Sub().set(T);
+          c.get(BAD).get(T).get(T).f32x4Ne().v128Or().set(BAD);
+          c.get(V).get(VINV).f32x4Mul().f32x4Nearest().i32x4TruncSatF32x4();
+        } else c.get(SP).v128Load(offset).get(VINV).f32x4Mul().f32x4Nearest().i32x4TruncSatF32x4().get(VZ).i32x4Add();
       };
       quad(0);
       quad(16);
-      c.i16x8NarrowI32x4S().set(LO);
+      c.i16x8NarrowI32x4S();
+      if (fixed) c.get(VZ).i16x8AddSatS();
+      c.set(LO);
       quad(32);
       quad(48);
-      c.i16x8NarrowI32x4S().set(HI);
+      c.i16x8NarrowI32x4S();
+      if (fixed) c.get(VZ).i16x8AddSatS();
+      c.set(HI);
       if (arith === 'relaxed') {
         // Saturating narrow to [0, 255], then the 127 cap.
         c.get(DP).get(LO).get(HI).i8x16NarrowI16x8U().i32(127).i8x16Splat().i8x16MinU().v128Store(0);
@@ -172,11 +157,78 @@ export function quantiseFunction(arith: Int8Arith): FunctionDef {
       c.get(C).i32(16).add().tee(C).get(WIDTH).ltU().brIf(0);
     }
     c.end().end();
+    if (fixed) {
+      // The row's (scale, zero): the layer's, or a NaN scale when the row held a non-finite value.
+      c.get(PARAMS).get(R).i32(8).mul().add().set(DP);
+      c.get(DP).f32(NaN).get(S).get(BAD).v128AnyTrue().select().f32Store(0);
+      c.get(DP).get(Z).i32Store(4);
+    }
     c.get(R).i32(1).add().set(R);
     c.br(0);
   }
   c.end().end();
-  return { name: 'quantise', params: new Array<number>(7).fill(I32), locals: l.types, code: c };
+  return { name: fixed ? 'quantise_fixed' : 'quantise', params: new Array<number>(fixed ? 8 : 7).fill(I32), locals: l.types, code: c };
+}
+
+/** Pass 1 of the per-row quantiser: the row's range widened to include 0, its (scale, zero) stored, and the splats pass 2 reads. */
+function emitRowRange(
+  c: Code,
+  l: Record<'SP' | 'C' | 'WIDTH' | 'MN' | 'MX' | 'S' | 'INV' | 'Z' | 'PARAMS' | 'R' | 'DP' | 'VMIN' | 'VMAX' | 'V' | 'VINV' | 'VZ', number>,
+): void {
+  const { SP, C, WIDTH, MN, MX, S, INV, Z, PARAMS, R, DP, VMIN, VMAX, V, VINV, VZ } = l;
+  c.v128Zero().tee(VMIN).set(VMAX);
+  c.i32(0).set(C);
+  c.block().loop();
+  {
+    c.get(SP).get(C).add().v128Load(0).set(V);
+    c.get(VMIN).get(V).f32x4Min().set(VMIN);
+    c.get(VMAX).get(V).f32x4Max().set(VMAX);
+    c.get(C).i32(16).add().tee(C).get(WIDTH).i32(4).mul().ltU().brIf(0);
+  }
+  c.end().end();
+  c.get(VMIN).f32x4ExtractLane(0).get(VMIN).f32x4ExtractLane(1).f32Min().get(VMIN).f32x4ExtractLane(2).get(VMIN).f32x4ExtractLane(3).f32Min().f32Min().set(MN);
+  c.get(VMAX).f32x4ExtractLane(0).get(VMAX).f32x4ExtractLane(1).f32Max().get(VMAX).f32x4ExtractLane(2).get(VMAX).f32x4ExtractLane(3).f32Max().f32Max().set(MX);
+  // scale = (max - min) / 127, or 1 for an all-zero row (any scale decodes zeros to zero).
+  c.get(MX).get(MN).f32Sub().f32(127).f32Div().set(S);
+  c.f32(1).get(S).get(S).f32(0).f32Eq().select().set(S);
+  c.f32(1).get(S).f32Div().set(INV);
+  c.get(MN).f32Neg().get(INV).f32Mul().f32Nearest().i32TruncSatF32().set(Z);
+  c.get(PARAMS).get(R).i32(8).mul().add().set(DP);
+  c.get(DP).get(S).f32Store(0);
+  c.get(DP).get(Z).i32Store(4);
+  c.get(INV).f32x4Splat().set(VINV);
+  c.get(Z).i32x4Splat().set(VZ);
+}
+
+/** A stored range as the fixed quantiser reads it (scale, 1/scale, zero), in the per-row quantiser's float32 steps. */
+export interface FixedQuant {
+  readonly scale: number;
+  readonly inv: number;
+  readonly zero: number;
+}
+
+/**
+ * The fixed quantisation of a stored range [min, max]: widened to include 0, then mapped onto the
+ * codes 0..127 exactly as a row with that range would be.
+ * @example fixedQuantParams(0, 12.7) // { scale: 0.1 (float32), inv: 10, zero: 0 }
+ */
+export function fixedQuantParams(min: number, max: number): FixedQuant {
+  const lo = Math.fround(Math.min(0, min));
+  const hi = Math.fround(Math.max(0, max));
+  let scale = Math.fround(Math.fround(hi - lo) / 127);
+  if (scale === 0) scale = 1;
+  const inv = Math.fround(1 / scale);
+  return { scale, inv, zero: roundHalfEven(Math.fround(-lo * inv)) + 0 };
+}
+
+/** The 12 bytes `quantise_fixed` reads at `range`. */
+export function fixedQuantBytes(q: FixedQuant): Uint8Array {
+  const bytes = new Uint8Array(16);
+  const view = new DataView(bytes.buffer);
+  view.setFloat32(0, q.scale, true);
+  view.setFloat32(4, q.inv, true);
+  view.setInt32(8, q.zero, true);
+  return bytes;
 }
 
 /** Parameters of denseI8, in order. */
@@ -496,6 +548,24 @@ export function quantiseRowPlain(x: ArrayLike<number>): { codes: Uint8Array; sca
     codes[i] = Number.isNaN(q) ? Math.min(Math.max(zero, 0), 127) : Math.min(Math.max(q + zero, 0), 127);
   }
   return { codes, scale, zero };
+}
+
+/**
+ * Twin of `quantiseFunction(arith, 'fixed')` for one row: the stored range's codes (clamped to
+ * [0, 127]) and its scale, NaN when the row holds a NaN or an infinity.
+ */
+export function quantiseRowFixedPlain(x: ArrayLike<number>, q: FixedQuant): { codes: Uint8Array; scale: number; zero: number } {
+  const codes = new Uint8Array(x.length);
+  let finite = true;
+  for (let i = 0; i < x.length; i++) {
+    const v = x[i];
+    if (!Number.isFinite(v)) finite = false;
+    // trunc_sat: NaN to 0, beyond the i32 range saturated (then beyond 127 either way).
+    const r = roundHalfEven(Math.fround(v * q.inv));
+    const t = Number.isNaN(r) ? 0 : r;
+    codes[i] = Math.min(Math.max(t + q.zero, 0), 127);
+  }
+  return { codes, scale: finite ? q.scale : Number.NaN, zero: q.zero };
 }
 
 /**
