@@ -9,7 +9,7 @@
  * range, so those rows are never clamped; a row beyond them at run time is clamped, which the
  * parity check allows for (check/int8-parity.ts).
  */
-import { denseLayerIndices, type ActivationRanges, type ModelDoc } from '../model/index.js';
+import { denseLayerIndices, validateModel, type ActivationRanges, type ModelDoc } from '../model/index.js';
 import { normalise64, referenceForward, toMat64 } from '../reference/index.js';
 
 /** Rows per reference pass: bounds the float64 copies of each layer's output. */
@@ -83,4 +83,16 @@ export function recordActivationRanges(doc: ModelDoc, x: Float32Array, rows: num
   const recorder = new RangeRecorder(doc);
   if (recorder.add(x, rows) >= 0) return null;
   return recorder.ranges();
+}
+
+/**
+ * `doc` with `ranges` stored (checked: one finite pair per dense layer). The layers are shared,
+ * so an i8 document keeps its stored codes.
+ * @example const calibrated = withActivationRanges(shrinkModel(doc, 'i8'), ranges);
+ * @throws ModelFileError naming the layer when a range is unusable.
+ */
+export function withActivationRanges(doc: ModelDoc, ranges: ActivationRanges): ModelDoc {
+  const out: ModelDoc = { ...doc, activationRanges: ranges };
+  validateModel(out, '(model being calibrated)');
+  return out;
 }

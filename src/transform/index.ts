@@ -3,3 +3,4 @@ export { foldModel, baselineNormalisation, FOLDED_NORMALISATION_KEY, type FoldRe
 export { shrinkModel, storageCost, denseWeightBytes, describeStorageCosts, costVerdict, type StorageChoice, type ShrinkOptions } from './shrink.js';
 export { compareOutputs, type OutputComparison } from './compare.js';
 export { SHRINK_TOLERANCE } from './tolerance.js';
+export { RangeRecorder, recordActivationRanges, withActivationRanges } from './calibrate.js';
