@@ -44,6 +44,11 @@ describe('shrink --store i8 --calibrate ROWS --rows ROWS', () => {
     expect(doc.activationRanges!.rows).toBe(split.train.length);
     expect(doc.activationRanges!.min.length).toBe(3);
     expect(shrinkOut).toContain(`int8 activation ranges from ${split.train.length} rows of ${trainCsv}`);
+    const about = await runCli('about', child);
+    expect(about.out).toMatch(/ format 1\.2 /);
+    expect(about.out).toContain("int8 activation ranges from 1,258 rows (each dense layer's input): layers[0] [-");
+    // After a ReLU a layer's input starts at 0.
+    expect(about.out).toMatch(/layers\[1\] \[0, [\d.]+\],\s+layers\[2\] \[0, [\d.]+\]/);
   });
 
   it('judges the shrunk model on the held-out rows: top-class agreement and largest probability change, on the reference path and as the int8 engine runs it', async () => {
