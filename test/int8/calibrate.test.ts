@@ -5,7 +5,7 @@
  * i8, calibrated on the training rows and run on the int8 engine over the held-out 30%.
  */
 import { beforeAll, describe, expect, it } from 'vitest';
-import { int8ParityReport, randomInputs, topClassAgreement } from '../../src/check/index.js';
+import { int8ParityReport, parityReport, randomInputs, topClassAgreement } from '../../src/check/index.js';
 import { SimdRunner } from '../../src/engine/fast/simd-runner.js';
 import { Int8Runner } from '../../src/engine/int8/int8-runner.js';
 import { i16DotAvailable, relaxedDotAvailable, type Int8Arith } from '../../src/engine/int8/kernels.js';
@@ -84,6 +84,25 @@ describe('activation ranges recorded on the digits training rows', () => {
     expect(runner.storedCodes).toBe(true);
     expect(runner.activationRanges).toBe('stored');
     runner.dispose();
+  });
+});
+
+describe('a calibrated model through other transforms', () => {
+  it('tune drops the ranges (they describe the old weights and normalisation)', async () => {
+    const rows = 64;
+    const y = Int32Array.from({ length: rows }, (_, r) => r % 10);
+    const tuned = await tune(calibrated, { x: train.subarray(0, rows * 64), rows, y }, { epochs: 1, batch: 32, seed: 1, path: 'reference' });
+    expect(calibrated.activationRanges).not.toBeUndefined();
+    expect(tuned.doc.activationRanges).toBeUndefined();
+  });
+});
+
+describe('a calibrated model on the other engines', () => {
+  it('float engines ignore the stored ranges: the fast engine passes its float32 parity, layer by layer, and answers as without them', () => {
+    const x = test.subarray(0, 64 * 64);
+    const report = parityReport(calibrated, x, 64, { runner: new SimdRunner(calibrated) });
+    expect(report.pass, JSON.stringify(report.layers)).toBe(true);
+    expect(Array.from(new SimdRunner(calibrated).run(x, 64))).toEqual(Array.from(new SimdRunner(shrunk).run(x, 64)));
   });
 });
 
