@@ -121,3 +121,44 @@ describe('check --engine int8 --against PARENT', () => {
     expect(r.out).toContain('float64 reference path for both');
   });
 });
+
+describe('shrink --rows on a regression model (diabetes, Efron, Hastie, Johnstone and Tibshirani 2004; python3-sklearn)', () => {
+  it('judges per-value error in target units on the held-out rows, on the reference path and on the int8 engine', async () => {
+    const data = loadDataset('diabetes');
+    const parts = splitRows(data.x.length, 0.3, 2);
+    const train = writeCsv(path('diabetes-train.csv'), ...(Object.values(datasetTable(data, { rows: parts.train })) as [string[], string[][]]));
+    const held = writeCsv(path('diabetes-test.csv'), ...(Object.values(datasetTable(data, { rows: parts.test })) as [string[], string[][]]));
+    const model = path('diabetes.tendon');
+    const tuned = await runCli(
+      'tune',
+      writeSpec(path('diabetes.json'), data, [16]),
+      '--data',
+      train,
+      '--target',
+      'target',
+      '-o',
+      model,
+      '--epochs',
+      '30',
+      '--seed',
+      '1',
+    );
+    expect(tuned.code, tuned.err).toBe(0);
+    const out = path('diabetes-i8.tendon');
+    const r = await runCli('shrink', model, '--store', 'i8', '--calibrate', train, '--rows', held, '-o', out);
+    expect(r.code, r.err).toBe(0);
+    expect(r.out).not.toMatch(/top class|probability/);
+    const stored = r.out.split('\n').find((l) => l.includes('stored weights (float64 path for both)'))!;
+    const engine = r.out.split('\n').find((l) => l.includes('on the int8 engine (activations on the stored ranges)'))!;
+    expect(engine).toMatch(/per-value error: max abs err \S+, max rel err \S+/);
+    // The stated figure, recomputed here: the largest |child - parent| over the held-out rows in target units.
+    const [p, c] = [(await readModelFile(model)).doc, (await readModelFile(out)).doc];
+    const x = Float32Array.from(parts.test.flatMap((i) => data.x[i]));
+    const a = referenceForward(c, toMat64(x, parts.test.length, 10)).y.data;
+    const b = referenceForward(p, toMat64(x, parts.test.length, 10)).y.data;
+    const maxAbs = a.reduce((m, v, i) => Math.max(m, Math.abs(v - b[i])), 0);
+    expect(stored).toContain(`per-value error: max abs err ${maxAbs >= 1e-3 && maxAbs < 1e5 ? maxAbs.toPrecision(3) : maxAbs.toExponential(2)},`);
+    // Target scaling makes the file major 2.
+    expect((await readModelFile(out)).version.major).toBe(2);
+  });
+});
