@@ -4,6 +4,7 @@
  * python3-sklearn sklearn/datasets/data/digits.csv.gz, copied to test/fixtures/realdata), split
  * 70/30 and written as users write it (CSV with a header, the class as a named column).
  */
+import { readFileSync } from 'node:fs';
 import { beforeAll, describe, expect, it } from 'vitest';
 import { topClassAgreement } from '../../src/check/index.js';
 import { Int8Runner } from '../../src/engine/int8/int8-runner.js';
@@ -86,6 +87,23 @@ describe('shrink --store i8 --calibrate ROWS --rows ROWS', () => {
     expect(r.code).toBe(2);
     expect(r.err).toMatch(/wrong\.csv:1: missing feature columns/);
     expect(r.err).not.toMatch(/\n\s+at /);
+  });
+});
+
+describe('score on a calibrated i8 file', () => {
+  it("auto runs the int8 engine on the stored ranges and says so; the scores are that engine's answers", async () => {
+    const scores = path('digits-scores.csv');
+    const r = await runCli('score', child, '--input', testCsv, '--output', scores);
+    expect(r.code, r.err).toBe(0);
+    expect(r.err).toMatch(/on the int8 engine \(.*; activations on the stored ranges \(recorded on 1258 rows\)\)/);
+    const lines = readFileSync(scores, 'utf8').trim().split('\n').slice(1);
+    const runner = new Int8Runner((await readModelFile(child)).doc);
+    const want = runner.run(heldOut(), split.test.length);
+    runner.dispose();
+    expect(lines).toHaveLength(split.test.length);
+    lines.slice(0, 20).forEach((line, row) => {
+      line.split(',').forEach((cell, col) => expect(Number(cell)).toBeCloseTo(want[row * 10 + col], 5));
+    });
   });
 });
 
