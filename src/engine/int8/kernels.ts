@@ -87,16 +87,24 @@ class Locals {
  * into the low mantissa bits, so bits(v + 1.5 · 2^23) - bits(1.5 · 2^23) + zero is round(v) + zero
  * as an int32. v = x · inv is clamped to [-256, 256] first (a NaN to -256); finite v never leaves
  * [-64, 64] except when 1 / scale overflows, and the clamp keeps the codes' 0..CODE_MAX cap the same.
+ *
+ * `fixed` (stored activation ranges): quantise_fixed(..., params, range) takes the layer's
+ * (scale f32, 1/scale f32, zero i32) from `range` (see `fixedQuantParams`) instead of measuring
+ * each row, so the range pass is skipped; values outside the range clamp to code 0 or CODE_MAX
+ * (the ±256 clamp before rounding keeps any size of value from wrapping around). A row holding a
+ * NaN or an infinity gets a NaN scale: clamping those would turn them into finite guesses.
  */
-export function quantiseFunction(arith: Int8Arith): FunctionDef {
+export function quantiseFunction(arith: Int8Arith, mode: 'row' | 'fixed' = 'row'): FunctionDef {
   const SRC = 0,
     SSTRIDE = 1,
     ROWS = 2,
     WIDTH = 3,
     DST = 4,
     DSTRIDE = 5,
-    PARAMS = 6;
-  const l = new Locals(7);
+    PARAMS = 6,
+    RANGE = 7;
+  const fixed = mode === 'fixed';
+  const l = new Locals(fixed ? 8 : 7);
   const R = l.add(I32),
     C = l.add(I32),
     SP = l.add(I32),
@@ -116,34 +124,51 @@ export function quantiseFunction(arith: Int8Arith): FunctionDef {
     HI = l.add(V128),
     VLOW = l.add(V128),
     VHIGH = l.add(V128),
-    VMAGIC = l.add(V128);
+    VMAGIC = l.add(V128),
+    T = l.add(V128);
   const c = new Code();
   c.f32(-256).f32x4Splat().set(VLOW);
   c.f32(256).f32x4Splat().set(VHIGH);
   c.f32(MAGIC).f32x4Splat().set(VMAGIC);
+  if (fixed) {
+    // One range for every row: its scale, reciprocal and zero point, splat once.
+    c.get(RANGE).f32Load(0).set(S);
+    c.get(RANGE).f32Load(4).set(INV);
+    c.get(RANGE).i32Load(8).set(Z);
+    c.get(INV).f32x4Splat().set(VINV);
+    c.i32(MAGIC_BITS).get(Z).sub().i32x4Splat().set(VMZ);
+  }
   c.i32(0).set(R);
   c.block().loop();
   {
     c.get(R).get(ROWS).geU().brIf(1);
     c.get(SRC).get(R).get(SSTRIDE).mul().add().set(SP);
-    emitRowRange(c, { SP, C, WIDTH, MN, MX, VMIN, VMAX, VNAN, V });
-    // scale = (max - min) / CODE_MAX, or 1 for an all-zero row (any scale decodes zeros to zero).
-    c.get(MX).get(MN).f32Sub().f32(CODE_MAX).f32Div().set(S);
-    c.f32(1).get(S).get(S).f32(0).f32Eq().select().set(S);
-    c.f32(1).get(S).f32Div().set(INV);
-    c.get(MN).f32Neg().get(INV).f32Mul().f32Nearest().i32TruncSatF32().set(Z);
-    c.get(PARAMS).get(R).i32(8).mul().add().set(DP);
-    c.get(DP).get(S).f32Store(0);
-    c.get(DP).get(Z).i32Store(4);
-    c.get(INV).f32x4Splat().set(VINV);
-    c.i32(MAGIC_BITS).get(Z).sub().i32x4Splat().set(VMZ);
+    if (fixed) c.v128Zero().set(VNAN);
+    else {
+      emitRowRange(c, { SP, C, WIDTH, MN, MX, VMIN, VMAX, VNAN, V });
+      // scale = (max - min) / CODE_MAX, or 1 for an all-zero row (any scale decodes zeros to zero).
+      c.get(MX).get(MN).f32Sub().f32(CODE_MAX).f32Div().set(S);
+      c.f32(1).get(S).get(S).f32(0).f32Eq().select().set(S);
+      c.f32(1).get(S).f32Div().set(INV);
+      c.get(MN).f32Neg().get(INV).f32Mul().f32Nearest().i32TruncSatF32().set(Z);
+      c.get(PARAMS).get(R).i32(8).mul().add().set(DP);
+      c.get(DP).get(S).f32Store(0);
+      c.get(DP).get(Z).i32Store(4);
+      c.get(INV).f32x4Splat().set(VINV);
+      c.i32(MAGIC_BITS).get(Z).sub().i32x4Splat().set(VMZ);
+    }
     // Pass 2: q = clamp(round(x · inv) + zero, 0, CODE_MAX), 16 values at a time.
     c.get(DST).get(R).get(DSTRIDE).mul().add().set(DP);
     c.i32(0).set(C);
     c.block().loop();
     {
       const quad = (offset: number): void => {
-        c.get(VHIGH).get(VLOW).get(SP).v128Load(offset).get(VINV).f32x4Mul().f32x4Pmax().f32x4Pmin();
+        if (fixed) {
+          // x - x is NaN exactly for NaN and ±infinity: flag the row.
+          c.get(SP).v128Load(offset).tee(V).get(V).f32x4Sub().set(T);
+          c.get(VNAN).get(T).get(T).f32x4Ne().v128Or().set(VNAN);
+          c.get(VHIGH).get(VLOW).get(V).get(VINV).f32x4Mul().f32x4Pmax().f32x4Pmin();
+        } else c.get(VHIGH).get(VLOW).get(SP).v128Load(offset).get(VINV).f32x4Mul().f32x4Pmax().f32x4Pmin();
         c.get(VMAGIC).f32x4Add().get(VMZ).i32x4Sub();
       };
       quad(0);
@@ -169,11 +194,48 @@ export function quantiseFunction(arith: Int8Arith): FunctionDef {
       c.get(C).i32(16).add().tee(C).get(WIDTH).ltU().brIf(0);
     }
     c.end().end();
+    if (fixed) {
+      // The row's (scale, zero): the layer's, or a NaN scale when the row held a non-finite value.
+      c.get(PARAMS).get(R).i32(8).mul().add().set(DP);
+      c.get(DP).f32(Number.NaN).get(S).get(VNAN).v128AnyTrue().select().f32Store(0);
+      c.get(DP).get(Z).i32Store(4);
+    }
     c.get(R).i32(1).add().set(R);
     c.br(0);
   }
   c.end().end();
-  return { name: 'quantise', params: new Array<number>(7).fill(I32), locals: l.types, code: c };
+  return { name: fixed ? 'quantise_fixed' : 'quantise', params: new Array<number>(fixed ? 8 : 7).fill(I32), locals: l.types, code: c };
+}
+
+/** A stored range as the fixed quantiser reads it (scale, 1/scale, zero), in the per-row quantiser's float32 steps. */
+export interface FixedQuant {
+  readonly scale: number;
+  readonly inv: number;
+  readonly zero: number;
+}
+
+/**
+ * The fixed quantisation of a stored range [min, max]: widened to include 0, then mapped onto the
+ * codes 0..CODE_MAX exactly as a row with that range would be.
+ * @example fixedQuantParams(0, 6.3) // { scale: 0.1 (float32), inv: 10, zero: 0 }
+ */
+export function fixedQuantParams(min: number, max: number): FixedQuant {
+  const lo = Math.fround(Math.min(0, min));
+  const hi = Math.fround(Math.max(0, max));
+  let scale = Math.fround(Math.fround(hi - lo) / CODE_MAX);
+  if (scale === 0) scale = 1;
+  const inv = Math.fround(1 / scale);
+  return { scale, inv, zero: roundHalfEven(Math.fround(-lo * inv)) + 0 };
+}
+
+/** The 12 bytes `quantise_fixed` reads at `range`. */
+export function fixedQuantBytes(q: FixedQuant): Uint8Array {
+  const bytes = new Uint8Array(16);
+  const view = new DataView(bytes.buffer);
+  view.setFloat32(0, q.scale, true);
+  view.setFloat32(4, q.inv, true);
+  view.setInt32(8, q.zero, true);
+  return bytes;
 }
 
 /** Pass 1 of quantise: the range of the row at SP, widened to include 0, into MN and MX (both NaN when a lane is NaN). */
@@ -588,6 +650,22 @@ export function quantiseRowPlain(x: ArrayLike<number>): { codes: Uint8Array; sca
     codes[i] = Math.min(Math.max((q + zero) | 0, 0), CODE_MAX);
   }
   return { codes, scale, zero };
+}
+
+/**
+ * Twin of `quantiseFunction(arith, 'fixed')` for one row: the stored range's codes (clamped to
+ * [0, CODE_MAX]) and its scale, NaN when the row holds a NaN or an infinity.
+ */
+export function quantiseRowFixedPlain(x: ArrayLike<number>, q: FixedQuant): { codes: Uint8Array; scale: number; zero: number } {
+  const codes = new Uint8Array(x.length);
+  let finite = true;
+  for (let i = 0; i < x.length; i++) {
+    if (!Number.isFinite(x[i])) finite = false;
+    const v = Math.fround(x[i] * q.inv);
+    const r = roundHalfEven(Number.isNaN(v) ? -256 : Math.min(Math.max(v, -256), 256));
+    codes[i] = Math.min(Math.max((r + q.zero) | 0, 0), CODE_MAX);
+  }
+  return { codes, scale: finite ? q.scale : Number.NaN, zero: q.zero };
 }
 
 /**
