@@ -313,20 +313,9 @@ export class Code {
   f32x4Pmax(): this {
     return this.simd(0xeb);
   }
-  /** f32x4.ne: all ones where the lanes differ (a NaN differs from itself). */
-  f32x4Ne(): this {
-    return this.simd(0x42);
-  }
   /** i16x8.add: wrapping (callers prove their sums fit). */
   i16x8Add(): this {
     return this.simd(0x8e);
-  }
-  v128Or(): this {
-    return this.simd(0x50);
-  }
-  /** v128.any_true: 1 when any bit is set. */
-  v128AnyTrue(): this {
-    return this.simd(0x53);
   }
 }
 
