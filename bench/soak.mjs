@@ -2,12 +2,14 @@
 // CSV clients mixed), then the wire comparison (bench/wire.mjs: the same load generator against
 // a bare hand-written server and tendon serve with JSON and NPY), with a hot
 // swap (a re-packed model written over the served file) and a fine-tune in the background whose
-// output is renamed over the served file when it finishes. Prints and appends to
-// bench/RESULTS.md: requests, rows, errors (must be 0), p50/p99 latency, server memory, swaps.
+// output is renamed over the served file when it finishes. Prints (and with --record appends to
+// bench/RESULTS.md): requests, rows, errors (must be 0), p50/p99 latency, server memory, swaps.
 //
 //   npm run soak                     # 60 s
 //   npm run soak -- --seconds 300 --clients 16
 //   npm run soak -- --seconds 20 --wire-seconds 3 --wire-rounds 3   (--no-wire skips the comparison)
+//   npm run soak -- --seconds 30 --workers 2 --no-wire   (batches on worker threads, bodies on parse threads)
+//   npm run soak -- --record           (append the figures to bench/RESULTS.md; without it, print only)
 //
 // Stops by itself: after --seconds, or --max-requests answers, whichever comes first; a hard
 // deadline of seconds + 120 s (plus the wire comparison's budget) ends the process whatever happens.
@@ -20,8 +22,10 @@ import { CLI, HERE, RESULTS, hardDeadline, option, seeded, startChild } from './
 const SECONDS = option('soak', 'seconds', 60);
 const CLIENTS = option('soak', 'clients', 8);
 const MAX_REQUESTS = option('soak', 'max-requests', 2_000_000);
+const WORKERS = option('soak', 'workers', 1);
+const RECORD = process.argv.includes('--record');
 const WIRE_SECONDS = option('soak', 'wire-seconds', 4);
-const WIRE_ROUNDS = option('soak', 'wire-rounds', 2);
+const WIRE_ROUNDS = option('soak', 'wire-rounds', 3);
 hardDeadline('soak', (SECONDS + 120 + (process.argv.includes('--no-wire') ? 0 : WIRE_SECONDS * WIRE_ROUNDS * 3 + 240)) * 1000);
 
 function run(args, { quiet = true } = {}) {
@@ -81,9 +85,9 @@ async function main() {
   const data = join(dir, 'rows.csv');
   await writeFile(data, lines.join('\n') + '\n');
 
-  const { child: server, url: served } = startChild([CLI, 'serve', model, '--port', '0'], /on (http:\/\/127\.0\.0\.1:\d+)/);
+  const { child: server, url: served } = startChild([CLI, 'serve', model, '--port', '0', '--workers', String(WORKERS)], /on (http:\/\/127\.0\.0\.1:\d+)/);
   const url = await served;
-  console.log(`soak: ${SECONDS} s, ${CLIENTS} clients against ${url} (pid ${server.pid})`);
+  console.log(`soak: ${SECONDS} s, ${CLIENTS} clients against ${url} (pid ${server.pid}, --workers ${WORKERS})`);
 
   const started = performance.now();
   const deadline = started + SECONDS * 1000;
@@ -243,16 +247,22 @@ async function main() {
     ].join('\n'),
   );
 
-  await recordRow(
-    `| ${date} | ${machine} | ${process.version} | ${elapsed.toFixed(0)} | ${CLIENTS} | ${requests} | ${rows} | ${errors.length} | ${figures.p50.toFixed(2)} | ${figures.p99.toFixed(2)} | ${mib(figures.rssStart)} | ${mib(figures.rssWarm)} | ${mib(figures.rssEnd)} | ${mib(figures.rssPeak)} | ${swaps} | ${checksums.size} | ${tensorsStart} | ${tensorsEnd} |`,
-  );
-  console.log(`added a row to the soak table in ${RESULTS}`);
+  if (RECORD) {
+    await recordRow(
+      `| ${date} | ${machine} | ${process.version} | ${elapsed.toFixed(0)} | ${CLIENTS} | ${requests} | ${rows} | ${errors.length} | ${figures.p50.toFixed(2)} | ${figures.p99.toFixed(2)} | ${mib(figures.rssStart)} | ${mib(figures.rssWarm)} | ${mib(figures.rssEnd)} | ${mib(figures.rssPeak)} | ${swaps} | ${checksums.size} | ${tensorsStart} | ${tensorsEnd} |`,
+    );
+    console.log(`added a row to the soak table in ${RESULTS}`);
+  }
   let wireOk = true;
   if (!process.argv.includes('--no-wire')) {
-    // The wire comparison, same load generator for every server (bench/wire.mjs); it appends its own rows.
+    // The wire comparison, same load generator for every server (bench/wire.mjs); with --record it appends its own rows.
     console.log('\nwire: bare node:http server vs tendon serve (JSON, NPY), same load generator');
     wireOk = await new Promise((resolve) => {
-      const child = spawn(process.execPath, [join(HERE, 'wire.mjs'), '--seconds', String(WIRE_SECONDS), '--rounds', String(WIRE_ROUNDS)], { stdio: 'inherit' });
+      const child = spawn(
+        process.execPath,
+        [join(HERE, 'wire.mjs'), '--seconds', String(WIRE_SECONDS), '--rounds', String(WIRE_ROUNDS), ...(RECORD ? ['--record'] : [])],
+        { stdio: 'inherit' },
+      );
       child.once('exit', (code) => resolve(code === 0));
     });
   }

@@ -84,6 +84,29 @@ export async function* inputChunks(doc: ModelDoc, file: string, chunkRows: numbe
   }
 }
 
+/**
+ * The first `maxRows` rows of a data file as model inputs, in one float32 array (rows x inputs).
+ * @throws DataError for a bad cell or columns that do not fit the model; and when the file has no rows.
+ */
+export async function readInputRows(doc: ModelDoc, file: string, maxRows: number): Promise<{ x: Float32Array; rows: number }> {
+  const parts: Float32Array[] = [];
+  let rows = 0;
+  for await (const chunk of inputChunks(doc, file, 4096)) {
+    const take = Math.min(chunk.rows, maxRows - rows);
+    parts.push(chunk.x.subarray(0, take * doc.inputs));
+    rows += take;
+    if (rows >= maxRows) break;
+  }
+  if (rows === 0) throw new DataError(file, 0, 0, 'has no rows');
+  const x = new Float32Array(rows * doc.inputs);
+  let at = 0;
+  for (const p of parts) {
+    x.set(p, at);
+    at += p.length;
+  }
+  return { x, rows };
+}
+
 /** Output column names: the model's labels, else output_0, output_1, ... */
 export function outputColumns(doc: ModelDoc, outputs: number): string[] {
   return doc.labels ?? Array.from({ length: outputs }, (_, i) => `output_${i}`);

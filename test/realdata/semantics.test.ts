@@ -153,7 +153,7 @@ describe('real files through tune, score, about and shrink (python3-sklearn data
     );
     expect(tuned.code, tuned.err).toBe(0);
     const saved = await readModelFile(model);
-    expect(saved.version).toEqual({ major: 1, minor: 1 });
+    expect(saved.version).toEqual({ major: 2, minor: 0 });
     const targets = train.map((r) => Number(r[10]));
     const mean = targets.reduce((a, b) => a + b, 0) / targets.length;
     expect(saved.doc.targetScaling!.mean[0]).toBeCloseTo(mean, 6);
