@@ -30,12 +30,17 @@ export function inputColumns(doc: ModelDoc, table: Pick<TableReader, 'columns' |
   }
   if (named.length !== doc.inputs) {
     const unnamed = table.width - named.length;
-    throw new DataError(
+    const error = new DataError(
       file,
       1,
       0,
       `has ${named.length} columns${unnamed > 0 ? ` (besides ${unnamed} unnamed)` : ''}, but the model takes ${doc.inputs} inputs${doc.features ? ` (${doc.features.join(', ')})` : ''}`,
     );
+    // Without feature names a model reads columns by position, so it cannot tell a target or an
+    // id column from its inputs.
+    if (!doc.features && table.columns)
+      error.withHint('the model has no feature names: remove the other columns, or give it names (a spec\'s "features", or tune it on this header)');
+    throw error;
   }
   return named;
 }
