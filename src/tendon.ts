@@ -29,7 +29,7 @@ export interface OpenOptions {
   readonly engine?: EngineChoice;
   /** Most rows sent through the engine at once; bounds peak memory. */
   readonly chunkRows?: number;
-  /** Threads sharing each call's rows, the caller included (the int8 engine; others run on one). Default 1. */
+  /** Threads sharing each call's rows, the caller included (the int8 and fast engines; the tfjs engines run on one). Default 1. */
   readonly threads?: number;
 }
 
