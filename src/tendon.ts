@@ -2,7 +2,8 @@
  * The façade a service uses: open a model file, run batches, prove parity, save. It ties the
  * format, the engine and the parity check together; each of those can also be used alone.
  */
-import * as tf from '@tensorflow/tfjs-core';
+import type * as tf from '@tensorflow/tfjs-core';
+import { tfjs } from './model/tfjs-lazy.js';
 import { int8ParityReport, parityReport, randomInputs, type ParityReport } from './check/index.js';
 import {
   Int8Runner,
@@ -161,12 +162,13 @@ export class TendonModel {
   run(batch: Float32Array, rows: number): Float32Array;
   run(batch: tf.Tensor2D): tf.Tensor2D;
   run(batch: readonly (readonly number[])[] | Float32Array | tf.Tensor2D, rows?: number): number[][] | Float32Array | tf.Tensor2D {
-    if (batch instanceof tf.Tensor) {
+    // Only a tensor is neither of the other two; tfjs is loaded for it alone (the caller has it already).
+    if (!(batch instanceof Float32Array) && !Array.isArray(batch) && batch instanceof tfjs().Tensor) {
       if (batch.rank !== 2) throw new ShapeError('input tensor', ['rows', this.inputs], batch.shape, 'run');
       if (this.runner instanceof TfjsRunner) return this.runner.runTensor(batch);
       if (batch.shape[1] !== this.inputs) throw new ShapeError('input tensor', ['rows', this.inputs], batch.shape, 'run');
       const rowsIn = batch.shape[0];
-      return tf.tensor2d(this.runner.run(Float32Array.from(batch.dataSync()), rowsIn), [rowsIn, this.outputs]);
+      return tfjs().tensor2d(this.runner.run(Float32Array.from(batch.dataSync()), rowsIn), [rowsIn, this.outputs]);
     }
     if (batch instanceof Float32Array) {
       const n = rows ?? batch.length / this.inputs;

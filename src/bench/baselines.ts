@@ -6,7 +6,8 @@
  * - numpy + OpenBLAS on the same shapes, through bench/numpy_baseline.py, when python3 has numpy.
  */
 import { spawnSync } from 'node:child_process';
-import * as tf from '@tensorflow/tfjs-core';
+import type * as tf from '@tensorflow/tfjs-core';
+import { tfjs } from '../model/tfjs-lazy.js';
 import type { DenseLayer, ModelDoc } from '../model/index.js';
 import { referenceForward, toMat64 } from '../reference/index.js';
 import { useEngine } from '../engine/index.js';
@@ -19,24 +20,24 @@ export function plainTfjsForward(doc: ModelDoc): { run(x: Float32Array, rows: nu
   if (dense.length !== doc.layers.length) throw new RangeError('plainTfjsForward: dense layers only');
   let width = doc.inputs;
   const weights = dense.map((layer) => {
-    const w = tf.tensor2d(layer.weight, [width, layer.size]);
+    const w = tfjs().tensor2d(layer.weight, [width, layer.size]);
     width = layer.size;
-    return { w, b: tf.tensor1d(layer.bias), activation: layer.activation };
+    return { w, b: tfjs().tensor1d(layer.bias), activation: layer.activation };
   });
   return {
     run(x, rows) {
-      return tf.tidy(() => {
-        let h: tf.Tensor2D = tf.tensor2d(x, [rows, doc.inputs]);
+      return tfjs().tidy(() => {
+        let h: tf.Tensor2D = tfjs().tensor2d(x, [rows, doc.inputs]);
         for (const { w, b, activation } of weights) {
-          h = tf.add(tf.matMul(h, w), b);
-          if (activation === 'relu') h = tf.relu(h);
-          else if (activation === 'softmax') h = tf.softmax(h);
+          h = tfjs().add(tfjs().matMul(h, w), b);
+          if (activation === 'relu') h = tfjs().relu(h);
+          else if (activation === 'softmax') h = tfjs().softmax(h);
         }
         return h.dataSync() as Float32Array;
       });
     },
     dispose() {
-      for (const { w, b } of weights) tf.dispose([w, b]);
+      for (const { w, b } of weights) tfjs().dispose([w, b]);
     },
   };
 }

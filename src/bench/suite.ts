@@ -8,7 +8,7 @@
  */
 import { readFileSync } from 'node:fs';
 import { cpus, availableParallelism } from 'node:os';
-import * as tf from '@tensorflow/tfjs-core';
+import { tfjs } from '../model/tfjs-lazy.js';
 import {
   bestInt8Arith,
   engineFallbackReason,
@@ -181,7 +181,7 @@ function addRow(run: SuiteRun, r: RowFields): void {
   run.rows.push({
     ...r,
     rssMiB: rss(),
-    tensors: tf.memory().numTensors,
+    tensors: tfjs().memory().numTensors,
     vsPlainTfjs: b?.plainTfjs ? r.rowsPerSec / b.plainTfjs.rowsPerSec : Number.NaN,
     vsReference: b?.reference ? r.rowsPerSec / b.reference.rowsPerSec : Number.NaN,
     vsNumpy: b?.numpy ? r.rowsPerSec / b.numpy.rowsPerSec : Number.NaN,
@@ -436,13 +436,13 @@ async function measureLeaks(run: SuiteRun, engines: readonly SuiteEngine[]): Pro
     const session = openRunner(docOf(run, net.name), engine);
     const x = seededRows(1, net.widths[0], 8);
     for (let i = 0; i < 1000; i++) session.run(x, 1);
-    const tensorsBefore = tf.memory().numTensors;
+    const tensorsBefore = tfjs().memory().numTensors;
     const rssBefore = rss();
     run.opts.log(`leak check: ${calls} calls`);
     const t0 = performance.now();
     for (let i = 0; i < calls; i++) session.run(x, 1);
     const seconds = (performance.now() - t0) / 1000;
-    const tensorsAfter = tf.memory().numTensors;
+    const tensorsAfter = tfjs().memory().numTensors;
     const rssAfter = rss();
     session.dispose();
     run.notes.push(
