@@ -52,7 +52,6 @@ async function chooseEngine(choice: EngineChoice | undefined, doc: ModelDoc): Pr
   const resolved = await resolveEngine(choice ?? 'auto', doc);
   lastFallback = resolved.fallback;
   lastNote = resolved.note ?? null;
-  if (resolved.engine === 'fast' || resolved.engine === 'int8') ensureEngine(); // tfjs still serves tensor input and training
   return resolved.engine;
 }
 
@@ -168,6 +167,7 @@ export class TendonModel {
       if (this.runner instanceof TfjsRunner) return this.runner.runTensor(batch);
       if (batch.shape[1] !== this.inputs) throw new ShapeError('input tensor', ['rows', this.inputs], batch.shape, 'run');
       const rowsIn = batch.shape[0];
+      ensureEngine(); // the fast and int8 engines run without tfjs; the answer goes back as a tensor on its backend
       return tfjs().tensor2d(this.runner.run(Float32Array.from(batch.dataSync()), rowsIn), [rowsIn, this.outputs]);
     }
     if (batch instanceof Float32Array) {

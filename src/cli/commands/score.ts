@@ -31,7 +31,6 @@ const flags = {
 
 export const score: Command = {
   name: 'score',
-  summary: 'score a data file with a model, streaming, one output row per input row',
   usage: 'tendon score MODEL --input FILE --output FILE [--batch N] [--engine js|wasm|fast|int8|auto] [--shard K/N] [--drift]',
   flags,
   async run(argv, io) {

@@ -12,7 +12,6 @@ const flags = {
 
 export const shrink: Command = {
   name: 'shrink',
-  summary: "store a model's dense weights as float16 or int8 (per-column scale); prints the size and the parity cost",
   usage: 'tendon shrink MODEL --store f16|i8 -o OUT',
   flags,
   async run(argv, io) {
