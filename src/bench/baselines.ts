@@ -72,6 +72,20 @@ export function numpyKey(widths: readonly number[], batch: number): string {
 }
 
 /**
+ * The environment numpy runs in, as a user's numpy runs: no pinned OpenBLAS core type (which
+ * would force, say, the AVX2 kernels on an AVX-512 machine) and no cache-size override; OpenBLAS
+ * on `threads` threads, or its default (every core) when null.
+ */
+export function numpyEnv(threads: string | null): NodeJS.ProcessEnv {
+  const env = { ...process.env };
+  if (threads) env.OPENBLAS_NUM_THREADS = threads;
+  else delete env.OPENBLAS_NUM_THREADS;
+  delete env.OPENBLAS_CORETYPE;
+  delete env.OPENBLAS_L2_SIZE;
+  return env;
+}
+
+/**
  * Time the cases with numpy in child python3 processes, once with one OpenBLAS thread and once
  * with its default (every core), keeping the faster per case: on a busy machine OpenBLAS's
  * spinning threads can lose to one thread, and the comparison should be with numpy at its best.
@@ -91,13 +105,7 @@ export function runNumpyBaseline(script: string, cases: readonly NumpyCase[], mi
   let blas = '';
   let kernels = 'unknown';
   for (const threads of ['1', '']) {
-    const env = { ...process.env };
-    if (threads) env.OPENBLAS_NUM_THREADS = threads;
-    else delete env.OPENBLAS_NUM_THREADS;
-    // As a user's numpy runs: no pinned core type (which would force, say, the AVX2 kernels on an
-    // AVX-512 machine) and no cache-size override.
-    delete env.OPENBLAS_CORETYPE;
-    delete env.OPENBLAS_L2_SIZE;
+    const env = numpyEnv(threads || null);
     const child = spawnSync('python3', [script], { input: JSON.stringify({ minMs, cases }), encoding: 'utf8', maxBuffer: 16 * 2 ** 20, env });
     if (child.status !== 0) return { available: false, note: `numpy column skipped: ${script} failed (${child.stderr.trim().split('\n').pop()})` };
     const parsed: unknown = JSON.parse(child.stdout);
