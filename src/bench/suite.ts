@@ -8,12 +8,12 @@
  */
 import { readFileSync } from 'node:fs';
 import { cpus, availableParallelism } from 'node:os';
-import { tfjs } from '../model/tfjs-lazy.js';
 import {
   bestInt8Arith,
   engineFallbackReason,
   Int8Runner,
   kernelDescription,
+  liveTensorCount,
   openRunner,
   SharedMemoryRunner,
   useEngine,
@@ -187,7 +187,7 @@ function addRow(run: SuiteRun, r: RowFields): void {
   run.rows.push({
     ...r,
     rssMiB: rss(),
-    tensors: tfjs().memory().numTensors,
+    tensors: liveTensorCount(),
     vsPlainTfjs: b?.plainTfjs ? r.rowsPerSec / b.plainTfjs.rowsPerSec : Number.NaN,
     vsReference: b?.reference ? r.rowsPerSec / b.reference.rowsPerSec : Number.NaN,
     vsNumpy: b?.numpy ? r.rowsPerSec / b.numpy.rowsPerSec : Number.NaN,
@@ -339,7 +339,7 @@ async function measureScoreFile(run: SuiteRun): Promise<void> {
     p50Ms: Number.NaN,
     p99Ms: Number.NaN,
     rssMiB: rss(),
-    tensors: tfjs().memory().numTensors,
+    tensors: liveTensorCount(),
     vsPlainTfjs: Number.NaN,
     vsReference: Number.NaN,
     vsNumpy: e.vsNumpy,
@@ -479,13 +479,13 @@ async function measureLeaks(run: SuiteRun, engines: readonly SuiteEngine[]): Pro
     const session = openRunner(docOf(run, net.name), engine);
     const x = seededRows(1, net.widths[0], 8);
     for (let i = 0; i < 1000; i++) session.run(x, 1);
-    const tensorsBefore = tfjs().memory().numTensors;
+    const tensorsBefore = liveTensorCount();
     const rssBefore = rss();
     run.opts.log(`leak check: ${calls} calls`);
     const t0 = performance.now();
     for (let i = 0; i < calls; i++) session.run(x, 1);
     const seconds = (performance.now() - t0) / 1000;
-    const tensorsAfter = tfjs().memory().numTensors;
+    const tensorsAfter = liveTensorCount();
     const rssAfter = rss();
     session.dispose();
     run.notes.push(

@@ -92,5 +92,7 @@ function firstLine(err: unknown): string {
 
 /** tfjs tensors alive in this process: flat over time when nothing leaks. */
 export function liveTensorCount(): number {
+  // The fast and int8 engines never load tfjs: load it here (with its CPU backend) for the count.
+  enableProdModeOnce();
   return tfjs().memory().numTensors;
 }

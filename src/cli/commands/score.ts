@@ -12,8 +12,8 @@ import { parseEngine } from './engine-flag.js';
 /**
  * Rows read, scored and written at a time. Measured on a 40,000 x 784 float32 .npy (2-core EPYC,
  * Node 20, best of 3 interleaved; see the README's score section): 784-512-256-10 on fast x2,
- * int8 x2 and fast x1 ran 1.2-1.6x faster at 64-256 rows than at 4096, and the I/O-bound 784-2
- * model 1.5-3.5x faster at 256-1024 than at 4096. A 256-row chunk of 784 float32 inputs is 800 KB:
+ * int8 x2 and fast x1 ran 1.1-1.7x faster at 64-256 rows than at 4096, and the I/O-bound 784-2
+ * model 1.7-3.7x faster at 256-1024 than at 4096. A 256-row chunk of 784 float32 inputs is 800 KB:
  * it is read into cache and copied into the engine's memory before it leaves it, where a
  * 4096-row chunk (12.8 MB) goes out to main memory and comes back. Below about 256 rows the
  * per-chunk costs (a read, a write, a hand-off to the threads) start to show.
