@@ -64,15 +64,21 @@ export function otherColumns(width: number, used: readonly number[]): number[] {
 
 /**
  * Stream a data file as float32 model inputs, chunk by chunk. Columns the model does not read
- * are never parsed, so a blank label column or an ID column cannot stop a run.
+ * are never parsed, so a blank label column or an ID column cannot stop a run. With `reuse`, a
+ * float32 NPY file's chunks may share memory: a chunk's `x` is overwritten once the next is asked for.
  */
-export async function* inputChunks(doc: ModelDoc, file: string, chunkRows: number): AsyncGenerator<{ rows: number; x: Float32Array; firstLine: number }> {
+export async function* inputChunks(
+  doc: ModelDoc,
+  file: string,
+  chunkRows: number,
+  opts: { reuse?: boolean } = {},
+): AsyncGenerator<{ rows: number; x: Float32Array; firstLine: number }> {
   const layout = await tableLayout(file);
   const cols = inputColumns(doc, layout, file);
   // A float32 NPY file is one block of the very numbers the model takes: read it straight into
   // the arrays handed out (NPY has no header names, so its columns are the inputs in order).
   const direct =
-    tableFormatOf(file) === 'npy' && cols.every((c, i) => c === i) && cols.length === layout.width ? await openNpyFloat32Rows(file, chunkRows) : null;
+    tableFormatOf(file) === 'npy' && cols.every((c, i) => c === i) && cols.length === layout.width ? await openNpyFloat32Rows(file, chunkRows, opts) : null;
   if (direct) {
     try {
       for await (const chunk of direct.chunks()) yield { rows: chunk.rows, x: chunk.data, firstLine: chunk.firstLine };

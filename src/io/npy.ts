@@ -414,10 +414,14 @@ export interface Float32RowReader {
  * while the caller works on this one. Returns null for any other layout (another dtype, the
  * other byte order, Fortran order, 1-D, no rows), which `openNpyTable` reads value by value.
  *
+ * With `reuse`, two buffers are read into in turn, and a chunk's array is overwritten once the
+ * next chunk is asked for: for a caller done with each chunk before it takes the next (no fresh
+ * memory per chunk to fault in and collect).
+ *
  * @example const r = await openNpyFloat32Rows('x.npy', 4096); if (r) for await (const c of r.chunks()) use(c.data, c.rows);
  * @throws DataError for a file that is missing, not NPY, or holds the wrong number of bytes for its shape.
  */
-export async function openNpyFloat32Rows(path: string, chunkRows: number): Promise<Float32RowReader | null> {
+export async function openNpyFloat32Rows(path: string, chunkRows: number, opts: { reuse?: boolean } = {}): Promise<Float32RowReader | null> {
   let handle: FileHandle;
   try {
     handle = await open(path, 'r');
@@ -451,9 +455,13 @@ export async function openNpyFloat32Rows(path: string, chunkRows: number): Promi
     await handle.close();
   };
 
-  /** Rows row..row+rows-1, read into a fresh array (unzeroed memory: every byte is overwritten or the read fails). */
+  const reused = opts.reuse ? [0, 1].map(() => Buffer.allocUnsafeSlow(perChunk * rowBytes).buffer) : null;
+  let turn = 0;
+
+  /** Rows row..row+rows-1, read into a fresh array or the next reused one (unzeroed memory: every byte is overwritten or the read fails). */
   async function readRows(row: number, rows: number): Promise<{ rows: number; data: Float32Array; firstLine: number }> {
-    const bytes = new Uint8Array(Buffer.allocUnsafeSlow(rows * rowBytes).buffer, 0, rows * rowBytes);
+    const buffer = reused ? reused[turn++ % 2] : Buffer.allocUnsafeSlow(rows * rowBytes).buffer;
+    const bytes = new Uint8Array(buffer, 0, rows * rowBytes);
     const start = header.dataOffset + row * rowBytes;
     for (let done = 0; done < bytes.length;) {
       const { bytesRead: got } = await handle.read(bytes, done, bytes.length - done, start + done);

@@ -155,6 +155,20 @@ describe('NPY float32 rows read straight into the arrays handed out', () => {
     expect((await readAll(fixture('f4-2d.npy'), 4096))?.values).toEqual(Array.from({ length: 12 }, (_, i) => i / 8 - 0.5));
   });
 
+  it('with reuse, two buffers are read into in turn and each chunk still holds its own rows when it is handed out', async () => {
+    const data = Float32Array.from({ length: 10 * 3 }, (_, i) => i * 0.5);
+    const reader = await openNpyFloat32Rows(file('reuse.npy', encodeNpy(data, [10, 3])), 3, { reuse: true });
+    const seen: number[] = [];
+    const buffers: ArrayBufferLike[] = [];
+    for await (const c of reader!.chunks()) {
+      seen.push(...c.data);
+      buffers.push(c.data.buffer);
+    }
+    expect(seen).toEqual(Array.from(data));
+    expect(buffers).toHaveLength(4);
+    expect([buffers[0] === buffers[2], buffers[1] === buffers[3], buffers[0] === buffers[1]]).toEqual([true, true, false]);
+  });
+
   it.each(['f4-big-endian.npy', 'f8-2d.npy', 'f8-fortran.npy', 'f4-1d.npy', 'i4-fortran.npy'])(
     'hands %s back to the value-by-value reader (null): another byte order, dtype, memory order or rank',
     async (name) => {

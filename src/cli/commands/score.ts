@@ -53,7 +53,8 @@ export const score: Command = {
       const started = performance.now();
       let part = '';
       try {
-        let chunks = inputChunks(model.doc, input, batch);
+        // Each chunk is scored and written before the next is asked for, so the reader may reuse its buffers.
+        let chunks = inputChunks(model.doc, input, batch, { reuse: true });
         if (shard) {
           // The row count decides the ranges, so a first pass counts the rows.
           let total = 0;
