@@ -2,12 +2,14 @@
 // CSV clients mixed), then the wire comparison (bench/wire.mjs: the same load generator against
 // a bare hand-written server and tendon serve with JSON and NPY), with a hot
 // swap (a re-packed model written over the served file) and a fine-tune in the background whose
-// output is renamed over the served file when it finishes. Prints and appends to
-// bench/RESULTS.md: requests, rows, errors (must be 0), p50/p99 latency, server memory, swaps.
+// output is renamed over the served file when it finishes. Prints (and with --record appends to
+// bench/RESULTS.md): requests, rows, errors (must be 0), p50/p99 latency, server memory, swaps.
 //
 //   npm run soak                     # 60 s
 //   npm run soak -- --seconds 300 --clients 16
 //   npm run soak -- --seconds 20 --wire-seconds 3 --wire-rounds 3   (--no-wire skips the comparison)
+//   npm run soak -- --seconds 30 --workers 2 --no-wire   (batches on worker threads, bodies on parse threads)
+//   npm run soak -- --record           (append the figures to bench/RESULTS.md; without it, print only)
 //
 // Stops by itself: after --seconds, or --max-requests answers, whichever comes first; a hard
 // deadline of seconds + 120 s (plus the wire comparison's budget) ends the process whatever happens.
@@ -35,12 +37,14 @@ function option(name, fallback) {
 const SECONDS = option('seconds', 60);
 const CLIENTS = option('clients', 8);
 const MAX_REQUESTS = option('max-requests', 2_000_000);
+const WORKERS = option('workers', 1);
+const RECORD = process.argv.includes('--record');
 const hardStop = setTimeout(
   () => {
     console.error('soak: hard deadline passed; stopping');
     process.exit(1);
   },
-  (SECONDS + 120 + (process.argv.includes('--no-wire') ? 0 : option('wire-seconds', 4) * option('wire-rounds', 2) * 3 + 240)) * 1000,
+  (SECONDS + 120 + (process.argv.includes('--no-wire') ? 0 : option('wire-seconds', 4) * option('wire-rounds', 3) * 3 + 240)) * 1000,
 );
 hardStop.unref();
 
@@ -113,7 +117,7 @@ async function main() {
   const data = join(dir, 'rows.csv');
   await writeFile(data, lines.join('\n') + '\n');
 
-  const server = spawn(process.execPath, [CLI, 'serve', model, '--port', '0'], { stdio: ['ignore', 'pipe', 'pipe'] });
+  const server = spawn(process.execPath, [CLI, 'serve', model, '--port', '0', '--workers', String(WORKERS)], { stdio: ['ignore', 'pipe', 'pipe'] });
   let serverLog = '';
   server.stderr.on('data', (d) => (serverLog += d));
   const url = await new Promise((resolve, reject) => {
@@ -125,7 +129,7 @@ async function main() {
     });
     server.once('exit', (code) => reject(new Error(`tendon serve exited ${code}: ${serverLog.trim()}`)));
   });
-  console.log(`soak: ${SECONDS} s, ${CLIENTS} clients against ${url} (pid ${server.pid})`);
+  console.log(`soak: ${SECONDS} s, ${CLIENTS} clients against ${url} (pid ${server.pid}, --workers ${WORKERS})`);
 
   const started = performance.now();
   const deadline = started + SECONDS * 1000;
@@ -285,18 +289,20 @@ async function main() {
     ].join('\n'),
   );
 
-  await recordRow(
-    `| ${date} | ${machine} | ${process.version} | ${elapsed.toFixed(0)} | ${CLIENTS} | ${requests} | ${rows} | ${errors.length} | ${figures.p50.toFixed(2)} | ${figures.p99.toFixed(2)} | ${mib(figures.rssStart)} | ${mib(figures.rssWarm)} | ${mib(figures.rssEnd)} | ${mib(figures.rssPeak)} | ${swaps} | ${checksums.size} | ${tensorsStart} | ${tensorsEnd} |`,
-  );
-  console.log(`added a row to the soak table in ${RESULTS}`);
+  if (RECORD) {
+    await recordRow(
+      `| ${date} | ${machine} | ${process.version} | ${elapsed.toFixed(0)} | ${CLIENTS} | ${requests} | ${rows} | ${errors.length} | ${figures.p50.toFixed(2)} | ${figures.p99.toFixed(2)} | ${mib(figures.rssStart)} | ${mib(figures.rssWarm)} | ${mib(figures.rssEnd)} | ${mib(figures.rssPeak)} | ${swaps} | ${checksums.size} | ${tensorsStart} | ${tensorsEnd} |`,
+    );
+    console.log(`added a row to the soak table in ${RESULTS}`);
+  }
   let wireOk = true;
   if (!process.argv.includes('--no-wire')) {
-    // The wire comparison, same load generator for every server (bench/wire.mjs); it appends its own rows.
+    // The wire comparison, same load generator for every server (bench/wire.mjs); with --record it appends its own rows.
     console.log('\nwire: bare node:http server vs tendon serve (JSON, NPY), same load generator');
     wireOk = await new Promise((resolve) => {
       const child = spawn(
         process.execPath,
-        [join(HERE, 'wire.mjs'), '--seconds', String(option('wire-seconds', 4)), '--rounds', String(option('wire-rounds', 2))],
+        [join(HERE, 'wire.mjs'), '--seconds', String(option('wire-seconds', 4)), '--rounds', String(option('wire-rounds', 3)), ...(RECORD ? ['--record'] : [])],
         { stdio: 'inherit' },
       );
       child.once('exit', (code) => resolve(code === 0));

@@ -3,12 +3,16 @@
 // bodies. Rounds rotate the order, so a busy machine hurts every server alike; the ratios to
 // the bare server's JSON rows/s in the same round are the figures that count.
 //
-//   node bench/wire.mjs [--seconds 4] [--rounds 2] [--clients 8] [--rows 16] [--workers 2]
+//   node bench/wire.mjs [--seconds 4] [--rounds 3] [--clients 8] [--rows 16] [--workers 2] [--record]
+//                       [--only bare|json|npy] [--serve-args "--wait-ms 1"] [--profile DIR]
 //
-// Prints a table and appends rows to the wire table in bench/RESULTS.md. Loopback only; every
-// phase stops after --seconds, and a hard deadline ends the process whatever happens.
+// Prints a table (rows/s, ratio to the bare server, p50/p99 latency) and, with --record, appends
+// rows to the wire table in bench/RESULTS.md. --profile DIR runs the servers under node
+// --cpu-prof and leaves the profiles in DIR. Loopback only; every phase stops after --seconds,
+// and a hard deadline ends the process whatever happens.
 import { spawn, execFileSync } from 'node:child_process';
 import { Agent, request } from 'node:http';
+import { connect } from 'node:net';
 import { mkdtemp, readFile, rm, writeFile } from 'node:fs/promises';
 import { cpus, tmpdir } from 'node:os';
 import { dirname, join } from 'node:path';
@@ -30,11 +34,19 @@ function option(name, fallback) {
   return value;
 }
 const SECONDS = option('seconds', 4);
-const ROUNDS = option('rounds', 2);
+const ROUNDS = option('rounds', 3);
 const CLIENTS = option('clients', 8);
 const ROWS = option('rows', 16);
 const WORKERS = option('workers', 2);
 const INPUTS = 784;
+function text(name) {
+  const i = process.argv.indexOf(`--${name}`);
+  return i < 0 ? null : (process.argv[i + 1] ?? '');
+}
+const ONLY = text('only');
+const SERVE_ARGS = (text('serve-args') ?? '').split(/\s+/).filter(Boolean);
+const PROFILE = text('profile');
+const profiled = (args) => (PROFILE ? ['--cpu-prof', '--cpu-prof-dir', PROFILE, ...args] : args);
 const hardStop = setTimeout(
   () => {
     console.error('wire: hard deadline passed; stopping');
@@ -94,34 +106,113 @@ function send(agent, url, body, headers) {
   });
 }
 
-/** CLIENTS loops sending `body` for SECONDS; rows/s and errors. */
-async function load(url, body, headers) {
-  const agent = new Agent({ keepAlive: true, maxSockets: CLIENTS });
-  const deadline = performance.now() + SECONDS * 1000;
-  let requests = 0;
-  let errors = 0;
-  let firstError = '';
-  const started = performance.now();
-  await Promise.all(
-    Array.from({ length: CLIENTS }, async () => {
-      while (performance.now() < deadline) {
-        try {
-          const res = await send(agent, url, body, headers);
-          if (res.status === 200) requests++;
-          else {
-            errors++;
-            firstError ||= `${res.status} ${res.body.toString('utf8').slice(0, 120)}`;
-          }
-        } catch (error) {
-          errors++;
-          firstError ||= String(error);
-        }
+/**
+ * The whole request, encoded once: request line, headers and body in one buffer, so a client
+ * only writes bytes (no header objects, no agent, no per-request encoding).
+ */
+function encodeRequest(url, body, headers) {
+  const { host } = new URL(url);
+  const lines = [`POST /v1/score HTTP/1.1`, `host: ${host}`, ...Object.entries(headers).map(([k, v]) => `${k}: ${v}`), `content-length: ${body.length}`];
+  return Buffer.concat([Buffer.from(lines.join('\r\n') + '\r\n\r\n', 'latin1'), body]);
+}
+
+const HEAD_END = Buffer.from('\r\n\r\n');
+const CHUNKED_END = Buffer.from('\r\n0\r\n\r\n');
+
+/**
+ * One keep-alive connection that sends `request` again as soon as an answer is whole, until
+ * `deadline`. It reads an answer's status and length only: Content-Length, or the last chunk's
+ * marker for a chunked answer. The load generator shares the cores with the servers, so it does
+ * as little as it can per request.
+ */
+function rawClient(port, host, request, deadline, tally) {
+  return new Promise((resolve) => {
+    const socket = connect(port, host);
+    socket.setNoDelay(true);
+    let head = null; // bytes of an answer's head read so far (rarely more than one chunk)
+    let remaining = -1; // body bytes still to come; -1 while reading the head, -2 for chunked
+    let tail = Buffer.alloc(0); // the last bytes of a chunked answer
+    let status = 0;
+    let errorText = '';
+    let sentAt = 0;
+    const fire = () => {
+      sentAt = performance.now();
+      socket.write(request);
+    };
+    const answered = () => {
+      tally.latencies.push(performance.now() - sentAt);
+      if (status === 200) tally.requests++;
+      else {
+        tally.errors++;
+        tally.firstError ||= `${status} ${errorText.slice(0, 120)}`;
       }
-    }),
-  );
+      head = null;
+      remaining = -1;
+      if (performance.now() < deadline) fire();
+      else socket.end();
+    };
+    const onBody = (chunk) => {
+      if (status !== 200 && errorText.length < 120) errorText += chunk.toString('latin1');
+      if (remaining >= 0) {
+        remaining -= chunk.length;
+        if (remaining <= 0) answered();
+      } else {
+        tail = Buffer.concat([tail, chunk]).subarray(-CHUNKED_END.length);
+        if (tail.equals(CHUNKED_END)) answered();
+      }
+    };
+    socket.on('connect', fire);
+    socket.on('data', (chunk) => {
+      if (remaining !== -1) return onBody(chunk);
+      head = head ? Buffer.concat([head, chunk]) : chunk;
+      const end = head.indexOf(HEAD_END);
+      if (end < 0) return;
+      const text = head.toString('latin1', 0, end);
+      status = Number(text.slice(9, 12));
+      errorText = '';
+      const length = /\r\ncontent-length:\s*(\d+)/i.exec(text);
+      remaining = length ? Number(length[1]) : -2;
+      tail = Buffer.alloc(0);
+      const rest = head.subarray(end + HEAD_END.length);
+      if (rest.length > 0 || remaining === 0) onBody(rest);
+    });
+    socket.on('error', (error) => {
+      tally.errors++;
+      tally.firstError ||= String(error);
+    });
+    socket.on('close', resolve);
+  });
+}
+
+/** CPU seconds a process has used (user + system, every thread), from /proc; NaN elsewhere. */
+async function cpuSeconds(pid) {
+  const stat = await readFile(`/proc/${pid}/stat`, 'utf8').catch(() => '');
+  const fields = stat.slice(stat.lastIndexOf(')') + 2).split(' ');
+  return fields.length > 13 ? (Number(fields[11]) + Number(fields[12])) / 100 : NaN;
+}
+
+/** CLIENTS connections sending `body` for SECONDS; rows/s, latency quantiles and errors. */
+async function load(url, body, headers, pid) {
+  const { hostname, port } = new URL(url);
+  const cpuBefore = await cpuSeconds(pid);
+  const request = encodeRequest(url, body, headers);
+  const tally = { requests: 0, errors: 0, firstError: '', latencies: [] };
+  const started = performance.now();
+  const deadline = started + SECONDS * 1000;
+  await Promise.all(Array.from({ length: CLIENTS }, () => rawClient(Number(port), hostname, request, deadline, tally)));
   const seconds = (performance.now() - started) / 1000;
-  agent.destroy();
-  return { rowsPerSecond: (requests * ROWS) / seconds, requests, errors, firstError };
+  const cpu = (await cpuSeconds(pid)) - cpuBefore;
+  const sorted = Float64Array.from(tally.latencies).sort();
+  const quantile = (q) => sorted[Math.min(sorted.length - 1, Math.max(0, Math.ceil(q * sorted.length) - 1))] ?? NaN;
+  return {
+    rowsPerSecond: (tally.requests * ROWS) / seconds,
+    requests: tally.requests,
+    errors: tally.errors,
+    firstError: tally.firstError,
+    p50: quantile(0.5),
+    p99: quantile(0.99),
+    cpuMsPerRequest: (cpu * 1000) / tally.requests,
+  };
 }
 
 function npyBody(x, rows) {
@@ -164,9 +255,9 @@ export async function measureWire() {
   const jsonBody = Buffer.from(JSON.stringify({ rows }));
   const npy = npyBody(Float32Array.from(rows.flat()), ROWS);
 
-  const bare = startChild([join(HERE, 'bare-server.mjs'), model], /on (http:\/\/127\.0\.0\.1:\d+)/);
+  const bare = startChild(profiled([join(HERE, 'bare-server.mjs'), model]), /on (http:\/\/127\.0\.0\.1:\d+)/);
   const tendon = startChild(
-    [CLI, 'serve', model, '--port', '0', '--workers', String(WORKERS), '--batch-rows', '128', '--no-watch'],
+    profiled([CLI, 'serve', model, '--port', '0', '--workers', String(WORKERS), '--batch-rows', '128', '--no-watch', ...SERVE_ARGS]),
     /on (http:\/\/127\.0\.0\.1:\d+)/,
   );
   try {
@@ -186,18 +277,28 @@ export async function measureWire() {
       throw new Error(`answers differ: NPY ${viaNpy.length} values, JSON ${viaJson.length}, worst difference ${worst}`);
 
     const targets = [
-      { server: 'bare node:http', body: 'JSON', url: urls.bare, payload: jsonBody, headers: JSON_HEADERS },
-      { server: `tendon serve --workers ${WORKERS}`, body: 'JSON', url: urls.tendon, payload: jsonBody, headers: JSON_HEADERS },
-      { server: `tendon serve --workers ${WORKERS}`, body: 'NPY', url: urls.tendon, payload: npy, headers: NPY_HEADERS },
-    ];
+      { name: 'bare', server: 'bare node:http', body: 'JSON', pid: bare.child.pid, url: urls.bare, payload: jsonBody, headers: JSON_HEADERS },
+      {
+        name: 'json',
+        server: `tendon serve --workers ${WORKERS}`,
+        body: 'JSON',
+        pid: tendon.child.pid,
+        url: urls.tendon,
+        payload: jsonBody,
+        headers: JSON_HEADERS,
+      },
+      { name: 'npy', server: `tendon serve --workers ${WORKERS}`, body: 'NPY', pid: tendon.child.pid, url: urls.tendon, payload: npy, headers: NPY_HEADERS },
+    ].filter((t) => !ONLY || t.name === ONLY);
     const results = [];
     for (let round = 1; round <= ROUNDS; round++) {
       const order = targets.map((_, i) => targets[(i + round - 1) % targets.length]);
       const measured = new Map();
       for (const t of order) {
-        const r = await load(t.url, t.payload, t.headers);
+        const r = await load(t.url, t.payload, t.headers, t.pid);
         measured.set(t, r);
-        console.error(`  round ${round}: ${t.server} ${t.body}: ${r.rowsPerSecond.toFixed(0)} rows/s, ${r.errors} errors`);
+        console.error(
+          `  round ${round}: ${t.server} ${t.body}: ${r.rowsPerSecond.toFixed(0)} rows/s, p50 ${r.p50.toFixed(2)} ms, p99 ${r.p99.toFixed(2)} ms, server CPU ${r.cpuMsPerRequest.toFixed(2)} ms/request, ${r.errors} errors`,
+        );
       }
       const baseline = measured.get(targets[0]).rowsPerSecond;
       for (const t of targets) results.push({ round, server: t.server, body: t.body, ...measured.get(t), ratio: measured.get(t).rowsPerSecond / baseline });
@@ -245,18 +346,29 @@ if (process.argv[1] === fileURLToPath(import.meta.url)) {
     const vector = await vectorFeatures();
     const date = new Date().toISOString().slice(0, 16).replace('T', ' ');
     console.log(`answers: NPY and bare JSON within ${worst.toExponential(1)} of tendon JSON (limit 1e-6); CPU: ${vector}`);
-    console.log('round | server | body | rows/s | x bare | errors');
+    console.log('round | server | body | rows/s | x bare | p50 ms | p99 ms | server CPU ms/request | errors');
     for (const r of results)
       console.log(
-        `${r.round} | ${r.server} | ${r.body} | ${r.rowsPerSecond.toFixed(0)} | ${r.ratio.toFixed(2)} | ${r.errors}${r.firstError ? ` (${r.firstError})` : ''}`,
+        `${r.round} | ${r.server} | ${r.body} | ${r.rowsPerSecond.toFixed(0)} | ${r.ratio.toFixed(2)} | ${r.p50.toFixed(2)} | ${r.p99.toFixed(2)} | ${r.cpuMsPerRequest.toFixed(2)} | ${r.errors}${r.firstError ? ` (${r.firstError})` : ''}`,
       );
-    await recordRows(
-      results.map(
-        (r) =>
-          `| ${date} | ${machine} | ${vector} | ${process.version} | ${r.round} | ${r.server} | ${r.body} | ${CLIENTS} | ${ROWS} | ${Math.round(r.rowsPerSecond).toLocaleString('en-US')} | ${r.ratio.toFixed(2)} | ${r.errors} |`,
-      ),
-    );
-    console.log(`added ${results.length} rows to the wire table in ${RESULTS}`);
+    // Medians over the rounds: one figure per server and body.
+    const median = (values) => values.sort((a, b) => a - b)[Math.floor((values.length - 1) / 2)];
+    for (const key of [...new Set(results.map((r) => `${r.server} | ${r.body}`))]) {
+      const mine = results.filter((r) => `${r.server} | ${r.body}` === key);
+      const pick = (f) => median(mine.map(f));
+      console.log(
+        `median | ${key} | ${pick((r) => r.rowsPerSecond).toFixed(0)} rows/s | x bare ${pick((r) => r.ratio).toFixed(2)} (${mine.map((r) => r.ratio.toFixed(2)).join(', ')}) | p50 ${pick((r) => r.p50).toFixed(2)} ms | p99 ${pick((r) => r.p99).toFixed(2)} ms | server CPU ${pick((r) => r.cpuMsPerRequest).toFixed(2)} ms/request`,
+      );
+    }
+    if (process.argv.includes('--record')) {
+      await recordRows(
+        results.map(
+          (r) =>
+            `| ${date} | ${machine} | ${vector} | ${process.version} | ${r.round} | ${r.server} | ${r.body} | ${CLIENTS} | ${ROWS} | ${Math.round(r.rowsPerSecond).toLocaleString('en-US')} | ${r.ratio.toFixed(2)} | ${r.errors} |`,
+        ),
+      );
+      console.log(`added ${results.length} rows to the wire table in ${RESULTS}`);
+    }
     process.exitCode = results.every((r) => r.errors === 0) ? 0 : 1;
   } catch (error) {
     console.error(`wire: ${error.message}`);

@@ -133,7 +133,9 @@ export class TendonModel {
   }
   /** Which kernel runs the model, in words. */
   get kernel(): string {
-    return this.runner instanceof Int8Runner ? this.runner.kernel : kernelDescription(this.runner.engine);
+    if (!(this.runner instanceof Int8Runner)) return kernelDescription(this.runner.engine);
+    const ranges = this.doc.activationRanges;
+    return `${this.runner.kernel}; activations on ${ranges ? `the stored ranges (recorded on ${ranges.rows} rows)` : "each row's own range"}`;
   }
   get inputs(): number {
     return this.doc.inputs;

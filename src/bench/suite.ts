@@ -18,6 +18,7 @@ import {
   SharedMemoryRunner,
   useEngine,
   type EngineName,
+  type Int8Arith,
   type Runner,
 } from '../engine/index.js';
 import { decodeModel, encodeModel } from '../format/index.js';
@@ -29,7 +30,8 @@ import { tune } from '../train/tune.js';
 import { numpyKey, plainTfjsForward, referenceRunner, runNumpyBaseline, type NumpyResult } from './baselines.js';
 import { fmt, gflops, percentile, table, timeCalls, type Timing } from './measure.js';
 import { measureEndToEnd } from './end-to-end.js';
-import { denseStackDoc, seededRows } from './models.js';
+import { int8InnerLoopRate } from './kernel-limit.js';
+import { denseStackDoc, multiplyAddsPerRow, seededRows } from './models.js';
 
 export interface SuiteOptions {
   /** Fewer batch sizes, shorter timings, a 10 000-call leak check. */
@@ -307,6 +309,7 @@ async function measureThreads(run: SuiteRun): Promise<void> {
         note: `${kernel}; shared memory, ${c.threads} thread${c.threads > 1 ? 's' : ''}`,
       });
     }
+    noteInt8Ceiling(run, int8Arith);
   } else run.notes.push('int8 and shared-memory thread rows skipped: this runtime has no WebAssembly SIMD');
 }
 
@@ -345,6 +348,19 @@ async function measureScoreFile(run: SuiteRun): Promise<void> {
     vsNumpy: e.vsNumpy,
     note: `tendon score of a ${E2E_ROWS} x ${MID.widths[0]} float32 .npy vs numpy np.load + forward in batches of 256 + np.save; whole processes`,
   });
+}
+
+/** How close the int8 model on one thread runs to its kernel's inner loop alone (kernel-limit.ts). */
+function noteInt8Ceiling(run: SuiteRun, arith: Int8Arith): void {
+  const row = run.rows.find((r) => r.section === 'threads' && r.engine === 'int8' && r.workers === 1 && r.batch === 256);
+  if (!row) return;
+  run.opts.log('int8 inner loop on L1-resident data');
+  const ceiling = int8InnerLoopRate(arith, run.minMs);
+  const model = row.rowsPerSec * multiplyAddsPerRow(MID.widths);
+  run.notes.push(
+    `int8 kernel (${arith}): its inner loop alone on L1-resident data does ${fmt(ceiling / 1e9, 1)} G multiply-adds/s; ` +
+      `${MID.name} at batch 256 on one thread does ${fmt(model / 1e9, 1)} G/s, ${fmt((100 * model) / ceiling, 0)}% of it`,
+  );
 }
 
 /** The engine the targets are judged on: the fastest at the middle network, batch 256. */

@@ -1,14 +1,72 @@
 /**
  * Parity of the integer engine: its outputs, layer by layer, against the float64 reference on the
  * model's stored (dequantised) weights, each element held to the deviation its activation
- * quantisation carries (derived in tolerance.ts), plus the float32 tolerance.
+ * quantisation carries (derived in tolerance.ts), plus the float32 tolerance. With stored
+ * activation ranges the rounding step is the range's, and what clamping moved is carried beside
+ * the deviations as a bound of its own.
  */
-import { modelWidths, type ModelDoc } from '../model/index.js';
+import { modelWidths, type DenseLayer, type ModelDoc } from '../model/index.js';
 import { normalise64, referenceForward, toMat64 } from '../reference/index.js';
 import { topClassAgreement } from './compare.js';
 import type { Runner } from '../engine/index.js';
 import type { LayerParity, OutputParity, ParityReport } from './parity.js';
-import { FLOAT32_TOLERANCE, INT8_LIPSCHITZ, int8Allowed, int8RoundingVariance, relativeError } from './tolerance.js';
+import { FLOAT32_TOLERANCE, INT8_LIPSCHITZ, int8Allowed, int8RoundingVariance, int8StoredRange, relativeError } from './tolerance.js';
+
+/**
+ * A dense layer's output deviations (`bound`, one standard deviation per element) and clamping
+ * bound (`shift`), from what its input carried and the rounding of its input's codes: the row's
+ * own range, or the stored one (`stored`) with its clamping.
+ */
+function denseBounds(
+  layer: DenseLayer,
+  rows: number,
+  inW: number,
+  from: { input: Float64Array; carried: Float64Array; shifted: Float64Array },
+  stored: ReturnType<typeof int8StoredRange> | null,
+): { bound: Float64Array; shift: Float64Array } {
+  const outW = layer.size;
+  const lipschitz = INT8_LIPSCHITZ[layer.activation](layer.alpha);
+  const bound = new Float64Array(rows * outW);
+  const shift = new Float64Array(rows * outW);
+  for (let r = 0; r < rows; r++) {
+    const e = from.carried.subarray(r * inW, (r + 1) * inW);
+    const d = from.shifted.subarray(r * inW, (r + 1) * inW);
+    const xr = from.input.subarray(r * inW, (r + 1) * inW);
+    let maxE = 0;
+    let maxD = 0;
+    for (let k = 0; k < inW; k++) {
+      maxE = Math.max(maxE, e[k]);
+      maxD = Math.max(maxD, d[k]);
+    }
+    const rounding = stored ? stored.variance : int8RoundingVariance(xr, maxE, maxD);
+    let rowMax = 0;
+    let rowShift = 0;
+    for (let n = 0; n < outW; n++) {
+      let v = 0;
+      let moved = 0;
+      for (let k = 0; k < inW; k++) {
+        const w = layer.weight[k * outW + n];
+        v += w * w * (e[k] * e[k] + rounding);
+        moved += Math.abs(w) * (d[k] + (stored ? stored.clampError(xr[k]) : 0));
+      }
+      bound[r * outW + n] = Math.sqrt(v);
+      shift[r * outW + n] = moved;
+      rowMax = Math.max(rowMax, bound[r * outW + n]);
+      rowShift = Math.max(rowShift, moved);
+    }
+    // Softmax mixes a row: its deviation is taken from the row's largest input deviation.
+    if (layer.activation === 'softmax') {
+      bound.fill(rowMax * lipschitz, r * outW, (r + 1) * outW);
+      shift.fill(rowShift * lipschitz, r * outW, (r + 1) * outW);
+    } else {
+      for (let n = 0; n < outW; n++) {
+        bound[r * outW + n] *= lipschitz;
+        shift[r * outW + n] *= lipschitz;
+      }
+    }
+  }
+  return { bound, shift };
+}
 
 /**
  * Run the integer engine (`session`) and the reference on `x` (rows x inputs raw features).
@@ -21,40 +79,33 @@ export function int8ParityReport(doc: ModelDoc, x: Float32Array, rows: number, s
   const ref = referenceForward(doc, toMat64(x, rows, doc.inputs), { keepLayers: true });
   const refLayers = ref.layers ?? [];
   let input = normalise64(doc.normalise, toMat64(x, rows, doc.inputs)).data;
-  let carried = new Float64Array(rows * widths[0]);
+  let carried: Float64Array = new Float64Array(rows * widths[0]);
+  // A deterministic bound beside the deviations: what clamping onto stored ranges moved (0 without them).
+  let shifted: Float64Array = new Float64Array(rows * widths[0]);
   let widest = 0;
+  let denseOrdinal = 0;
   const layers: LayerParity[] = doc.layers.map((layer, i) => {
     const inW = widths[i];
     const outW = widths[i + 1];
-    let bound = new Float64Array(rows * outW);
+    let bound: Float64Array;
+    let shift: Float64Array;
     if (layer.kind === 'dense') {
-      const lipschitz = INT8_LIPSCHITZ[layer.activation](layer.alpha);
-      for (let r = 0; r < rows; r++) {
-        const e = carried.subarray(r * inW, (r + 1) * inW);
-        let maxE = 0;
-        for (let k = 0; k < inW; k++) maxE = Math.max(maxE, e[k]);
-        const rounding = int8RoundingVariance(input.subarray(r * inW, (r + 1) * inW), maxE);
-        let rowMax = 0;
-        for (let n = 0; n < outW; n++) {
-          let v = 0;
-          for (let k = 0; k < inW; k++) {
-            const w = layer.weight[k * outW + n];
-            v += w * w * (e[k] * e[k] + rounding);
-          }
-          bound[r * outW + n] = Math.sqrt(v);
-          rowMax = Math.max(rowMax, bound[r * outW + n]);
-        }
-        // Softmax mixes a row: its deviation is taken from the row's largest input deviation.
-        if (layer.activation === 'softmax') bound.fill(rowMax * lipschitz, r * outW, (r + 1) * outW);
-        else for (let n = 0; n < outW; n++) bound[r * outW + n] *= lipschitz;
-      }
+      const stored = doc.activationRanges ? int8StoredRange(doc.activationRanges.min[denseOrdinal], doc.activationRanges.max[denseOrdinal]) : null;
+      denseOrdinal++;
+      ({ bound, shift } = denseBounds(layer, rows, inW, { input, carried, shifted }, stored));
     } else if (layer.kind === 'batchnorm') {
+      bound = new Float64Array(rows * outW);
+      shift = new Float64Array(rows * outW);
       for (let r = 0; r < rows; r++) {
-        for (let c = 0; c < outW; c++)
-          bound[r * outW + c] = carried[r * inW + c] * Math.abs(layer.gamma[c] / Math.sqrt(layer.runningVariance[c] + layer.epsilon));
+        for (let c = 0; c < outW; c++) {
+          const gain = Math.abs(layer.gamma[c] / Math.sqrt(layer.runningVariance[c] + layer.epsilon));
+          bound[r * outW + c] = carried[r * inW + c] * gain;
+          shift[r * outW + c] = shifted[r * inW + c] * gain;
+        }
       }
     } else {
       bound = Float64Array.from(carried);
+      shift = Float64Array.from(shifted);
     }
     const got = engineLayers[i];
     const want = refLayers[i].data;
@@ -63,7 +114,7 @@ export function int8ParityReport(doc: ModelDoc, x: Float32Array, rows: number, s
     let worst = -1;
     let worstRatio = -1;
     for (let j = 0; j < want.length; j++) {
-      const allowed = int8Allowed(bound[j], want[j]);
+      const allowed = int8Allowed(bound[j], want[j]) + shift[j];
       widest = Math.max(widest, allowed);
       const diff = Math.abs(got[j] - want[j]);
       const ratio = Number.isNaN(got[j]) !== Number.isNaN(want[j]) ? Infinity : Number.isNaN(diff) ? 0 : diff / allowed;
@@ -75,6 +126,7 @@ export function int8ParityReport(doc: ModelDoc, x: Float32Array, rows: number, s
       }
     }
     carried = bound;
+    shifted = shift;
     input = want;
     return {
       index: i,

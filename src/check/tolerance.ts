@@ -17,6 +17,7 @@
  * Measured (js engine, 256 seeded rows, every activation, batchnorm and dropout mixed in, widths up
  * to 784-512-512-10): the largest absolute error was 3.4e-6, about 30 times inside `abs`.
  */
+import { CODE_MAX, fixedQuantParams } from '../engine/index.js';
 import type { ActivationName } from '../model/index.js';
 
 export interface Tolerance {
@@ -52,7 +53,7 @@ export function withinTolerance(a: number, b: number, tol: Tolerance = FLOAT32_T
 /**
  * The integer engine against the float64 reference on the same stored (dequantised) weights.
  * Its one approximation is the per-row quantisation of each dense layer's input: a row whose
- * values span [min(0, min x), max(0, max x)] is rounded to codes with step s = span / 127, an
+ * values span [min(0, min x), max(0, max x)] is rounded to codes with step s = span / CODE_MAX, an
  * error of at most s / 2 per value. Treating those roundings as independent and uniform on
  * [-s/2, s/2] (variance s^2 / 12; common practice for rounding noise), output n of a dense layer
  * carries a standard deviation of
@@ -83,16 +84,40 @@ export const INT8_LIPSCHITZ: Readonly<Record<ActivationName, (alpha: number) => 
   softmax: () => 0.5,
 };
 
-/** Variance of one row's activation rounding, s^2 / 12, its span widened by 2 · INT8_SIGMAS · `carriedSigma`. */
-export function int8RoundingVariance(row: ArrayLike<number>, carriedSigma: number): number {
+/**
+ * Variance of one row's activation rounding, s^2 / 12, its span widened by 2 · INT8_SIGMAS ·
+ * `carriedSigma` and by twice `carriedShift` (a bound from clamping upstream).
+ */
+export function int8RoundingVariance(row: ArrayLike<number>, carriedSigma: number, carriedShift = 0): number {
   let lo = 0;
   let hi = 0;
   for (let i = 0; i < row.length; i++) {
     lo = Math.min(lo, row[i]);
     hi = Math.max(hi, row[i]);
   }
-  const step = (hi - lo + 2 * INT8_SIGMAS * carriedSigma) / 127;
+  const step = (hi - lo + 2 * INT8_SIGMAS * carriedSigma + 2 * carriedShift) / CODE_MAX;
   return (step * step) / 12;
+}
+
+/**
+ * A stored activation range (shrink --calibrate) as the check sees it: every row is rounded with
+ * the range's one step s (variance s^2 / 12, as above), and a value beyond the ends the codes
+ * 0..CODE_MAX reach is clamped to the nearer end. That clamp is not noise but a known move of the
+ * input, |x - clamp(x)|; the check carries it forward as a bound of its own, Σ_k |w_kn| · move_k
+ * per output (through a layer's Lipschitz constant, as the deviations), added to the allowance.
+ * Clamping moves a value no further than the distance it already had, so a deviation carried
+ * from earlier layers does not grow by passing through it.
+ */
+export function int8StoredRange(min: number, max: number): { variance: number; clampError: (x: number) => number } {
+  // The engine's own scale and zero point; the ends the codes reach are codes 0 and CODE_MAX around
+  // the zero point (within half a step of the range's ends).
+  const { scale: step, zero } = fixedQuantParams(min, max);
+  const bottom = -zero * step;
+  const top = (CODE_MAX - zero) * step;
+  return {
+    variance: (step * step) / 12,
+    clampError: (x) => Math.max(0, x - top, bottom - x),
+  };
 }
 
 /** Largest allowed |engine - reference| for one element carrying deviation `sigma`. */

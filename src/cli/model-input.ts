@@ -30,12 +30,17 @@ export function inputColumns(doc: ModelDoc, table: Pick<TableReader, 'columns' |
   }
   if (named.length !== doc.inputs) {
     const unnamed = table.width - named.length;
-    throw new DataError(
+    const error = new DataError(
       file,
       1,
       0,
       `has ${named.length} columns${unnamed > 0 ? ` (besides ${unnamed} unnamed)` : ''}, but the model takes ${doc.inputs} inputs${doc.features ? ` (${doc.features.join(', ')})` : ''}`,
     );
+    // Without feature names a model reads columns by position, so it cannot tell a target or an
+    // id column from its inputs.
+    if (!doc.features && table.columns)
+      error.withHint('the model has no feature names: remove the other columns, or give it names (a spec\'s "features", or tune it on this header)');
+    throw error;
   }
   return named;
 }
@@ -100,6 +105,29 @@ export async function* inputChunks(
   } finally {
     await table.close();
   }
+}
+
+/**
+ * The first `maxRows` rows of a data file as model inputs, in one float32 array (rows x inputs).
+ * @throws DataError for a bad cell or columns that do not fit the model; and when the file has no rows.
+ */
+export async function readInputRows(doc: ModelDoc, file: string, maxRows: number): Promise<{ x: Float32Array; rows: number }> {
+  const parts: Float32Array[] = [];
+  let rows = 0;
+  for await (const chunk of inputChunks(doc, file, 4096)) {
+    const take = Math.min(chunk.rows, maxRows - rows);
+    parts.push(chunk.x.subarray(0, take * doc.inputs));
+    rows += take;
+    if (rows >= maxRows) break;
+  }
+  if (rows === 0) throw new DataError(file, 0, 0, 'has no rows');
+  const x = new Float32Array(rows * doc.inputs);
+  let at = 0;
+  for (const p of parts) {
+    x.set(p, at);
+    at += p.length;
+  }
+  return { x, rows };
 }
 
 /** Output column names: the model's labels, else output_0, output_1, ... */

@@ -39,9 +39,12 @@ import {
   CODE_BYTES,
   columnSums,
   denseInt8Function,
+  fixedQuantBytes,
+  fixedQuantParams,
   MAX_INT8_INPUTS,
   packInt8Weights,
   quantiseFunction,
+  type FixedQuant,
   type Int8Arith,
 } from './int8/kernels.js';
 import { ThreadTeam, type Share } from './threads.js';
@@ -119,7 +122,7 @@ export class SharedMemoryRunner {
       opts.arith === 'f32' ? denseFunction(fused) : denseInt8Function(opts.arith),
       affineFunction('affine', 'scale-shift'),
       affineFunction('normalise', 'shift-scale'),
-      ...(opts.arith !== 'f32' ? [quantiseFunction(opts.arith)] : []),
+      ...(opts.arith !== 'f32' ? [quantiseFunction(opts.arith), quantiseFunction(opts.arith, 'fixed')] : []),
     ];
     const { segments, passes, out } = emitSegments(steps, buffers, this.inP, opts.arith);
     this.passes = passes;
@@ -177,13 +180,18 @@ export class SharedMemoryRunner {
     for (let start = 0; start < rows; start += this.chunkRows) {
       const n = Math.min(this.chunkRows, rows - start);
       // The one copy of the rows: into the shared input region (padding columns stay zero).
-      if (this.inP === f) mem.set(data.subarray(start * f, (start + n) * f), xAt);
-      else for (let r = 0; r < n; r++) mem.set(data.subarray((start + r) * f, (start + r + 1) * f), xAt + r * this.inP);
+      const copy = (row0: number, count: number): void => {
+        if (this.inP === f) mem.set(data.subarray((start + row0) * f, (start + row0 + count) * f), xAt + row0 * f);
+        else for (let r = row0; r < row0 + count; r++) mem.set(data.subarray((start + r) * f, (start + r + 1) * f), xAt + r * this.inP);
+      };
       // One split per chunk: every segment, pass and the output copy agree on where rows live.
       const shares: readonly Share[] = this.team ? this.team.split(n) : [{ row0: 0, rows: n }];
+      // The helpers' rows first; the caller copies its own after waking them, while they start.
+      for (const share of shares.slice(1)) copy(share.row0, share.rows);
       this.segmentFns.forEach((segment, s) => {
-        if (this.team) this.team.run(s, shares, segment);
-        else segment(0, n);
+        const own = s === 0 ? (row0: number, count: number) => (copy(row0, count), segment(row0, count)) : segment;
+        if (this.team) this.team.run(s, shares, own);
+        else own(0, n);
         const pass = this.passes[s];
         if (pass) for (const share of shares) activate(mem, pass, share);
       });
@@ -243,6 +251,8 @@ type Step =
       b: number;
       cs: number;
       ws: number;
+      /** Address of the stored range's (scale, 1/scale, zero), or -1 for each row's own range. */
+      range: number;
       activation: ActivationName;
       alpha: number;
     }
@@ -274,8 +284,12 @@ function planSteps(
   let width = inP;
   let maxWidth = width;
   const problems: { where: string; message: string }[] = [];
+  let denseOrdinal = 0;
   doc.layers.forEach((layer, index) => {
     if (layer.kind === 'dense') {
+      const ranges = doc.activationRanges;
+      const range = ranges ? fixedQuantParams(ranges.min[denseOrdinal], ranges.max[denseOrdinal]) : null;
+      denseOrdinal++;
       const realIn = widths[index];
       if (arith === 'f32') steps.push(denseF32Step(layer, realIn, width, constants));
       else {
@@ -286,7 +300,7 @@ function planSteps(
           });
           return;
         }
-        steps.push(denseInt8Step(layer, realIn, width, arith, constants, codes));
+        steps.push(denseInt8Step(layer, realIn, width, arith, constants, codes, range));
       }
       width = padded(layer.size);
       maxWidth = Math.max(maxWidth, width);
@@ -329,13 +343,22 @@ function denseF32Step(layer: DenseLayer, realIn: number, width: number, constant
     b: placeBias(layer, outP, constants),
     cs: -1,
     ws: -1,
+    range: -1,
     activation: layer.activation,
     alpha: layer.alpha,
   };
 }
 
 /** An integer dense step: the stored codes, else the layer quantised the way `shrink` does. */
-function denseInt8Step(layer: DenseLayer, realIn: number, width: number, arith: Int8Arith, constants: ConstantLayout, codes: CodesOrigin[]): Step {
+function denseInt8Step(
+  layer: DenseLayer,
+  realIn: number,
+  width: number,
+  arith: Int8Arith,
+  constants: ConstantLayout,
+  codes: CodesOrigin[],
+  range: FixedQuant | null,
+): Step {
   const outP = padded(layer.size);
   const stored = storedCodesOf(layer.weight, realIn, layer.size);
   const m: Int8Matrix = stored ?? quantiseColumns(layer.weight, realIn, layer.size);
@@ -354,6 +377,7 @@ function denseInt8Step(layer: DenseLayer, realIn: number, width: number, arith: 
     b: placeBias(layer, outP, constants),
     cs: constants.place(new Uint8Array(sums.buffer)),
     ws: constants.place(f32Bytes(ws)),
+    range: range ? constants.place(fixedQuantBytes(range)) : -1,
     activation: layer.activation,
     alpha: layer.alpha,
   };
@@ -396,7 +420,8 @@ function layoutBuffers(top: number, chunk: number, inP: number, maxWidth: number
 const DENSE = 0,
   AFFINE = 1,
   NORMALISE = 2,
-  QUANTISE = 3;
+  QUANTISE = 3,
+  QUANTISE_FIXED = 4;
 const ROW0 = 0,
   ROWS = 1;
 
@@ -480,7 +505,9 @@ function emitDenseInt8Call(c: Code, step: DenseStep, to: number, buffers: Buffer
     .get(ROWS)
     .i32(step.k);
   regionAddr(c, qAt, qRegion).i32(qStride);
-  rowAddr(c, pAt, 8).call(QUANTISE);
+  rowAddr(c, pAt, 8);
+  if (step.range >= 0) c.i32(step.range).call(QUANTISE_FIXED);
+  else c.call(QUANTISE);
   regionAddr(c, qAt, qRegion).i32(qStride);
   rowAddr(c, pAt, 8).i32(step.w).i32(step.cs).i32(step.ws).i32(step.b);
   regionAddr(c, to, region)

@@ -7,10 +7,30 @@
  * nothing from the model layer.
  */
 import type { Problem } from '../errors.js';
-import { BATCHNORM_RULES, DROPOUT_RATE_RULE, activationByCode, activationNames, activationKind } from '../model/index.js';
+import { BATCHNORM_RULES, DROPOUT_RATE_RULE, activationByCode, activationNames, activationKind, activationRangeProblems } from '../model/index.js';
 import { LAYER_KINDS } from '../model/types.js';
-import type { BatchNormLayer, DenseLayer, Layer, ModelDoc, ModelMeta, Normalisation, Provenance, StorageCodec, TargetScaling } from '../model/types.js';
-import { type RawBatchNorm, type RawDense, type RawLayer, type RawMinMax, type RawModel, type RawTargetScaling, type RawZScore } from './payload.js';
+import type {
+  ActivationRanges,
+  BatchNormLayer,
+  DenseLayer,
+  Layer,
+  ModelDoc,
+  ModelMeta,
+  Normalisation,
+  Provenance,
+  StorageCodec,
+  TargetScaling,
+} from '../model/types.js';
+import {
+  type RawBatchNorm,
+  type RawDense,
+  type RawLayer,
+  type RawMinMax,
+  type RawModel,
+  type RawActivationRanges,
+  type RawTargetScaling,
+  type RawZScore,
+} from './payload.js';
 import { decodeTensor, formatShape, type DecodedTensor } from './tensor.js';
 
 /** The width flowing into the next layer and where it came from, for messages. */
@@ -221,6 +241,19 @@ function checkTargetScaling(raw: RawTargetScaling, outputs: number | null, probl
 }
 
 /**
+ * Stored int8 activation ranges: one finite pair per dense layer, min <= max; the rule is the
+ * model's (model/activation-ranges.ts), so a file and a document in memory are held to one rule.
+ * Layers that failed their own checks are counted by the kind the file declares.
+ */
+function checkActivationRanges(raw: RawActivationRanges, layers: (Layer | null)[], problems: Problem[]): ActivationRanges | null {
+  const ranges: ActivationRanges = { min: Float64Array.from(raw.min), max: Float64Array.from(raw.max), rows: raw.rows };
+  if (layers.some((l) => l === null)) return null;
+  const found = activationRangeProblems({ layers: layers as Layer[], activationRanges: ranges });
+  problems.push(...found);
+  return found.length > 0 ? null : ranges;
+}
+
+/**
  * Turn a decoded payload into a ModelDoc. Returns the document only when no problem was found;
  * `problems` lists every problem.
  */
@@ -247,6 +280,7 @@ export function checkPayload(raw: RawModel): { doc: ModelDoc | null; problems: P
   }
 
   const targetScaling = raw.target_scaling ? checkTargetScaling(raw.target_scaling, width.value, problems) : null;
+  const activationRanges = raw.activation_ranges ? checkActivationRanges(raw.activation_ranges, layers, problems) : null;
 
   const provenance: Provenance[] = raw.lineage.map((step, i) => {
     if (!/^[0-9a-f]{8}$/.test(step.checksum)) {
@@ -283,6 +317,7 @@ export function checkPayload(raw: RawModel): { doc: ModelDoc | null; problems: P
       // The storage a file was written with is that of its dense weights (all share one).
       storage: codecs[0] ?? 'f32',
       ...(temperature !== 0 ? { temperature } : {}),
+      ...(activationRanges ? { activationRanges } : {}),
     },
     problems,
   };

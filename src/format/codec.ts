@@ -6,11 +6,11 @@
  * precision (f32 / float64): they are small, and rounding them shifts every output.
  */
 import { ModelFileError, type Problem } from '../errors.js';
-import { activationKind, isActivationName } from '../model/index.js';
+import { activationKind, activationRangeProblems, isActivationName } from '../model/index.js';
 import type { Layer, ModelDoc, StorageCodec } from '../model/types.js';
 import { checkPayload } from './check.js';
 import { crcHex } from './crc32.js';
-import { FORMAT_VERSION, frame, openFrame, type FormatVersion } from './header.js';
+import { frame, openFrame, type FormatVersion } from './header.js';
 import { decodePayload, encodePayload, type RawLayer, type RawModel, type RawTensor } from './payload.js';
 import { encodeTensor } from './tensor.js';
 
@@ -88,6 +88,11 @@ export function toPayload(doc: ModelDoc, problems: Problem[]): RawModel {
     problems.push({ where: 'temperature', message: `must be a finite number > 0, got ${doc.temperature}` });
   }
   if (doc.targetScaling) raw.target_scaling = { mean: Array.from(doc.targetScaling.mean), std: Array.from(doc.targetScaling.std) };
+  if (doc.activationRanges) {
+    const r = doc.activationRanges;
+    raw.activation_ranges = { min: Array.from(r.min), max: Array.from(r.max), rows: r.rows };
+    problems.push(...activationRangeProblems(doc));
+  }
   const norm = doc.normalise;
   if (norm?.method === 'zscore') {
     raw.zscore = { mean: orEmpty(norm.mean), std: orEmpty(norm.std), m2: orEmpty(norm.m2), count: norm.count };
@@ -113,9 +118,15 @@ export function encodeModel(doc: ModelDoc, label = '(model being written)'): Uin
   return frame(encodePayload(raw), versionFor(raw));
 }
 
-/** The lowest version that holds the payload (FORMAT.md, section 6): 1.1 only with a temperature or a target scaling. */
-function versionFor(raw: RawModel): FormatVersion {
-  return raw.temperature !== 0 || raw.target_scaling ? FORMAT_VERSION : { major: 1, minor: 0 };
+/**
+ * The lowest version that holds the payload (FORMAT.md, section 6). A target scaling makes it
+ * 2.0: a 1.x reader would skip that field and answer in scaled units, so it must refuse the
+ * file instead. Fields a reader may skip and still answer correctly raise only the minor.
+ */
+export function versionFor(raw: RawModel): FormatVersion {
+  if (raw.target_scaling) return { major: 2, minor: 0 };
+  if (raw.activation_ranges) return { major: 1, minor: 2 };
+  return { major: 1, minor: raw.temperature !== 0 ? 1 : 0 };
 }
 
 export interface DecodedModel {

@@ -19,10 +19,15 @@ export interface FormatVersion {
 }
 
 /**
- * The newest version this code writes (1.1 added the calibration temperature and target
- * scaling); a file is written with the lowest version that holds it. It reads any 1.x.
+ * The newest version this code writes; a file is written with the lowest version that holds it
+ * (codec.ts `versionFor`): 1.0, 1.1 with a calibration temperature, 1.2 with int8 activation
+ * ranges, 2.0 with a regression target scaling (a field a 1.x reader would skip and then answer
+ * in scaled units). It reads any 1.x and 2.x.
  */
-export const FORMAT_VERSION: FormatVersion = { major: 1, minor: 1 };
+export const FORMAT_VERSION: FormatVersion = { major: 2, minor: 0 };
+
+/** The oldest major version this code reads. */
+export const OLDEST_MAJOR = 1;
 
 export interface FileHeader {
   readonly version: FormatVersion;
@@ -87,8 +92,8 @@ export function openFrame(bytes: Uint8Array): { header: FileHeader; payload: Uin
       message: `file format version ${major}.${minor} is newer than this reader's ${mine}; open it with a newer tendon`,
     };
   }
-  if (major < FORMAT_VERSION.major) {
-    return { where: 'header', message: `file format version ${major}.${minor} is older than any this reader (${mine}) supports` };
+  if (major < OLDEST_MAJOR) {
+    return { where: 'header', message: `file format version ${major}.${minor} is older than any this reader (${OLDEST_MAJOR}.0 to ${mine}) supports` };
   }
   const actual = bytes.length - HEADER_BYTES;
   if (header.payloadLength !== actual) {

@@ -85,6 +85,12 @@ export interface RawTargetScaling {
   std: number[];
 }
 
+export interface RawActivationRanges {
+  min: number[];
+  max: number[];
+  rows: number;
+}
+
 export interface RawModel {
   inputs: number;
   feature_names: string[];
@@ -97,8 +103,10 @@ export interface RawModel {
   lineage: RawLineage[];
   /** 0 = no temperature (since 1.1). */
   temperature: number;
-  /** Since 1.1; null (or absent) when the file has none. */
+  /** Null (or absent) when the file has none; a file that sets it is written as 2.0. */
   target_scaling?: RawTargetScaling | null;
+  /** Since 1.2; null (or absent) when the file has none. */
+  activation_ranges?: RawActivationRanges | null;
 }
 
 let payloadType: protobuf.Type | null = null;

@@ -5,6 +5,7 @@
 import { layerKind } from './layers/catalogue.js';
 import type { ModelDoc } from './types.js';
 import { modelWidths } from './validate.js';
+import { denseLayerIndices } from './activation-ranges.js';
 
 export interface ModelFacts {
   file: { path: string; bytes: number; checksum: string; formatVersion: string } | null;
@@ -20,6 +21,8 @@ export interface ModelFacts {
   normalise: { method: string; fitted: boolean; rowsSeen: number } | null;
   /** Regression targets scaled inside the model: answer = last layer's output x std + mean. */
   targetScaling: { mean: number[]; std: number[] } | null;
+  /** The int8 engine's stored input range of each dense layer (`shrink --calibrate`), or null. */
+  activationRanges: { rows: number; layers: { layer: number; min: number; max: number }[] } | null;
   storage: string;
   parameters: number;
   layers: {
@@ -78,6 +81,12 @@ export function modelFacts(doc: ModelDoc, file: { path: string; checksum: string
     temperature: doc.temperature ?? null,
     normalise: norm ? { method: norm.method, fitted: norm.method === 'zscore' ? norm.mean !== null : norm.min !== null, rowsSeen: norm.count } : null,
     targetScaling: doc.targetScaling ? { mean: Array.from(doc.targetScaling.mean), std: Array.from(doc.targetScaling.std) } : null,
+    activationRanges: doc.activationRanges
+      ? {
+          rows: doc.activationRanges.rows,
+          layers: denseLayerIndices(doc.layers).map((layer, d) => ({ layer, min: doc.activationRanges!.min[d], max: doc.activationRanges!.max[d] })),
+        }
+      : null,
     storage: doc.storage,
     parameters: layers.reduce((n, l) => n + l.parameters, 0),
     layers,

@@ -82,6 +82,20 @@ export interface TargetScaling {
   readonly std: Float64Array;
 }
 
+/**
+ * The input range of each dense layer, in order, recorded by running the float model on real
+ * rows (`shrink --calibrate`). The int8 engine quantises a dense layer's input onto its stored
+ * range, clamping values outside it, instead of each row's own range (activation-ranges.ts).
+ */
+export interface ActivationRanges {
+  /** One per dense layer: the smallest value seen at its input. */
+  readonly min: Float64Array;
+  /** One per dense layer, >= min. */
+  readonly max: Float64Array;
+  /** Rows the ranges were recorded on. */
+  readonly rows: number;
+}
+
 export interface Provenance {
   /** CRC-32 of the parent file's payload, as 8 lowercase hex digits. */
   checksum: string;
@@ -121,6 +135,8 @@ export interface ModelDoc {
    * divided by T before its softmax or sigmoid. Absent (or 1) means none; see temperature.ts.
    */
   temperature?: number;
+  /** Absent or null: the int8 engine takes each row's own range (activation-ranges.ts). */
+  activationRanges?: ActivationRanges | null;
 }
 
 /** A named float32 tensor of a layer, e.g. layers[0].weight [4, 16]. */

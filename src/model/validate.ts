@@ -3,6 +3,7 @@ import { ModelFileError, type Problem } from '../errors.js';
 import { isLayerKindName, layerKind } from './layers/catalogue.js';
 import { finiteProblems, isPositiveInt } from './layers/checks.js';
 import { temperatureProblems } from './temperature.js';
+import { activationRangeProblems } from './activation-ranges.js';
 import { targetScalingProblems } from './target-scaling.js';
 import type { ModelDoc } from './types.js';
 
@@ -46,7 +47,7 @@ export function modelProblems(doc: ModelDoc): Problem[] {
     problems.push({ where: 'labels', message: `has ${doc.labels.length} names, expected one per output (${width})` });
   }
   problems.push(...temperatureProblems(doc));
-  if (problems.every((p) => !p.where.startsWith('layers'))) problems.push(...targetScalingProblems(doc));
+  if (problems.every((p) => !p.where.startsWith('layers'))) problems.push(...targetScalingProblems(doc), ...activationRangeProblems(doc));
   return problems;
 }
 

@@ -94,9 +94,10 @@ export class MicroBatcher {
 
   /**
    * Queue one request of one or more whole rows; resolves with its rows of output, in order.
-   * A request longer than `maxBatchRows` runs as a batch of its own.
+   * A request longer than `maxBatchRows` runs as a batch of its own. With `owned`, the caller
+   * gives a Float32Array up (it will not touch it again), so it is queued without a copy.
    */
-  submit(row: Float32Array | readonly number[]): Promise<Float32Array> {
+  submit(row: Float32Array | readonly number[], options: { readonly owned?: boolean } = {}): Promise<Float32Array> {
     if (this.closed) return Promise.reject(new RuntimeFailure('micro-batcher is closed; no new requests are taken'));
     const length = row.length;
     if (length === 0 || length % this.width !== 0) {
@@ -106,8 +107,8 @@ export class MicroBatcher {
     if (this.queuedRowCount + rows > this.maxQueueRows) {
       return Promise.reject(new BusyError(this.queuedRowCount, rows, this.maxQueueRows));
     }
-    // Copy now: the caller may reuse its array as soon as submit returns.
-    const data = Float32Array.from(row);
+    // Copy now, unless given up: the caller may reuse its array as soon as submit returns.
+    const data = options.owned && row instanceof Float32Array ? row : Float32Array.from(row);
     return new Promise<Float32Array>((resolve, reject) => {
       this.queue.push({ data, rows, resolve, reject, queuedAt: performance.now() });
       this.queuedRowCount += rows;
@@ -176,11 +177,14 @@ export class MicroBatcher {
     this.inFlight++;
     let rows = 0;
     for (const p of batch) rows += p.rows;
-    const x = new Float32Array(rows * this.width);
-    let offset = 0;
-    for (const p of batch) {
-      x.set(p.data, offset);
-      offset += p.data.length;
+    // A lone request runs on its own array: the runner only reads it.
+    const x = batch.length === 1 ? batch[0]!.data : new Float32Array(rows * this.width);
+    if (batch.length > 1) {
+      let offset = 0;
+      for (const p of batch) {
+        x.set(p.data, offset);
+        offset += p.data.length;
+      }
     }
     // A synchronous throw from the runner becomes a rejection like any other failure.
     new Promise<Float32Array>((resolve) => resolve(this.runBatch(x, rows)))

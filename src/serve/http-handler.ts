@@ -19,7 +19,7 @@ import { encodeNpyAnswer } from './http-npy.js';
 import { parseRequestBody } from './http-parse.js';
 import { HttpProblem } from './http-problem.js';
 import { METHODS, ROUTES, pathOf, printablePath, send, sendJson } from './http-routes.js';
-import { GENERATIONS_KEPT, outputNames, scoreAnswer, slotBatcher, splitGeneration, type Generation, type ModelBatchRunner } from './http-score.js';
+import { GENERATIONS_KEPT, outputNames, scoreAnswerText, slotBatcher, splitGeneration, type Generation, type ModelBatchRunner } from './http-score.js';
 import { ParsePool, parseWorkerScript } from './parse-pool.js';
 import { PooledRunner, workerCount, type WorkerCount } from './http-pool.js';
 import { METRICS_CONTENT_TYPE, ServiceCounters } from './metrics.js';
@@ -159,7 +159,8 @@ function handlerState(options: RequestHandlerOptions): HandlerState {
   const size = workerCount(options.workers);
   if (size > 1 && options.runBatch)
     throw new RuntimeFailure(`createRequestHandler: runBatch cannot be combined with workers = ${size}; the workers run the batches`);
-  const pools = size > 1 ? new PooledRunner({ size, workerScript: options.workerScript, log }) : null;
+  const minShareRows = options.batcher?.maxBatchRows ?? 64;
+  const pools = size > 1 ? new PooledRunner({ size, workerScript: options.workerScript, minShareRows, log }) : null;
   // With worker threads, JSON and CSV bodies are parsed on threads of their own too.
   const parseScript = size > 1 ? parseWorkerScript(options.parseWorkerScript, options.workerScript) : null;
   if (size > 1 && !parseScript) log('tendon serve: no parse-worker.js beside the worker script; request bodies are parsed on the main thread');
@@ -194,7 +195,7 @@ function rememberModel(state: HandlerState, model: TendonModel, generation: numb
   generations.delete(generation - GENERATIONS_KEPT);
   counters.model = { checksum: model.checksum ?? 'none', inputs: model.inputs, outputs: model.outputs, source: model.source ?? '(document)' };
   state.drift = options.drift === false ? null : DriftMonitor.forModel(model.doc, { k: options.drift?.k });
-  counters.drift = state.drift?.report() ?? null;
+  counters.driftFrom(() => state.drift?.report() ?? null);
 }
 
 /** The worker pools take the model first; a model the handler owns is released if they fail. */
@@ -254,10 +255,12 @@ async function score(state: HandlerState, req: IncomingMessage): Promise<ScoreRe
   const bytes = await readBody(req, state.bodyLimit);
   const shape = { inputs: model.inputs, features: model.features, maxRows: state.maxRows };
   // NPY is a copy of bytes either way; text formats go to the parse threads when there are some.
-  const { rows, x } = parsers && format !== 'npy' ? await parsers.parse(format, bytes, shape) : parseRequestBody(format, bytes, shape);
+  // The body is this request's own buffer, so the parse thread may take it without a copy.
+  const { rows, x } = parsers && format !== 'npy' ? await parsers.parse(format, bytes, shape, { owned: true }) : parseRequestBody(format, bytes, shape);
   let y: Float32Array;
   try {
-    y = await batcher.submit(x);
+    // x is this request's own array (parsed or a view of its body), so the batcher need not copy it.
+    y = await batcher.submit(x, { owned: true });
   } catch (error) {
     if (error instanceof BusyError) throw new HttpProblem(503, error.message, { 'retry-after': retryAfter });
     throw error;
@@ -265,18 +268,13 @@ async function score(state: HandlerState, req: IncomingMessage): Promise<ScoreRe
   const generation = y[y.length / rows - 1]!;
   // Drift counts rows scored by the model now served, not by one swapped out meanwhile.
   const drift = state.drift;
-  if (drift && generation === slot.generation) {
-    drift.add(x, rows);
-    state.counters.drift = drift.report();
-  }
+  if (drift && generation === slot.generation) drift.add(x, rows);
   return scoreReply(state.generations, y, rows, answerFormat, generation);
 }
 
 /** The scored rows in the answer format asked for. */
 function scoreReply(generations: Map<number, Generation>, y: Float32Array, rows: number, answerFormat: BodyFormat, generation: number): ScoreReply {
-  if (answerFormat === 'json') {
-    return { rows, body: JSON.stringify(scoreAnswer(y, rows, generations).body) + '\n', type: `${BODY_TYPES.json}; charset=utf-8`, headers: {} };
-  }
+  if (answerFormat === 'json') return { rows, body: scoreAnswerText(y, rows, generations), type: `${BODY_TYPES.json}; charset=utf-8`, headers: {} };
   const split = splitGeneration(y, rows);
   const facts = generations.get(generation);
   // The answer has no room for the model's checksum in its body, so it rides in a header.
@@ -371,8 +369,12 @@ function handleRequest(state: HandlerState, req: IncomingMessage, res: ServerRes
     if (path === null) throw new HttpProblem(404, `no route ${printablePath(req.url ?? '')}`);
     // Probes stay open, so an orchestrator needs no secret to see the process is up.
     const open = !options.authorize || path === ROUTES.alive || path === ROUTES.ready;
-    const allowed = open ? Promise.resolve(true) : Promise.resolve().then(() => options.authorize!(req));
-    allowed
+    if (open) {
+      route(state, req, res, path).then((r) => finish(r.status, r.rows), fail);
+      return;
+    }
+    Promise.resolve()
+      .then(() => options.authorize!(req))
       .then(
         (ok) => {
           if (!ok) throw new HttpProblem(401, 'a valid bearer token is required (Authorization: Bearer TOKEN)', { 'www-authenticate': bearerChallenge(req) });

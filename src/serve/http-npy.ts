@@ -1,8 +1,9 @@
 /**
  * NPY score bodies (NumPy NEP 1): a 2-D float32 or float64 array [rows, inputs], C order,
- * little-endian, read into the model's float32 rows; the answer is a float32 [rows, outputs]
- * array. Every refusal names what is wrong; nothing is allocated before the header's shape has
- * been checked against the model, the row limit and the bytes the body really carries.
+ * little-endian, read into the model's float32 rows (a float32 body on a 4-byte boundary is
+ * viewed in place, not copied); the answer is a float32 [rows, outputs] array. Every refusal
+ * names what is wrong; nothing is allocated before the header's shape has been checked against
+ * the model, the row limit and the bytes the body really carries.
  */
 import { endianness } from 'node:os';
 import { DataError } from '../errors.js';
@@ -61,11 +62,16 @@ export function parseNpyBody(bytes: Uint8Array, shape: ScoreShape): { rows: numb
   if (carried !== declared) {
     throw bad(`NPY header declares ${shapeText(dims)} of '${descr}', ${declared} data bytes, but the body carries ${carried}`);
   }
-  const x = new Float32Array(rows * width);
   const data = head.subarray(dataOffset);
-  if (item === 4 && LITTLE_ENDIAN_HOST) {
+  let x: Float32Array;
+  if (item === 4 && LITTLE_ENDIAN_HOST && data.byteOffset % 4 === 0) {
+    // The body's own bytes, viewed in place: no copy (the body is this request's alone).
+    x = new Float32Array(data.buffer, data.byteOffset, rows * width);
+  } else if (item === 4 && LITTLE_ENDIAN_HOST) {
+    x = new Float32Array(rows * width);
     new Uint8Array(x.buffer).set(data);
   } else {
+    x = new Float32Array(rows * width);
     const view = new DataView(data.buffer, data.byteOffset, data.byteLength);
     // Float32Array stores with IEEE round-to-nearest-even, as Math.fround does.
     for (let i = 0; i < x.length; i++) x[i] = item === 4 ? view.getFloat32(i * 4, true) : view.getFloat64(i * 8, true);

@@ -30,6 +30,12 @@ export interface PooledRunnerOptions {
   readonly size: number;
   /** The built worker script (dist/worker.js); default: the one beside the pool module. */
   readonly workerScript?: string | URL;
+  /**
+   * A batch is split across workers only into shares of at least this many rows. The handler
+   * passes its largest batch, so each batch goes whole to one worker (one message each way) while
+   * the batcher keeps every worker busy with batches of their own; a longer request is still split.
+   */
+  readonly minShareRows?: number;
   /** One line when a batch fails in the pool. */
   readonly log: (line: string) => void;
 }
@@ -58,6 +64,7 @@ export class PooledRunner {
       engine: model.engine,
       workerScript: this.options.workerScript,
       source: model.source ?? '(document)',
+      minShareRows: this.options.minShareRows,
     });
     this.pools.set(model, pool);
   }

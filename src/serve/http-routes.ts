@@ -27,6 +27,9 @@ export const METHODS: Record<string, 'GET' | 'POST'> = {
 /** The route path below `prefix`, or null when the URL is outside it or unreadable. */
 export function pathOf(url: string | undefined, prefix: string): string | null {
   if (!url) return null;
+  // A route spelled exactly (the common case) needs no URL parsing: it has nothing to normalise.
+  const exact = !prefix ? url : url.startsWith(prefix + '/') ? url.slice(prefix.length) : null;
+  if (exact !== null && Object.hasOwn(METHODS, exact)) return exact;
   let pathname: string;
   try {
     pathname = new URL(url, 'http://endpoint.invalid').pathname;

@@ -30,6 +30,78 @@ const ROWS_KEY = [0x22, 0x72, 0x6f, 0x77, 0x73, 0x22];
 const POWERS_OF_TEN = Array.from({ length: 23 }, (_, i) => Number(`1e${i}`));
 const EXACT_MANTISSA = 2 ** 53;
 
+/** The first byte at or after `at` that is not JSON white space. */
+function skipSpace(bytes: Uint8Array, at: number, end: number): number {
+  while (at < end) {
+    const b = bytes[at]!;
+    if (b !== SPACE && b !== LF && b !== CR && b !== TAB) return at;
+    at++;
+  }
+  return at;
+}
+
+/** Where the number parsed last ended (numberAt's second result; one module-level slot, no allocation). */
+let numberEnd = 0;
+
+/**
+ * The JSON number starting at `at` as a float64 (NaN when the bytes there are not one), its end
+ * in `numberEnd`. The grammar is RFC 8259's: -?(0|[1-9][0-9]*)(\.[0-9]+)?([eE][+-]?[0-9]+)?
+ */
+function numberAt(bytes: Uint8Array, at: number, end: number): number {
+  const start = at;
+  let b = at < end ? bytes[at]! : 0;
+  const negative = b === MINUS;
+  if (negative) b = ++at < end ? bytes[at]! : 0;
+  let mantissa = 0;
+  let digits = 0;
+  if (b === ZERO) {
+    b = ++at < end ? bytes[at]! : 0;
+  } else if (b > ZERO && b <= NINE) {
+    // (b - ZERO) >>> 0 <= 9 is one comparison for "a digit" (a byte below '0' wraps around).
+    let d = b - ZERO;
+    do {
+      mantissa = mantissa * 10 + d;
+      digits++;
+      d = (++at < end ? bytes[at]! : 0) - ZERO;
+    } while (d >>> 0 <= 9);
+    b = d + ZERO;
+  } else {
+    return NaN;
+  }
+  let scale = 0;
+  if (b === DOT) {
+    const fractionStart = ++at;
+    let d = (at < end ? bytes[at]! : 0) - ZERO;
+    while (d >>> 0 <= 9) {
+      mantissa = mantissa * 10 + d;
+      d = (++at < end ? bytes[at]! : 0) - ZERO;
+    }
+    b = d + ZERO;
+    if (at === fractionStart) return NaN;
+    digits += at - fractionStart;
+    scale = fractionStart - at;
+  }
+  if (b === LOWER_E || b === UPPER_E) {
+    b = ++at < end ? bytes[at]! : 0;
+    if (b === PLUS || b === MINUS) b = ++at < end ? bytes[at]! : 0;
+    const exponentStart = at;
+    while (b >= ZERO && b <= NINE) b = ++at < end ? bytes[at]! : 0;
+    if (at === exponentStart) return NaN;
+    numberEnd = at;
+    // An exponent: Number on the text (its grammar already checked) rounds it correctly.
+    return Number(latin1(bytes, start, at));
+  }
+  numberEnd = at;
+  // Clinger's fast path: an exact integer mantissa times or over an exact power of ten is one
+  // correctly rounded operation, the same double JSON.parse gives. Anything longer goes through
+  // Number on the text.
+  if (digits <= 15 && mantissa < EXACT_MANTISSA && scale >= -22) {
+    const value = scale === 0 ? mantissa : mantissa / POWERS_OF_TEN[-scale]!;
+    return negative ? -value : value;
+  }
+  return Number(latin1(bytes, start, at));
+}
+
 /**
  * Rows x inputs float32 values, or null when the body is not plain number rows of the right
  * width within `maxRows` (the general parser then answers).
@@ -37,31 +109,23 @@ const EXACT_MANTISSA = 2 ** 53;
  */
 export function parseNumberRows(bytes: Uint8Array, inputs: number, maxRows: number): { rows: number; x: Float32Array } | null {
   const end = bytes.length;
-  let at = 0;
-  const skip = (): void => {
-    while (at < end) {
-      const b = bytes[at]!;
-      if (b !== SPACE && b !== LF && b !== CR && b !== TAB) return;
-      at++;
-    }
-  };
-  const take = (b: number): boolean => {
-    skip();
-    if (bytes[at] !== b) return false;
-    at++;
-    return true;
-  };
-
-  if (!take(OPEN_OBJECT)) return null;
-  skip();
+  let at = skipSpace(bytes, 0, end);
+  if (bytes[at] !== OPEN_OBJECT) return null;
+  at = skipSpace(bytes, at + 1, end);
   for (const b of ROWS_KEY) if (bytes[at++] !== b) return null;
-  if (!take(COLON) || !take(OPEN_ARRAY)) return null;
+  at = skipSpace(bytes, at, end);
+  if (bytes[at] !== COLON) return null;
+  at = skipSpace(bytes, at + 1, end);
+  if (bytes[at] !== OPEN_ARRAY) return null;
+  at++;
 
   // Grows by doubling, never past maxRows rows: the body limit already bounds the bytes.
   let x = new Float32Array(Math.min(maxRows, 64) * inputs);
   let rows = 0;
   for (;;) {
-    if (!take(OPEN_ARRAY)) return null;
+    at = skipSpace(bytes, at, end);
+    if (bytes[at] !== OPEN_ARRAY) return null;
+    at++;
     if (rows === maxRows) return null;
     if ((rows + 1) * inputs > x.length) {
       const grown = new Float32Array(Math.min(maxRows, rows * 2) * inputs);
@@ -70,67 +134,27 @@ export function parseNumberRows(bytes: Uint8Array, inputs: number, maxRows: numb
     }
     const base = rows * inputs;
     for (let c = 0; c < inputs; c++) {
-      if (c > 0 && !take(COMMA)) return null;
-      skip();
-      // The number's grammar is RFC 8259's: -?(0|[1-9][0-9]*)(\.[0-9]+)?([eE][+-]?[0-9]+)?
-      const start = at;
-      let negative = false;
-      if (bytes[at] === MINUS) {
-        negative = true;
-        at++;
-      }
-      let mantissa = 0;
-      let digits = 0;
-      let scale = 0;
-      const first = bytes[at];
-      if (first === ZERO) {
-        at++;
-      } else if (first !== undefined && first > ZERO && first <= NINE) {
-        while (at < end && bytes[at]! >= ZERO && bytes[at]! <= NINE) {
-          mantissa = mantissa * 10 + (bytes[at]! - ZERO);
-          digits++;
-          at++;
+      if (c > 0) {
+        // The common separator is a bare comma; white space around it takes the slower way.
+        if (bytes[at] !== COMMA) {
+          at = skipSpace(bytes, at, end);
+          if (bytes[at] !== COMMA) return null;
         }
-      } else {
-        return null;
-      }
-      if (bytes[at] === DOT) {
         at++;
-        const fractionStart = at;
-        while (at < end && bytes[at]! >= ZERO && bytes[at]! <= NINE) {
-          mantissa = mantissa * 10 + (bytes[at]! - ZERO);
-          digits++;
-          at++;
-        }
-        if (at === fractionStart) return null;
-        scale = fractionStart - at;
       }
-      let exponentGiven = false;
-      if (bytes[at] === LOWER_E || bytes[at] === UPPER_E) {
-        exponentGiven = true;
-        at++;
-        if (bytes[at] === PLUS || bytes[at] === MINUS) at++;
-        const exponentStart = at;
-        while (at < end && bytes[at]! >= ZERO && bytes[at]! <= NINE) at++;
-        if (at === exponentStart) return null;
-      }
-      let value: number;
-      // Clinger's fast path: an exact integer mantissa times or over an exact power of ten is
-      // one correctly rounded operation, the same double JSON.parse gives. Anything longer or
-      // with an exponent goes through Number on the text (its grammar already checked).
-      if (!exponentGiven && mantissa < EXACT_MANTISSA && digits <= 15 && scale >= -22) {
-        value = scale === 0 ? mantissa : mantissa / POWERS_OF_TEN[-scale]!;
-        if (negative) value = -value;
-      } else {
-        value = Number(latin1(bytes, start, at));
-      }
-      const f = Math.fround(value);
-      if (f - f !== 0) return null; // NaN or an infinity: the general parser says which value
+      let b = bytes[at];
+      if (b === SPACE || b === LF || b === CR || b === TAB) at = skipSpace(bytes, at, end);
+      const f = Math.fround(numberAt(bytes, at, end));
+      // NaN (not a number here) or an infinity: the general parser says which value.
+      if (f - f !== 0) return null;
       x[base + c] = f;
+      at = numberEnd;
+      b = bytes[at];
     }
-    if (!take(CLOSE_ARRAY)) return null;
+    at = skipSpace(bytes, at, end);
+    if (bytes[at] !== CLOSE_ARRAY) return null;
     rows++;
-    skip();
+    at = skipSpace(bytes, at + 1, end);
     if (bytes[at] === COMMA) {
       at++;
       continue;
@@ -141,9 +165,9 @@ export function parseNumberRows(bytes: Uint8Array, inputs: number, maxRows: numb
     }
     return null;
   }
-  if (!take(CLOSE_OBJECT)) return null;
-  skip();
-  if (at !== end) return null;
+  at = skipSpace(bytes, at, end);
+  if (bytes[at] !== CLOSE_OBJECT) return null;
+  if (skipSpace(bytes, at + 1, end) !== end) return null;
   return { rows, x: rows * inputs === x.length ? x : x.slice(0, rows * inputs) };
 }
 

@@ -95,3 +95,38 @@ export function scoreAnswer(
   }
   return { generation, body };
 }
+
+/**
+ * `JSON.stringify(scoreAnswer(y, rows, generations).body) + '\n'`, the same text character for
+ * character, written straight from the float32 outputs: no array per row and no generic
+ * serialiser walking them. A number is spelled as JSON.stringify spells it (`String` of the
+ * double; null when not finite).
+ * @example scoreAnswerText(Float32Array.of(0.25, 0.75, 1), 1, generations) // '{"model":"1a2b3c4d","outputs":[[0.25,0.75]],"top":[1]}\n'
+ */
+export function scoreAnswerText(y: Float32Array, rows: number, generations: ReadonlyMap<number, Generation>): string {
+  const stride = y.length / rows;
+  const width = stride - 1;
+  const facts = generations.get(y[width]!) ?? { checksum: null, labels: null };
+  const top = width > 1 ? new Array<number>(rows) : null;
+  let text = `{"model":${JSON.stringify(facts.checksum)},"outputs":[`;
+  for (let r = 0; r < rows; r++) {
+    const at = r * stride;
+    let best = 0;
+    text += r === 0 ? '[' : ',[';
+    for (let j = 0; j < width; j++) {
+      const v = y[at + j]!;
+      text += (j === 0 ? '' : ',') + (v - v === 0 ? String(v) : 'null');
+      if (v > y[at + best]!) best = j;
+    }
+    text += ']';
+    if (top) top[r] = best;
+  }
+  text += ']';
+  if (top) text += `,"top":[${top.join(',')}]`;
+  const labels = facts.labels;
+  if (labels) {
+    text += `,"labels":${JSON.stringify(labels)}`;
+    if (top) text += `,"topLabel":${JSON.stringify(top.map((i) => labels[i]))}`;
+  }
+  return text + '}\n';
+}

@@ -35,7 +35,23 @@ export class ServiceCounters {
   private swaps = 0;
   private refusedSwaps = 0;
   model: ModelInfo | null = null;
-  drift: DriftReport | null = null;
+  private driftReport: DriftReport | null = null;
+  private driftSource: (() => DriftReport | null) | null = null;
+
+  /** The drift report the counters show: as set, or read from the source given to `driftFrom` when asked. */
+  get drift(): DriftReport | null {
+    return this.driftSource ? this.driftSource() : this.driftReport;
+  }
+
+  set drift(report: DriftReport | null) {
+    this.driftSource = null;
+    this.driftReport = report;
+  }
+
+  /** Read the drift report from `source` only when it is asked for (a report per request would cost every request). */
+  driftFrom(source: () => DriftReport | null): void {
+    this.driftSource = source;
+  }
 
   /** Count one answered request; `seconds` from the first byte read to the last byte written. */
   request(route: string, status: number, seconds: number, rows = 0): void {

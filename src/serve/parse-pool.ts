@@ -57,14 +57,19 @@ export class ParsePool {
     for (let i = 0; i < size; i++) this.threads.push(this.start());
   }
 
-  /** Parse one body on the least busy thread; rejects with the parser's HttpProblem. */
-  parse(format: BodyFormat, bytes: Uint8Array, shape: ScoreShape): Promise<{ rows: number; x: Float32Array }> {
+  /**
+   * Parse one body on the least busy thread; rejects with the parser's HttpProblem. With `owned`
+   * the caller gives `bytes` up, and a buffer that is wholly the body's moves to the thread uncopied.
+   */
+  parse(format: BodyFormat, bytes: Uint8Array, shape: ScoreShape, options: { readonly owned?: boolean } = {}): Promise<{ rows: number; x: Float32Array }> {
     if (this.closing) return Promise.reject(new RuntimeFailure('parse pool is closed'));
     if (this.threads.length === 0) return Promise.reject(new RuntimeFailure(`no parse thread could start: ${this.startFailure ?? 'unknown cause'}`));
     let thread = this.threads[0]!;
     for (const t of this.threads) if (t.waiting.size < thread.waiting.size) thread = t;
-    // A copy the thread may own: Node pools small buffers, and transferring one would detach others.
-    const body = new Uint8Array(bytes).buffer;
+    // A copy the thread may own, unless the bytes are given up and fill their buffer: Node pools
+    // small buffers, and transferring a shared one would detach the others.
+    const whole = options.owned && bytes.byteOffset === 0 && bytes.byteLength === bytes.buffer.byteLength && bytes.buffer instanceof ArrayBuffer;
+    const body = whole ? (bytes.buffer as ArrayBuffer) : new Uint8Array(bytes).buffer;
     const id = this.nextId++;
     const message: ParseRequest = { id, format, shape: { inputs: shape.inputs, features: shape.features, maxRows: shape.maxRows }, body };
     return new Promise((resolve, reject) => {

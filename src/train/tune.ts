@@ -71,6 +71,8 @@ export async function tune(doc: ModelDoc, data: TuneData, options: TuneRunOption
   const work = cloneDoc(doc);
   const parentTemperature = work.temperature ?? null;
   delete work.temperature;
+  // Int8 activation ranges describe the old weights (and normalisation): a run changes both.
+  delete work.activationRanges;
   const freshOutput = outputLayerEmpty(work);
   initialiseEmpty(work, rng.init);
   validateModel(work, work.meta.name || '(model)');

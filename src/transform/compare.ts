@@ -39,6 +39,25 @@ export function compareOutputs(
   if (parent.inputs !== candidate.inputs) throw new ShapeError('candidate inputs', [parent.inputs], [candidate.inputs], 'compare with parent');
   if (outParent !== outCandidate) throw new ShapeError('candidate outputs', [outParent], [outCandidate], 'compare with parent');
   const a = referenceForward(candidate, toMat64(x, rows, candidate.inputs)).y.data;
+  return compareWithParent(parent, a, x, rows, tolerance);
+}
+
+/**
+ * Outputs `candidate` (rows x outputs, from any path: the reference, or an engine such as int8)
+ * against `parent` run on the float64 reference path over the same rows `x`.
+ * @example compareWithParent(parent, int8Runner.run(x, rows), x, rows, SHRINK_TOLERANCE.i8).topClassAgreement
+ * @throws ShapeError when the candidate does not hold rows x the parent's outputs.
+ */
+export function compareWithParent(
+  parent: ModelDoc,
+  candidate: ArrayLike<number>,
+  x: Float32Array,
+  rows: number,
+  tolerance: Tolerance = FLOAT32_TOLERANCE,
+): OutputComparison {
+  const outParent = modelWidths(parent).at(-1)!;
+  if (candidate.length !== rows * outParent) throw new ShapeError('candidate outputs', [rows, outParent], [candidate.length], 'compare with parent');
+  const a = candidate;
   const b = referenceForward(parent, toMat64(x, rows, parent.inputs)).y.data;
   const d = compareMatrices(a, b, outParent, tolerance);
   return {

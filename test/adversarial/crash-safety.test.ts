@@ -207,16 +207,18 @@ describe('SIGKILL during tendon tune', () => {
     expect(code).toBe(0);
     const duration = performance.now() - started;
 
-    // Kills are placed so that both outcomes occur: trials 0-6 at seeded moments, one in each
-    // seventh of the full run (the first lands before any save); trial 7 as soon as the tuned
-    // model has replaced the old one, while the process is still finishing.
+    // Kills are placed so that both outcomes occur whatever the machine's load: trial 0 as soon
+    // as the process exists (long before Node has even loaded the CLI, so before any save);
+    // trials 1-6 at seeded moments, one in each seventh of the full run; trial 7 as soon as the
+    // tuned model has replaced the old one, while the process is still finishing.
     const killRandom = seededRandom(0x7a11);
     const oldSum = checksumOf(old);
     const outcomes = { old: 0, tuned: 0 };
     for (let trial = 0; trial < 8; trial++) {
       await writeFile(out, old);
       const child = spawn(process.execPath, args, { stdio: 'ignore' });
-      if (trial < 7) await sleep(((trial + killRandom()) / 7) * duration);
+      if (trial === 0) await new Promise((r) => child.once('spawn', r));
+      else if (trial < 7) await sleep(((trial + killRandom()) / 7) * duration);
       else await untilReplaced(out, oldSum, child);
       await killAndWait(child);
       const { checksum, temps } = await inspect(dir, 'tuned.tendon', ['input.tendon', 'rows.csv', 'tuned.tendon']);

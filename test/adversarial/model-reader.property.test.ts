@@ -431,3 +431,61 @@ describe('crafted payloads with a correct CRC', () => {
     expect(new DataView(framed.buffer).getUint32(12, true)).toBe(crc32(Uint8Array.of(1, 2, 3)));
   });
 });
+
+describe('int8 activation ranges (field 11) with a correct CRC', () => {
+  // everyKindDoc has 7 dense layers (layers 0, 3, 4, 5, 6, 7, 8).
+  const DENSE = [0, 3, 4, 5, 6, 7, 8];
+  const finiteArb = fc.double({ min: -1e6, max: 1e6, noNaN: true });
+  const pairArb = fc.tuple(finiteArb, finiteArb).map(([a, b]) => (a <= b ? [a, b] : [b, a]));
+  /** Valid ranges, then one kind of damage (or none): a bound made non-finite, a pair inverted, one pair too few or too many. */
+  const rangesArb = fc
+    .tuple(
+      fc.array(pairArb, { minLength: DENSE.length, maxLength: DENSE.length }),
+      fc.constantFrom('none', 'non-finite', 'inverted', 'fewer', 'more'),
+      fc.nat({ max: DENSE.length - 1 }),
+      fc.constantFrom(Number.NaN, Number.POSITIVE_INFINITY, Number.NEGATIVE_INFINITY),
+      fc.boolean(),
+      fc.nat(),
+    )
+    .map(([pairs, damage, at, bad, onMin, rows]) => {
+      const min = pairs.map((p) => p[0]);
+      const max = pairs.map((p) => p[1]);
+      if (damage === 'non-finite') (onMin ? min : max)[at] = bad;
+      if (damage === 'inverted') [min[at], max[at]] = [max[at] + 1, min[at]];
+      if (damage === 'fewer') (onMin ? min : max).pop();
+      if (damage === 'more') (onMin ? min : max).push(0);
+      return { min, max, rows };
+    });
+
+  it('any ranges: refused naming the layer (or the count) unless one finite min <= max per dense layer, and then they decode as written', () => {
+    let refused = 0;
+    let decoded = 0;
+    fc.assert(
+      fc.property(storageArb, rangesArb, (storage, ranges) => {
+        const raw = rawOf(everyKindDoc({ storage }));
+        raw.activation_ranges = ranges;
+        const verdict = decodeHostile(reframe(encodePayload(raw)), 'ranges.tdn');
+        const countOk = ranges.min.length === DENSE.length && ranges.max.length === DENSE.length;
+        const badAt = countOk ? ranges.min.findIndex((lo, i) => !(Number.isFinite(lo) && Number.isFinite(ranges.max[i]) && lo <= ranges.max[i])) : -1;
+        if (!countOk || badAt >= 0) {
+          expect(verdict.kind).toBe('refused');
+          if (verdict.kind === 'refused') {
+            const problem = verdict.error.problems.find((p) => p.where === 'activation_ranges');
+            expect(problem?.message).toContain(countOk ? `layers[${DENSE[badAt]}] (dense)` : 'one per dense layer');
+          }
+          refused++;
+        } else {
+          expect(verdict.kind).toBe('decoded');
+          if (verdict.kind === 'decoded') {
+            expect(Array.from(verdict.doc.activationRanges!.min)).toEqual(ranges.min);
+            expect(Array.from(verdict.doc.activationRanges!.max)).toEqual(ranges.max);
+          }
+          decoded++;
+        }
+      }),
+      { seed: 0x7e0d0f, numRuns: 400 },
+    );
+    expect(refused).toBeGreaterThan(0);
+    expect(decoded).toBeGreaterThan(0);
+  });
+});

@@ -146,10 +146,12 @@ describe('versions (Protocol Buffers proto3: unknown fields are skipped)', () =>
 
   it('a newer major version is refused, naming both versions', () => {
     const payload = encodeModel(tinyDoc()).subarray(HEADER_BYTES);
-    const problems = problemsOf(() => decodeModel(frame(payload, { major: 2, minor: 1 }), 'future.tdn'));
+    const problems = problemsOf(() => decodeModel(frame(payload, { major: 3, minor: 1 }), 'future.tdn'));
     expect(problems).toHaveLength(1);
-    expect(problems[0].message).toContain('2.1');
-    expect(problems[0].message).toContain('1.1'); // this reader's version (1.1 added the calibration temperature)
+    expect(problems[0].where).toBe('header');
+    expect(problems[0].message).toContain('3.1');
+    expect(problems[0].message).toContain('2.0'); // this reader's version (2.0: target scaling must not be skipped)
+    expect(problems[0].message).toContain('newer');
   });
 });
 

@@ -208,7 +208,7 @@ describe('refusals', () => {
       error = e;
     }
     expect(error).toBeInstanceOf(ModelFileError);
-    expect((error as ModelFileError).message).toMatch(/layers\[0\] \(dense\): 132097 inputs .* more than the int8 engine accepts \(132096\)/);
+    expect((error as ModelFileError).message).toMatch(/layers\[0\] \(dense\): 266305 inputs .* more than the int8 engine accepts \(266304\)/);
   });
   // Zero, negative, NaN and infinite scales in a file: test/format/codec.test.ts (refused at open, by layer and tensor).
 });

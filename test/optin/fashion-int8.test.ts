@@ -3,8 +3,9 @@
  * 784-256-128-10 ReLU network trained in float32 on Fashion-MNIST (Xiao, Rasul, Vollgraf 2017,
  * arXiv:1708.07747, the package's IDX files), stored as i8 and run on the integer engine: on the
  * 10 000 test images it may lose at most 0.3 points of accuracy against its float32 parent and
- * must agree with the parent's top class on at least 99.5% of them. Minutes of training, so it
- * stays out of CI.
+ * must agree with the parent's top class on at least 99.5% of them. Then the same i8 model with
+ * stored activation ranges (calibrated on 10 000 training images) against per-row ranges:
+ * accuracy, agreement and rows per second, printed. Minutes of training, so it stays out of CI.
  */
 import { existsSync } from 'node:fs';
 import { describe, expect, it } from 'vitest';
@@ -13,6 +14,7 @@ import { Int8Runner, SimdRunner, useEngine } from '../../src/engine/index.js';
 import { readIdx } from '../../src/io/index.js';
 import { buildFromSpec } from '../../src/spec/spec.js';
 import { tune } from '../../src/train/tune.js';
+import { recordActivationRanges, withActivationRanges } from '../../src/transform/calibrate.js';
 import { shrinkModel } from '../../src/transform/shrink.js';
 
 const DIR = process.env.FASHION_MNIST_DIR ?? '/usr/share/datasets/fashion-mnist';
@@ -66,5 +68,31 @@ describe.skipIf(!wanted)('Fashion-MNIST on the int8 engine (opt-in: TENDON_FASHI
     expect(a32).toBeGreaterThanOrEqual(0.85);
     expect(a32 - a8).toBeLessThanOrEqual(0.003);
     expect(agree).toBeGreaterThanOrEqual(0.995);
+
+    // Stored activation ranges (shrink --calibrate) against per-row ranges: the same i8 model,
+    // calibrated on the first 10 000 training images, on the 10 000 test images.
+    const shrunk = shrinkModel(trained.doc, 'i8');
+    const calRows = 10_000;
+    const calibrated = withActivationRanges(shrunk, recordActivationRanges(shrunk, Float32Array.from(xi.data.subarray(0, calRows * 784)), calRows)!);
+    const measured: Record<string, { accuracy: number; agree: number; rowsPerSecond: number }> = {};
+    for (const [name, doc] of [
+      ['per row', shrunk],
+      ['stored ranges', calibrated],
+    ] as const) {
+      const runner = new Int8Runner(doc, { threads: 1 });
+      const out = runner.run(x, rows);
+      // Speed: best of 5 passes over the test images at the engine's default chunk (256 rows).
+      let best = Infinity;
+      for (let pass = 0; pass < 5; pass++) {
+        const t0 = performance.now();
+        runner.run(x, rows);
+        best = Math.min(best, performance.now() - t0);
+      }
+      runner.dispose();
+      measured[name] = { accuracy: accuracy(out, labels, 10), agree: topClassAgreement(out, parent, rows, 10), rowsPerSecond: rows / (best / 1000) };
+    }
+    console.log(`Fashion-MNIST int8, one thread, float32 parent ${(100 * a32).toFixed(2)}%: ${JSON.stringify(measured)}`);
+    expect(a32 - measured['stored ranges'].accuracy).toBeLessThanOrEqual(0.01);
+    expect(measured['stored ranges'].agree).toBeGreaterThanOrEqual(0.98);
   }, 1_800_000);
 });

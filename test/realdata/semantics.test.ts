@@ -153,7 +153,7 @@ describe('real files through tune, score, about and shrink (python3-sklearn data
     );
     expect(tuned.code, tuned.err).toBe(0);
     const saved = await readModelFile(model);
-    expect(saved.version).toEqual({ major: 1, minor: 1 });
+    expect(saved.version).toEqual({ major: 2, minor: 0 });
     const targets = train.map((r) => Number(r[10]));
     const mean = targets.reduce((a, b) => a + b, 0) / targets.length;
     expect(saved.doc.targetScaling!.mean[0]).toBeCloseTo(mean, 6);
@@ -238,6 +238,27 @@ describe('real files through tune, score, about and shrink (python3-sklearn data
     const drift = await runCli('score', model, '--input', moved, '--output', join(dir, 'cancer-moved.csv'), '--drift');
     expect(drift.code).toBe(0);
     expect(drift.err).toMatch(/1 feature has drifted \(mean texture\)/);
+  });
+
+  it('breast cancer (Street, Wolberg and Mangasarian 1993): a packed model without feature names learns them from the header when tuned, so it scores a file that still holds the diagnosis column', async () => {
+    const data = breastCancer();
+    const csv = writeCsv(dir, 'cancer-packed.csv', data);
+    const spec = writeSpec('cancer-packed.json', specOf(30, [16], 2, 'softmax', ['malignant', 'benign']));
+    const packed = join(dir, 'cancer-packed.tendon');
+    const pack = await runCli('pack', spec, '-o', packed, '--seed', '3');
+    expect(pack.code, pack.err).toBe(0);
+    // Before tuning: no names, so the extra column is refused with a hint that says what to do.
+    const refused = await runCli('score', packed, '--input', csv, '--output', join(dir, 'cancer-refused.csv'));
+    expect(refused.code).toBe(2);
+    expect(refused.err).toMatch(/has 31 columns, but the model takes 30 inputs.*no feature names: remove the other columns/);
+    expect(refused.err.trim().split('\n')).toHaveLength(1);
+    const model = join(dir, 'cancer-named.tendon');
+    const tuned = await runCli('tune', packed, '--data', csv, '--target', 'diagnosis', '-o', model, '--epochs', '5');
+    expect(tuned.code, tuned.err).toBe(0);
+    expect((await readModelFile(model)).doc.features).toEqual(data.header.slice(0, 30));
+    const scored = await runCli('score', model, '--input', csv, '--output', join(dir, 'cancer-named-scores.csv'));
+    expect(scored.code, scored.err).toBe(0);
+    expect(readOutputs(join(dir, 'cancer-named-scores.csv')).rows).toHaveLength(data.rows.length);
   });
 
   it('wine (Forina et al., UCI): the JSONL log and the text log name the same best epoch, counted from 1', async () => {

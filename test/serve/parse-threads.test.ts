@@ -9,6 +9,7 @@ import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { BAKERY_FEATURES, bakeryDoc } from '../fixtures/models.js';
 import { writeModelFile } from '../../src/format/index.js';
+import { decodeNpy, encodeNpy } from '../../src/io/index.js';
 import { startServer, type RunningServer } from '../../src/serve/http.js';
 import { ParsePool } from '../../src/serve/parse-pool.js';
 import { parseWorkerScript, workerScript } from '../throughput/worker-script.js';
@@ -49,6 +50,46 @@ describe('parse threads', () => {
     const [a, b] = await Promise.all([send(threaded), send(single)]);
     expect(a.status).toBe(b.status);
     expect(await a.text()).toBe(await b.text());
+  });
+
+  it('JSON, CSV and NPY requests at once, batched together on the threads: JSON answers as without threads, NPY and CSV within 1e-6 of them', async () => {
+    // Long spellings (sevenths) make the JSON bodies pass 4 KiB, so they move to the parse threads uncopied.
+    const rowsOf = (i: number) => Array.from({ length: 40 }, (_, r) => loaf(i + r).map((v) => v + 1 / 7));
+    const post = (s: RunningServer, type: string, body: string | Uint8Array, accept = 'application/json') =>
+      fetch(`${s.url}/v1/score`, { method: 'POST', headers: { 'content-type': type, accept }, body });
+    const outputsOf = async (res: Response, kind: string): Promise<number[][]> => {
+      expect(res.status).toBe(200);
+      if (kind === 'npy') {
+        const { shape, data } = decodeNpy('answer', Buffer.from(await res.arrayBuffer()));
+        return Array.from({ length: shape[0]! }, (_, r) => Array.from(data.subarray(r * shape[1]!, (r + 1) * shape[1]!)));
+      }
+      if (kind === 'csv')
+        return (await res.text())
+          .trim()
+          .split('\n')
+          .slice(1)
+          .map((line) => line.split(',').map(Number));
+      return ((await res.json()) as { outputs: number[][] }).outputs;
+    };
+    const kinds = ['json', 'npy', 'csv'] as const;
+    const sent = Array.from({ length: 12 }, (_, i) => {
+      const rows = rowsOf(i);
+      const kind = kinds[i % 3]!;
+      const body = JSON.stringify({ rows });
+      expect(body.length).toBeGreaterThan(4096);
+      if (kind === 'npy')
+        return { kind, rows, res: post(threaded, 'application/x-npy', encodeNpy(Float32Array.from(rows.flat()), [40, 7]), 'application/x-npy') };
+      if (kind === 'csv') return { kind, rows, res: post(threaded, 'text/csv', rows.map((r) => r.join(',')).join('\n'), 'text/csv') };
+      return { kind, rows, res: post(threaded, 'application/json', body) };
+    });
+    for (const { kind, rows, res } of sent) {
+      const expected = await post(single, 'application/json', JSON.stringify({ rows }));
+      const want = ((await expected.json()) as { outputs: number[][] }).outputs;
+      const got = await outputsOf(await res, kind);
+      expect(got.length).toBe(40);
+      // CSV spells float32 values in their shortest form; JSON and NPY carry them whole.
+      got.forEach((row, r) => row.forEach((v, c) => expect(Math.abs(v - want[r]![c]!)).toBeLessThanOrEqual(kind === 'json' ? 0 : 1e-6)));
+    }
   });
 
   it('a parse thread that dies fails the request it held; the pool replaces it and parses on', async () => {

@@ -169,3 +169,51 @@ describe('MicroBatcher', () => {
     await batcher.close();
   });
 });
+
+describe('MicroBatcher without copies', () => {
+  it('runs a lone owned request on the array it was given, and copies a request that is not given up', async () => {
+    const seen: Float32Array[] = [];
+    const batcher = new MicroBatcher(
+      (x, rows) => {
+        seen.push(x);
+        return new Float32Array(rows).fill(x[0]!);
+      },
+      { width: 2, maxWaitMs: 0 },
+    );
+    const owned = Float32Array.of(1, 2);
+    expect(Array.from(await batcher.submit(owned, { owned: true }))).toEqual([1]);
+    expect(seen[0]).toBe(owned);
+
+    // Not owned: the caller may change its array as soon as submit returns; the batch keeps the old values.
+    const lent = Float32Array.of(3, 4);
+    const answer = batcher.submit(lent);
+    lent[0] = 99;
+    expect(Array.from(await answer)).toEqual([3]);
+    expect(seen[1]).not.toBe(lent);
+    await batcher.close();
+  });
+
+  it('gathers owned requests into one batch in order, each answered with its own rows', async () => {
+    const runner = recordingRunner(2);
+    const batcher = new MicroBatcher(runner.run, { width: 2, maxBatchRows: 8, maxWaitMs: 50 });
+    const answers = await Promise.all([
+      batcher.submit(Float32Array.of(1, 2), { owned: true }),
+      batcher.submit(Float32Array.of(3, 4, 5, 6), { owned: true }),
+      batcher.submit(Float32Array.of(7, 8), { owned: true }),
+    ]);
+    expect(runner.batches).toEqual([
+      [
+        [1, 2],
+        [3, 4],
+        [5, 6],
+        [7, 8],
+      ],
+    ]);
+    expect(answers.map((a) => Array.from(a))).toEqual([
+      [3, 10],
+      [7, 30, 11, 50],
+      [15, 70],
+    ]);
+    await batcher.close();
+  });
+});

@@ -1,7 +1,7 @@
 /**
  * Regression targets scaled inside the model (src/model/target-scaling.ts): the stored mean and
  * standard deviation are folded into the last dense layer wherever a model runs, the file keeps
- * them (format 1.1, field 10), and tune fits, keeps or attaches them.
+ * them (field 10, format 2.0), and tune fits, keeps or attaches them.
  */
 import { describe, expect, it } from 'vitest';
 import { denseOf, docOf, randomDense, denseSpec } from '../fixtures/models.js';
@@ -62,11 +62,11 @@ describe('target scaling: y = z·std + mean folded into the last dense layer', (
     for (let i = 0; i < before.length; i++) expect(after[i]).toBeCloseTo(before[i], 4);
   });
 
-  it('the file keeps it (format 1.1, field 10); a model without it is still written and read as 1.0', () => {
+  it('the file keeps it (field 10, written as format 2.0: a 1.x reader must refuse it); a model without it is still written and read as 1.0', () => {
     const doc = scaledDoc();
     const bytes = encodeModel(doc);
     const back = decodeModel(bytes, 'scaled.tdn');
-    expect(back.version).toEqual({ major: 1, minor: 1 });
+    expect(back.version).toEqual({ major: 2, minor: 0 });
     expect(Array.from(back.doc.targetScaling!.mean)).toEqual([100]);
     expect(Array.from(back.doc.targetScaling!.std)).toEqual([10]);
     const plain = decodeModel(encodeModel({ ...doc, targetScaling: null }), 'plain.tdn');

@@ -54,6 +54,10 @@ function describe(f: ModelFacts): string {
     const each = f.targetScaling.mean.map((m, j) => `${f.labels?.[j] ?? `output ${j}`} mean ${sci(m)} sd ${sci(f.targetScaling!.std[j])}`);
     lines.push(namesText('targets scaled inside the model (answers = last layer x sd + mean): ', each));
   }
+  if (f.activationRanges) {
+    const each = f.activationRanges.layers.map((r) => `layers[${r.layer}] [${sci(r.min)}, ${sci(r.max)}]`);
+    lines.push(namesText(`int8 activation ranges from ${grouped(f.activationRanges.rows)} rows (each dense layer's input): `, each));
+  }
   lines.push(
     f.normalise
       ? `normalisation ${f.normalise.method}, ${f.normalise.fitted ? `fitted over ${grouped(f.normalise.rowsSeen)} rows` : 'not fitted yet (fitted from data on the first tune)'}`

@@ -50,7 +50,7 @@ export const commands: readonly CommandEntry[] = [
   },
   {
     name: 'shrink',
-    summary: "store a model's dense weights as float16 or int8 (per-column scale); prints the size and the parity cost",
+    summary: "store a model's dense weights as float16 or int8 (per-column scale); prints the size and how far it moved from the parent",
     load: async () => (await import('./shrink.js')).shrink,
   },
   {

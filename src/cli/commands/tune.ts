@@ -85,9 +85,9 @@ export const tune: Command = {
     const parent = fromSpec ? null : await readModelFile(modelPath);
     const doc = parent ? parent.doc : await buildModelFromSpecFile(modelPath, { seed: f.seed });
     const data = await loadTrainingData(doc, dataPath, targets, (m) => io.err(`tendon tune: warning: ${m}\n`));
-    // A spec without feature names learns them from the header, so the model can score the same
-    // file later (its target column is then told apart from the features by name).
-    if (fromSpec && !doc.features) doc.features = await headerFeatureNames(dataPath, targets, doc.inputs);
+    // A model without feature names (from a spec or a packed file) learns them from the header,
+    // so it can score the same file later (its target column then told apart by name).
+    if (!doc.features) doc.features = await headerFeatureNames(dataPath, targets, doc.inputs);
     const holdoutData = f['holdout-file'] ? await loadTrainingData(doc, f['holdout-file'], targets) : undefined;
     const replay = f.replay ? await loadTrainingData(doc, f.replay, targets) : undefined;
     const path = await trainingPath(f.engine);

@@ -14,6 +14,7 @@ import {
   inputShiftScale,
   layerKind,
   modelWidths,
+  rangesOfPrefix,
   validateModel,
   type ActivationF32,
   type ModelDoc,
@@ -197,7 +198,9 @@ export class SimdRunner implements Runner {
   runLayers(data: Float32Array, rows: number): Float32Array[] {
     return this.doc.layers.map((_, i) => {
       if (i === this.doc.layers.length - 1) return this.run(data, rows);
-      const prefix: ModelDoc = { ...this.doc, layers: this.doc.layers.slice(0, i + 1), labels: null };
+      const layers = this.doc.layers.slice(0, i + 1);
+      // Stored int8 ranges (read by the int8 engine only) are cut with the layers, so the prefix stays valid.
+      const prefix: ModelDoc = { ...this.doc, layers, labels: null, activationRanges: rangesOfPrefix(this.doc.activationRanges, layers) };
       return new SimdRunner(prefix, { chunkRows: this.chunkRows, kernel: this.kernelOptions }).run(data, rows);
     });
   }

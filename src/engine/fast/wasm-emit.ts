@@ -166,6 +166,9 @@ export class Code {
   i32Store(offset = 0): this {
     return this.op(0x36, 2, ...uleb(offset));
   }
+  i32Load(offset = 0): this {
+    return this.op(0x28, 2, ...uleb(offset));
+  }
   f32Sub(): this {
     return this.op(0x93);
   }
@@ -219,6 +222,17 @@ export class Code {
   f32x4Min(): this {
     return this.simd(0xe8);
   }
+  /** f32x4.ne: all ones in a lane that differs (a NaN differs from itself). */
+  f32x4Ne(): this {
+    return this.simd(0x42);
+  }
+  v128Or(): this {
+    return this.simd(0x50);
+  }
+  /** v128.any_true: 1 when any bit is set. */
+  v128AnyTrue(): this {
+    return this.simd(0x53);
+  }
   /** f32x4.nearest: round half to even, lane-wise. */
   f32x4Nearest(): this {
     return this.simd(0x6a);
@@ -251,6 +265,10 @@ export class Code {
   /** i8x16.min_u. */
   i8x16MinU(): this {
     return this.simd(0x77);
+  }
+  /** i16x8.add_sat_s: saturating to [-32768, 32767]. */
+  i16x8AddSatS(): this {
+    return this.simd(0x8f);
   }
   /** i16x8.min_s. */
   i16x8MinS(): this {
@@ -286,6 +304,18 @@ export class Code {
   /** i32x4.extadd_pairwise_i16x8_s: lane j = a[2j] + a[2j+1], widened. */
   i32x4ExtaddPairwiseI16x8S(): this {
     return this.simd(0x7e);
+  }
+  /** f32x4.pmin(a, b) = b < a ? b : a, lane-wise (one minps; a NaN b keeps a). */
+  f32x4Pmin(): this {
+    return this.simd(0xea);
+  }
+  /** f32x4.pmax(a, b) = a < b ? b : a, lane-wise (one maxps; a NaN b keeps a). */
+  f32x4Pmax(): this {
+    return this.simd(0xeb);
+  }
+  /** i16x8.add: wrapping (callers prove their sums fit). */
+  i16x8Add(): this {
+    return this.simd(0x8e);
   }
 }
 

@@ -1,13 +1,15 @@
 /**
  * Inference in integer arithmetic: int8 weights (the codes an i8 file stores), activations
- * quantised per row on the fly, 32-bit integer sums, dequantise + bias + ReLU fused at the store
+ * quantised onto the ranges the model stores (`shrink --calibrate`, clamping values outside) or,
+ * without them, per row on the fly, 32-bit integer sums, dequantise + bias + ReLU fused at the store
  * (see kernels.ts for the arithmetic and its overflow bound). The same surface as SimdRunner,
  * plus which kernel runs and on how many threads.
  *
  * Per row, not per batch: a per-batch activation range would make a row's answer depend on the
  * other rows it was batched with (a service would answer the same row differently under load).
+ * Stored ranges are fixed per layer, so they keep that promise too.
  */
-import type { ModelDoc } from '../../model/index.js';
+import { rangesOfPrefix, type ModelDoc } from '../../model/index.js';
 import type { Runner } from '../runner.js';
 import { SharedMemoryRunner } from '../shared-memory-runner.js';
 import { bestInt8Arith, INT8_KERNEL_NAMES, type Int8Arith } from './kernels.js';
@@ -58,6 +60,11 @@ export class Int8Runner implements Runner {
     return INT8_KERNEL_NAMES[this.arith];
   }
 
+  /** How each dense layer's input is quantised: onto the ranges the model stores, or onto each row's own. */
+  get activationRanges(): 'stored' | 'per row' {
+    return this.doc.activationRanges ? 'stored' : 'per row';
+  }
+
   /** Whether the weights are the file's own int8 codes for every dense layer. */
   get storedCodes(): boolean {
     return this.shared.codes.every((c) => c === 'stored');
@@ -88,7 +95,8 @@ export class Int8Runner implements Runner {
   runLayers(data: Float32Array, rows: number): Float32Array[] {
     return this.doc.layers.map((_, i) => {
       if (i === this.doc.layers.length - 1) return this.run(data, rows);
-      const prefix: ModelDoc = { ...this.doc, layers: this.doc.layers.slice(0, i + 1), labels: null };
+      const layers = this.doc.layers.slice(0, i + 1);
+      const prefix: ModelDoc = { ...this.doc, layers, labels: null, activationRanges: rangesOfPrefix(this.doc.activationRanges, layers) };
       const cut = new Int8Runner(prefix, { ...this.options, threads: 1 });
       try {
         return cut.run(data, rows);
