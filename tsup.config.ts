@@ -13,6 +13,8 @@ export default defineConfig([
     clean: true,
     loader,
     target: 'node20',
+    // import.meta.url in the CommonJS build (model/tfjs-lazy.ts resolves tfjs-core from it).
+    shims: true,
   },
   {
     entry: { cli: 'src/cli/bin.ts', worker: 'src/engine/worker-entry.ts', 'parse-worker': 'src/serve/parse-worker.ts' },

@@ -43,6 +43,8 @@ const result = await api.runBenchSuite({
   quick,
   numpyScript: join(here, 'numpy_baseline.py'),
   workerScript: join(root, 'dist', 'worker.js'),
+  cliScript: join(root, 'dist', 'cli.js'),
+  numpyScoreScript: join(here, 'numpy_score.py'),
   log: (line) => process.stderr.write(`  ${line}\n`),
 });
 const minutes = (Date.now() - started) / 60000;

@@ -1,6 +1,13 @@
 /**
  * tendon's public API. Re-exports only: each piece lives in its own module.
  */
+import { tfjsWithCpuBackend } from './model/tfjs-lazy.js';
+
+// The one side effect: importing the library makes tfjs usable at once (its 'cpu' backend
+// registered), as callers passing tensors expect. The CLI does not import this file: it loads
+// tfjs only when a tfjs engine runs.
+tfjsWithCpuBackend();
+
 export { openModel, modelFromDocument, engineFallback, engineNote, TendonModel, type OpenOptions } from './tendon.js';
 export * from './errors.js';
 export * from './model/types.js';

@@ -2,7 +2,8 @@
  * The façade a service uses: open a model file, run batches, prove parity, save. It ties the
  * format, the engine and the parity check together; each of those can also be used alone.
  */
-import * as tf from '@tensorflow/tfjs-core';
+import type * as tf from '@tensorflow/tfjs-core';
+import { tfjs } from './model/tfjs-lazy.js';
 import { int8ParityReport, parityReport, randomInputs, type ParityReport } from './check/index.js';
 import {
   Int8Runner,
@@ -29,7 +30,7 @@ export interface OpenOptions {
   readonly engine?: EngineChoice;
   /** Most rows sent through the engine at once; bounds peak memory. */
   readonly chunkRows?: number;
-  /** Threads sharing each call's rows, the caller included (the int8 engine; others run on one). Default 1. */
+  /** Threads sharing each call's rows, the caller included (the int8 and fast engines; the tfjs engines run on one). Default 1. */
   readonly threads?: number;
 }
 
@@ -51,7 +52,6 @@ async function chooseEngine(choice: EngineChoice | undefined, doc: ModelDoc): Pr
   const resolved = await resolveEngine(choice ?? 'auto', doc);
   lastFallback = resolved.fallback;
   lastNote = resolved.note ?? null;
-  if (resolved.engine === 'fast' || resolved.engine === 'int8') ensureEngine(); // tfjs still serves tensor input and training
   return resolved.engine;
 }
 
@@ -163,12 +163,14 @@ export class TendonModel {
   run(batch: Float32Array, rows: number): Float32Array;
   run(batch: tf.Tensor2D): tf.Tensor2D;
   run(batch: readonly (readonly number[])[] | Float32Array | tf.Tensor2D, rows?: number): number[][] | Float32Array | tf.Tensor2D {
-    if (batch instanceof tf.Tensor) {
+    // Only a tensor is neither of the other two; tfjs is loaded for it alone (the caller has it already).
+    if (!(batch instanceof Float32Array) && !Array.isArray(batch) && batch instanceof tfjs().Tensor) {
       if (batch.rank !== 2) throw new ShapeError('input tensor', ['rows', this.inputs], batch.shape, 'run');
       if (this.runner instanceof TfjsRunner) return this.runner.runTensor(batch);
       if (batch.shape[1] !== this.inputs) throw new ShapeError('input tensor', ['rows', this.inputs], batch.shape, 'run');
       const rowsIn = batch.shape[0];
-      return tf.tensor2d(this.runner.run(Float32Array.from(batch.dataSync()), rowsIn), [rowsIn, this.outputs]);
+      ensureEngine(); // the fast and int8 engines run without tfjs; the answer goes back as a tensor on its backend
+      return tfjs().tensor2d(this.runner.run(Float32Array.from(batch.dataSync()), rowsIn), [rowsIn, this.outputs]);
     }
     if (batch instanceof Float32Array) {
       const n = rows ?? batch.length / this.inputs;

@@ -6,7 +6,8 @@
  * - numpy + OpenBLAS on the same shapes, through bench/numpy_baseline.py, when python3 has numpy.
  */
 import { spawnSync } from 'node:child_process';
-import * as tf from '@tensorflow/tfjs-core';
+import type * as tf from '@tensorflow/tfjs-core';
+import { tfjs } from '../model/tfjs-lazy.js';
 import type { DenseLayer, ModelDoc } from '../model/index.js';
 import { referenceForward, toMat64 } from '../reference/index.js';
 import { useEngine } from '../engine/index.js';
@@ -19,24 +20,24 @@ export function plainTfjsForward(doc: ModelDoc): { run(x: Float32Array, rows: nu
   if (dense.length !== doc.layers.length) throw new RangeError('plainTfjsForward: dense layers only');
   let width = doc.inputs;
   const weights = dense.map((layer) => {
-    const w = tf.tensor2d(layer.weight, [width, layer.size]);
+    const w = tfjs().tensor2d(layer.weight, [width, layer.size]);
     width = layer.size;
-    return { w, b: tf.tensor1d(layer.bias), activation: layer.activation };
+    return { w, b: tfjs().tensor1d(layer.bias), activation: layer.activation };
   });
   return {
     run(x, rows) {
-      return tf.tidy(() => {
-        let h: tf.Tensor2D = tf.tensor2d(x, [rows, doc.inputs]);
+      return tfjs().tidy(() => {
+        let h: tf.Tensor2D = tfjs().tensor2d(x, [rows, doc.inputs]);
         for (const { w, b, activation } of weights) {
-          h = tf.add(tf.matMul(h, w), b);
-          if (activation === 'relu') h = tf.relu(h);
-          else if (activation === 'softmax') h = tf.softmax(h);
+          h = tfjs().add(tfjs().matMul(h, w), b);
+          if (activation === 'relu') h = tfjs().relu(h);
+          else if (activation === 'softmax') h = tfjs().softmax(h);
         }
         return h.dataSync() as Float32Array;
       });
     },
     dispose() {
-      for (const { w, b } of weights) tf.dispose([w, b]);
+      for (const { w, b } of weights) tfjs().dispose([w, b]);
     },
   };
 }
@@ -71,6 +72,20 @@ export function numpyKey(widths: readonly number[], batch: number): string {
 }
 
 /**
+ * The environment numpy runs in, as a user's numpy runs: no pinned OpenBLAS core type (which
+ * would force, say, the AVX2 kernels on an AVX-512 machine) and no cache-size override; OpenBLAS
+ * on `threads` threads, or its default (every core) when null.
+ */
+export function numpyEnv(threads: string | null): NodeJS.ProcessEnv {
+  const env = { ...process.env };
+  if (threads) env.OPENBLAS_NUM_THREADS = threads;
+  else delete env.OPENBLAS_NUM_THREADS;
+  delete env.OPENBLAS_CORETYPE;
+  delete env.OPENBLAS_L2_SIZE;
+  return env;
+}
+
+/**
  * Time the cases with numpy in child python3 processes, once with one OpenBLAS thread and once
  * with its default (every core), keeping the faster per case: on a busy machine OpenBLAS's
  * spinning threads can lose to one thread, and the comparison should be with numpy at its best.
@@ -90,13 +105,7 @@ export function runNumpyBaseline(script: string, cases: readonly NumpyCase[], mi
   let blas = '';
   let kernels = 'unknown';
   for (const threads of ['1', '']) {
-    const env = { ...process.env };
-    if (threads) env.OPENBLAS_NUM_THREADS = threads;
-    else delete env.OPENBLAS_NUM_THREADS;
-    // As a user's numpy runs: no pinned core type (which would force, say, the AVX2 kernels on an
-    // AVX-512 machine) and no cache-size override.
-    delete env.OPENBLAS_CORETYPE;
-    delete env.OPENBLAS_L2_SIZE;
+    const env = numpyEnv(threads || null);
     const child = spawnSync('python3', [script], { input: JSON.stringify({ minMs, cases }), encoding: 'utf8', maxBuffer: 16 * 2 ** 20, env });
     if (child.status !== 0) return { available: false, note: `numpy column skipped: ${script} failed (${child.stderr.trim().split('\n').pop()})` };
     const parsed: unknown = JSON.parse(child.stdout);

@@ -2,8 +2,7 @@
  * Measuring throughput and latency of a model on this machine: the timing loop, percentiles, and
  * `benchModel` for a user's own model (the CLI's bench command calls it).
  */
-import * as tf from '@tensorflow/tfjs-core';
-import { openRunner, useEngine, type EngineName } from '../engine/index.js';
+import { liveTensorCount, openRunner, useEngine, type EngineName } from '../engine/index.js';
 import { modelWidths, type ModelDoc } from '../model/index.js';
 import { multiplyAddsPerRow, seededRows } from './models.js';
 
@@ -126,7 +125,7 @@ export async function benchModel(doc: ModelDoc, options: BenchModelOptions = {})
         p99Ms: t.p99Ms,
         calls: t.calls,
         rssMiB: process.memoryUsage().rss / 2 ** 20,
-        tensors: tf.memory().numTensors,
+        tensors: liveTensorCount(),
       });
     }
   } finally {

@@ -8,12 +8,12 @@
  */
 import { readFileSync } from 'node:fs';
 import { cpus, availableParallelism } from 'node:os';
-import * as tf from '@tensorflow/tfjs-core';
 import {
   bestInt8Arith,
   engineFallbackReason,
   Int8Runner,
   kernelDescription,
+  liveTensorCount,
   openRunner,
   SharedMemoryRunner,
   useEngine,
@@ -29,6 +29,7 @@ import { WorkerPool } from '../serve/pool.js';
 import { tune } from '../train/tune.js';
 import { numpyKey, plainTfjsForward, referenceRunner, runNumpyBaseline, type NumpyResult } from './baselines.js';
 import { fmt, gflops, percentile, table, timeCalls, type Timing } from './measure.js';
+import { measureEndToEnd } from './end-to-end.js';
 import { int8InnerLoopRate } from './kernel-limit.js';
 import { denseStackDoc, multiplyAddsPerRow, seededRows } from './models.js';
 
@@ -39,12 +40,16 @@ export interface SuiteOptions {
   readonly numpyScript: string;
   /** The built worker (dist/worker.js). */
   readonly workerScript: string | URL;
+  /** The built CLI (dist/cli.js), for the end-to-end row; the row is skipped (with a note) without it. */
+  readonly cliScript?: string;
+  /** bench/numpy_score.py, numpy's side of the end-to-end row. */
+  readonly numpyScoreScript?: string;
   /** Progress lines. */
   readonly log: (line: string) => void;
 }
 
 export interface SuiteRow {
-  readonly section: 'engine' | 'threads' | 'pool' | 'batcher' | 'train' | 'leak';
+  readonly section: 'engine' | 'threads' | 'e2e' | 'pool' | 'batcher' | 'train' | 'leak';
   readonly network: string;
   /** 'js' | 'wasm', or a baseline's name for reference rows. */
   readonly engine: string;
@@ -145,6 +150,7 @@ export async function runBenchSuite(opts: SuiteOptions): Promise<SuiteResult> {
   const engines = await availableEngines(notes);
   await measureEngines(run, engines);
   await measureThreads(run);
+  await measureScoreFile(run);
   const best = fastestEngine(run.rows, engines);
   notes.push(`targets judged on the ${best} engine (fastest at ${MID.name}, batch 256)`);
   await measurePool(run, engines, best);
@@ -183,7 +189,7 @@ function addRow(run: SuiteRun, r: RowFields): void {
   run.rows.push({
     ...r,
     rssMiB: rss(),
-    tensors: tf.memory().numTensors,
+    tensors: liveTensorCount(),
     vsPlainTfjs: b?.plainTfjs ? r.rowsPerSec / b.plainTfjs.rowsPerSec : Number.NaN,
     vsReference: b?.reference ? r.rowsPerSec / b.reference.rowsPerSec : Number.NaN,
     vsNumpy: b?.numpy ? r.rowsPerSec / b.numpy.rowsPerSec : Number.NaN,
@@ -305,6 +311,43 @@ async function measureThreads(run: SuiteRun): Promise<void> {
     }
     noteInt8Ceiling(run, int8Arith);
   } else run.notes.push('int8 and shared-memory thread rows skipped: this runtime has no WebAssembly SIMD');
+}
+
+const E2E_ROWS = 40_000;
+
+/** `tendon score` of a 40,000 x 784 float32 .npy on the i8-stored middle network against numpy doing the same job, whole processes, 3 rounds. */
+async function measureScoreFile(run: SuiteRun): Promise<void> {
+  const { cliScript, numpyScoreScript } = run.opts;
+  if (!cliScript || !numpyScoreScript) {
+    run.notes.push('end-to-end row skipped: no CLI script given');
+    return;
+  }
+  const e = await measureEndToEnd({ cliScript, numpyScript: numpyScoreScript, widths: MID.widths, rows: E2E_ROWS, rounds: 3, log: run.opts.log });
+  if (e.note) run.notes.push(e.note);
+  const best = Math.min(...e.tendonSeconds);
+  const seconds = (list: number[]) => list.map((v) => fmt(v, 2)).join(' / ');
+  run.notes.push(
+    `end to end (whole processes, best of each): tendon score ${seconds(e.tendonSeconds)} s, numpy ${seconds(e.numpySeconds)} s ` +
+      `(one OpenBLAS thread, then all, per round; best on ${e.numpyBestThreads === '1' ? 'one thread' : 'all threads'}); ` +
+      `top class agrees on ${fmt(100 * e.topClassAgreement, 2)}% of rows, largest output difference ${fmt(e.maxAbsDiff, 4)} (int8 against float32 weights); tendon said: ${e.tendonLine}`,
+  );
+  run.rows.push({
+    section: 'e2e',
+    network: `${MID.name} (i8 file)`,
+    engine: 'auto',
+    workers: availableParallelism(),
+    batch: 256,
+    rowsPerSec: E2E_ROWS / best,
+    gflops: gflops(MID.widths, E2E_ROWS / best),
+    p50Ms: Number.NaN,
+    p99Ms: Number.NaN,
+    rssMiB: rss(),
+    tensors: liveTensorCount(),
+    vsPlainTfjs: Number.NaN,
+    vsReference: Number.NaN,
+    vsNumpy: e.vsNumpy,
+    note: `tendon score of a ${E2E_ROWS} x ${MID.widths[0]} float32 .npy vs numpy np.load + forward in batches of 256 + np.save; whole processes`,
+  });
 }
 
 /** How close the int8 model on one thread runs to its kernel's inner loop alone (kernel-limit.ts). */
@@ -452,13 +495,13 @@ async function measureLeaks(run: SuiteRun, engines: readonly SuiteEngine[]): Pro
     const session = openRunner(docOf(run, net.name), engine);
     const x = seededRows(1, net.widths[0], 8);
     for (let i = 0; i < 1000; i++) session.run(x, 1);
-    const tensorsBefore = tf.memory().numTensors;
+    const tensorsBefore = liveTensorCount();
     const rssBefore = rss();
     run.opts.log(`leak check: ${calls} calls`);
     const t0 = performance.now();
     for (let i = 0; i < calls; i++) session.run(x, 1);
     const seconds = (performance.now() - t0) / 1000;
-    const tensorsAfter = tf.memory().numTensors;
+    const tensorsAfter = liveTensorCount();
     const rssAfter = rss();
     session.dispose();
     run.notes.push(
@@ -503,6 +546,7 @@ function threadTargets(rows: readonly SuiteRow[], baselines: SuiteResult['baseli
   const i1 = at('int8', 1, 256);
   const i2 = at('int8', 2, 256);
   const i1row = at('int8', 1, 1);
+  const e2e = rows.find((r) => r.section === 'e2e');
   const np1 = baselines.find((b) => b.network === MID.name && b.batch === 1)?.numpy?.p50Ms;
   const ratio = (a: SuiteRow | undefined, b: { rowsPerSec: number } | undefined | null) => (a && b ? a.rowsPerSec / b.rowsPerSec : undefined);
   const check = (target: string, value: number | undefined, goal: number): TargetCheck => ({
@@ -515,6 +559,11 @@ function threadTargets(rows: readonly SuiteRow[], baselines: SuiteResult['baseli
     check(`${MID.name} batch 256: float32 on 2 shared-memory threads >= 1.8x one thread`, ratio(f2, f1), 1.8),
     check(`${MID.name} batch 256: int8 on 2 threads >= 1.0x numpy + OpenBLAS on every core`, ratio(i2, numpyAll256), 1.0),
     check(`${MID.name} batch 256: int8 on 2 threads >= 1.8x int8 on one thread`, ratio(i2, i1), 1.8),
+    check(
+      `end to end: tendon score of a ${E2E_ROWS} x ${MID.widths[0]} .npy on the i8 ${MID.name} >= numpy doing the same job`,
+      e2e && !Number.isNaN(e2e.vsNumpy) ? e2e.vsNumpy : undefined,
+      1.0,
+    ),
     {
       target: `${MID.name} single-row p50: int8 <= numpy`,
       reached: i1row && np1 ? `${fmt(i1row.p50Ms, 3)} ms vs numpy ${fmt(np1, 3)} ms` : 'not measured',

@@ -11,8 +11,8 @@ export interface Io {
 }
 
 export interface Command {
+  /** Its one-line summary lives beside its name in commands/index.ts. */
   readonly name: string;
-  readonly summary: string;
   readonly usage: string;
   readonly flags: FlagSpecs;
   /** Returns the exit code: 0 ok, 1 failure while working, 2 bad input or usage. */

@@ -31,7 +31,8 @@ export function bytesText(bytes: number): string {
 
 /** 12345678 -> "12,345,678". */
 export function grouped(n: number): string {
-  return Math.round(n).toLocaleString('en-US');
+  // By hand, not toLocaleString: its first call sets up ICU number formatting, about 0.1 s of a command's start.
+  return String(Math.round(n)).replace(/\B(?=(\d{3})+(?!\d))/g, ',');
 }
 
 /** Past this many names a list is abbreviated to its ends. */

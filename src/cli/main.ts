@@ -4,8 +4,8 @@
  */
 import { TendonError, UsageError } from '../errors.js';
 import { describeFlags } from './args.js';
-import type { Command, Io } from './command.js';
-import { commands } from './commands/index.js';
+import type { Io } from './command.js';
+import { commands, type CommandEntry } from './commands/index.js';
 
 export async function main(argv: readonly string[], io: Io): Promise<number> {
   const [name, ...rest] = argv;
@@ -17,19 +17,20 @@ export async function main(argv: readonly string[], io: Io): Promise<number> {
     io.out(`tendon ${VERSION}\n`);
     return 0;
   }
-  const command = commands.find((c) => c.name === name);
+  const entry = commands.find((c) => c.name === name);
   try {
-    if (!command) {
+    if (!entry) {
       throw new UsageError('', `unknown command "${name}" (commands: ${commands.map((c) => c.name).join(', ')})`);
     }
+    const command = await entry.load();
     if (rest.includes('--help') || rest.includes('-h')) {
-      io.out(`usage: ${command.usage}\n\n${command.summary}\n\n${describeFlags(command.flags)}\n`);
+      io.out(`usage: ${command.usage}\n\n${entry.summary}\n\n${describeFlags(command.flags)}\n`);
       return 0;
     }
     return await command.run(rest, io);
   } catch (error) {
     if (error instanceof UsageError && !error.hint) {
-      error.withHint(command ? `tendon ${command.name} --help lists its options` : 'tendon help lists the commands');
+      error.withHint(entry ? `tendon ${entry.name} --help lists its options` : 'tendon help lists the commands');
     }
     return report(error, io);
   }
@@ -51,7 +52,7 @@ function oneLine(text: string): string {
   return text.replace(/\s*\n\s*/g, ' ');
 }
 
-function overview(list: readonly Command[]): string {
+function overview(list: readonly CommandEntry[]): string {
   const width = Math.max(...list.map((c) => c.name.length));
   return [
     'tendon — ship, run, fine-tune, prove and measure small dense networks on the CPU',

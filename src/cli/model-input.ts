@@ -1,6 +1,6 @@
 /** Reading a data file as model input: columns matched by feature name when both sides have names. */
 import { DataError } from '../errors.js';
-import { openTable, resolveColumns, shownNames, type TableReader } from '../io/index.js';
+import { openNpyFloat32Rows, openTable, resolveColumns, shownNames, tableFormatOf, type TableReader } from '../io/index.js';
 import type { ModelDoc } from '../model/index.js';
 
 /**
@@ -69,11 +69,29 @@ export function otherColumns(width: number, used: readonly number[]): number[] {
 
 /**
  * Stream a data file as float32 model inputs, chunk by chunk. Columns the model does not read
- * are never parsed, so a blank label column or an ID column cannot stop a run.
+ * are never parsed, so a blank label column or an ID column cannot stop a run. With `reuse`, a
+ * float32 NPY file's chunks may share memory: a chunk's `x` is overwritten once the next is asked for.
  */
-export async function* inputChunks(doc: ModelDoc, file: string, chunkRows: number): AsyncGenerator<{ rows: number; x: Float32Array; firstLine: number }> {
+export async function* inputChunks(
+  doc: ModelDoc,
+  file: string,
+  chunkRows: number,
+  opts: { reuse?: boolean } = {},
+): AsyncGenerator<{ rows: number; x: Float32Array; firstLine: number }> {
   const layout = await tableLayout(file);
   const cols = inputColumns(doc, layout, file);
+  // A float32 NPY file is one block of the very numbers the model takes: read it straight into
+  // the arrays handed out (NPY has no header names, so its columns are the inputs in order).
+  const direct =
+    tableFormatOf(file) === 'npy' && cols.every((c, i) => c === i) && cols.length === layout.width ? await openNpyFloat32Rows(file, chunkRows, opts) : null;
+  if (direct) {
+    try {
+      for await (const chunk of direct.chunks()) yield { rows: chunk.rows, x: chunk.data, firstLine: chunk.firstLine };
+    } finally {
+      await direct.close();
+    }
+    return;
+  }
   // The header question is settled once, by the look above, whatever columns are skipped.
   const table = await openTable(file, { chunkRows, header: layout.columns !== null, skipColumns: otherColumns(layout.width, cols) });
   try {

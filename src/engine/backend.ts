@@ -8,9 +8,7 @@
  *           node_modules by itself.
  * - 'auto': wasm when it initialises, else js; `engineFallbackReason()` then says why.
  */
-import * as tf from '@tensorflow/tfjs-core';
-// Side effect: registers the 'cpu' backend with tfjs-core.
-import '@tensorflow/tfjs-backend-cpu';
+import { tfjs, tfjsWithCpuBackend } from '../model/tfjs-lazy.js';
 
 export type EngineName = 'js' | 'wasm';
 
@@ -26,7 +24,8 @@ let fallbackReason: string | null = null;
  */
 function enableProdModeOnce(): void {
   if (!prodModeSet) {
-    tf.enableProdMode();
+    // Every way into tfjs passes here first: load it, with the 'cpu' backend registered.
+    tfjsWithCpuBackend().enableProdMode();
     prodModeSet = true;
   }
 }
@@ -67,16 +66,16 @@ export function engineFallbackReason(): string | null {
 export function ensureEngine(): EngineName {
   enableProdModeOnce();
   // backendName is null until a backend is chosen, though tfjs types it as string.
-  const current: string | null = tf.engine().backendName;
+  const current: string | null = tfjs().engine().backendName;
   if (current === TFJS_BACKEND.wasm) return 'wasm';
-  if (current !== TFJS_BACKEND.js) void tf.setBackend(TFJS_BACKEND.js);
+  if (current !== TFJS_BACKEND.js) void tfjs().setBackend(TFJS_BACKEND.js);
   return 'js';
 }
 
 async function setTfBackend(name: EngineName): Promise<void> {
-  const ok = await tf.setBackend(TFJS_BACKEND[name]);
+  const ok = await tfjs().setBackend(TFJS_BACKEND[name]);
   if (!ok) throw new Error(`tfjs backend '${TFJS_BACKEND[name]}' failed to initialise`);
-  await tf.ready();
+  await tfjs().ready();
 }
 
 let wasmLoaded: Promise<unknown> | null = null;
@@ -93,5 +92,7 @@ function firstLine(err: unknown): string {
 
 /** tfjs tensors alive in this process: flat over time when nothing leaks. */
 export function liveTensorCount(): number {
-  return tf.memory().numTensors;
+  // The fast and int8 engines never load tfjs: load it here (with its CPU backend) for the count.
+  enableProdModeOnce();
+  return tfjs().memory().numTensors;
 }

@@ -4,6 +4,7 @@ export { DEFAULT_CHUNK_ROWS, TfjsRunner, type TfjsRunnerOptions } from './tfjs-r
 export { TfjsTrainer, type TfjsGradients, type TfjsTape, type TfjsTrainForward } from './tfjs-trainer.js';
 export { ENGINE_CHOICES, kernelDescription, resolveEngine, type EngineChoice, type ResolvedEngine, type RuntimeEngine } from './choice.js';
 export { SimdRunner, type SimdRunnerOptions } from './fast/simd-runner.js';
+export { ThreadedFastRunner, type ThreadedFastRunnerOptions } from './fast/threaded-runner.js';
 export { SimdTrainer, simdTrainBlocker, type SimdTape, type SimdTrainForward } from './fast/simd-trainer.js';
 export { wasmSimdAvailable } from './fast/dense-kernel.js';
 export { Int8Runner, type Int8RunnerOptions } from './int8/int8-runner.js';

@@ -13,6 +13,7 @@
 import { runningForm, type ModelDoc } from '../model/index.js';
 import type { RuntimeEngine } from './choice.js';
 import { SimdRunner } from './fast/simd-runner.js';
+import { ThreadedFastRunner } from './fast/threaded-runner.js';
 import type { KernelOptions } from './fast/dense-kernel.js';
 import { TfjsRunner } from './tfjs-runner.js';
 import { Int8Runner } from './int8/int8-runner.js';
@@ -45,7 +46,7 @@ export interface RunnerOptions {
   readonly source?: string;
   /** Kernel choices for the fast engine (tests and benchmarks compare the fused and plain multiply-add). */
   readonly kernel?: KernelOptions;
-  /** Threads sharing the rows of a call (int8 engine; default 1). */
+  /** Threads sharing the rows of a call (int8 and fast engines; default 1). */
   readonly threads?: number;
 }
 
@@ -66,7 +67,10 @@ export function openRunner(stored: ModelDoc, engine: RuntimeEngine, opts: Runner
   const doc = runningForm(stored);
   switch (engine) {
     case 'fast':
-      return new SimdRunner(doc, opts);
+      // More than one thread: the same float32 kernel over shared memory, rows split across cores.
+      return (opts.threads ?? 1) > 1
+        ? new ThreadedFastRunner(doc, { threads: opts.threads!, chunkRows: opts.chunkRows, source: opts.source })
+        : new SimdRunner(doc, opts);
     case 'int8':
       return new Int8Runner(doc, { chunkRows: opts.chunkRows, source: opts.source, threads: opts.threads });
     case 'js':

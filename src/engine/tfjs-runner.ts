@@ -3,7 +3,8 @@
  * chunks, every temporary tensor freed before a call returns. The training forward and backward
  * build on it in tfjs-trainer.ts. Nothing here imports the reference path.
  */
-import * as tf from '@tensorflow/tfjs-core';
+import type * as tf from '@tensorflow/tfjs-core';
+import { tfjs } from '../model/tfjs-lazy.js';
 import { ShapeError } from '../errors.js';
 import { inputShiftScale, layerKind, modelWidths, validateModel, type ForwardContext, type ModelDoc, type Normalisation } from '../model/index.js';
 import { ensureEngine, type EngineName } from './backend.js';
@@ -50,12 +51,12 @@ export class TfjsRunner implements Runner {
     this.chunkRows = opts.chunkRows ?? DEFAULT_CHUNK_ROWS;
     if (!(Number.isInteger(this.chunkRows) && this.chunkRows > 0)) throw new RangeError(`chunkRows must be a positive integer, got ${this.chunkRows}`);
     this.engine = ensureEngine();
-    this.tfBackend = tf.getBackend();
+    this.tfBackend = tfjs().getBackend();
     this.widths = modelWidths(doc);
     this.weights = doc.layers.map((layer) =>
       layerKind(layer.kind)
         .engine.upload(layer)
-        .map((t) => tf.keep(t)),
+        .map((t) => tfjs().keep(t)),
     );
     this.norm = uploadNormalisation(doc.normalise, doc.inputs);
   }
@@ -77,7 +78,7 @@ export class TfjsRunner implements Runner {
     this.checkInput(data, rows, 'run');
     const out = new Float32Array(rows * this.outputs);
     this.eachChunk(rows, (start, n) => {
-      tf.tidy(() => {
+      tfjs().tidy(() => {
         const y = this.forwardTensor(this.chunkTensor(data, start, n));
         out.set(y.dataSync(), start * this.outputs);
       });
@@ -92,7 +93,7 @@ export class TfjsRunner implements Runner {
   runTensor(x: tf.Tensor2D): tf.Tensor2D {
     this.checkUsable('runTensor');
     if (x.shape[1] !== this.inputs) throw new ShapeError('input', ['rows', this.inputs], x.shape, 'TfjsRunner.runTensor');
-    return tf.tidy(() => this.forwardTensor(x));
+    return tfjs().tidy(() => this.forwardTensor(x));
   }
 
   /** Each layer's output for raw features (rows x width per layer), for the parity report. */
@@ -100,7 +101,7 @@ export class TfjsRunner implements Runner {
     this.checkInput(data, rows, 'runLayers');
     const outs = this.widths.slice(1).map((w) => new Float32Array(rows * w));
     this.eachChunk(rows, (start, n) => {
-      tf.tidy(() => {
+      tfjs().tidy(() => {
         let h = this.normaliseTensor(this.chunkTensor(data, start, n));
         this.doc.layers.forEach((layer, i) => {
           h = layerKind(layer.kind).engine.forward(layer, this.weights[i], h, INFERENCE, i).y;
@@ -114,8 +115,8 @@ export class TfjsRunner implements Runner {
   /** Free every tensor the runner holds. The runner cannot be used afterwards. */
   dispose(): void {
     if (this.disposed) return;
-    for (const w of this.weights) tf.dispose(w);
-    if (this.norm) tf.dispose([this.norm.shift, this.norm.scale]);
+    for (const w of this.weights) tfjs().dispose(w);
+    if (this.norm) tfjs().dispose([this.norm.shift, this.norm.scale]);
     this.weights = [];
     this.norm = null;
     this.disposed = true;
@@ -133,11 +134,11 @@ export class TfjsRunner implements Runner {
     if (!this.norm) return x;
     // (x - shift) · scale rather than x·scale + offset: subtracting first keeps the float32
     // error relative to the centred value, not to the raw feature's magnitude.
-    return tf.mul(tf.sub(x, this.norm.shift), this.norm.scale);
+    return tfjs().mul(tfjs().sub(x, this.norm.shift), this.norm.scale);
   }
 
   private chunkTensor(data: Float32Array, start: number, n: number): tf.Tensor2D {
-    return tf.tensor2d(data.subarray(start * this.inputs, (start + n) * this.inputs), [n, this.inputs]);
+    return tfjs().tensor2d(data.subarray(start * this.inputs, (start + n) * this.inputs), [n, this.inputs]);
   }
 
   private eachChunk(rows: number, fn: (start: number, n: number) => void): void {
@@ -153,7 +154,7 @@ export class TfjsRunner implements Runner {
 
   protected checkUsable(fn: string): void {
     if (this.disposed) throw new Error(`TfjsRunner.${fn}: the runner was disposed`);
-    const now = tf.getBackend();
+    const now = tfjs().getBackend();
     if (now !== this.tfBackend) {
       // tfjs has one global backend; weights uploaded under one must not silently migrate.
       throw new Error(`TfjsRunner.${fn}: the runner was made on tfjs backend '${this.tfBackend}', but the process now runs '${now}'; open a new runner`);
@@ -164,5 +165,5 @@ export class TfjsRunner implements Runner {
 /** The input normalisation (model/input-affine.ts) as two resident per-feature tensors. */
 export function uploadNormalisation(n: Normalisation | null, inputs: number): { shift: tf.Tensor1D; scale: tf.Tensor1D } | null {
   const pair = inputShiftScale(n, inputs);
-  return pair && { shift: tf.keep(tf.tensor1d(pair.shift)), scale: tf.keep(tf.tensor1d(pair.scale)) };
+  return pair && { shift: tfjs().keep(tfjs().tensor1d(pair.shift)), scale: tfjs().keep(tfjs().tensor1d(pair.scale)) };
 }

@@ -3,7 +3,8 @@
  * engine: a `TfjsRunner` (whose inference it shares) that also keeps tapes for backward and
  * re-uploads weights after an optimiser step.
  */
-import * as tf from '@tensorflow/tfjs-core';
+import type * as tf from '@tensorflow/tfjs-core';
+import { tfjs } from '../model/tfjs-lazy.js';
 import { ShapeError } from '../errors.js';
 import { layerKind, type BackwardOptions, type BatchStats, type ForwardContext } from '../model/index.js';
 import { TfjsRunner, uploadNormalisation } from './tfjs-runner.js';
@@ -49,7 +50,7 @@ export class TfjsTrainer extends TfjsRunner {
   forwardTrain(data: Float32Array, rows: number, ctx: ForwardContext): TfjsTrainForward {
     this.checkInput(data, rows, 'forwardTrain');
     // slice(): the tape may hold the input, and the caller may refill its batch buffer before backward.
-    let h = tf.tidy(() => this.normaliseTensor(tf.tensor2d(data.slice(0, rows * this.inputs), [rows, this.inputs])));
+    let h = tfjs().tidy(() => this.normaliseTensor(tfjs().tensor2d(data.slice(0, rows * this.inputs), [rows, this.inputs])));
     const saved: tf.Tensor[][] = [];
     const stats: (BatchStats | null)[] = [];
     let z: Float32Array | null = null;
@@ -58,12 +59,12 @@ export class TfjsTrainer extends TfjsRunner {
       let layerStats: BatchStats | null = null;
       let zIndex = -1;
       const input = h;
-      const kept = tf.tidy(() => {
+      const kept = tfjs().tidy(() => {
         const out = layerKind(layer.kind).engine.forward(layer, this.weights[i], input, ctx, i);
         layerStats = out.stats ?? null;
         zIndex = out.z ? out.saved.indexOf(out.z) : -1;
         // A separate handle for the running activation, so freeing it never frees a saved tensor.
-        return [tf.clone(out.y), ...out.saved];
+        return [tfjs().clone(out.y), ...out.saved];
       });
       input.dispose();
       h = kept[0] as tf.Tensor2D;
@@ -92,12 +93,12 @@ export class TfjsTrainer extends TfjsRunner {
       throw new ShapeError('dLoss/dy', [tape.rows, this.outputs], [dyOrDz.length], 'TfjsTrainer.backward');
     }
     const grads: Float32Array[][] = new Array(this.doc.layers.length);
-    let d: tf.Tensor2D = tf.tensor2d(dyOrDz.slice(), [tape.rows, this.outputs]);
+    let d: tf.Tensor2D = tfjs().tensor2d(dyOrDz.slice(), [tape.rows, this.outputs]);
     try {
       for (let i = last; i >= 0; i--) {
         const layer = this.doc.layers[i];
         const incoming = d;
-        const kept = tf.tidy(() => {
+        const kept = tfjs().tidy(() => {
           const back = layerKind(layer.kind).engine.backward(layer, this.weights[i], tape.saved[i], incoming, i === last ? opts : {});
           return [back.dx, ...back.grads];
         });
@@ -119,7 +120,7 @@ export class TfjsTrainer extends TfjsRunner {
   /** Free a tape without running backward. */
   disposeTape(tape: TfjsTape): void {
     if (tape.disposed) return;
-    for (const list of tape.saved) tf.dispose(list);
+    for (const list of tape.saved) tfjs().dispose(list);
     tape.disposed = true;
   }
 
@@ -133,13 +134,13 @@ export class TfjsTrainer extends TfjsRunner {
     for (const i of indices) {
       const layer = this.doc.layers[i];
       if (!layer) throw new RangeError(`refreshWeights: no layer ${i} (model has ${this.doc.layers.length})`);
-      tf.dispose(this.weights[i]);
+      tfjs().dispose(this.weights[i]);
       this.weights[i] = layerKind(layer.kind)
         .engine.upload(layer)
-        .map((t) => tf.keep(t));
+        .map((t) => tfjs().keep(t));
     }
     if (layerIndex === undefined) {
-      if (this.norm) tf.dispose([this.norm.shift, this.norm.scale]);
+      if (this.norm) tfjs().dispose([this.norm.shift, this.norm.scale]);
       this.norm = uploadNormalisation(this.doc.normalise, this.doc.inputs);
     }
   }

@@ -3,7 +3,8 @@
  * shapes of its messages in TypeScript, and the enum codes. Field names are the .proto's own
  * (snake_case), so messages and FORMAT.md read the same.
  */
-import protobuf from 'protobufjs';
+import { createRequire } from 'node:module';
+import type protobuf from 'protobufjs';
 import type { BuiltInStoredForms } from '../model/index.js';
 import type { LayerKindName, StorageCodec } from '../model/types.js';
 import { LAYER_ENTRY_MESSAGE, PAYLOAD_MESSAGE, TENDON_SCHEMA } from './schema.js';
@@ -102,8 +103,11 @@ let schemaText = TENDON_SCHEMA;
 /** The payload message type, parsed from the embedded schema once. */
 export function payloadSchema(): protobuf.Type {
   if (payloadType === null) {
+    // protobufjs is loaded here, with the first model read or written, not at import: a command
+    // that touches no model file (`tendon --help`) does not pay for loading it.
+    const protobufjs = createRequire(import.meta.url)('protobufjs') as typeof protobuf;
     // keepCase: field names stay as written in the .proto (running_mean, not runningMean).
-    payloadType = protobuf.parse(schemaText, { keepCase: true }).root.lookupType(PAYLOAD_MESSAGE);
+    payloadType = protobufjs.parse(schemaText, { keepCase: true }).root.lookupType(PAYLOAD_MESSAGE);
   }
   return payloadType;
 }

@@ -224,7 +224,7 @@ interface NpyLayout {
 }
 
 /** Reads and checks the header: a known dtype, data of the size the shape needs, 1 or 2 dimensions. */
-async function readNpyLayout(path: string, handle: FileHandle): Promise<NpyLayout> {
+async function readCheckedHeader(path: string, handle: FileHandle): Promise<Omit<NpyLayout, 'whole'>> {
   const bytesTotal = (await handle.stat()).size;
   const preamble = Buffer.alloc(Math.min(NPY_PREAMBLE_BYTES, bytesTotal));
   await handle.read(preamble, 0, preamble.length, 0);
@@ -252,6 +252,13 @@ async function readNpyLayout(path: string, handle: FileHandle): Promise<NpyLayou
       `NPY array has ${header.shape.length} dimensions ${shapeText(header.shape)}; a table needs 1 or 2 (rows, columns): reshape it to ${flat} first, e.g. numpy's a.reshape(len(a), -1)`,
     );
   }
+  return { header, dtype, bytesTotal };
+}
+
+/** The checked header, and the whole array when it is in Fortran order (read at once). */
+async function readNpyLayout(path: string, handle: FileHandle): Promise<NpyLayout> {
+  const { header, dtype, bytesTotal } = await readCheckedHeader(path, handle);
+  const have = bytesTotal - header.dataOffset;
   let whole: NpyArray | null = null;
   if (header.fortranOrder && header.shape.length === 2) {
     const bytes = Buffer.alloc(have);
@@ -378,6 +385,116 @@ export async function openNpyTable(path: string, opts: TableOptions = {}): Promi
     columns: null,
     width,
     textColumns,
+    get bytesRead() {
+      return bytesRead;
+    },
+    bytesTotal,
+    chunks,
+    close,
+  };
+}
+
+/** Float32 rows read from a file, chunk by chunk (`openNpyFloat32Rows`). */
+export interface Float32RowReader {
+  readonly width: number;
+  readonly rowsTotal: number;
+  /** Bytes of the file read so far, and the file's size: for progress bars. */
+  readonly bytesRead: number;
+  readonly bytesTotal: number;
+  /** Yields the rows in order, each chunk a fresh array the caller owns. Can be iterated once. */
+  chunks(): AsyncGenerator<{ rows: number; data: Float32Array; firstLine: number }>;
+  /** Releases the file; safe to call twice or mid-iteration. */
+  close(): Promise<void>;
+}
+
+/**
+ * Opens a 2-D NPY file of float32 in the host's byte order and C order (what NumPy writes for a
+ * float32 array on any common machine) as float32 rows, with no per-value work: each chunk's
+ * bytes go from the file straight into the array handed out, and the next chunk's read runs
+ * while the caller works on this one. Returns null for any other layout (another dtype, the
+ * other byte order, Fortran order, 1-D, no rows), which `openNpyTable` reads value by value.
+ *
+ * With `reuse`, two buffers are read into in turn, and a chunk's array is overwritten once the
+ * next chunk is asked for: for a caller done with each chunk before it takes the next (no fresh
+ * memory per chunk to fault in and collect).
+ *
+ * @example const r = await openNpyFloat32Rows('x.npy', 4096); if (r) for await (const c of r.chunks()) use(c.data, c.rows);
+ * @throws DataError for a file that is missing, not NPY, or holds the wrong number of bytes for its shape.
+ */
+export async function openNpyFloat32Rows(path: string, chunkRows: number, opts: { reuse?: boolean } = {}): Promise<Float32RowReader | null> {
+  let handle: FileHandle;
+  try {
+    handle = await open(path, 'r');
+  } catch (error) {
+    throw asDataError(path, error);
+  }
+  let layout: Omit<NpyLayout, 'whole'>;
+  try {
+    layout = await readCheckedHeader(path, handle);
+  } catch (error) {
+    await handle.close();
+    throw asDataError(path, error);
+  }
+  const { header, dtype, bytesTotal } = layout;
+  const [rowsTotal, width] = header.shape;
+  const plain = dtype.kind === 'f' && dtype.size === 4 && dtype.littleEndian === LITTLE_ENDIAN_HOST && !header.fortranOrder;
+  if (!plain || header.shape.length !== 2 || rowsTotal === 0 || width === 0) {
+    await handle.close();
+    return null;
+  }
+  const perChunk = rowsPerChunk(width, chunkRows);
+  const rowBytes = width * 4;
+  let bytesRead = header.dataOffset;
+  let closed = false;
+  // One read at a time: a close waits for the read under way before releasing the file.
+  let reading: Promise<unknown> = Promise.resolve();
+  const close = async (): Promise<void> => {
+    if (closed) return;
+    closed = true;
+    await reading;
+    await handle.close();
+  };
+
+  const reused = opts.reuse ? [0, 1].map(() => Buffer.allocUnsafeSlow(perChunk * rowBytes).buffer) : null;
+  let turn = 0;
+
+  /** Rows row..row+rows-1, read into a fresh array or the next reused one (unzeroed memory: every byte is overwritten or the read fails). */
+  async function readRows(row: number, rows: number): Promise<{ rows: number; data: Float32Array; firstLine: number }> {
+    const buffer = reused ? reused[turn++ % 2] : Buffer.allocUnsafeSlow(rows * rowBytes).buffer;
+    const bytes = new Uint8Array(buffer, 0, rows * rowBytes);
+    const start = header.dataOffset + row * rowBytes;
+    for (let done = 0; done < bytes.length;) {
+      const { bytesRead: got } = await handle.read(bytes, done, bytes.length - done, start + done);
+      if (got === 0)
+        throw new DataError(path, row + 1, 0, `NPY file ended at byte ${start + done} while reading row ${row + 1} (was it changed while being read?)`);
+      done += got;
+    }
+    bytesRead += bytes.length;
+    return { rows, data: new Float32Array(bytes.buffer, 0, rows * width), firstLine: row + 1 };
+  }
+
+  async function* chunks(): AsyncGenerator<{ rows: number; data: Float32Array; firstLine: number }> {
+    const next = (row: number): Promise<{ rows: number; data: Float32Array; firstLine: number }> => {
+      const read = readRows(row, Math.min(perChunk, rowsTotal - row));
+      // Handled here so a read failing while the caller is busy is not an unhandled rejection; the await below still throws it.
+      reading = read.catch(() => undefined);
+      return read;
+    };
+    try {
+      let pending = next(0);
+      for (let row = 0; row < rowsTotal && !closed; row += perChunk) {
+        const chunk = await pending;
+        if (row + perChunk < rowsTotal) pending = next(row + perChunk);
+        yield chunk;
+      }
+    } finally {
+      await close();
+    }
+  }
+
+  return {
+    width,
+    rowsTotal,
     get bytesRead() {
       return bytesRead;
     },

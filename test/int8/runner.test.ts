@@ -3,8 +3,10 @@
 // seeded inputs, threads against one thread, and the refusals.
 import { describe, expect, it } from 'vitest';
 import { docOf, dropoutOf, minmaxOf, randomBatchNorm, randomDense, zscoreOf } from '../fixtures/models.js';
-import { int8ParityReport, randomInputs, topClassAgreement } from '../../src/check/index.js';
+import { int8ParityReport, parityReport, randomInputs, topClassAgreement } from '../../src/check/index.js';
 import { SimdRunner } from '../../src/engine/fast/simd-runner.js';
+import { ThreadedFastRunner } from '../../src/engine/fast/threaded-runner.js';
+import { openRunner } from '../../src/engine/runner.js';
 import { Int8Runner } from '../../src/engine/int8/int8-runner.js';
 import { i16DotAvailable, MAX_INT8_INPUTS, relaxedDotAvailable, type Int8Arith } from '../../src/engine/int8/kernels.js';
 import { SharedMemoryRunner } from '../../src/engine/shared-memory-runner.js';
@@ -150,6 +152,41 @@ describe('shared-memory sessions', () => {
     for (let round = 0; round < 3; round++) expect(Buffer.from(two.run(x, 2000).buffer).equals(Buffer.from(a.buffer)), `round ${round}`).toBe(true);
     one.dispose();
     two.dispose();
+  });
+
+  it('openRunner on the fast engine with two threads: the shared-memory kernel, as SimdRunner within float32 parity, every layer', async () => {
+    const rng = new SeededRng(77);
+    const doc = docOf(
+      50,
+      [randomDense(rng, 50, 70, 'relu'), randomBatchNorm(rng, 70), dropoutOf(0.2), randomDense(rng, 70, 30, 'tanh'), randomDense(rng, 30, 4, 'softmax')],
+      zscoreOf(rng, 50),
+    );
+    const x = randomInputs(doc, 777, 5);
+    const threaded = openRunner(doc, 'fast', { threads: 2 });
+    expect(threaded).toBeInstanceOf(ThreadedFastRunner);
+    expect([threaded.engine, threaded.chunkRows]).toEqual(['fast', 512]);
+    await (threaded as ThreadedFastRunner).ready();
+    const single = openRunner(doc, 'fast');
+    expect(single).toBeInstanceOf(SimdRunner);
+    const a = threaded.run(x, 777);
+    const b = single.run(x, 777);
+    b.forEach((v, i) => expect(Math.abs(v - a[i])).toBeLessThan(1e-6));
+    const report = parityReport(doc, x.subarray(0, 64 * 50), 64, { runner: threaded });
+    expect([report.layers.length, report.pass]).toEqual([5, true]);
+    threaded.dispose();
+    expect(() => threaded.run(x, 1)).toThrow(/disposed/);
+  });
+
+  it('the fast engine on two threads gives the same bits as on one for dense ReLU / linear layers (same kernel, same order per row)', async () => {
+    const rng = new SeededRng(78);
+    const doc = docOf(64, [randomDense(rng, 64, 48, 'relu'), randomDense(rng, 48, 5, 'linear')]);
+    const x = randomInputs(doc, 1000, 6);
+    const threaded = openRunner(doc, 'fast', { threads: 2 });
+    await (threaded as ThreadedFastRunner).ready();
+    const a = threaded.run(x, 1000);
+    const b = openRunner(doc, 'fast').run(x, 1000);
+    threaded.dispose();
+    expect(Buffer.from(a.buffer).equals(Buffer.from(b.buffer))).toBe(true);
   });
 
   it('a disposed session refuses to run', () => {

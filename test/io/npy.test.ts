@@ -1,7 +1,7 @@
 import { spawnSync } from 'node:child_process';
 import { readFileSync } from 'node:fs';
 import { describe, expect, it } from 'vitest';
-import { decodeNpy, encodeNpy, formatNpyHeader, openNpyRowWriter, parseNpyDict, readNpy, readTable, writeNpy } from '../../src/io/index.js';
+import { decodeNpy, encodeNpy, formatNpyHeader, openNpyFloat32Rows, openNpyRowWriter, parseNpyDict, readNpy, readTable, writeNpy } from '../../src/io/index.js';
 import { captureDataError, FIXTURES, seededRandom, tempFolder } from './helpers.js';
 
 const file = tempFolder();
@@ -120,6 +120,95 @@ describe('NPY reading (files written by NumPy, NEP 1)', () => {
     expect(parseNpyDict('x', "{'descr':'<f4','fortran_order':True,'shape':(3L, 4L)}")).toEqual({ descr: '<f4', fortranOrder: true, shape: [3, 4] });
     expect(() => parseNpyDict('x', "{'descr': [('a', '<f4')], 'fortran_order': False, 'shape': (1,), }")).toThrow(/structured dtype/);
     expect(() => parseNpyDict('x', "{'descr': '<f4', 'shape': (1,), }")).toThrow(/lacks 'fortran_order'/);
+  });
+});
+
+describe('NPY float32 rows read straight into the arrays handed out', () => {
+  /** Every chunk of a direct reader, concatenated, with each chunk's rows and first row. */
+  async function readAll(path: string, chunkRows: number): Promise<{ values: number[]; chunks: [number, number][] } | null> {
+    const reader = await openNpyFloat32Rows(path, chunkRows);
+    if (!reader) return null;
+    const values: number[] = [];
+    const chunks: [number, number][] = [];
+    for await (const c of reader.chunks()) {
+      expect(c.data).toBeInstanceOf(Float32Array);
+      expect(c.data.length).toBe(c.rows * reader.width);
+      values.push(...c.data);
+      chunks.push([c.rows, c.firstLine]);
+    }
+    expect(reader.bytesRead).toBe(reader.bytesTotal);
+    return { values, chunks };
+  }
+
+  it('gives the same float32 values as the table reader, in chunks of the asked size with their first rows', async () => {
+    const rng = seededRandom(11);
+    const data = Float32Array.from({ length: 7 * 5 }, () => rng() * 200 - 100);
+    const path = file('direct.npy', encodeNpy(data, [7, 5]));
+    const got = await readAll(path, 3);
+    expect(got?.chunks).toEqual([
+      [3, 1],
+      [3, 4],
+      [1, 7],
+    ]);
+    expect(got?.values).toEqual(Array.from(data));
+    // The NumPy-written fixture: i / 8 - 0.5, shape (3, 4) (make-npy.py).
+    expect((await readAll(fixture('f4-2d.npy'), 4096))?.values).toEqual(Array.from({ length: 12 }, (_, i) => i / 8 - 0.5));
+  });
+
+  it('with reuse, two buffers are read into in turn and each chunk still holds its own rows when it is handed out', async () => {
+    const data = Float32Array.from({ length: 10 * 3 }, (_, i) => i * 0.5);
+    const reader = await openNpyFloat32Rows(file('reuse.npy', encodeNpy(data, [10, 3])), 3, { reuse: true });
+    const seen: number[] = [];
+    const buffers: ArrayBufferLike[] = [];
+    for await (const c of reader!.chunks()) {
+      seen.push(...c.data);
+      buffers.push(c.data.buffer);
+    }
+    expect(seen).toEqual(Array.from(data));
+    expect(buffers).toHaveLength(4);
+    expect([buffers[0] === buffers[2], buffers[1] === buffers[3], buffers[0] === buffers[1]]).toEqual([true, true, false]);
+  });
+
+  it.each(['f4-big-endian.npy', 'f8-2d.npy', 'f8-fortran.npy', 'f4-1d.npy', 'i4-fortran.npy'])(
+    'hands %s back to the value-by-value reader (null): another byte order, dtype, memory order or rank',
+    async (name) => {
+      expect(await openNpyFloat32Rows(fixture(name), 16)).toBeNull();
+    },
+  );
+
+  it('a Fortran-order float32 file is not read as if it were C order', async () => {
+    // The same bytes as a C-order (2, 3) array, but the header says Fortran order: columns first (NEP 1).
+    const c = encodeNpy(new Float32Array([0, 1, 2, 3, 4, 5]), [2, 3]);
+    const fortran = Buffer.from(c.toString('latin1').replace("'fortran_order': False", "'fortran_order': True "), 'latin1');
+    expect(fortran.length).toBe(c.length);
+    const path = file('fortran-f4.npy', fortran);
+    expect(await openNpyFloat32Rows(path, 16)).toBeNull();
+    expect(Array.from((await readTable(path)).data)).toEqual([0, 2, 4, 1, 3, 5]);
+  });
+
+  it('refuses data shorter than the shape and a missing file, as the table reader does', async () => {
+    const bytes = readFileSync(fixture('f4-2d.npy'));
+    const short = await captureDataError(() => openNpyFloat32Rows(file('short-direct.npy', bytes.subarray(0, bytes.length - 4)), 16));
+    expect(short.detail).toBe("NPY data holds 44 bytes, but shape (3, 4) of '<f4' needs 48");
+    await captureDataError(() => openNpyFloat32Rows(file('no-such.npy'), 16));
+  });
+
+  it('stops cleanly when the caller leaves mid-file, with the next read already under way', async () => {
+    const path = file(
+      'early.npy',
+      encodeNpy(
+        new Float32Array(100 * 4).map((_, i) => i),
+        [100, 4],
+      ),
+    );
+    const reader = await openNpyFloat32Rows(path, 10);
+    let seen = 0;
+    for await (const c of reader!.chunks()) {
+      seen += c.rows;
+      if (seen >= 20) break;
+    }
+    expect(seen).toBe(20);
+    await reader!.close(); // a second close is harmless
   });
 });
 

@@ -13,7 +13,6 @@ const flags = {
 
 export const about: Command = {
   name: 'about',
-  summary: 'describe a model file: layers, shapes, parameters, normalisation, metadata, checksum, provenance',
   usage: 'tendon about MODEL [--json] [--costs]',
   flags,
   async run(argv, io) {

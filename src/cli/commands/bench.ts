@@ -17,7 +17,6 @@ const flags = {
 
 export const bench: Command = {
   name: 'bench',
-  summary: "measure a model's throughput and latency on this machine: rows/s, GFLOP/s, p50/p99, memory, tensors",
   usage: 'tendon bench MODEL [--batch LIST] [--engine js|wasm|fast|int8|auto] [--ms N] [--json] [--report FILE.html]',
   flags,
   async run(argv, io) {

@@ -38,7 +38,6 @@ const MAX_CHECK_ROWS = 100_000;
 
 export const check: Command = {
   name: 'check',
-  summary: 'prove the engine against the float64 reference, per layer and at the output (exit 1 if a tolerance breaks)',
   usage: 'tendon check MODEL [--input FILE [--target COLUMN]] [--rows N] [--json] [--engine js|wasm|fast|int8|auto] [--against PARENT] [--report FILE.html]',
   flags,
   async run(argv, io) {

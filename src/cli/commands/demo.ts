@@ -11,7 +11,6 @@ const flags = {
 
 export const demo: Command = {
   name: 'demo',
-  summary: 'the whole job on an invented, seeded bakery: pack, train, score, prove parity, fine-tune for a second site',
   usage: 'tendon demo [--dir DIR] [--seed N] [--engine js|wasm|fast|int8|auto]',
   flags,
   async run(argv, io) {

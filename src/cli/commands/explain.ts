@@ -37,7 +37,6 @@ const CHUNK_ROWS = 256;
 
 export const explain: Command = {
   name: 'explain',
-  summary: "per-feature attributions of each row's answer (integrated gradients on the float64 reference path)",
   usage: 'tendon explain MODEL --input ROWS --output OUT.csv [--class top|LABEL|INDEX] [--steps N] [--baseline mean|zeros|FILE] [--report FILE.html]',
   flags,
   async run(argv, io) {

@@ -10,7 +10,6 @@ const flags = {
 
 export const fold: Command = {
   name: 'fold',
-  summary: 'fold normalisation, batch normalisation, dropout and linear layer pairs into fewer dense layers (same answers)',
   usage: 'tendon fold MODEL -o OUT',
   flags,
   async run(argv, io) {

@@ -17,7 +17,6 @@ const flags = {
 
 export const pack: Command = {
   name: 'pack',
-  summary: 'build a model file from a JSON layer spec (weights inline, from .npy files, or seeded)',
   usage: 'tendon pack SPEC.json -o MODEL [--seed N] [--store f32|f16|i8]',
   flags,
   async run(argv, io) {

@@ -20,7 +20,6 @@ const flags = {
 
 export const serve: Command = {
   name: 'serve',
-  summary: 'serve a model over HTTP on loopback: score, about, alive, ready and counters routes; hot swap on file change or SIGHUP',
   usage:
     'tendon serve MODEL [--port P] [--host H] [--body-limit BYTES] [--batch-rows N] [--wait-ms MS] [--queue-rows N] [--drift-k K] [--workers N|auto] [--no-watch] [--token-file FILE | --open]',
   flags,

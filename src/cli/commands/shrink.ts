@@ -37,7 +37,6 @@ export const RANDOM_ROWS_CAUTION = "random inputs are not representative of a tr
 
 export const shrink: Command = {
   name: 'shrink',
-  summary: "store a model's dense weights as float16 or int8 (per-column scale); prints the size and how far it moved from the parent",
   usage: 'tendon shrink MODEL --store f16|i8 -o OUT [--calibrate ROWS] [--rows ROWS]',
   flags,
   async run(argv, io) {

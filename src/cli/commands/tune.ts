@@ -53,7 +53,6 @@ const flags = {
 
 export const tune: Command = {
   name: 'tune',
-  summary: 'train or fine-tune a model (a model file, or a JSON spec) on local data with mini-batch gradient descent',
   usage:
     'tendon tune MODEL|SPEC.json --data FILE --target COLUMN[,COLUMN] -o OUT [--epochs N] [--batch K] [--lr X] [--optimizer sgd|momentum|adam] [--seed S] [--holdout FRACTION | --holdout-file FILE] [--freeze LAYERS] [--anchor STRENGTH] [--calibrate] [--report FILE]',
   flags,

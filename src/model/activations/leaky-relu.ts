@@ -1,4 +1,5 @@
-import * as tf from '@tensorflow/tfjs-core';
+import type * as tf from '@tensorflow/tfjs-core';
+import { tfjs } from '../tfjs-lazy.js';
 import { pointwiseF32 } from './f32.js';
 import type { ActivationKind } from './kind.js';
 
@@ -19,8 +20,8 @@ export const leakyRelu: ActivationKind = {
     for (let i = 0; i < z.length; i++) dz[i] = z[i] > 0 ? dy[i] : alpha * dy[i];
     return dz;
   },
-  engineForward: (z, alpha) => tf.leakyRelu(z, alpha),
-  engineBackward: (z, _y, dy, alpha) => tf.where(tf.greater(z, 0), dy, tf.mul<tf.Tensor2D>(dy, alpha)),
+  engineForward: (z, alpha) => tfjs().leakyRelu(z, alpha),
+  engineBackward: (z, _y, dy, alpha) => tfjs().where(tfjs().greater(z, 0), dy, tfjs().mul<tf.Tensor2D>(dy, alpha)),
   f32: pointwiseF32(
     (z, alpha) => (z < 0 ? alpha * z : z),
     (z, _y, alpha) => (z < 0 ? alpha : 1),

@@ -1,4 +1,4 @@
-import * as tf from '@tensorflow/tfjs-core';
+import { tfjs } from '../tfjs-lazy.js';
 import { pointwiseF32 } from './f32.js';
 import type { ActivationKind } from './kind.js';
 
@@ -12,8 +12,8 @@ export const linear: ActivationKind = {
   refForward: (z) => Float64Array.from(z),
   refBackward: (_z, _y, dy) => Float64Array.from(dy),
   // A clone, not z itself: callers dispose y and z independently.
-  engineForward: (z) => tf.clone(z),
-  engineBackward: (_z, _y, dy) => tf.clone(dy),
+  engineForward: (z) => tfjs().clone(z),
+  engineBackward: (_z, _y, dy) => tfjs().clone(dy),
   f32: {
     ...pointwiseF32(
       (z) => z,

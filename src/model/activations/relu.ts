@@ -1,4 +1,4 @@
-import * as tf from '@tensorflow/tfjs-core';
+import { tfjs } from '../tfjs-lazy.js';
 import { pointwiseF32 } from './f32.js';
 import type { ActivationKind } from './kind.js';
 
@@ -19,8 +19,8 @@ export const relu: ActivationKind = {
     for (let i = 0; i < z.length; i++) dz[i] = z[i] > 0 ? dy[i] : 0;
     return dz;
   },
-  engineForward: (z) => tf.relu(z),
-  engineBackward: (z, _y, dy) => tf.where(tf.greater(z, 0), dy, tf.zerosLike(dy)),
+  engineForward: (z) => tfjs().relu(z),
+  engineBackward: (z, _y, dy) => tfjs().where(tfjs().greater(z, 0), dy, tfjs().zerosLike(dy)),
   // Fused into the kernel's store. Backward asks only whether z > 0, which is whether y > 0,
   // so a caller may hand y in z's place.
   f32: pointwiseF32(

@@ -1,4 +1,4 @@
-import * as tf from '@tensorflow/tfjs-core';
+import { tfjs } from '../tfjs-lazy.js';
 import { pointwiseF32 } from './f32.js';
 import type { ActivationKind } from './kind.js';
 
@@ -20,8 +20,8 @@ export const sigmoid: ActivationKind = {
     for (let i = 0; i < y.length; i++) dz[i] = dy[i] * y[i] * (1 - y[i]);
     return dz;
   },
-  engineForward: (z) => tf.sigmoid(z),
-  engineBackward: (_z, y, dy) => tf.mul(dy, tf.mul(y, tf.sub(1, y))),
+  engineForward: (z) => tfjs().sigmoid(z),
+  engineBackward: (_z, y, dy) => tfjs().mul(dy, tfjs().mul(y, tfjs().sub(1, y))),
   f32: pointwiseF32(
     (z) => logistic(z),
     (_z, y) => y * (1 - y),

@@ -1,4 +1,4 @@
-import * as tf from '@tensorflow/tfjs-core';
+import { tfjs } from '../tfjs-lazy.js';
 import type { ActivationKind } from './kind.js';
 
 /** Row-wise softmax: y_j = exp(z_j) / sum_k exp(z_k). */
@@ -35,8 +35,8 @@ export const softmax: ActivationKind = {
     }
     return dz;
   },
-  engineForward: (z) => tf.softmax(z, -1),
-  engineBackward: (_z, y, dy) => tf.mul(y, tf.sub(dy, tf.sum(tf.mul(dy, y), 1, true))),
+  engineForward: (z) => tfjs().softmax(z, -1),
+  engineBackward: (_z, y, dy) => tfjs().mul(y, tfjs().sub(dy, tfjs().sum(tfjs().mul(dy, y), 1, true))),
   f32: {
     fusedInKernel: null,
     forward(data, at, rows, stride, cols) {

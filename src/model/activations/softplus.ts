@@ -1,4 +1,4 @@
-import * as tf from '@tensorflow/tfjs-core';
+import { tfjs } from '../tfjs-lazy.js';
 import { pointwiseF32 } from './f32.js';
 import type { ActivationKind } from './kind.js';
 import { logistic } from './sigmoid.js';
@@ -21,8 +21,8 @@ export const softplus: ActivationKind = {
     for (let i = 0; i < z.length; i++) dz[i] = dy[i] * logistic(z[i]);
     return dz;
   },
-  engineForward: (z) => tf.softplus(z),
-  engineBackward: (z, _y, dy) => tf.mul(dy, tf.sigmoid(z)),
+  engineForward: (z) => tfjs().softplus(z),
+  engineBackward: (z, _y, dy) => tfjs().mul(dy, tfjs().sigmoid(z)),
   f32: pointwiseF32(
     (z) => Math.max(z, 0) + Math.log1p(Math.exp(-Math.abs(z))),
     (z) => logistic(z),

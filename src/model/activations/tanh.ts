@@ -1,4 +1,4 @@
-import * as tf from '@tensorflow/tfjs-core';
+import { tfjs } from '../tfjs-lazy.js';
 import { pointwiseF32 } from './f32.js';
 import type { ActivationKind } from './kind.js';
 
@@ -19,8 +19,8 @@ export const tanh: ActivationKind = {
     for (let i = 0; i < y.length; i++) dz[i] = dy[i] * (1 - y[i] * y[i]);
     return dz;
   },
-  engineForward: (z) => tf.tanh(z),
-  engineBackward: (_z, y, dy) => tf.mul(dy, tf.sub(1, tf.square(y))),
+  engineForward: (z) => tfjs().tanh(z),
+  engineBackward: (_z, y, dy) => tfjs().mul(dy, tfjs().sub(1, tfjs().square(y))),
   f32: pointwiseF32(
     (z) => Math.tanh(z),
     (_z, y) => 1 - y * y,

@@ -8,7 +8,8 @@
  * Engine weights: [gamma, beta, runningMean, 1/sqrt(runningVariance + eps)].
  * Engine saved: [xhat, batchInvStd] (training) or [xhat] (inference).
  */
-import * as tf from '@tensorflow/tfjs-core';
+import type * as tf from '@tensorflow/tfjs-core';
+import { tfjs } from '../tfjs-lazy.js';
 import type { BatchNormLayer, ParamRef } from '../types.js';
 import { storedFieldProblems, type StoredForm } from './fields.js';
 import { as2D } from './engine-util.js';
@@ -157,19 +158,19 @@ function engineUpload(layer: BatchNormLayer): tf.Tensor[] {
   // 1/sqrt(var + eps) in float64 once, rounded to float32 once.
   const invStd = new Float32Array(layer.runningVariance.length);
   for (let c = 0; c < invStd.length; c++) invStd[c] = 1 / Math.sqrt(layer.runningVariance[c] + layer.epsilon);
-  return [tf.tensor1d(layer.gamma.slice()), tf.tensor1d(layer.beta.slice()), tf.tensor1d(layer.runningMean.slice()), tf.tensor1d(invStd)];
+  return [tfjs().tensor1d(layer.gamma.slice()), tfjs().tensor1d(layer.beta.slice()), tfjs().tensor1d(layer.runningMean.slice()), tfjs().tensor1d(invStd)];
 }
 
 function engineForward(layer: BatchNormLayer, weights: tf.Tensor[], x: tf.Tensor2D, ctx: ForwardContext): EngineForward {
   const [gamma, beta, runningMean, runningInvStd] = weights;
   if (!ctx.training) {
-    const xhat = tf.mul(tf.sub(x, runningMean), runningInvStd);
-    return { y: as2D(tf.add(tf.mul(xhat, gamma), beta), 'batchnorm output'), saved: [xhat] };
+    const xhat = tfjs().mul(tfjs().sub(x, runningMean), runningInvStd);
+    return { y: as2D(tfjs().add(tfjs().mul(xhat, gamma), beta), 'batchnorm output'), saved: [xhat] };
   }
-  const { mean, variance } = tf.moments(x, 0);
-  const invStd = tf.rsqrt(tf.add(variance, layer.epsilon));
-  const xhat = tf.mul(tf.sub(x, mean), invStd);
-  const y = as2D(tf.add(tf.mul(xhat, gamma), beta), 'batchnorm output');
+  const { mean, variance } = tfjs().moments(x, 0);
+  const invStd = tfjs().rsqrt(tfjs().add(variance, layer.epsilon));
+  const xhat = tfjs().mul(tfjs().sub(x, mean), invStd);
+  const y = as2D(tfjs().add(tfjs().mul(xhat, gamma), beta), 'batchnorm output');
   const stats = { mean: Float64Array.from(mean.dataSync()), variance: Float64Array.from(variance.dataSync()) };
   return { y, saved: [xhat, invStd], stats };
 }
@@ -178,15 +179,15 @@ function engineBackward(_layer: BatchNormLayer, weights: tf.Tensor[], saved: tf.
   const gamma = weights[0];
   const xhat = saved[0];
   if (!xhat) throw new Error('batchnorm backward needs the saved tensors of its forward');
-  const dbeta = tf.sum(dy, 0);
-  const dgamma = tf.sum(tf.mul(dy, xhat), 0);
+  const dbeta = tfjs().sum(dy, 0);
+  const dgamma = tfjs().sum(tfjs().mul(dy, xhat), 0);
   if (saved.length === 1) {
-    return { dx: as2D(tf.mul(dy, tf.mul(gamma, weights[3])), 'batchnorm dx'), grads: [dgamma, dbeta] };
+    return { dx: as2D(tfjs().mul(dy, tfjs().mul(gamma, weights[3])), 'batchnorm dx'), grads: [dgamma, dbeta] };
   }
   const n = dy.shape[0];
-  const g = tf.div(tf.mul(gamma, saved[1]), n);
-  const inner = tf.sub(tf.sub(tf.mul(dy, n), dbeta), tf.mul(xhat, dgamma));
-  return { dx: as2D(tf.mul(g, inner), 'batchnorm dx'), grads: [dgamma, dbeta] };
+  const g = tfjs().div(tfjs().mul(gamma, saved[1]), n);
+  const inner = tfjs().sub(tfjs().sub(tfjs().mul(dy, n), dbeta), tfjs().mul(xhat, dgamma));
+  return { dx: as2D(tfjs().mul(g, inner), 'batchnorm dx'), grads: [dgamma, dbeta] };
 }
 
 /** The batch normalisation layer kind. */

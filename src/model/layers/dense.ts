@@ -4,7 +4,8 @@
  * (training mode only), so backward can start from dL/dy or, for a caller that already has it,
  * from dL/dz (`dyIsPreActivation`).
  */
-import * as tf from '@tensorflow/tfjs-core';
+import type * as tf from '@tensorflow/tfjs-core';
+import { tfjs } from '../tfjs-lazy.js';
 import type { Problem } from '../../errors.js';
 import { activationKind, isActivationName } from '../activations/catalogue.js';
 import type { DenseLayer, ParamRef } from '../types.js';
@@ -70,21 +71,21 @@ function engineUpload(layer: DenseLayer): tf.Tensor[] {
   const inputs = layer.weight.length / layer.size;
   // slice(): the CPU backend keeps the array it is given, so without a copy later edits to
   // the document's weights would leak into the engine without a refresh.
-  return [tf.tensor2d(layer.weight.slice(), [inputs, layer.size]), tf.tensor1d(layer.bias.slice())];
+  return [tfjs().tensor2d(layer.weight.slice(), [inputs, layer.size]), tfjs().tensor1d(layer.bias.slice())];
 }
 
 function engineForward(layer: DenseLayer, weights: tf.Tensor[], x: tf.Tensor2D, ctx: { training: boolean }): EngineForward {
   const [w, b] = weights;
   const act = activationKind(layer.activation);
   if (!ctx.training && act.fused) {
-    const y = tf.fused.matMul({ a: x, b: as2D(w, 'dense weight'), bias: b, activation: act.fused, leakyreluAlpha: layer.alpha });
+    const y = tfjs().fused.matMul({ a: x, b: as2D(w, 'dense weight'), bias: b, activation: act.fused, leakyreluAlpha: layer.alpha });
     return { y: as2D(y, 'dense output'), saved: [] };
   }
-  const z = as2D(tf.fused.matMul({ a: x, b: as2D(w, 'dense weight'), bias: b }), 'dense z');
+  const z = as2D(tfjs().fused.matMul({ a: x, b: as2D(w, 'dense weight'), bias: b }), 'dense z');
   const y = act.engineForward(z, layer.alpha);
   if (!ctx.training) return { y, saved: [] };
   // clone(): shares x's data but has its own handle, so disposing saved never frees the caller's x.
-  return { y, z, saved: [tf.clone(x), z, y] };
+  return { y, z, saved: [tfjs().clone(x), z, y] };
 }
 
 function engineBackward(layer: DenseLayer, weights: tf.Tensor[], saved: tf.Tensor[], dy: tf.Tensor2D, opts?: BackwardOptions): EngineBackward {
@@ -92,9 +93,9 @@ function engineBackward(layer: DenseLayer, weights: tf.Tensor[], saved: tf.Tenso
   const [x, z, y] = saved.map((t, i) => as2D(t, `dense saved[${i}]`));
   const w = as2D(weights[0], 'dense weight');
   const dz = opts?.dyIsPreActivation ? dy : activationKind(layer.activation).engineBackward(z, y, dy, layer.alpha);
-  const dW = tf.matMul(x, dz, true, false);
-  const db = tf.sum(dz, 0);
-  const dx = as2D(tf.matMul(dz, w, false, true), 'dense dx');
+  const dW = tfjs().matMul(x, dz, true, false);
+  const db = tfjs().sum(dz, 0);
+  const dx = as2D(tfjs().matMul(dz, w, false, true), 'dense dx');
   return { dx, grads: [dW, db] };
 }
 

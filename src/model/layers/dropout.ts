@@ -4,7 +4,7 @@
  * Backward multiplies by the same mask. No trainable parameters.
  * Reference saved: the mask as float64, or null at inference. Engine saved: [mask] or [].
  */
-import * as tf from '@tensorflow/tfjs-core';
+import { tfjs } from '../tfjs-lazy.js';
 import type { DropoutLayer } from '../types.js';
 import { as2D } from './engine-util.js';
 import { storedFieldProblems, type StoredForm } from './fields.js';
@@ -51,14 +51,14 @@ export const dropout: LayerKind<DropoutLayer, typeof STORED> = {
   engine: {
     upload: () => [],
     forward(layer, _weights, x, ctx, index) {
-      if (!ctx.training) return { y: tf.clone(x), saved: [] };
+      if (!ctx.training) return { y: tfjs().clone(x), saved: [] };
       const [rows, cols] = x.shape;
-      const mask = tf.tensor2d(ctx.dropoutMask(index, rows, cols, layer.rate), [rows, cols]);
-      return { y: as2D(tf.mul(x, mask), 'dropout output'), saved: [mask] };
+      const mask = tfjs().tensor2d(ctx.dropoutMask(index, rows, cols, layer.rate), [rows, cols]);
+      return { y: as2D(tfjs().mul(x, mask), 'dropout output'), saved: [mask] };
     },
     backward(_layer, _weights, saved, dy) {
       const mask = saved[0];
-      return { dx: mask ? as2D(tf.mul(dy, mask), 'dropout dx') : tf.clone(dy), grads: [] };
+      return { dx: mask ? as2D(tfjs().mul(dy, mask), 'dropout dx') : tfjs().clone(dy), grads: [] };
     },
   },
   simd: {
