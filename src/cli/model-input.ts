@@ -51,12 +51,12 @@ export function namedColumns(table: Pick<TableReader, 'columns' | 'width'>): num
   return table.columns ? all.filter((i) => table.columns![i] !== '') : all;
 }
 
-/** The columns and width of a data file, from its header or first row (the file is opened and closed). */
-export async function tableLayout(file: string): Promise<Pick<TableReader, 'columns' | 'width'>> {
+/** The columns and width of a data file, from its header or first row, and its row count when the header declares it (the file is opened and closed). */
+export async function tableLayout(file: string): Promise<Pick<TableReader, 'columns' | 'width' | 'rowsTotal'>> {
   // Only the header (or first row) is looked at: no cell is parsed as a number.
   const probe = await openTable(file, { chunkRows: 1 });
   try {
-    return { columns: probe.columns, width: probe.width };
+    return { columns: probe.columns, width: probe.width, rowsTotal: probe.rowsTotal };
   } finally {
     await probe.close();
   }

@@ -389,6 +389,7 @@ export async function openNpyTable(path: string, opts: TableOptions = {}): Promi
       return bytesRead;
     },
     bytesTotal,
+    rowsTotal,
     chunks,
     close,
   };

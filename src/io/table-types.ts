@@ -60,6 +60,8 @@ export interface TableReader {
   /** Bytes of the file read so far, and the file's size: for progress bars. */
   readonly bytesRead: number;
   readonly bytesTotal: number;
+  /** Rows in the file when its header declares them (NPY); absent when only reading tells (CSV, JSONL). */
+  readonly rowsTotal?: number;
   /** Yields the rows in order. Can be iterated once. */
   chunks(): AsyncIterable<TableChunk>;
   /** Releases the file; safe to call twice or mid-iteration. */

@@ -10,6 +10,7 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { BAKERY_FEATURES, bakeryDoc } from '../fixtures/models.js';
 import { writeModelFile } from '../../src/format/index.js';
 import { decodeNpy } from '../../src/io/index.js';
+import { tableLayout } from '../../src/cli/model-input.js';
 import { runCli } from './run-cli.js';
 
 const dir = mkdtempSync(join(tmpdir(), 'tendon-shard-'));
@@ -34,6 +35,12 @@ async function scoreTo(input: string, output: string, ...extra: string[]): Promi
 }
 
 describe('tendon score --shard K/N', () => {
+  it('takes the row count of an NPY input from its header (shape (23, 7), written by NumPy), and counts the rows of a text file by reading them', async () => {
+    expect((await tableLayout(join(dir, 'in.npy'))).rowsTotal).toBe(ROWS);
+    expect((await tableLayout(join(dir, 'in.csv'))).rowsTotal).toBeUndefined();
+    expect((await tableLayout(join(dir, 'in.jsonl'))).rowsTotal).toBeUndefined();
+  });
+
   it.each([
     ['csv', 'csv'],
     ['jsonl', 'jsonl'],

@@ -5,7 +5,7 @@ import { DriftMonitor, describeDrift } from '../../drift/index.js';
 import { openModel } from '../../tendon.js';
 import type { Command } from '../command.js';
 import { grouped } from '../format.js';
-import { inputChunks, outputColumns } from '../model-input.js';
+import { inputChunks, outputColumns, tableLayout } from '../model-input.js';
 import { ENGINE_FLAG, parseEngine } from './engine-flag.js';
 import { parseRowFileArgs, rowFileFlags } from './row-files.js';
 
@@ -51,9 +51,9 @@ export const score: Command = {
         // Each chunk is scored and written before the next is asked for, so the reader may reuse its buffers.
         let chunks = inputChunks(model.doc, input, batch, { reuse: true });
         if (shard) {
-          // The row count decides the ranges, so a first pass counts the rows.
-          let total = 0;
-          for await (const chunk of inputChunks(model.doc, input, batch)) total += chunk.rows;
+          // The row count decides the ranges: an NPY header declares it; other files get a first pass that counts the rows.
+          let total = (await tableLayout(input)).rowsTotal ?? 0;
+          if (total === 0) for await (const chunk of inputChunks(model.doc, input, batch)) total += chunk.rows;
           const range = shardRange(shard, total);
           part = ` (part ${shard.k} of ${shard.n}: rows ${range.start + 1}..${range.end} of ${grouped(total)})`;
           chunks = rowRange(chunks, range.start, range.end);
