@@ -72,12 +72,16 @@ export function initialiseEmpty(doc: ModelDoc, rng: SeededRng): void {
   });
 }
 
-/** The activation the loss sees: the last dense layer's, or linear after a batch norm. */
+/**
+ * The activation the loss sees: the last dense layer's when only dropout follows it, else linear.
+ * Any other layer after it (a batch norm, or a kind added later) changes the output, so the loss
+ * must not fuse with that dense layer's activation (softmax with cross-entropy, say).
+ */
 export function outputActivation(doc: ModelDoc): ActivationName {
   for (let i = doc.layers.length - 1; i >= 0; i--) {
     const l = doc.layers[i];
     if (l.kind === 'dense') return l.activation;
-    if (l.kind === 'batchnorm') return 'linear';
+    if (l.kind !== 'dropout') return 'linear';
   }
   return 'linear';
 }
