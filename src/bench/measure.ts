@@ -9,6 +9,12 @@ import { multiplyAddsPerRow, seededRows } from './models.js';
 export interface TimingOptions {
   /** Untimed calls first (JIT, caches, lazy kernel set-up). Default 2. */
   readonly warmupCalls?: number;
+  /**
+   * ...and untimed calls until this much time has passed. Default 0. V8 compiles WebAssembly
+   * first with its baseline compiler and swaps in optimised code compiled in the background, so
+   * the first calls can be slower and share the cores with that compilation.
+   */
+  readonly warmupMs?: number;
   /** Keep calling until this much time has passed... Default 1000 ms. */
   readonly minMs?: number;
   /** ...and at least this many calls. Default 3. */
@@ -45,7 +51,9 @@ export async function timeCalls(fn: () => unknown, rowsPerCall: number, opts: Ti
   const minMs = opts.minMs ?? 1000;
   const minCalls = opts.minCalls ?? 3;
   const maxCalls = opts.maxCalls ?? 100_000;
-  for (let i = 0; i < warmup; i++) await fn();
+  const warmupMs = opts.warmupMs ?? 0;
+  const warmupStarted = performance.now();
+  for (let i = 0; i < warmup || performance.now() - warmupStarted < warmupMs; i++) await fn();
   const latencies: number[] = [];
   const started = performance.now();
   let now = started;

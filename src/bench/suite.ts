@@ -180,7 +180,7 @@ async function budgeted(run: SuiteRun, label: string, predictedRowsPerSec: numbe
     );
     return null;
   }
-  return timeCalls(fn, batch, { minMs: run.minMs, minCalls: 2, warmupCalls: 1 });
+  return timeCalls(fn, batch, { minMs: run.minMs, minCalls: 2, warmupCalls: 1, warmupMs: Math.min(200, run.minMs / 2) });
 }
 
 /** Add a row, with the memory figures now and its ratios to the baselines of the same network and batch. */

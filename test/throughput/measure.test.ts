@@ -31,6 +31,17 @@ describe('bench measuring', () => {
     expect(t.p50Ms).toBeLessThanOrEqual(t.p99Ms);
   });
 
+  it('timeCalls keeps warming up until warmupMs has passed, then times only the calls after it', async () => {
+    const stamps: number[] = [];
+    const started = performance.now();
+    const t = await timeCalls(() => stamps.push(performance.now()), 1, { warmupCalls: 1, warmupMs: 30, minCalls: 3, minMs: 0 });
+    expect(t.calls).toBe(3);
+    const warm = stamps.slice(0, -3);
+    expect(warm.length).toBeGreaterThan(1);
+    // The timed calls start only once 30 ms of warm-up have passed.
+    expect(stamps.at(-3)! - started).toBeGreaterThanOrEqual(30);
+  });
+
   it('the plain tfjs-ops baseline computes the same network as the float64 reference (float32 tolerance, common practice)', async () => {
     await useEngine('js');
     const doc = denseStackDoc([12, 16, 4], 2, 'relu', 'softmax');
