@@ -9,7 +9,7 @@
  * input normalisation (tune, fold) drops them.
  */
 import type { Problem } from '../errors.js';
-import type { ActivationRanges, Layer, ModelDoc } from './types.js';
+import type { Layer, ModelDoc } from './types.js';
 
 /** Indices of the dense layers, in order: the i-th range belongs to layers[denseIndices[i]]. */
 export function denseLayerIndices(layers: readonly Layer[]): number[] {
@@ -47,11 +47,15 @@ export function activationRangeProblems(doc: Pick<ModelDoc, 'layers' | 'activati
 }
 
 /**
- * The ranges of a model cut after `layers` (its first layers): those of the dense layers kept.
- * @example rangesOfPrefix(doc.activationRanges, doc.layers.slice(0, 2))
+ * The model cut after layer `index`, whose output is that layer's (so no labels): what the
+ * engines run for their per-layer parity outputs. Stored int8 ranges are cut with the layers
+ * (those of the dense layers kept), so the prefix stays a valid model.
+ * @example modelCutAfter(doc, 1).layers.length // 2
  */
-export function rangesOfPrefix(ranges: ActivationRanges | null | undefined, layers: readonly Layer[]): ActivationRanges | null {
-  if (!ranges) return null;
+export function modelCutAfter(doc: ModelDoc, index: number): ModelDoc {
+  const layers = doc.layers.slice(0, index + 1);
+  const ranges = doc.activationRanges;
   const kept = denseLayerIndices(layers).length;
-  return { min: ranges.min.slice(0, kept), max: ranges.max.slice(0, kept), rows: ranges.rows };
+  const activationRanges = ranges ? { min: ranges.min.slice(0, kept), max: ranges.max.slice(0, kept), rows: ranges.rows } : null;
+  return { ...doc, layers, labels: null, activationRanges };
 }

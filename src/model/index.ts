@@ -40,4 +40,4 @@ export { inputAffine, inputShiftScale, type InputAffine } from './input-affine.j
 export { canCalibrate, outputDenseIndex, temperatureOf, temperatureProblems, withTemperatureFolded } from './temperature.js';
 export { attachTargetScaling, fitTargetScaling, foldTargetScaling, scalableOutputLayer, targetScalingProblems } from './target-scaling.js';
 export { runningForm } from './running-form.js';
-export { activationRangeProblems, denseLayerIndices, rangesOfPrefix } from './activation-ranges.js';
+export { activationRangeProblems, denseLayerIndices, modelCutAfter } from './activation-ranges.js';

@@ -9,16 +9,8 @@
  * backend's matrix product. Parity with the float64 reference is held in the tests.
  */
 import { ShapeError } from '../../errors.js';
-import {
-  activationKind,
-  inputShiftScale,
-  modelWidths,
-  rangesOfPrefix,
-  validateModel,
-  type ActivationF32,
-  type ModelDoc,
-  type SimdInference,
-} from '../../model/index.js';
+import { activationKind, inputShiftScale, modelWidths, validateModel, type ActivationF32, type ModelDoc, type SimdInference } from '../../model/index.js';
+import { outputsOfPrefixes } from '../prefix-outputs.js';
 import type { Runner } from '../runner.js';
 import { instantiateDenseKernel, padded, type DenseKernel, type KernelOptions } from './dense-kernel.js';
 import { simdInferencePlan } from './simd-plan.js';
@@ -184,13 +176,8 @@ export class SimdRunner implements Runner {
    * output of the model cut after layer i, run on this same kernel.
    */
   runLayers(data: Float32Array, rows: number): Float32Array[] {
-    return this.doc.layers.map((_, i) => {
-      if (i === this.doc.layers.length - 1) return this.run(data, rows);
-      const layers = this.doc.layers.slice(0, i + 1);
-      // Stored int8 ranges (read by the int8 engine only) are cut with the layers, so the prefix stays valid.
-      const prefix: ModelDoc = { ...this.doc, layers, labels: null, activationRanges: rangesOfPrefix(this.doc.activationRanges, layers) };
-      return new SimdRunner(prefix, { chunkRows: this.chunkRows, kernel: this.kernelOptions }).run(data, rows);
-    });
+    const open = (prefix: ModelDoc) => new SimdRunner(prefix, { chunkRows: this.chunkRows, kernel: this.kernelOptions });
+    return outputsOfPrefixes(this.doc, () => this.run(data, rows), open, data, rows);
   }
 
   /**

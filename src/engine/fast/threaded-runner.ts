@@ -4,7 +4,8 @@
  * between the caller and helper threads without copying them. `openRunner` picks it for the fast
  * engine when more than one thread is asked for (`tendon score` asks for every core).
  */
-import { rangesOfPrefix, type ModelDoc } from '../../model/index.js';
+import type { ModelDoc } from '../../model/index.js';
+import { outputsOfPrefixes } from '../prefix-outputs.js';
 import type { Runner } from '../runner.js';
 import { SharedMemoryRunner } from '../shared-memory-runner.js';
 import { simdInferencePlan } from './simd-plan.js';
@@ -61,18 +62,8 @@ export class ThreadedFastRunner implements Runner {
 
   /** Each layer's output, from the model cut after that layer (one thread), for the parity report. */
   runLayers(data: Float32Array, rows: number): Float32Array[] {
-    return this.doc.layers.map((_, i) => {
-      if (i === this.doc.layers.length - 1) return this.run(data, rows);
-      const layers = this.doc.layers.slice(0, i + 1);
-      // Stored int8 ranges (read by the int8 engine only) are cut with the layers, so the prefix stays valid.
-      const prefix: ModelDoc = { ...this.doc, layers, labels: null, activationRanges: rangesOfPrefix(this.doc.activationRanges, layers) };
-      const cut = new SharedMemoryRunner(prefix, { arith: 'f32', threads: 1, chunkRows: this.opts.chunkRows, source: this.opts.source });
-      try {
-        return cut.run(data, rows);
-      } finally {
-        cut.dispose();
-      }
-    });
+    const open = (prefix: ModelDoc) => new SharedMemoryRunner(prefix, { arith: 'f32', threads: 1, chunkRows: this.opts.chunkRows, source: this.opts.source });
+    return outputsOfPrefixes(this.doc, () => this.run(data, rows), open, data, rows);
   }
 
   dispose(): void {

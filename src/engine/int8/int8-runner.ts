@@ -9,7 +9,8 @@
  * other rows it was batched with (a service would answer the same row differently under load).
  * Stored ranges are fixed per layer, so they keep that promise too.
  */
-import { rangesOfPrefix, type ModelDoc } from '../../model/index.js';
+import type { ModelDoc } from '../../model/index.js';
+import { outputsOfPrefixes } from '../prefix-outputs.js';
 import type { Runner } from '../runner.js';
 import { SharedMemoryRunner } from '../shared-memory-runner.js';
 import { bestInt8Arith, INT8_KERNEL_NAMES, type Int8Arith } from './kernels.js';
@@ -93,17 +94,8 @@ export class Int8Runner implements Runner {
 
   /** Each layer's output, from the model cut after that layer, for the parity report. */
   runLayers(data: Float32Array, rows: number): Float32Array[] {
-    return this.doc.layers.map((_, i) => {
-      if (i === this.doc.layers.length - 1) return this.run(data, rows);
-      const layers = this.doc.layers.slice(0, i + 1);
-      const prefix: ModelDoc = { ...this.doc, layers, labels: null, activationRanges: rangesOfPrefix(this.doc.activationRanges, layers) };
-      const cut = new Int8Runner(prefix, { ...this.options, threads: 1 });
-      try {
-        return cut.run(data, rows);
-      } finally {
-        cut.dispose();
-      }
-    });
+    const open = (prefix: ModelDoc) => new Int8Runner(prefix, { ...this.options, threads: 1 });
+    return outputsOfPrefixes(this.doc, () => this.run(data, rows), open, data, rows);
   }
 
   dispose(): void {
