@@ -58,3 +58,19 @@ export function startChild(args, pattern) {
   });
   return { child, url };
 }
+
+/**
+ * An NPY float32 [rows, columns] request body (NEP 1, format 1.0, data on a 64-byte boundary),
+ * written here rather than by the library so the load generators stay independent of the reader
+ * they load.
+ */
+export function npyBody(values, rows, columns) {
+  const dict = `{'descr': '<f4', 'fortran_order': False, 'shape': (${rows}, ${columns}), }`;
+  const total = Math.ceil((10 + dict.length + 1) / 64) * 64;
+  const head = Buffer.alloc(total, 0x20);
+  Buffer.from([0x93, 0x4e, 0x55, 0x4d, 0x50, 0x59, 1, 0]).copy(head);
+  head.writeUInt16LE(total - 10, 8);
+  head.write(dict, 10, 'latin1');
+  head[total - 1] = 0x0a;
+  return Buffer.concat([head, Buffer.from(values.buffer, values.byteOffset, values.byteLength)]);
+}

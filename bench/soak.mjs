@@ -17,7 +17,7 @@ import { spawn } from 'node:child_process';
 import { mkdtemp, readFile, rename, rm, writeFile } from 'node:fs/promises';
 import { cpus, tmpdir } from 'node:os';
 import { join } from 'node:path';
-import { CLI, HERE, RESULTS, hardDeadline, option, seeded, startChild } from './shared.mjs';
+import { CLI, HERE, RESULTS, hardDeadline, npyBody, option, seeded, startChild } from './shared.mjs';
 
 const SECONDS = option('soak', 'seconds', 60);
 const CLIENTS = option('soak', 'clients', 8);
@@ -102,21 +102,14 @@ async function main() {
   const tensorsStart = await tensorsOf();
   const sampler = setInterval(async () => samples.push((await memoryOf(server.pid)).rss), 1000);
 
-  /** An NPY float32 [rows, 7] body (NEP 1, format 1.0, data on a 64-byte boundary). */
-  const npyBody = (rowsOf) => {
-    const dict = `{'descr': '<f4', 'fortran_order': False, 'shape': (${rowsOf.length}, ${FEATURES.length}), }`;
-    const total = Math.ceil((10 + dict.length + 1) / 64) * 64;
-    const head = Buffer.alloc(total, 0x20);
-    Buffer.from([0x93, 0x4e, 0x55, 0x4d, 0x50, 0x59, 1, 0]).copy(head);
-    head.writeUInt16LE(total - 10, 8);
-    head.write(dict, 10, 'latin1');
-    head[total - 1] = 0x0a;
-    return Buffer.concat([head, Buffer.from(Float32Array.from(rowsOf.flat()).buffer)]);
-  };
   // Each client speaks one body type: JSON, NPY (answered NPY) or CSV (answered CSV), mixed.
   const KINDS = ['json', 'npy', 'csv'];
   const request = (kind, rowsOf) => {
-    if (kind === 'npy') return { headers: { 'content-type': 'application/x-npy', accept: 'application/x-npy' }, body: npyBody(rowsOf) };
+    if (kind === 'npy')
+      return {
+        headers: { 'content-type': 'application/x-npy', accept: 'application/x-npy' },
+        body: npyBody(Float32Array.from(rowsOf.flat()), rowsOf.length, FEATURES.length),
+      };
     if (kind === 'csv')
       return { headers: { 'content-type': 'text/csv', accept: 'text/csv' }, body: [FEATURES.join(','), ...rowsOf.map((r) => r.join(','))].join('\n') };
     return { headers: { 'content-type': 'application/json' }, body: JSON.stringify({ rows: rowsOf }) };

@@ -17,7 +17,7 @@ import { mkdtemp, readFile, rm, writeFile } from 'node:fs/promises';
 import { cpus, tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { fileURLToPath } from 'node:url';
-import { CLI, HERE, RESULTS, hardDeadline, option, seeded, startChild } from './shared.mjs';
+import { CLI, HERE, RESULTS, hardDeadline, npyBody, option, seeded, startChild } from './shared.mjs';
 
 const SECONDS = option('wire', 'seconds', 4);
 const ROUNDS = option('wire', 'rounds', 3);
@@ -166,17 +166,6 @@ async function load(url, body, headers, pid) {
   };
 }
 
-function npyBody(x, rows) {
-  const dict = `{'descr': '<f4', 'fortran_order': False, 'shape': (${rows}, ${INPUTS}), }`;
-  const total = Math.ceil((10 + dict.length + 1) / 64) * 64;
-  const head = Buffer.alloc(total, 0x20);
-  Buffer.from([0x93, 0x4e, 0x55, 0x4d, 0x50, 0x59, 1, 0]).copy(head);
-  head.writeUInt16LE(total - 10, 8);
-  head.write(dict, 10, 'latin1');
-  head[total - 1] = 0x0a;
-  return Buffer.concat([head, Buffer.from(x.buffer)]);
-}
-
 function npyValues(buffer) {
   const headerLength = buffer.readUInt16LE(8);
   const data = buffer.subarray(10 + headerLength);
@@ -204,7 +193,7 @@ export async function measureWire() {
   const random = seeded(5);
   const rows = Array.from({ length: ROWS }, () => Array.from({ length: INPUTS }, () => Math.round(random() * 1000) / 1000));
   const jsonBody = Buffer.from(JSON.stringify({ rows }));
-  const npy = npyBody(Float32Array.from(rows.flat()), ROWS);
+  const npy = npyBody(Float32Array.from(rows.flat()), ROWS, INPUTS);
 
   const bare = startChild(profiled([join(HERE, 'bare-server.mjs'), model]), /on (http:\/\/127\.0\.0\.1:\d+)/);
   const tendon = startChild(
