@@ -142,20 +142,19 @@ export async function benchModel(doc: ModelDoc, options: BenchModelOptions = {})
   return out;
 }
 
+/** The measured cells of a bench row, as every bench table shows them, under `MEASURED_HEAD`. */
+export function measuredCells(r: Pick<BenchRow, 'batch' | 'rowsPerSec' | 'gflops' | 'p50Ms' | 'p99Ms' | 'rssMiB' | 'tensors'>): string[] {
+  return [String(r.batch), fmt(r.rowsPerSec, 0), fmt(r.gflops, 2), fmt(r.p50Ms, 3), fmt(r.p99Ms, 3), fmt(r.rssMiB, 0), String(r.tensors)];
+}
+
+export const MEASURED_HEAD = ['batch', 'rows/s', 'GFLOP/s', 'p50 ms', 'p99 ms', 'rss MiB', 'tensors'];
+
 /** A plain-text table of bench rows, one line per batch size. */
 export function formatBenchRows(rows: readonly BenchRow[]): string {
-  const head = ['engine', 'batch', 'rows/s', 'GFLOP/s', 'p50 ms', 'p99 ms', 'rss MiB', 'tensors'];
-  const body = rows.map((r) => [
-    r.engine,
-    String(r.batch),
-    fmt(r.rowsPerSec, 0),
-    fmt(r.gflops, 2),
-    fmt(r.p50Ms, 3),
-    fmt(r.p99Ms, 3),
-    fmt(r.rssMiB, 0),
-    String(r.tensors),
-  ]);
-  return table(head, body);
+  return table(
+    ['engine', ...MEASURED_HEAD],
+    rows.map((r) => [r.engine, ...measuredCells(r)]),
+  );
 }
 
 /** Fixed-width text table; numbers right-aligned. */

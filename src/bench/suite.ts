@@ -28,7 +28,7 @@ import { MicroBatcher } from '../serve/batcher.js';
 import { WorkerPool } from '../serve/pool.js';
 import { tune } from '../train/tune.js';
 import { numpyKey, plainTfjsForward, referenceRunner, runNumpyBaseline, type NumpyResult } from './baselines.js';
-import { fmt, gflops, percentile, table, timeCalls, type Timing } from './measure.js';
+import { fmt, gflops, MEASURED_HEAD, measuredCells, percentile, table, timeCalls, type Timing } from './measure.js';
 import { measureEndToEnd } from './end-to-end.js';
 import { int8InnerLoopRate } from './kernel-limit.js';
 import { denseStackDoc, multiplyAddsPerRow, seededRows } from './models.js';
@@ -701,34 +701,13 @@ export function checkTargets(rows: readonly SuiteRow[], baselines: SuiteResult['
 
 /** The suite's rows as a text table. */
 export function formatSuite(result: SuiteResult): string {
-  const head = [
-    'section',
-    'network',
-    'engine',
-    'workers',
-    'batch',
-    'rows/s',
-    'GFLOP/s',
-    'p50 ms',
-    'p99 ms',
-    'rss MiB',
-    'tensors',
-    'x tfjs ops',
-    'x ref f64',
-    'x numpy',
-  ];
+  const head = ['section', 'network', 'engine', 'workers', ...MEASURED_HEAD, 'x tfjs ops', 'x ref f64', 'x numpy'];
   const body = result.rows.map((r) => [
     r.section,
     r.network,
     r.engine,
     r.workers ? String(r.workers) : '-',
-    String(r.batch),
-    fmt(r.rowsPerSec, 0),
-    fmt(r.gflops, 2),
-    fmt(r.p50Ms, 3),
-    fmt(r.p99Ms, 3),
-    fmt(r.rssMiB, 0),
-    String(r.tensors),
+    ...measuredCells(r),
     fmt(r.vsPlainTfjs, 1),
     fmt(r.vsReference, 1),
     fmt(r.vsNumpy, 2),
