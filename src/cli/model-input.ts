@@ -40,6 +40,11 @@ export function inputColumns(doc: ModelDoc, table: Pick<TableReader, 'columns' |
     // id column from its inputs.
     if (!doc.features && table.columns)
       error.withHint('the model has no feature names: remove the other columns, or give it names (a spec\'s "features", or tune it on this header)');
+    // A file without a header (an NPY array, a headerless table) is read by position alone.
+    else if (!table.columns && named.length > doc.inputs)
+      error.withHint(
+        `a file without column names must hold exactly the ${doc.inputs} inputs, in order: drop the other columns first (numpy: a[:, :${doc.inputs}] when they come last)`,
+      );
     throw error;
   }
   return named;

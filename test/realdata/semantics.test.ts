@@ -10,6 +10,7 @@ import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { afterAll, describe, expect, it } from 'vitest';
 import { readModelFile } from '../../src/format/index.js';
+import { writeNpy } from '../../src/io/index.js';
 import { runCli } from '../cli/run-cli.js';
 import { breastCancer, diabetes, digits, iris, linnerud, specOf, splitRows, wine, writeCsv, type Table } from './semantics-data.js';
 
@@ -259,6 +260,18 @@ describe('real files through tune, score, about and shrink (python3-sklearn data
     const scored = await runCli('score', model, '--input', csv, '--output', join(dir, 'cancer-named-scores.csv'));
     expect(scored.code, scored.err).toBe(0);
     expect(readOutputs(join(dir, 'cancer-named-scores.csv')).rows).toHaveLength(data.rows.length);
+    // The same rows as .npy with the target as its last column (as numpy users often save them):
+    // no names to match, so refused with what to do, never read with the target as a feature.
+    const npy = join(dir, 'cancer-with-target.npy');
+    await writeNpy(npy, Float32Array.from(data.rows.flatMap((r) => r.map((c) => (c === 'malignant' ? 0 : c === 'benign' ? 1 : Number(c))))), [
+      data.rows.length,
+      31,
+    ]);
+    const npyRefused = await runCli('score', model, '--input', npy, '--output', join(dir, 'cancer-npy.csv'));
+    expect(npyRefused.code).toBe(2);
+    expect(npyRefused.err).toMatch(
+      /cancer-with-target\.npy:1: has 31 columns, but the model takes 30 inputs.*without column names must hold exactly the 30 inputs.*a\[:, :30\]/,
+    );
   });
 
   it('wine (Forina et al., UCI): the JSONL log and the text log name the same best epoch, counted from 1', async () => {
