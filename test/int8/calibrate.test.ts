@@ -8,7 +8,7 @@ import { beforeAll, describe, expect, it } from 'vitest';
 import { int8ParityReport, parityReport, randomInputs, topClassAgreement } from '../../src/check/index.js';
 import { SimdRunner } from '../../src/engine/fast/simd-runner.js';
 import { Int8Runner } from '../../src/engine/int8/int8-runner.js';
-import { i16DotAvailable, relaxedDotAvailable, type Int8Arith } from '../../src/engine/int8/kernels.js';
+import { availableInt8Ariths, type Int8Arith } from '../../src/engine/int8/kernels.js';
 import { decodeModel, encodeModel } from '../../src/format/codec.js';
 import { denseLayerIndices, SeededRng, type ModelDoc } from '../../src/model/index.js';
 import { docOf, randomDense } from '../fixtures/models.js';
@@ -18,7 +18,7 @@ import { recordActivationRanges, withActivationRanges } from '../../src/transfor
 import { shrinkModel } from '../../src/transform/shrink.js';
 import { loadDataset, splitRows } from '../realdata/prepare.js';
 
-const ARITHS: Int8Arith[] = [...(relaxedDotAvailable() ? (['relaxed'] as const) : []), ...(i16DotAvailable() ? (['i16'] as const) : [])];
+const ARITHS: Int8Arith[] = availableInt8Ariths();
 
 function rowsOf(x: number[][], keep: readonly number[]): Float32Array {
   const out = new Float32Array(keep.length * x[0].length);

@@ -8,14 +8,14 @@ import { SimdRunner } from '../../src/engine/fast/simd-runner.js';
 import { ThreadedFastRunner } from '../../src/engine/fast/threaded-runner.js';
 import { openRunner } from '../../src/engine/runner.js';
 import { Int8Runner } from '../../src/engine/int8/int8-runner.js';
-import { i16DotAvailable, MAX_INT8_INPUTS, relaxedDotAvailable, type Int8Arith } from '../../src/engine/int8/kernels.js';
+import { availableInt8Ariths, MAX_INT8_INPUTS, type Int8Arith } from '../../src/engine/int8/kernels.js';
 import { SharedMemoryRunner } from '../../src/engine/shared-memory-runner.js';
 import { ModelFileError } from '../../src/errors.js';
 import { storedCodesOf } from '../../src/format/int8.js';
 import { ACTIVATIONS, SeededRng, type Layer, type ModelDoc } from '../../src/model/index.js';
 import { shrinkModel } from '../../src/transform/shrink.js';
 
-const ARITHS: Int8Arith[] = [...(relaxedDotAvailable() ? (['relaxed'] as const) : []), ...(i16DotAvailable() ? (['i16'] as const) : [])];
+const ARITHS: Int8Arith[] = availableInt8Ariths();
 
 function i8Of(doc: ModelDoc): ModelDoc {
   return shrinkModel(doc, 'i8', { at: '2026-01-01T00:00:00Z' });

@@ -1,8 +1,14 @@
 /**
  * The integer micro-kernels, emitted as WebAssembly functions: activations quantised per row on
  * the fly, int8 weights times 6-bit activations summed in 32-bit integers, and dequantise + bias
- * + ReLU fused at the store. Two arithmetics give the same integers (so the same outputs, bit for
- * bit): the relaxed-SIMD i8 dot (16 multiply-adds per instruction) and the standard i16 dot (8).
+ * + ReLU fused at the store. Three arithmetics give the same integers (so the same outputs, bit
+ * for bit): two forms of the relaxed-SIMD i8 dot (16 multiply-adds per instruction) and the
+ * standard i16 dot (8). The relaxed forms differ in how sums reach 32 bits:
+ * - 'relaxed': i16x8.relaxed_dot_i8x16_i7x16_s, two steps added in 16 bits, then widened (a dot
+ *   with ones) and added: 5 instructions per 32 multiply-adds on any x64 V8;
+ * - 'relaxed-add': i32x4.relaxed_dot_i8x16_i7x16_add_s, 2 instructions per 32 multiply-adds where
+ *   V8 lowers it to one AVX-VNNI vpdpbusd, but 3 or 4 x64 instructions each where it does not
+ *   (measured on x64: V8 11.3 and 12.4 do not, 13.6 does; see `dotAddIsOneInstruction`).
  *
  * Activations (Jacob et al., CVPR 2018: real = scale · (q - zero)): per row, the range
  * [min(0, min x), max(0, max x)] maps onto the codes 0..63, scale = (max - min) / 63 and
@@ -31,6 +37,7 @@
  * 8064 · K <= 2^31 - 1, that is K <= 266305; widths are padded to multiples of 16, so the widest
  * accepted layer has 266304 (padded) inputs. A wider layer is refused by the session, by name.
  */
+import { readFileSync } from 'node:fs';
 import { Code, F32, I32, V128, moduleBytes, type FunctionDef } from '../fast/wasm-emit.js';
 import { validatesWithRelaxedSimd, wasmApi } from '../fast/dense-kernel.js';
 
@@ -44,18 +51,20 @@ export const MAX_INT8_INPUTS = 266304;
 export const CODE_MAX = 63;
 
 /** Which integer dot product a kernel is built on. */
-export type Int8Arith = 'relaxed' | 'i16';
+export type Int8Arith = 'relaxed' | 'relaxed-add' | 'i16';
 
 /** Bytes of one activation code in the quantised rows each arithmetic reads. */
-export const CODE_BYTES: Readonly<Record<Int8Arith, number>> = { relaxed: 1, i16: 2 };
+export const CODE_BYTES: Readonly<Record<Int8Arith, number>> = { relaxed: 1, 'relaxed-add': 1, i16: 2 };
 
 /**
  * Register tile: rows x (4 · COL_VECTORS) outputs. i16: 4 x 8 keeps 8 accumulators, 2 weight
  * vectors and a splat in registers. Relaxed: 2 x 8, its step holding 4 weight vectors (two
  * groups) and 2 splats; measured on x64 V8 11.3, 3 x 8 and 4 x 8 spill or schedule worse
- * (about 10% and 20% slower), whatever the emitted order.
+ * (about 10% and 20% slower), whatever the emitted order. Relaxed-add: 4 x 8, its accumulators
+ * taking the sums directly (measured on x64 V8 13.6 with AVX-VNNI: 4 x 8 about 100 G multiply-adds
+ * per second in L1, 2 x 8 57, 3 x 8 80, 6 x 8 77, 8 x 4 94).
  */
-export const TILE_ROWS: Readonly<Record<Int8Arith, number>> = { relaxed: 2, i16: 4 };
+export const TILE_ROWS: Readonly<Record<Int8Arith, number>> = { relaxed: 2, 'relaxed-add': 4, i16: 4 };
 export const COL_VECTORS = 2;
 /** Columns per weight panel. */
 export const PANEL = 4 * COL_VECTORS;
@@ -177,7 +186,7 @@ export function quantiseFunction(arith: Int8Arith, mode: 'row' | 'fixed' = 'row'
       quad(32);
       quad(48);
       c.i16x8NarrowI32x4S().set(HI);
-      if (arith === 'relaxed') {
+      if (CODE_BYTES[arith] === 1) {
         // Saturating narrow to [0, 255], then the CODE_MAX cap.
         c.get(DP).get(LO).get(HI).i8x16NarrowI16x8U().i32(CODE_MAX).i8x16Splat().i8x16MinU().v128Store(0);
         c.get(DP).i32(16).add().set(DP);
@@ -328,7 +337,7 @@ interface DenseI8Emit {
  * y[r, n] = act(((Σ_k q[r,k] · code[k,n]) - zero_r · colSum[n]) · scale_r · wScale[n] + bias[n])
  * over `rows` rows; K = 4 · groups inputs; outP a multiple of PANEL; w packed by `packInt8Weights`.
  * Column panels outer (a panel of codes stays in L1), rows inner in tiles of TILE_ROWS[arith].
- * K must be a multiple of 8 for the relaxed arithmetic (its step takes two groups); widths are
+ * K must be a multiple of 8 for the relaxed arithmetics (their step takes two groups); widths are
  * padded to 16.
  */
 export function denseInt8Function(arith: Int8Arith, tileRows = TILE_ROWS[arith], colVectors = COL_VECTORS): FunctionDef {
@@ -352,7 +361,7 @@ export function denseInt8Function(arith: Int8Arith, tileRows = TILE_ROWS[arith],
     ZS = locals.add(V128),
     SS = locals.add(V128);
   const c = new Code();
-  const groupBytes = 16 * colVectors * (arith === 'relaxed' ? 1 : 2);
+  const groupBytes = 16 * colVectors * CODE_BYTES[arith];
   const xGroupBytes = 4 * CODE_BYTES[arith];
   const l = { R0, J, G, WP, WPANEL, PANELBYTES, YP, PP, XP, ACC, WV, S, S1, ONES, LOWER, ZS, SS };
   const e: DenseI8Emit = { c, arith, colVectors, groupBytes, xGroupBytes, l };
@@ -411,8 +420,9 @@ function emitInt8Tile(e: DenseI8Emit, rows: number): void {
       .set(XP[t]);
   c.get(WPANEL).set(WP);
   c.get(GROUPS).set(G);
-  // The relaxed loop takes two groups per step (their i16 sums added before widening), the i16 loop one.
-  const step = e.arith === 'relaxed' ? 2 : 1;
+  // The relaxed loops take two groups per step (their i16 sums added before widening, or two
+  // dot-adds on each accumulator), the i16 loop one.
+  const step = CODE_BYTES[e.arith] === 1 ? 2 : 1;
   c.block().loop();
   {
     emitInt8GroupProducts(e, rows);
@@ -438,7 +448,7 @@ function emitInt8Tile(e: DenseI8Emit, rows: number): void {
  */
 function emitInt8GroupProducts({ c, arith, colVectors, groupBytes, l }: DenseI8Emit, rows: number): void {
   const { WP, XP, ACC, WV, S, S1, ONES } = l;
-  if (arith === 'relaxed') {
+  if (CODE_BYTES[arith] === 1) {
     // Both groups' weight vectors stay in registers; each row's two splats are used at once.
     const W0 = WV.slice(0, colVectors);
     const W1 = WV.slice(colVectors);
@@ -455,6 +465,11 @@ function emitInt8GroupProducts({ c, arith, colVectors, groupBytes, l }: DenseI8E
       c.get(XP[t]).load32Splat(4).set(S1);
       for (let v = 0; v < colVectors; v++) {
         const acc = ACC[t * colVectors + v];
+        if (arith === 'relaxed-add') {
+          // Each group's four products per lane go straight into the 32-bit sums.
+          c.get(W1[v]).get(S1).get(W0[v]).get(S).get(acc).i32x4RelaxedDotI8x16I7x16AddS().i32x4RelaxedDotI8x16I7x16AddS().set(acc);
+          continue;
+        }
         c.get(acc).get(W0[v]).get(S).i16x8RelaxedDotI8x16I7x16S().get(W1[v]).get(S1).i16x8RelaxedDotI8x16I7x16S();
         // Widened as a dot with ones held in a register (V8 11.3 lowers extadd_pairwise to the same
         // pmaddwd, but against a constant it reloads through a scalar register every time).
@@ -573,7 +588,7 @@ export function affineFunction(name: string, order: 'scale-shift' | 'shift-scale
  * Pack a layer's codes (row-major [inputs, units]) for `denseInt8Function`, padded with zero codes
  * to [kP, nP] (kP a multiple of 4, nP of PANEL). Panel p holds columns p·PANEL.. and, per group of
  * 4 inputs, COL_VECTORS vectors of 4 columns:
- * - relaxed: 16 bytes per vector, column j's 4 codes for inputs 4g..4g+3 in bytes 4j..4j+3 (one
+ * - relaxed and relaxed-add: 16 bytes per vector, column j's 4 codes for inputs 4g..4g+3 in bytes 4j..4j+3 (one
  *   i32 lane of the dot);
  * - i16: two halves per group (inputs 4g+2h, +1), 8 i16 per vector, column j's pair in lanes 2j, 2j+1.
  */
@@ -590,7 +605,7 @@ export function packInt8Weights(
   const panel = 4 * colVectors;
   const panels = nP / panel;
   const code = (k: number, n: number): number => (k < inputs && n < units ? codes[k * units + n] : 0);
-  if (arith === 'relaxed') {
+  if (CODE_BYTES[arith] === 1) {
     const out = new Int8Array(kP * nP);
     for (let p = 0; p < panels; p++)
       for (let g = 0; g < groups; g++)
@@ -717,6 +732,51 @@ export function relaxedDotAvailable(): boolean {
   return relaxedDot;
 }
 
+let relaxedDotAdd: boolean | null = null;
+
+/** Whether i32x4.relaxed_dot_i8x16_i7x16_add_s validates here and gives the right answers. */
+export function relaxedDotAddAvailable(): boolean {
+  if (relaxedDotAdd !== null) return relaxedDotAdd;
+  // probe(at): the dot-add on the vectors at at, at + 16 and accumulator at + 32, stored at at + 48.
+  const code = new Code().get(0).get(0).v128Load(0).get(0).v128Load(16).get(0).v128Load(32);
+  code.i32x4RelaxedDotI8x16I7x16AddS().v128Store(48);
+  const bytes = moduleBytes(1, [{ name: 'probe', params: [I32], locals: [], code }]);
+  relaxedDotAdd = validatesWithRelaxedSimd(bytes) && knownAnswer(bytes);
+  return relaxedDotAdd;
+}
+
+/**
+ * Whether this V8 lowers i32x4.relaxed_dot_i8x16_i7x16_add_s to one instruction, the only case
+ * where 'relaxed-add' beats 'relaxed': x64 with AVX-VNNI (Linux lists it as avx_vnni) and V8 13.6
+ * or later. Measured on one AMD EPYC with AVX-VNNI, G multiply-adds per second of the inner loop in
+ * L1, relaxed against relaxed-add: V8 11.3 (Node 20) 66-72 against 44; V8 12.4 (Node 22) 71 against
+ * 44; V8 13.6 (Node 24) 64-69 against 100. Anywhere this cannot be told, 'relaxed' runs.
+ */
+export function dotAddIsOneInstruction(v8Version = process.versions.v8, arch = process.arch, cpuFlags = linuxCpuFlags): boolean {
+  const [major, minor] = v8Version.split('.').map(Number);
+  if (arch !== 'x64' || !(major > 13 || (major === 13 && minor >= 6))) return false;
+  return cpuFlags().has('avx_vnni');
+}
+
+/** The CPU's feature flags as Linux lists them (/proc/cpuinfo); empty elsewhere. */
+function linuxCpuFlags(): Set<string> {
+  try {
+    const line = readFileSync('/proc/cpuinfo', 'latin1')
+      .split('\n')
+      .find((l) => l.startsWith('flags'));
+    return new Set(
+      line
+        ? line
+            .slice(line.indexOf(':') + 1)
+            .trim()
+            .split(/\s+/)
+        : [],
+    );
+  } catch {
+    return new Set();
+  }
+}
+
 /** The relaxed step gives the exact sums on extreme and mixed codes (a wrong lowering is refused, not trusted). */
 function knownAnswer(bytes: Uint8Array): boolean {
   try {
@@ -753,14 +813,24 @@ export function i16DotAvailable(): boolean {
   }
 }
 
+/** Every integer arithmetic that validates and answers right here (tests and the bench run each). */
+export function availableInt8Ariths(): Int8Arith[] {
+  const all: Int8Arith[] = [];
+  if (relaxedDotAvailable()) all.push('relaxed');
+  if (relaxedDotAddAvailable()) all.push('relaxed-add');
+  if (i16DotAvailable()) all.push('i16');
+  return all;
+}
+
 /** The integer arithmetic to use here, best first; null when WebAssembly SIMD is missing. */
 export function bestInt8Arith(): Int8Arith | null {
-  if (relaxedDotAvailable()) return 'relaxed';
+  if (relaxedDotAvailable()) return relaxedDotAddAvailable() && dotAddIsOneInstruction() ? 'relaxed-add' : 'relaxed';
   return i16DotAvailable() ? 'i16' : null;
 }
 
 /** What users see for each arithmetic. */
 export const INT8_KERNEL_NAMES: Readonly<Record<Int8Arith, string>> = {
   relaxed: 'relaxed i8 dot, i16x8.relaxed_dot_i8x16_i7x16_s',
+  'relaxed-add': 'relaxed i8 dot-add, i32x4.relaxed_dot_i8x16_i7x16_add_s',
   i16: 'i16 dot, i32x4.dot_i16x8_s',
 };
