@@ -105,11 +105,8 @@ export function runNumpyBaseline(script: string, cases: readonly NumpyCase[], mi
   let blas = '';
   let kernels = 'unknown';
   for (const threads of ['1', '']) {
-    const env = numpyEnv(threads || null);
-    const child = spawnSync('python3', [script], { input: JSON.stringify({ minMs, cases }), encoding: 'utf8', maxBuffer: 16 * 2 ** 20, env });
-    if (child.status !== 0) return { available: false, note: `numpy column skipped: ${script} failed (${child.stderr.trim().split('\n').pop()})` };
-    const parsed: unknown = JSON.parse(child.stdout);
-    const doc = parsed as NumpyOutput;
+    const doc = numpyChild(script, cases, minMs, threads || null);
+    if (typeof doc === 'string') return { available: false, note: `numpy column skipped: ${doc}` };
     version = doc.numpy;
     blas = doc.blas;
     kernels = doc.kernels ?? 'unknown';
@@ -123,6 +120,24 @@ export function runNumpyBaseline(script: string, cases: readonly NumpyCase[], mi
     }
   }
   return { available: true, version, blas: `${blas} (${kernels} kernels), best of 1 thread and all threads`, timings, allThreads, kernels };
+}
+
+/** One run of the numpy script on `threads` OpenBLAS threads (null: every core); what went wrong as a string. */
+function numpyChild(script: string, cases: readonly NumpyCase[], minMs: number, threads: string | null): NumpyOutput | string {
+  const env = numpyEnv(threads);
+  const child = spawnSync('python3', [script], { input: JSON.stringify({ minMs, cases }), encoding: 'utf8', maxBuffer: 16 * 2 ** 20, env });
+  if (child.error || child.status !== 0) return `${script} failed (${child.error?.message ?? child.stderr.trim().split('\n').pop()})`;
+  const parsed: unknown = JSON.parse(child.stdout);
+  return parsed as NumpyOutput;
+}
+
+/**
+ * numpy's rows per second on one case with OpenBLAS on every core, or null when it cannot run:
+ * the other side of a head-to-head measured in alternating rounds.
+ */
+export function numpyAllThreadsRate(script: string, widths: readonly number[], batch: number, minMs: number): number | null {
+  const doc = numpyChild(script, [{ widths, batches: [batch] }], minMs, null);
+  return typeof doc === 'string' ? null : (doc.results[0]?.rowsPerSec ?? null);
 }
 
 interface NumpyOutput {

@@ -9,4 +9,4 @@ export { SimdTrainer, simdTrainBlocker, type SimdTape, type SimdTrainForward } f
 export { wasmSimdAvailable } from './fast/dense-kernel.js';
 export { Int8Runner, type Int8RunnerOptions } from './int8/int8-runner.js';
 export { SharedMemoryRunner, type SharedArith, type SharedMemoryRunnerOptions } from './shared-memory-runner.js';
-export { bestInt8Arith, CODE_MAX, fixedQuantParams, INT8_KERNEL_NAMES, MAX_INT8_INPUTS, type Int8Arith } from './int8/kernels.js';
+export { availableInt8Ariths, bestInt8Arith, CODE_MAX, fixedQuantParams, INT8_KERNEL_NAMES, MAX_INT8_INPUTS, type Int8Arith } from './int8/kernels.js';

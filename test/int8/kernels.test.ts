@@ -325,7 +325,7 @@ describe('which relaxed form runs', () => {
   it('the engine picks the dot-add form exactly where the rule says, else the paired form', () => {
     const want = !relaxedDotAvailable() ? (i16DotAvailable() ? 'i16' : null) : relaxedDotAddAvailable() && dotAddIsOneInstruction() ? 'relaxed-add' : 'relaxed';
     expect(bestInt8Arith()).toBe(want);
-    // On the Node this project pins (V8 11.3) the dot-add form is never chosen, though it validates.
-    if (process.versions.v8.startsWith('11.')) expect(bestInt8Arith()).not.toBe('relaxed-add');
+    // V8 11.3 (Node 20) validates the dot-add but ignores its accumulator: the known answer refuses it.
+    if (process.versions.v8.startsWith('11.3.')) expect(relaxedDotAddAvailable()).toBe(false);
   });
 });

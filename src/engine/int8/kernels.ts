@@ -8,7 +8,8 @@
  *   with ones) and added: 5 instructions per 32 multiply-adds on any x64 V8;
  * - 'relaxed-add': i32x4.relaxed_dot_i8x16_i7x16_add_s, 2 instructions per 32 multiply-adds where
  *   V8 lowers it to one AVX-VNNI vpdpbusd, but 3 or 4 x64 instructions each where it does not
- *   (measured on x64: V8 11.3 and 12.4 do not, 13.6 does; see `dotAddIsOneInstruction`).
+ *   (measured on x64: V8 12.4 does not, 13.6 does; V8 11.3 gets it wrong and is refused; see
+ *   `dotAddIsOneInstruction`).
  *
  * Activations (Jacob et al., CVPR 2018: real = scale · (q - zero)): per row, the range
  * [min(0, min x), max(0, max x)] maps onto the codes 0..63, scale = (max - min) / 63 and
@@ -749,8 +750,10 @@ export function relaxedDotAddAvailable(): boolean {
  * Whether this V8 lowers i32x4.relaxed_dot_i8x16_i7x16_add_s to one instruction, the only case
  * where 'relaxed-add' beats 'relaxed': x64 with AVX-VNNI (Linux lists it as avx_vnni) and V8 13.6
  * or later. Measured on one AMD EPYC with AVX-VNNI, G multiply-adds per second of the inner loop in
- * L1, relaxed against relaxed-add: V8 11.3 (Node 20) 66-72 against 44; V8 12.4 (Node 22) 71 against
- * 44; V8 13.6 (Node 24) 64-69 against 100. Anywhere this cannot be told, 'relaxed' runs.
+ * L1, relaxed against relaxed-add: V8 12.4 (Node 22) 71 against 44; V8 13.6 (Node 24) 64-69
+ * against 100. V8 11.3 (Node 20) validates the dot-add but gives wrong sums (it ignores the
+ * accumulator), which `relaxedDotAddAvailable`'s known answer catches. Anywhere this cannot be
+ * told, 'relaxed' runs.
  */
 export function dotAddIsOneInstruction(v8Version = process.versions.v8, arch = process.arch, cpuFlags = linuxCpuFlags): boolean {
   const [major, minor] = v8Version.split('.').map(Number);
