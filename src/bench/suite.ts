@@ -403,6 +403,12 @@ async function measureScoreFile(run: SuiteRun): Promise<void> {
 
 /** Whether the integer arithmetic the engine chose (bestInt8Arith) is the fastest of those measured on one thread here. */
 function noteInt8Choice(run: SuiteRun, chosen: Int8Arith): void {
+  if (!availableInt8Ariths().includes('relaxed-add')) {
+    run.notes.push(
+      `int8 dot-add form (i32x4.relaxed_dot_i8x16_i7x16_add_s) not run: V8 ${process.versions.v8} refuses it or gives wrong sums (known-answer probe); ` +
+        'on x64 with AVX-VNNI, V8 13.6 (Node 24) runs it as one instruction',
+    );
+  }
   const measured = run.rows.filter((r) => r.section === 'threads' && r.engine.startsWith('int8') && r.workers === 1 && r.batch === 256);
   if (measured.length < 2) return;
   const name = (r: SuiteRow) => (r.engine === 'int8' ? chosen : r.engine.slice('int8 '.length));
