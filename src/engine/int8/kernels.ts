@@ -353,7 +353,8 @@ export function denseInt8Function(arith: Int8Arith, tileRows = TILE_ROWS[arith],
     YP = locals.add(I32),
     PP = locals.add(I32);
   const XP = locals.many(I32, tileRows);
-  const ACC = locals.many(V128, tileRows * colVectors);
+  // At least two rows of accumulators: a single row on the dot-add form uses two per column vector.
+  const ACC = locals.many(V128, Math.max(tileRows, 2) * colVectors);
   const WV = locals.many(V128, 2 * colVectors);
   const S = locals.add(V128),
     S1 = locals.add(V128),
@@ -412,7 +413,10 @@ function emitInt8Tile(e: DenseI8Emit, rows: number): void {
   const { X, XSTRIDE, GROUPS } = DENSE_I8_PARAMS;
   const { c, colVectors, groupBytes, xGroupBytes } = e;
   const { R0, G, WP, WPANEL, XP, ACC } = e.l;
-  for (let a = 0; a < rows * colVectors; a++) c.v128Zero().set(ACC[a]);
+  // A single row on the dot-add form keeps its two groups' sums apart (two chains per column
+  // vector instead of one chain of dependent dot-adds), added before the epilogue.
+  const split = splitChains(e, rows);
+  for (let a = 0; a < rows * colVectors * (split ? 2 : 1); a++) c.v128Zero().set(ACC[a]);
   c.get(X).get(R0).get(XSTRIDE).mul().add().set(XP[0]);
   for (let t = 1; t < rows; t++)
     c.get(XP[t - 1])
@@ -439,7 +443,18 @@ function emitInt8Tile(e: DenseI8Emit, rows: number): void {
     c.get(G).i32(step).sub().tee(G).i32(0).ne().brIf(0);
   }
   c.end().end();
+  if (split)
+    for (let v = 0; v < colVectors; v++)
+      c.get(ACC[v])
+        .get(ACC[colVectors + v])
+        .i32x4Add()
+        .set(ACC[v]);
   emitInt8Epilogue(e, rows);
+}
+
+/** Whether a tile of `rows` rows keeps two accumulators per column vector (see emitInt8Tile). */
+function splitChains(e: Pick<DenseI8Emit, 'arith' | 'colVectors'>, rows: number): boolean {
+  return e.arith === 'relaxed-add' && rows === 1;
 }
 
 /**
@@ -468,7 +483,14 @@ function emitInt8GroupProducts({ c, arith, colVectors, groupBytes, l }: DenseI8E
         const acc = ACC[t * colVectors + v];
         if (arith === 'relaxed-add') {
           // Each group's four products per lane go straight into the 32-bit sums.
-          c.get(W1[v]).get(S1).get(W0[v]).get(S).get(acc).i32x4RelaxedDotI8x16I7x16AddS().i32x4RelaxedDotI8x16I7x16AddS().set(acc);
+          if (splitChains({ arith, colVectors }, rows)) {
+            c.get(W0[v]).get(S).get(acc).i32x4RelaxedDotI8x16I7x16AddS().set(acc);
+            c.get(W1[v])
+              .get(S1)
+              .get(ACC[colVectors + v])
+              .i32x4RelaxedDotI8x16I7x16AddS()
+              .set(ACC[colVectors + v]);
+          } else c.get(W1[v]).get(S1).get(W0[v]).get(S).get(acc).i32x4RelaxedDotI8x16I7x16AddS().i32x4RelaxedDotI8x16I7x16AddS().set(acc);
           continue;
         }
         c.get(acc).get(W0[v]).get(S).i16x8RelaxedDotI8x16I7x16S().get(W1[v]).get(S1).i16x8RelaxedDotI8x16I7x16S();
