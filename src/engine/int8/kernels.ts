@@ -773,8 +773,8 @@ export function relaxedDotAddAvailable(): boolean {
  * where 'relaxed-add' beats 'relaxed': x64 with AVX-VNNI (Linux lists it as avx_vnni) and V8 13.6
  * or later. Measured on one AMD EPYC with AVX-VNNI, G multiply-adds per second of the inner loop in
  * L1, relaxed against relaxed-add: V8 12.4 (Node 22) 71 against 44; V8 13.6 (Node 24) 64-69
- * against 100. V8 11.3 (Node 20) validates the dot-add but gives wrong sums (it ignores the
- * accumulator), which `relaxedDotAddAvailable`'s known answer catches. Anywhere this cannot be
+ * against 100. V8 11.3 (Node 20) validates the dot-add but gives wrong sums (twice the dot, no
+ * accumulator, on the probe), which `relaxedDotAddAvailable`'s known answer catches. Anywhere this cannot be
  * told, 'relaxed' runs.
  */
 export function dotAddIsOneInstruction(v8Version = process.versions.v8, arch = process.arch, cpuFlags = linuxCpuFlags): boolean {
