@@ -6,7 +6,6 @@
  * Calls that would take longer than a per-call budget (the plain JS paths on big batches) are
  * skipped with a note, predicted from the throughput measured at the previous batch size.
  */
-import { readFileSync } from 'node:fs';
 import { cpus, availableParallelism } from 'node:os';
 import {
   availableInt8Ariths,
@@ -25,6 +24,7 @@ import {
 } from '../engine/index.js';
 import { decodeModel, encodeModel } from '../format/index.js';
 import { wasmSimdAvailable } from '../engine/fast/dense-kernel.js';
+import { vectorFeatures } from '../engine/cpu-flags.js';
 import type { ModelDoc } from '../model/index.js';
 import { MicroBatcher } from '../serve/batcher.js';
 import { WorkerPool } from '../serve/pool.js';
@@ -593,17 +593,6 @@ async function measureLeaks(run: SuiteRun, engines: readonly SuiteEngine[]): Pro
       tensorGrowth: tensorsAfter - tensorsBefore,
       note,
     });
-  }
-}
-
-/** avx2 / avx512f / avx512_vnni / avx_vnni and the like, as /proc/cpuinfo lists them; "unknown" elsewhere. */
-function vectorFeatures(): string {
-  try {
-    const flags = /^flags\s*:(.*)$/m.exec(readFileSync('/proc/cpuinfo', 'utf8'))?.[1].trim().split(/\s+/) ?? [];
-    const wanted = flags.filter((f) => /^(sse4_2|avx|avx2|fma|avx512f|avx512bw|avx512vl|avx512_vnni|avx_vnni|amx_int8)$/.test(f));
-    return wanted.length ? wanted.join(' ') : 'unknown';
-  } catch {
-    return 'unknown';
   }
 }
 

@@ -9,6 +9,9 @@ import { engineNote, openModel } from '../../src/tendon.js';
 import { writeModelFile } from '../../src/format/index.js';
 import { SeededRng } from '../../src/model/index.js';
 import { shrinkModel } from '../../src/transform/shrink.js';
+import { bestInt8Arith, INT8_KERNEL_NAMES } from '../../src/engine/int8/kernels.js';
+import { machineLine } from '../../src/engine/cpu-flags.js';
+import { runCli } from '../cli/run-cli.js';
 
 const dir = mkdtempSync(join(tmpdir(), 'tendon-int8-'));
 afterAll(() => rmSync(dir, { recursive: true, force: true }));
@@ -39,5 +42,19 @@ describe('engine choice for i8 files', () => {
     const asked = await openModel(path, { engine: 'int8' });
     expect(asked.engine).toBe('int8');
     asked.dispose();
+  });
+
+  it('tendon bench names the int8 kernel that ran and the machine before its table', async () => {
+    const path = join(dir, 'bench-i8.tendon');
+    await writeModelFile(path, shrinkModel(f32, 'i8'));
+    const r = await runCli('bench', path, '--batch', '1,4', '--ms', '5');
+    expect(r.code).toBe(0);
+    const [first, header] = r.out.split('\n');
+    expect(first).toBe(`int8 engine: ${INT8_KERNEL_NAMES[bestInt8Arith() ?? 'i16']}, one thread; ${machineLine()}`);
+    expect(first).toContain(`Node ${process.version}`);
+    expect(header).toMatch(/^engine\s+batch\s+rows\/s/);
+    // --json stays rows only, for scripts.
+    const json = await runCli('bench', path, '--batch', '1', '--ms', '5', '--json');
+    expect(JSON.parse(json.out)).toHaveLength(1);
   });
 });

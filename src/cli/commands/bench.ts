@@ -1,5 +1,6 @@
 import { benchBaselines, benchModel, formatBenchRows } from '../../bench/index.js';
-import { resolveEngine } from '../../engine/index.js';
+import { kernelDescription, resolveEngine } from '../../engine/index.js';
+import { machineLine } from '../../engine/cpu-flags.js';
 import { UsageError } from '../../errors.js';
 import { readModelFile } from '../../format/index.js';
 import { noExtraPositionals, parseArgs, requirePositional } from '../args.js';
@@ -38,6 +39,8 @@ export const bench: Command = {
     // 'auto' measures what a service would get from openModel: int8 for an i8-stored model, else fast, else wasm, else js.
     const engine = choice === 'auto' ? (await resolveEngine('auto', doc)).engine : choice;
     const rows = await benchModel(doc, { batches, engine, minMs });
+    // Figures mean little without the machine and the kernel behind them.
+    if (!f.json) io.out(`${engine} engine: ${kernelDescription(engine)}${engine === 'fast' || engine === 'int8' ? ', one thread' : ''}; ${machineLine()}\n`);
     const text = f.json ? JSON.stringify(rows, null, 2) : formatBenchRows(rows);
     io.out(text.endsWith('\n') ? text : text + '\n');
     if (f.report && baselines) await writeBenchReport(f.report, path, rows, baselines);

@@ -38,9 +38,9 @@
  * 8064 · K <= 2^31 - 1, that is K <= 266305; widths are padded to multiples of 16, so the widest
  * accepted layer has 266304 (padded) inputs. A wider layer is refused by the session, by name.
  */
-import { readFileSync } from 'node:fs';
 import { Code, F32, I32, V128, moduleBytes, type FunctionDef } from '../fast/wasm-emit.js';
 import { validatesWithRelaxedSimd, wasmApi } from '../fast/dense-kernel.js';
+import { cpuFlags } from '../cpu-flags.js';
 
 /** Widest (padded) input width whose int32 accumulators cannot overflow; see the bound above. */
 export const MAX_INT8_INPUTS = 266304;
@@ -777,29 +777,10 @@ export function relaxedDotAddAvailable(): boolean {
  * accumulator, on the probe), which `relaxedDotAddAvailable`'s known answer catches. Anywhere this cannot be
  * told, 'relaxed' runs.
  */
-export function dotAddIsOneInstruction(v8Version = process.versions.v8, arch = process.arch, cpuFlags = linuxCpuFlags): boolean {
+export function dotAddIsOneInstruction(v8Version = process.versions.v8, arch: string = process.arch, flags: () => ReadonlySet<string> = cpuFlags): boolean {
   const [major, minor] = v8Version.split('.').map(Number);
   if (arch !== 'x64' || !(major > 13 || (major === 13 && minor >= 6))) return false;
-  return cpuFlags().has('avx_vnni');
-}
-
-/** The CPU's feature flags as Linux lists them (/proc/cpuinfo); empty elsewhere. */
-function linuxCpuFlags(): Set<string> {
-  try {
-    const line = readFileSync('/proc/cpuinfo', 'latin1')
-      .split('\n')
-      .find((l) => l.startsWith('flags'));
-    return new Set(
-      line
-        ? line
-            .slice(line.indexOf(':') + 1)
-            .trim()
-            .split(/\s+/)
-        : [],
-    );
-  } catch {
-    return new Set();
-  }
+  return flags().has('avx_vnni');
 }
 
 /** The relaxed step gives the exact sums on extreme and mixed codes (a wrong lowering is refused, not trusted). */
