@@ -5,9 +5,8 @@
  * engine when more than one thread is asked for (`tendon score` asks for every core).
  */
 import type { ModelDoc } from '../../model/index.js';
-import { outputsOfPrefixes } from '../prefix-outputs.js';
 import type { Runner } from '../runner.js';
-import { SharedMemoryRunner } from '../shared-memory-runner.js';
+import { SharedMemoryEngine } from '../shared-memory-engine.js';
 import { simdInferencePlan } from './simd-plan.js';
 
 export interface ThreadedFastRunnerOptions {
@@ -26,47 +25,19 @@ export interface ThreadedFastRunnerOptions {
  * @throws ModelFileError when the document is not usable; EngineRefusal when a layer has no
  *   fast-kernel form (the same refusals as SimdRunner).
  */
-export class ThreadedFastRunner implements Runner {
+export class ThreadedFastRunner extends SharedMemoryEngine {
   readonly engine = 'fast' as const;
-  readonly inputs: number;
-  readonly outputs: number;
-  private readonly shared: SharedMemoryRunner;
 
   constructor(
-    readonly doc: ModelDoc,
+    doc: ModelDoc,
     private readonly opts: ThreadedFastRunnerOptions,
   ) {
     // Refuse what the single-thread fast engine refuses, naming the layer, before compiling anything.
     simdInferencePlan(doc);
-    this.shared = new SharedMemoryRunner(doc, { arith: 'f32', threads: opts.threads, chunkRows: opts.chunkRows, source: opts.source });
-    this.inputs = this.shared.inputs;
-    this.outputs = this.shared.outputs;
+    super(doc, { arith: 'f32', threads: opts.threads, chunkRows: opts.chunkRows, source: opts.source });
   }
 
-  get threads(): number {
-    return this.shared.threads;
-  }
-
-  get chunkRows(): number {
-    return this.shared.chunkRows;
-  }
-
-  /** Resolves once the helper threads have started (until then the caller runs every row). */
-  ready(): Promise<void> {
-    return this.shared.ready();
-  }
-
-  run(data: Float32Array, rows: number): Float32Array {
-    return this.shared.run(data, rows);
-  }
-
-  /** Each layer's output, from the model cut after that layer (one thread), for the parity report. */
-  runLayers(data: Float32Array, rows: number): Float32Array[] {
-    const open = (prefix: ModelDoc) => new SharedMemoryRunner(prefix, { arith: 'f32', threads: 1, chunkRows: this.opts.chunkRows, source: this.opts.source });
-    return outputsOfPrefixes(this.doc, () => this.run(data, rows), open, data, rows);
-  }
-
-  dispose(): void {
-    this.shared.dispose();
+  protected openOneThread(prefix: ModelDoc): Runner {
+    return new ThreadedFastRunner(prefix, { ...this.opts, threads: 1 });
   }
 }

@@ -10,9 +10,8 @@
  * Stored ranges are fixed per layer, so they keep that promise too.
  */
 import type { ModelDoc } from '../../model/index.js';
-import { outputsOfPrefixes } from '../prefix-outputs.js';
 import type { Runner } from '../runner.js';
-import { SharedMemoryRunner } from '../shared-memory-runner.js';
+import { SharedMemoryEngine } from '../shared-memory-engine.js';
 import { bestInt8Arith, INT8_KERNEL_NAMES, type Int8Arith } from './kernels.js';
 
 export interface Int8RunnerOptions {
@@ -35,25 +34,18 @@ export interface Int8RunnerOptions {
  * @throws ModelFileError when the document is not usable or a layer is too wide for 32-bit sums;
  *   Error when this runtime has no WebAssembly SIMD.
  */
-export class Int8Runner implements Runner {
+export class Int8Runner extends SharedMemoryEngine {
   readonly engine = 'int8' as const;
-  readonly inputs: number;
-  readonly outputs: number;
   readonly arith: Int8Arith;
-  private readonly shared: SharedMemoryRunner;
-  private readonly options: Int8RunnerOptions;
 
   constructor(
-    readonly doc: ModelDoc,
-    opts: Int8RunnerOptions = {},
+    doc: ModelDoc,
+    private readonly options: Int8RunnerOptions = {},
   ) {
-    const arith = opts.arith ?? bestInt8Arith();
+    const arith = options.arith ?? bestInt8Arith();
     if (arith === null) throw new Error('the int8 engine needs WebAssembly SIMD, which this runtime lacks');
+    super(doc, { arith, threads: options.threads, chunkRows: options.chunkRows, source: options.source });
     this.arith = arith;
-    this.options = opts;
-    this.shared = new SharedMemoryRunner(doc, { arith, threads: opts.threads, chunkRows: opts.chunkRows, source: opts.source });
-    this.inputs = this.shared.inputs;
-    this.outputs = this.shared.outputs;
   }
 
   /** Which kernel runs, in words. */
@@ -71,34 +63,7 @@ export class Int8Runner implements Runner {
     return this.shared.codes.every((c) => c === 'stored');
   }
 
-  get threads(): number {
-    return this.shared.threads;
-  }
-
-  get chunkRows(): number {
-    return this.shared.chunkRows;
-  }
-
-  /** Resolves once the helper threads have started. */
-  ready(): Promise<void> {
-    return this.shared.ready();
-  }
-
-  /**
-   * Inference on raw features (rows x inputs, row-major); returns a new rows x outputs array.
-   * @throws ShapeError when data does not hold rows x inputs values.
-   */
-  run(data: Float32Array, rows: number): Float32Array {
-    return this.shared.run(data, rows);
-  }
-
-  /** Each layer's output, from the model cut after that layer, for the parity report. */
-  runLayers(data: Float32Array, rows: number): Float32Array[] {
-    const open = (prefix: ModelDoc) => new Int8Runner(prefix, { ...this.options, threads: 1 });
-    return outputsOfPrefixes(this.doc, () => this.run(data, rows), open, data, rows);
-  }
-
-  dispose(): void {
-    this.shared.dispose();
+  protected openOneThread(prefix: ModelDoc): Runner {
+    return new Int8Runner(prefix, { ...this.options, threads: 1 });
   }
 }
