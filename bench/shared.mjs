@@ -3,6 +3,7 @@
 import { spawn } from 'node:child_process';
 import { dirname, join } from 'node:path';
 import { fileURLToPath } from 'node:url';
+import { SeededRng } from '../dist/index.js';
 
 export const HERE = dirname(fileURLToPath(import.meta.url));
 export const ROOT = join(HERE, '..');
@@ -30,16 +31,10 @@ export function hardDeadline(tool, ms) {
   timer.unref();
 }
 
-/** mulberry32: seeded uniform numbers in [0, 1), so every run sends the same rows. */
+/** Seeded uniform numbers in [0, 1) (tendon's own generator), so every run sends the same rows. */
 export function seeded(seed) {
-  let a = seed >>> 0;
-  return () => {
-    a = (a + 0x6d2b79f5) >>> 0;
-    let t = a;
-    t = Math.imul(t ^ (t >>> 15), t | 1);
-    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-  };
+  const rng = new SeededRng(seed);
+  return () => rng.next();
 }
 
 /** A node process running `args`; `url` resolves to the first match of `pattern`'s group 1 on its stdout, and rejects (with its stderr) if it exits first. */

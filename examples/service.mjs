@@ -13,26 +13,15 @@ import { mkdtempSync } from 'node:fs';
 import { createServer } from 'node:http';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
-import { buildFromSpec, createRequestHandler, openModel, tune, writeModelFile } from '../dist/index.js';
+import { buildFromSpec, createRequestHandler, openModel, SeededRng, tune, writeModelFile } from '../dist/index.js';
 
 const FEATURES = ['zone1_temp_c', 'zone2_temp_c', 'zone3_temp_c', 'humidity_pct', 'belt_speed_m_min', 'dough_mass_g', 'proof_time_min'];
 
-/** Seeded uniform numbers in [0, 1) (mulberry32), so every run invents the same loaves. */
-function seeded(seed) {
-  let a = seed >>> 0;
-  return () => {
-    a = (a + 0x6d2b79f5) >>> 0;
-    let t = a;
-    t = Math.imul(t ^ (t >>> 15), t | 1);
-    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-  };
-}
-
 /** `rows` invented loaves; `offset` shifts the zone thermometers (a second site reading high). */
 function loaves(rows, seed, offset = 0) {
-  const next = seeded(seed);
-  const normal = () => Math.sqrt(-2 * Math.log(1 - next())) * Math.cos(2 * Math.PI * next());
+  // tendon's own seeded generator, so every run invents the same loaves.
+  const rng = new SeededRng(seed);
+  const normal = () => rng.normal();
   const x = new Float32Array(rows * 7);
   const y = new Int32Array(rows);
   for (let r = 0; r < rows; r++) {
